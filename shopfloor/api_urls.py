@@ -1,0 +1,5 @@
+"""API v1 routes (DRF)."""
+
+from django.urls import path
+
+urlpatterns: list = []

@@ -1,0 +1,6 @@
+from django.apps import AppConfig
+
+
+class FloorConfig(AppConfig):
+    name = "shopfloor.floor"
+    label = "floor"

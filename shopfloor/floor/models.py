@@ -1,0 +1,143 @@
+"""What happens to a lot on the floor: its steps, readings and idempotent requests.
+
+A lot's steps are copied from its released routing revision when the lot is created
+(measurement plan and windows included), so later revisions never change a lot in
+process. Readings are never edited: a correction is a new reading that supersedes.
+"""
+
+from __future__ import annotations
+
+from django.conf import settings
+from django.db import models
+from django.utils import timezone
+
+
+class LotStep(models.Model):
+    """One step of one lot, in routing order (rework steps a disposition added included)."""
+
+    class Status(models.TextChoices):
+        WAITING = "waiting", "Waiting"
+        IN_PROGRESS = "in_progress", "In progress"
+        PAUSED = "paused", "Paused"
+        DONE = "done", "Done"
+        SKIPPED = "skipped", "Skipped (moved to another revision)"
+
+    lot = models.ForeignKey("plant.Lot", on_delete=models.PROTECT, related_name="steps")
+    position = models.PositiveIntegerField(help_text="Order along the lot's route")
+    code = models.CharField(max_length=60)
+    name = models.CharField(max_length=120)
+    work_center = models.ForeignKey(
+        "plant.WorkCenter", on_delete=models.PROTECT, related_name="lot_steps"
+    )
+    routing_step = models.ForeignKey(
+        "routing.RoutingStep", null=True, blank=True, on_delete=models.PROTECT
+    )
+    cycle = models.PositiveSmallIntegerField(null=True, blank=True)
+    instructions = models.TextField(blank=True)
+    parameters = models.JSONField(default=dict, blank=True)
+    plan = models.JSONField(default=list, blank=True, help_text="Measurement plan snapshot")
+    hazard = models.TextField(blank=True)
+    queue_time_limit_minutes = models.PositiveIntegerField(null=True, blank=True)
+    standard_minutes = models.PositiveIntegerField(default=30)
+    is_rework = models.BooleanField(default=False)
+    added_by_ncr = models.ForeignKey(
+        "quality.Nonconformance", null=True, blank=True, on_delete=models.PROTECT,
+        related_name="rework_steps",
+    )
+    status = models.CharField(max_length=12, choices=Status.choices, default=Status.WAITING)
+    queue_priority = models.IntegerField(default=0, help_text="Supervisor order in the queue")
+    arrived_at = models.DateTimeField(null=True, blank=True)
+    started_at = models.DateTimeField(null=True, blank=True)
+    started_by = models.ForeignKey(
+        "plant.Person", null=True, blank=True, on_delete=models.PROTECT, related_name="+"
+    )
+    completed_at = models.DateTimeField(null=True, blank=True)
+    completed_by = models.ForeignKey(
+        "plant.Person", null=True, blank=True, on_delete=models.PROTECT, related_name="+"
+    )
+    equipment = models.ForeignKey(
+        "plant.Equipment", null=True, blank=True, on_delete=models.PROTECT, related_name="+"
+    )
+    material_lots = models.ManyToManyField("plant.MaterialLot", blank=True, related_name="steps")
+    signature = models.OneToOneField(
+        "audit.Signature", null=True, blank=True, on_delete=models.PROTECT, related_name="+"
+    )
+    queue_warning_released_reason = models.CharField(max_length=300, blank=True)
+
+    class Meta:
+        ordering = ["lot", "position"]
+        constraints = [
+            models.UniqueConstraint(fields=["lot", "position"], name="lot_step_position_unique")
+        ]
+        indexes = [models.Index(fields=["work_center", "status"])]
+
+    def __str__(self) -> str:
+        return f"{self.lot.code} #{self.position} {self.name}"
+
+    @property
+    def is_open(self) -> bool:
+        return self.status in {self.Status.WAITING, self.Status.IN_PROGRESS, self.Status.PAUSED}
+
+
+class Reading(models.Model):
+    """A measured value (or attribute count) on a lot step, judged against its window."""
+
+    lot_step = models.ForeignKey(LotStep, on_delete=models.PROTECT, related_name="readings")
+    quantity = models.CharField(max_length=40)
+    entered_value = models.CharField(max_length=40)
+    entered_unit = models.CharField(max_length=20)
+    value = models.FloatField(help_text="In the quantity's canonical unit")
+    unit = models.CharField(max_length=10)
+    sample_index = models.PositiveSmallIntegerField(default=1)
+    position = models.CharField(max_length=60, blank=True)
+    equipment = models.ForeignKey(
+        "plant.Equipment", null=True, blank=True, on_delete=models.PROTECT, related_name="readings"
+    )
+    operator = models.ForeignKey("plant.Person", on_delete=models.PROTECT, related_name="readings")
+    captured_at = models.DateTimeField()
+    recorded_at = models.DateTimeField(default=timezone.now)
+    window = models.JSONField(help_text="Window snapshot it was judged against, with source")
+    in_window = models.BooleanField()
+    superseded_by = models.OneToOneField(
+        "self", null=True, blank=True, on_delete=models.PROTECT, related_name="supersedes"
+    )
+    correction_reason = models.CharField(max_length=300, blank=True)
+    via = models.CharField(max_length=20, default="tablet")
+
+    class Meta:
+        ordering = ["lot_step", "quantity", "sample_index", "recorded_at"]
+        indexes = [models.Index(fields=["quantity", "recorded_at"])]
+
+    def __str__(self) -> str:
+        return f"{self.quantity}={self.value:g} {self.unit}"
+
+
+class IdempotencyRecord(models.Model):
+    """A state-changing request seen before: its fingerprint and the reply it got."""
+
+    key = models.CharField(max_length=100)
+    user = models.ForeignKey(settings.AUTH_USER_MODEL, on_delete=models.CASCADE)
+    fingerprint = models.CharField(max_length=64)
+    completed = models.BooleanField(default=False)
+    status_code = models.PositiveSmallIntegerField(null=True, blank=True)
+    body = models.JSONField(null=True, blank=True)
+    created_at = models.DateTimeField(default=timezone.now)
+
+    class Meta:
+        constraints = [
+            models.UniqueConstraint(fields=["user", "key"], name="idempotency_unique")
+        ]
+
+
+class InstrumentToken(models.Model):
+    """A machine credential scoped to one work center; it may only post readings."""
+
+    name = models.CharField(max_length=100)
+    work_center = models.ForeignKey("plant.WorkCenter", on_delete=models.CASCADE)
+    user = models.OneToOneField(settings.AUTH_USER_MODEL, on_delete=models.CASCADE)
+    key_hash = models.CharField(max_length=64, unique=True)
+    active = models.BooleanField(default=True)
+    created_at = models.DateTimeField(default=timezone.now)
+
+    def __str__(self) -> str:
+        return f"{self.name} @ {self.work_center.code}"

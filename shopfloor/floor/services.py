@@ -1,0 +1,477 @@
+"""Use cases of the floor: badge login, PIN checks, starting, recording and completing steps.
+
+Each public function is one use case, owns its transaction, locks the rows that a
+concurrent request could change, writes its audit entry and (for readings) its outbox
+event in the same transaction. The tablet views and the API call these functions only.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+from dataclasses import dataclass
+from datetime import datetime, timedelta
+from typing import Any
+
+from django.conf import settings
+from django.contrib.auth.models import AbstractBaseUser
+from django.db import transaction
+from django.utils import timezone
+
+from shopfloor import units
+from shopfloor.audit import services as audit
+from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
+from shopfloor.floor.models import LotStep, Reading
+from shopfloor.plant.models import Equipment, Lot, MaterialLot, Person, Qualification
+from shopfloor.quality.models import OutboxEvent
+from shopfloor.windows import judge_window
+
+log = logging.getLogger("shopfloor.floor")
+
+# A reading's capture time may lag its recording (offline tablet) but not by days,
+# and may not be in the future beyond clock skew.
+MAX_CAPTURE_AGE = timedelta(hours=24)
+MAX_CLOCK_SKEW = timedelta(minutes=5)
+
+
+# --- people -------------------------------------------------------------------------
+
+
+def person_for(user: AbstractBaseUser | Any) -> Person:
+    person = getattr(user, "person", None) if user is not None else None
+    if person is None:
+        raise NotAllowed("This account has no badge on file; ask an administrator to add one.")
+    return person
+
+
+def badge_login(badge_number: str, pin: str) -> Person:
+    """Find the person for a badge scan and PIN; count wrong PINs and lock at the limit."""
+    badge_number = (badge_number or "").strip()
+    if not badge_number or not pin:
+        raise InvalidInput("Scan or type your badge number and enter your PIN.")
+    person = Person.objects.select_related("user").filter(badge_number=badge_number).first()
+    if person is None or not person.user.is_active:
+        raise NotAllowed("Badge number or PIN is not right.")
+    verify_pin(person, pin)
+    return person
+
+
+def verify_pin(person: Person, pin: str) -> None:
+    """Check a PIN (login or signature). After PIN_MAX_FAILURES wrong PINs, lock and log."""
+    with transaction.atomic():
+        locked = Person.objects.select_for_update().get(pk=person.pk)
+        if locked.is_locked:
+            raise NotAllowed(
+                "This badge is locked after too many wrong PINs. A supervisor or administrator "
+                "must unlock it."
+            )
+        if locked.pin_matches(pin):
+            if locked.pin_failures:
+                locked.pin_failures = 0
+                locked.save(update_fields=["pin_failures"])
+            return
+        locked.pin_failures += 1
+        fields = ["pin_failures"]
+        if locked.pin_failures >= settings.PIN_MAX_FAILURES:
+            locked.locked_at = timezone.now()
+            fields.append("locked_at")
+        locked.save(update_fields=fields)
+        if locked.locked_at:
+            audit.record(
+                actor=locked.user, action="person.locked", object_type="person",
+                object_id=locked.pk, after={"reason": "too many wrong PINs",
+                                            "failures": locked.pin_failures},
+            )
+            log.warning("badge %s locked after %s wrong PINs", locked.badge_number,
+                        locked.pin_failures)
+    # Raised outside the atomic block so the failure count is kept.
+    if locked.locked_at:
+        raise NotAllowed("Wrong PIN. This badge is now locked; ask a supervisor to unlock it.")
+    left = settings.PIN_MAX_FAILURES - locked.pin_failures
+    raise NotAllowed(f"Wrong PIN. {left} more wrong attempt(s) will lock this badge.")
+
+
+def unlock_person(*, by: Person, person_id: int) -> Person:
+    if not by.roles() & {"supervisor", "admin"}:
+        raise NotAllowed("Only a supervisor or administrator can unlock a badge.")
+    with transaction.atomic():
+        person = Person.objects.select_for_update().get(pk=person_id)
+        person.locked_at = None
+        person.pin_failures = 0
+        person.save(update_fields=["locked_at", "pin_failures"])
+        audit.record(actor=by.user, action="person.unlocked", object_type="person",
+                     object_id=person.pk)
+    return person
+
+
+def check_qualified(person: Person, work_center_id: int, on: datetime | None = None) -> None:
+    today = timezone.localdate(on) if on else timezone.localdate()
+    qual = Qualification.objects.filter(person=person, work_center_id=work_center_id).first()
+    if qual is None:
+        raise NotAllowed(
+            f"{person.printed_name} is not qualified for this work center, so cannot sign its "
+            "steps. Ask a supervisor to record the qualification."
+        )
+    if qual.valid_until < today:
+        raise NotAllowed(
+            f"{person.printed_name}'s qualification for this work center expired on "
+            f"{qual.valid_until:%Y-%m-%d}. Ask a supervisor to renew it."
+        )
+
+
+# --- lookups ------------------------------------------------------------------------
+
+
+def find_lot(code: str) -> Lot:
+    code = (code or "").strip()
+    if not code:
+        raise InvalidInput("Scan or type a lot code.")
+    lot = Lot.objects.select_related("routing_revision").filter(code__iexact=code).first()
+    if lot is None:
+        raise NotFound(f"No lot with code {code!r}. Check the traveller label and scan again.")
+    return lot
+
+
+def current_step(lot: Lot) -> LotStep | None:
+    """The first step of the lot's route that is not done (or skipped)."""
+    return (
+        LotStep.objects.filter(lot=lot)
+        .exclude(status__in=[LotStep.Status.DONE, LotStep.Status.SKIPPED])
+        .order_by("position")
+        .select_related("work_center")
+        .first()
+    )
+
+
+def _lock_step(lot_step_id: int) -> tuple[LotStep, Lot]:
+    step = LotStep.objects.select_for_update().filter(pk=lot_step_id).first()
+    if step is None:
+        raise NotFound(f"No lot step {lot_step_id}.")
+    lot = Lot.objects.select_for_update().get(pk=step.lot_id)
+    return step, lot
+
+
+def _require_workable(step: LotStep, lot: Lot) -> None:
+    if lot.on_hold:
+        raise Conflict(
+            f"Lot {lot.code} is on hold. It cannot be worked until quality dispositions the "
+            "nonconformance."
+        )
+    if lot.status in {Lot.Status.COMPLETE, Lot.Status.SCRAPPED}:
+        raise Conflict(f"Lot {lot.code} is {lot.get_status_display().lower()}; nothing to do.")
+    current = current_step(lot)
+    if current is None or current.pk != step.pk:
+        where = f"'{current.name}' at {current.work_center.name}" if current else "none"
+        raise Conflict(
+            f"'{step.name}' is not the lot's current step. The lot is at {where}; steps run "
+            "in routing order."
+        )
+
+
+def _step_state(step: LotStep) -> dict[str, Any]:
+    return {
+        "status": step.status,
+        "started_at": step.started_at,
+        "completed_at": step.completed_at,
+        "equipment": step.equipment_id,
+    }
+
+
+# --- steps --------------------------------------------------------------------------
+
+
+def start_step(
+    *,
+    person: Person,
+    lot_step_id: int,
+    equipment_id: int | None = None,
+    material_lot_ids: list[int] | None = None,
+) -> LotStep:
+    """Begin (or resume) work on the lot's current step."""
+    with transaction.atomic():
+        step, lot = _lock_step(lot_step_id)
+        _require_workable(step, lot)
+        check_qualified(person, step.work_center_id)
+        if step.status == LotStep.Status.IN_PROGRESS:
+            raise Conflict(f"'{step.name}' is already in progress.")
+        before = _step_state(step)
+        if equipment_id is not None:
+            step.equipment = _usable_equipment(equipment_id, step.work_center_id)
+        now = timezone.now()
+        if step.started_at is None:
+            step.started_at = now
+            step.started_by = person
+        step.status = LotStep.Status.IN_PROGRESS
+        step.save()
+        if material_lot_ids:
+            found = list(MaterialLot.objects.filter(pk__in=material_lot_ids))
+            if len(found) != len(set(material_lot_ids)):
+                raise InvalidInput("One or more material lots do not exist.")
+            step.material_lots.add(*found)
+        if lot.status == Lot.Status.NOT_STARTED:
+            lot.status = Lot.Status.IN_PROCESS
+            lot.started_at = now
+            lot.save(update_fields=["status", "started_at"])
+        audit.record(actor=person.user, action="step.started", object_type="lot_step",
+                     object_id=step.pk, before=before, after=_step_state(step))
+        return step
+
+
+def pause_step(*, person: Person, lot_step_id: int, reason: str = "") -> LotStep:
+    with transaction.atomic():
+        step, lot = _lock_step(lot_step_id)
+        if step.status != LotStep.Status.IN_PROGRESS:
+            raise Conflict(f"'{step.name}' is not in progress, so it cannot be paused.")
+        before = _step_state(step)
+        step.status = LotStep.Status.PAUSED
+        step.save(update_fields=["status"])
+        audit.record(actor=person.user, action="step.paused", object_type="lot_step",
+                     object_id=step.pk, before=before, after={**_step_state(step),
+                                                              "reason": reason})
+        return step
+
+
+def _usable_equipment(equipment_id: int, work_center_id: int) -> Equipment:
+    equipment = Equipment.objects.filter(pk=equipment_id).first()
+    if equipment is None:
+        raise InvalidInput(f"No equipment with id {equipment_id}.")
+    if equipment.work_center_id != work_center_id:
+        raise InvalidInput(f"{equipment.code} belongs to another work center.")
+    if not equipment.calibration_current():
+        due = equipment.calibration_due
+        raise NotAllowed(
+            f"{equipment.code} is past its calibration due date"
+            f"{f' ({due:%Y-%m-%d})' if due else ''} and cannot be used for readings. "
+            "Use a calibrated gauge or ask the metrology lab."
+        )
+    return equipment
+
+
+def missing_readings(step: LotStep) -> list[str]:
+    """Plain-English list of the readings the plan still needs."""
+    have: dict[str, set[int]] = {}
+    for quantity, sample in Reading.objects.filter(
+        lot_step=step, superseded_by__isnull=True
+    ).values_list("quantity", "sample_index"):
+        have.setdefault(quantity, set()).add(sample)
+    missing: list[str] = []
+    for m in step.plan:
+        need = int(m.get("samples") or 1)
+        got = len({s for s in have.get(m["quantity"], set()) if 1 <= s <= need})
+        if got < need:
+            missing.append(f"{m['quantity']}: {got} of {need} samples")
+    return missing
+
+
+def window_for(step: LotStep, quantity: str) -> dict[str, Any]:
+    for m in step.plan:
+        if m["quantity"] == quantity:
+            return dict(m)
+    allowed = ", ".join(m["quantity"] for m in step.plan) or "none (this step has no readings)"
+    raise InvalidInput(
+        f"'{quantity}' is not measured at '{step.name}'. Allowed here: {allowed}.",
+        problems=[{"field": "quantity", "value": quantity, "allowed": allowed}],
+    )
+
+
+@dataclass(frozen=True)
+class ReadingInput:
+    quantity: str
+    value: Any
+    unit: str
+    sample_index: int = 1
+    position: str = ""
+    equipment_id: int | None = None
+    captured_at: datetime | None = None
+
+
+def _parse_reading(step: LotStep, data: ReadingInput) -> tuple[dict[str, Any], float, datetime]:
+    window = window_for(step, data.quantity)
+    try:
+        value = units.to_canonical(data.quantity, data.value, data.unit)
+    except (units.UnitError, ValueError) as exc:
+        raise InvalidInput(
+            str(exc),
+            problems=[{"field": "value", "value": str(data.value), "unit": data.unit,
+                       "problem": str(exc), "allowed": units.allowed_units(data.quantity)}],
+        ) from exc
+    samples = int(window.get("samples") or 1)
+    if not isinstance(data.sample_index, int) or not 1 <= data.sample_index <= max(samples, 1):
+        raise InvalidInput(
+            f"Sample {data.sample_index} is outside the plan: this step takes samples 1 to "
+            f"{samples} of {data.quantity}.",
+            problems=[{"field": "sample_index", "value": data.sample_index,
+                       "allowed": f"1..{samples}"}],
+        )
+    now = timezone.now()
+    captured = data.captured_at or now
+    if timezone.is_naive(captured):
+        raise InvalidInput("captured_at must include a time zone (ISO 8601 with offset or Z).")
+    if captured > now + MAX_CLOCK_SKEW:
+        raise InvalidInput("captured_at is in the future; check the device clock.")
+    if captured < now - MAX_CAPTURE_AGE:
+        raise InvalidInput("captured_at is more than 24 hours old; enter it as a correction.")
+    if not math.isfinite(value):
+        raise InvalidInput("The value must be a finite number.")
+    return window, value, captured
+
+
+def record_reading(*, person: Person, lot_step_id: int, data: ReadingInput,
+                   via: str = "tablet") -> Reading:
+    """Record one reading on the lot's current step, judge it, and queue the event."""
+    with transaction.atomic():
+        step, lot = _lock_step(lot_step_id)
+        _require_workable(step, lot)
+        if step.status != LotStep.Status.IN_PROGRESS:
+            raise Conflict(f"Start '{step.name}' before recording readings.")
+        window, value, captured = _parse_reading(step, data)
+        equipment = None
+        if data.equipment_id is not None:
+            equipment = _usable_equipment(data.equipment_id, step.work_center_id)
+        existing = (
+            Reading.objects.filter(lot_step=step, quantity=data.quantity,
+                                   sample_index=data.sample_index, superseded_by__isnull=True)
+            .first()
+        )
+        if existing is not None:
+            # A second value for the same sample is a correction, which needs a reason.
+            raise Conflict(
+                f"Sample {data.sample_index} of {data.quantity} already has a reading "
+                f"({existing.value:g} {existing.unit}). To change it, record a correction "
+                "with a reason."
+            )
+        reading = _store_reading(step, lot, person, data, window, value, captured, equipment, via)
+        return reading
+
+
+def _store_reading(step: LotStep, lot: Lot, person: Person, data: ReadingInput,
+                   window: dict[str, Any], value: float, captured: datetime,
+                   equipment: Equipment | None, via: str) -> Reading:
+    judgement = judge_window(value, window)
+    reading = Reading.objects.create(
+        lot_step=step,
+        quantity=data.quantity,
+        entered_value=str(data.value)[:40],
+        entered_unit=data.unit[:20],
+        value=value,
+        unit=units.canonical_unit(data.quantity),
+        sample_index=data.sample_index,
+        position=(data.position or "")[:60],
+        equipment=equipment,
+        operator=person,
+        captured_at=captured,
+        window=window,
+        in_window=judgement.in_window,
+        via=via,
+    )
+    audit.record(
+        actor=person.user, action="reading.recorded", object_type="reading",
+        object_id=reading.pk,
+        after={"lot": lot.code, "step": step.code, "quantity": reading.quantity,
+               "value": value, "unit": reading.unit, "sample": reading.sample_index,
+               "in_window": reading.in_window, "source": window.get("source")},
+    )
+    OutboxEvent.objects.create(
+        kind="reading.recorded",
+        payload={"reading": reading.pk, "lot": lot.pk, "lot_step": step.pk,
+                 "in_window": judgement.in_window, "message": judgement.message},
+    )
+    return reading
+
+
+def correct_reading(*, person: Person, reading_id: int, value: Any, unit: str,
+                    reason: str, captured_at: datetime | None = None) -> Reading:
+    """Supersede a reading with a new one; both stay in history with the reason."""
+    reason = (reason or "").strip()
+    if len(reason) < 3:
+        raise InvalidInput("A correction needs a reason (what was wrong with the first reading).")
+    with transaction.atomic():
+        old = Reading.objects.select_for_update().filter(pk=reading_id).first()
+        if old is None:
+            raise NotFound(f"No reading {reading_id}.")
+        if old.superseded_by_id is not None:
+            raise Conflict("That reading was already corrected; correct the newest one instead.")
+        step, lot = _lock_step(old.lot_step_id)
+        _require_workable(step, lot)
+        data = ReadingInput(quantity=old.quantity, value=value, unit=unit,
+                            sample_index=old.sample_index, position=old.position,
+                            equipment_id=old.equipment_id, captured_at=captured_at)
+        window, canonical, captured = _parse_reading(step, data)
+        equipment = old.equipment
+        new = _store_reading(step, lot, person, data, window, canonical, captured, equipment,
+                             "correction")
+        old.superseded_by = new
+        old.correction_reason = reason[:300]
+        old.save(update_fields=["superseded_by", "correction_reason"])
+        audit.record(actor=person.user, action="reading.superseded", object_type="reading",
+                     object_id=old.pk, before={"value": old.value},
+                     after={"superseded_by": new.pk, "value": new.value, "reason": reason})
+        return new
+
+
+def _step_content(step: LotStep) -> dict[str, Any]:
+    readings = list(
+        Reading.objects.filter(lot_step=step, superseded_by__isnull=True)
+        .order_by("pk").values_list("pk", "quantity", "sample_index", "value")
+    )
+    return {
+        "lot": step.lot_id,
+        "position": step.position,
+        "code": step.code,
+        "started_at": step.started_at,
+        "completed_at": step.completed_at,
+        "completed_by": step.completed_by_id,
+        "equipment": step.equipment_id,
+        "readings": [list(r) for r in readings],
+    }
+
+
+def step_content(step: LotStep) -> dict[str, Any]:
+    """The signed content of a step (used to verify its signature later)."""
+    return _step_content(step)
+
+
+def complete_step(*, person: Person, lot_step_id: int, pin: str,
+                  meaning: str = "performed_by") -> LotStep:
+    """Sign off the current step (PIN re-entry) and move the lot to its next step."""
+    from shopfloor.audit.models import Signature
+
+    if meaning not in {Signature.Meaning.PERFORMED, Signature.Meaning.VERIFIED}:
+        raise InvalidInput("A step is signed as 'performed_by' or 'verified_by'.")
+    verify_pin(person, pin)
+    with transaction.atomic():
+        step, lot = _lock_step(lot_step_id)
+        if step.status == LotStep.Status.DONE:
+            raise Conflict(f"'{step.name}' was already signed off by someone else.")
+        _require_workable(step, lot)
+        check_qualified(person, step.work_center_id)
+        if step.status != LotStep.Status.IN_PROGRESS:
+            raise Conflict(f"Start '{step.name}' before signing it off.")
+        missing = missing_readings(step)
+        if missing:
+            raise Conflict(
+                "This step cannot be completed yet; readings missing: " + "; ".join(missing),
+                problems=[{"field": "readings", "missing": missing}],
+            )
+        before = _step_state(step)
+        now = timezone.now()
+        step.status = LotStep.Status.DONE
+        step.completed_at = now
+        step.completed_by = person
+        sig = audit.sign(person=person, meaning=meaning, record_type="lot_step",
+                         record_id=step.pk, content=_step_content(step))
+        step.signature = sig
+        step.save()
+        nxt = current_step(lot)
+        if nxt is None:
+            lot.status = Lot.Status.COMPLETE
+            lot.completed_at = now
+            lot.save(update_fields=["status", "completed_at"])
+        else:
+            nxt.arrived_at = now
+            nxt.save(update_fields=["arrived_at"])
+        audit.record(actor=person.user, action="step.completed", object_type="lot_step",
+                     object_id=step.pk, before=before,
+                     after={**_step_state(step), "signature": sig.pk,
+                            "next": nxt.code if nxt else None})
+        return step

@@ -1,0 +1,279 @@
+"""Plant master data: who the shop builds for, what it builds, where and with what.
+
+Jobs (work orders) are imaged onto production panels; panels run together as lots; a
+lot follows exactly one released routing revision. People are Django users with a
+badge number and a separately hashed PIN used as the second signing component.
+"""
+
+from __future__ import annotations
+
+from django.conf import settings
+from django.contrib.auth.hashers import check_password, make_password
+from django.db import models
+from django.utils import timezone
+
+
+class Role(models.TextChoices):
+    """Roles are Django groups with these names."""
+
+    OPERATOR = "operator", "Operator"
+    SUPERVISOR = "supervisor", "Supervisor"
+    PROCESS_ENGINEER = "process_engineer", "Process engineer"
+    QUALITY_ENGINEER = "quality_engineer", "Quality engineer"
+    ADMIN = "admin", "Administrator"
+
+
+class IpcClass(models.IntegerChoices):
+    CLASS_1 = 1, "IPC class 1 (general electronic products)"
+    CLASS_2 = 2, "IPC class 2 (dedicated service electronic products)"
+    CLASS_3 = 3, "IPC class 3 (high reliability electronic products)"
+
+
+class Customer(models.Model):
+    """A customer the shop builds boards for."""
+
+    code = models.CharField(max_length=20, unique=True)
+    name = models.CharField(max_length=200)
+
+    class Meta:
+        ordering = ["code"]
+
+    def __str__(self) -> str:
+        return f"{self.code} {self.name}"
+
+
+class Part(models.Model):
+    """A customer's part number."""
+
+    customer = models.ForeignKey(Customer, on_delete=models.PROTECT, related_name="parts")
+    number = models.CharField(max_length=60)
+    description = models.CharField(max_length=200, blank=True)
+
+    class Meta:
+        constraints = [models.UniqueConstraint(fields=["customer", "number"], name="part_unique")]
+        ordering = ["number"]
+
+    def __str__(self) -> str:
+        return self.number
+
+
+class PartRevision(models.Model):
+    """One revision of a part with its validated build spec (stack-up, finish, profile)."""
+
+    part = models.ForeignKey(Part, on_delete=models.PROTECT, related_name="revisions")
+    revision = models.CharField(max_length=10)
+    build_spec = models.JSONField(help_text="Validated build spec; see README 'Build spec'")
+    created_at = models.DateTimeField(default=timezone.now)
+
+    class Meta:
+        constraints = [
+            models.UniqueConstraint(fields=["part", "revision"], name="part_revision_unique")
+        ]
+
+    def __str__(self) -> str:
+        return f"{self.part.number} rev {self.revision}"
+
+
+class WorkCenter(models.Model):
+    """A place on the floor where steps are done (an etch line, a drill room, e-test)."""
+
+    code = models.CharField(max_length=40, unique=True)
+    name = models.CharField(max_length=120)
+    notify_emails = models.TextField(
+        blank=True, help_text="Comma-separated addresses told about alerts at this work center"
+    )
+
+    class Meta:
+        ordering = ["code"]
+
+    def __str__(self) -> str:
+        return self.name
+
+    def notification_list(self) -> list[str]:
+        return [a.strip() for a in self.notify_emails.split(",") if a.strip()]
+
+
+class Equipment(models.Model):
+    """A machine or gauge at a work center; a gauge past calibration may not take readings."""
+
+    work_center = models.ForeignKey(WorkCenter, on_delete=models.PROTECT, related_name="equipment")
+    code = models.CharField(max_length=40, unique=True)
+    name = models.CharField(max_length=120)
+    is_gauge = models.BooleanField(default=False)
+    calibration_due = models.DateField(null=True, blank=True)
+
+    class Meta:
+        ordering = ["code"]
+        verbose_name_plural = "equipment"
+
+    def __str__(self) -> str:
+        return f"{self.code} {self.name}"
+
+    def calibration_current(self, on: timezone.datetime | None = None) -> bool:
+        if self.calibration_due is None:
+            return not self.is_gauge
+        today = timezone.localdate(on) if on else timezone.localdate()
+        return self.calibration_due >= today
+
+
+class MaterialLot(models.Model):
+    """A received lot of laminate, prepreg, foil, mask ink, chemistry... (for recall)."""
+
+    class Kind(models.TextChoices):
+        LAMINATE = "laminate", "Laminate (core)"
+        PREPREG = "prepreg", "Prepreg"
+        FOIL = "foil", "Copper foil"
+        MASK_INK = "mask_ink", "Solder mask ink"
+        LEGEND_INK = "legend_ink", "Legend ink"
+        DRY_FILM = "dry_film", "Dry film resist"
+        CHEMISTRY = "chemistry", "Process chemistry"
+        OTHER = "other", "Other"
+
+    code = models.CharField(max_length=60, unique=True)
+    kind = models.CharField(max_length=20, choices=Kind.choices)
+    description = models.CharField(max_length=200)
+    supplier_lot = models.CharField(max_length=60, blank=True)
+    received_on = models.DateField(null=True, blank=True)
+    expires_on = models.DateField(null=True, blank=True)
+
+    class Meta:
+        ordering = ["code"]
+
+    def __str__(self) -> str:
+        return f"{self.code} ({self.get_kind_display()})"
+
+
+class Person(models.Model):
+    """A user's shop-floor identity: badge number and a PIN hashed apart from the password."""
+
+    user = models.OneToOneField(
+        settings.AUTH_USER_MODEL, on_delete=models.CASCADE, related_name="person"
+    )
+    badge_number = models.CharField(max_length=20, unique=True)
+    printed_name = models.CharField(max_length=120)
+    pin_hash = models.CharField(max_length=256)
+    pin_failures = models.PositiveSmallIntegerField(default=0)
+    locked_at = models.DateTimeField(null=True, blank=True)
+    work_centers = models.ManyToManyField(WorkCenter, blank=True, related_name="people")
+
+    class Meta:
+        ordering = ["badge_number"]
+        verbose_name_plural = "people"
+
+    def __str__(self) -> str:
+        return f"{self.printed_name} ({self.badge_number})"
+
+    def set_pin(self, pin: str) -> None:
+        self.pin_hash = make_password(pin)
+
+    def pin_matches(self, pin: str) -> bool:
+        return bool(self.pin_hash) and check_password(pin, self.pin_hash)
+
+    @property
+    def is_locked(self) -> bool:
+        return self.locked_at is not None
+
+    def roles(self) -> set[str]:
+        return set(self.user.groups.values_list("name", flat=True))
+
+
+class Qualification(models.Model):
+    """A person may sign steps at a work center until the qualification expires."""
+
+    person = models.ForeignKey(Person, on_delete=models.CASCADE, related_name="qualifications")
+    work_center = models.ForeignKey(WorkCenter, on_delete=models.CASCADE)
+    valid_until = models.DateField()
+
+    class Meta:
+        constraints = [
+            models.UniqueConstraint(fields=["person", "work_center"], name="qualification_unique")
+        ]
+
+    def __str__(self) -> str:
+        return f"{self.person} @ {self.work_center} until {self.valid_until}"
+
+
+class Job(models.Model):
+    """A work order: a quantity of one part revision due on a date, at an IPC class."""
+
+    number = models.CharField(max_length=30, unique=True)
+    part_revision = models.ForeignKey(PartRevision, on_delete=models.PROTECT, related_name="jobs")
+    quantity = models.PositiveIntegerField()
+    due_date = models.DateField()
+    ipc_class = models.PositiveSmallIntegerField(choices=IpcClass.choices)
+    customer_spec_notes = models.TextField(blank=True)
+    customer_overrides = models.JSONField(
+        default=list, blank=True, help_text="Customer window overrides (see README)"
+    )
+    routing_revision = models.ForeignKey(
+        "routing.RoutingRevision", null=True, blank=True, on_delete=models.PROTECT,
+        related_name="jobs",
+    )
+    created_at = models.DateTimeField(default=timezone.now)
+
+    class Meta:
+        ordering = ["due_date", "number"]
+
+    def __str__(self) -> str:
+        return self.number
+
+    @property
+    def customer(self) -> Customer:
+        return self.part_revision.part.customer
+
+
+class Lot(models.Model):
+    """Panels run together through one routing revision; carries the traveller code."""
+
+    class Status(models.TextChoices):
+        NOT_STARTED = "not_started", "Not started"
+        IN_PROCESS = "in_process", "In process"
+        COMPLETE = "complete", "Complete"
+        SCRAPPED = "scrapped", "Scrapped"
+
+    code = models.CharField(max_length=30, unique=True, help_text="Traveller code (scanned)")
+    routing_revision = models.ForeignKey(
+        "routing.RoutingRevision", on_delete=models.PROTECT, related_name="lots"
+    )
+    status = models.CharField(max_length=20, choices=Status.choices, default=Status.NOT_STARTED)
+    on_hold = models.BooleanField(default=False)
+    priority = models.IntegerField(default=100, help_text="Lower runs first in a queue")
+    split_from = models.ForeignKey(
+        "self", null=True, blank=True, on_delete=models.PROTECT, related_name="splits"
+    )
+    panel_count = models.PositiveIntegerField(default=0)
+    created_at = models.DateTimeField(default=timezone.now)
+    started_at = models.DateTimeField(null=True, blank=True)
+    completed_at = models.DateTimeField(null=True, blank=True)
+
+    class Meta:
+        ordering = ["priority", "created_at"]
+
+    def __str__(self) -> str:
+        return self.code
+
+
+class Panel(models.Model):
+    """A production panel; it may carry images of several jobs that share a build spec."""
+
+    serial = models.CharField(max_length=40, unique=True)
+    lot = models.ForeignKey(Lot, on_delete=models.PROTECT, related_name="panels")
+    jobs = models.ManyToManyField(Job, through="PanelImage", related_name="panels")
+    scrapped = models.BooleanField(default=False)
+
+    class Meta:
+        ordering = ["serial"]
+
+    def __str__(self) -> str:
+        return self.serial
+
+
+class PanelImage(models.Model):
+    """How many images (boards) of a job one panel carries."""
+
+    panel = models.ForeignKey(Panel, on_delete=models.CASCADE, related_name="images")
+    job = models.ForeignKey(Job, on_delete=models.PROTECT, related_name="images")
+    count = models.PositiveSmallIntegerField(default=1)
+
+    class Meta:
+        constraints = [models.UniqueConstraint(fields=["panel", "job"], name="panel_image_unique")]

@@ -1,0 +1,6 @@
+from django.apps import AppConfig
+
+
+class QualityConfig(AppConfig):
+    name = "shopfloor.quality"
+    label = "quality"

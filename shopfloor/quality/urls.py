@@ -1,0 +1,7 @@
+"""Supervisor board and quality pages."""
+
+from django.urls import path
+
+app_name = "quality"
+
+urlpatterns: list = []

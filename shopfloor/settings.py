@@ -1,0 +1,189 @@
+"""Settings for the shop-floor service: one module, every value from the environment.
+
+Defaults give the embedded first-run mode (SQLite under var/, Celery tasks run eagerly
+in-process). Production (DEBUG off) refuses to start without a real SECRET_KEY and
+ALLOWED_HOSTS. See README "Configuration" for every variable.
+"""
+
+from __future__ import annotations
+
+import logging
+from pathlib import Path
+
+from django.core.exceptions import ImproperlyConfigured
+
+from shopfloor.env import database_from_url, env_bool, env_int, env_list, env_str
+
+BASE_DIR = Path(__file__).resolve().parent.parent
+VAR_DIR = BASE_DIR / "var"
+
+DEBUG = env_bool("DEBUG", False)
+
+_secret = env_str("SECRET_KEY")
+if not _secret:
+    if not DEBUG:
+        raise ImproperlyConfigured(
+            "SECRET_KEY is not set. Production (DEBUG off) needs a long random value; "
+            "for a local first run set DEBUG=1 to use the development key."
+        )
+    _secret = "dev-only-insecure-key-do-not-use-in-production-0123456789abcdef"
+SECRET_KEY: str = _secret
+
+ALLOWED_HOSTS = env_list("ALLOWED_HOSTS", ["localhost", "127.0.0.1", "[::1]"] if DEBUG else [])
+if not DEBUG and not ALLOWED_HOSTS:
+    raise ImproperlyConfigured("ALLOWED_HOSTS is empty; name the host names this service answers")
+CSRF_TRUSTED_ORIGINS = env_list("CSRF_TRUSTED_ORIGINS", [])
+
+INSTALLED_APPS = [
+    "django.contrib.admin",
+    "django.contrib.auth",
+    "django.contrib.contenttypes",
+    "django.contrib.sessions",
+    "django.contrib.messages",
+    "django.contrib.staticfiles",
+    "rest_framework",
+    "drf_spectacular",
+    "django_htmx",
+    "shopfloor.audit",
+    "shopfloor.plant",
+    "routing",
+    "shopfloor.floor",
+    "shopfloor.quality",
+]
+
+MIDDLEWARE = [
+    "django.middleware.security.SecurityMiddleware",
+    "whitenoise.middleware.WhiteNoiseMiddleware",
+    "django.contrib.sessions.middleware.SessionMiddleware",
+    "django.middleware.common.CommonMiddleware",
+    "django.middleware.csrf.CsrfViewMiddleware",
+    "django.contrib.auth.middleware.AuthenticationMiddleware",
+    "shopfloor.floor.middleware.IdleTimeoutMiddleware",
+    "django.contrib.messages.middleware.MessageMiddleware",
+    "django.middleware.clickjacking.XFrameOptionsMiddleware",
+    "django_htmx.middleware.HtmxMiddleware",
+    "shopfloor.middleware.DatabaseUnavailableMiddleware",
+]
+
+ROOT_URLCONF = "shopfloor.urls"
+WSGI_APPLICATION = "shopfloor.wsgi.application"
+
+TEMPLATES = [
+    {
+        "BACKEND": "django.template.backends.django.DjangoTemplates",
+        "DIRS": [BASE_DIR / "templates"],
+        "APP_DIRS": True,
+        "OPTIONS": {
+            "context_processors": [
+                "django.template.context_processors.request",
+                "django.contrib.auth.context_processors.auth",
+                "django.contrib.messages.context_processors.messages",
+                "shopfloor.context.site",
+            ],
+        },
+    }
+]
+
+_default_db = f"sqlite:///{VAR_DIR / 'shopfloor.sqlite3'}"
+DATABASE_URL = env_str("DATABASE_URL", _default_db) or _default_db
+DATABASES = {"default": database_from_url(DATABASE_URL)}
+DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
+
+AUTH_PASSWORD_VALIDATORS = [
+    {"NAME": "django.contrib.auth.password_validation.MinimumLengthValidator"},
+    {"NAME": "django.contrib.auth.password_validation.CommonPasswordValidator"},
+]
+LOGIN_URL = "/floor/login/"
+LOGIN_REDIRECT_URL = "/"
+
+LANGUAGE_CODE = "en-gb"
+USE_I18N = False
+USE_TZ = True
+TIME_ZONE = "UTC"  # stored and processed in UTC
+SITE_TIME_ZONE = env_str("SITE_TIME_ZONE", "UTC") or "UTC"  # shown to people
+
+STATIC_URL = "/static/"
+STATIC_ROOT = VAR_DIR / "static"
+STATICFILES_DIRS = [BASE_DIR / "static"]
+STORAGES = {
+    "default": {"BACKEND": "django.core.files.storage.FileSystemStorage"},
+    "staticfiles": {
+        "BACKEND": "whitenoise.storage.CompressedStaticFilesStorage"
+        if not DEBUG
+        else "django.contrib.staticfiles.storage.StaticFilesStorage"
+    },
+}
+
+# Sessions: a tablet left logged in at a work center must ask for the badge again.
+SESSION_IDLE_TIMEOUT_SECONDS = env_int("SESSION_IDLE_TIMEOUT_SECONDS", 15 * 60, minimum=60)
+SESSION_COOKIE_AGE = 12 * 3600
+PIN_MAX_FAILURES = env_int("PIN_MAX_FAILURES", 5, minimum=1)
+
+SECURE_PROXY_SSL_HEADER = ("HTTP_X_FORWARDED_PROTO", "https")
+if not DEBUG:
+    SECURE_SSL_REDIRECT = env_bool("SECURE_SSL_REDIRECT", True)
+    SESSION_COOKIE_SECURE = True
+    CSRF_COOKIE_SECURE = True
+    SECURE_HSTS_SECONDS = env_int("SECURE_HSTS_SECONDS", 31536000)
+    SECURE_HSTS_INCLUDE_SUBDOMAINS = True
+    SECURE_HSTS_PRELOAD = True
+    SECURE_CONTENT_TYPE_NOSNIFF = True
+X_FRAME_OPTIONS = "DENY"
+
+REST_FRAMEWORK = {
+    "DEFAULT_AUTHENTICATION_CLASSES": [
+        "shopfloor.floor.api_auth.InstrumentTokenAuthentication",
+        "rest_framework.authentication.SessionAuthentication",
+    ],
+    "DEFAULT_PERMISSION_CLASSES": ["rest_framework.permissions.IsAuthenticated"],
+    "DEFAULT_SCHEMA_CLASS": "drf_spectacular.openapi.AutoSchema",
+    "EXCEPTION_HANDLER": "shopfloor.api_errors.exception_handler",
+    "DEFAULT_PAGINATION_CLASS": "rest_framework.pagination.LimitOffsetPagination",
+    "PAGE_SIZE": 100,
+}
+SPECTACULAR_SETTINGS = {
+    "TITLE": "Shop-floor traveller API",
+    "DESCRIPTION": "Routing preview, lot status, readings and step sign-off for PCB fabrication.",
+    "VERSION": "1",
+    "SERVE_INCLUDE_SCHEMA": False,
+    "COMPONENT_SPLIT_REQUEST": True,
+}
+
+# Celery: with no REDIS_URL the tasks run eagerly in this process (embedded first run).
+REDIS_URL = env_str("REDIS_URL") or ""
+CELERY_TASK_ALWAYS_EAGER = not REDIS_URL
+CELERY_TASK_EAGER_PROPAGATES = True
+CELERY_BROKER_URL = REDIS_URL or "memory://"
+CELERY_RESULT_BACKEND = None
+CELERY_TASK_IGNORE_RESULT = True
+CELERY_TASK_ACKS_LATE = True
+CELERY_TASK_REJECT_ON_WORKER_LOST = True
+CELERY_WORKER_PREFETCH_MULTIPLIER = 1
+CELERY_BROKER_CONNECTION_RETRY_ON_STARTUP = True
+CELERY_BROKER_TRANSPORT_OPTIONS = {"visibility_timeout": env_int("CELERY_VISIBILITY_TIMEOUT", 300)}
+CELERY_DB_REUSE_MAX = 200
+OUTBOX_RELAY_SECONDS = env_int("OUTBOX_RELAY_SECONDS", 15, minimum=1)
+
+# Mail (Django 6.1 MAILERS); alerts go to each work center's notification list.
+MAILERS = {
+    "default": {
+        "BACKEND": env_str("MAIL_BACKEND", "django.core.mail.backends.console.EmailBackend"),
+    }
+}
+DEFAULT_FROM_EMAIL = env_str("DEFAULT_FROM_EMAIL", "shopfloor@localhost")
+ALERT_WEBHOOK_URL = env_str("ALERT_WEBHOOK_URL", "") or ""
+ALERT_WEBHOOK_SECRET = env_str("ALERT_WEBHOOK_SECRET", "") or ""
+
+LOGGING = {
+    "version": 1,
+    "disable_existing_loggers": False,
+    "formatters": {"plain": {"format": "%(asctime)s %(levelname)s %(name)s: %(message)s"}},
+    "handlers": {"console": {"class": "logging.StreamHandler", "formatter": "plain"}},
+    "root": {"handlers": ["console"], "level": env_str("LOG_LEVEL", "INFO")},
+    "loggers": {"django.db.backends": {"level": "WARNING"}},
+}
+
+if CELERY_TASK_ALWAYS_EAGER:
+    logging.getLogger("shopfloor").info(
+        "REDIS_URL is not set: Celery tasks run eagerly in this process (embedded mode)"
+    )

@@ -1,0 +1,315 @@
+"""One place that turns what people type into the numbers the service stores.
+
+Why this module exists: a traveller is read and written by operators, process
+engineers and customers' documents that mix micrometres, mils, microinches and
+copper "ounces". Every reading is converted once, at the edge, into one canonical
+unit per quantity, so windows, SPC charts and reports never have to guess. The
+conversion itself is done by pint (a shared registry); this module adds what pint
+cannot know: which unit a shop quantity is stored in, which spellings are accepted,
+and which values are physically absurd for a circuit board.
+
+Pure Python (no Django imports) so the routing builder and its tests can use it.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Final
+
+import pint
+
+__all__ = [
+    "COPPER_OZ_UM",
+    "UREG",
+    "ImplausibleValue",
+    "NegativeValue",
+    "NotANumber",
+    "NotFinite",
+    "NotWholeCount",
+    "UnitError",
+    "UnknownQuantity",
+    "UnknownUnit",
+    "WrongDimension",
+    "allowed_units",
+    "canonical_unit",
+    "format_value",
+    "quantities",
+    "to_canonical",
+]
+
+#: The one registry for the whole service. Quantities from different registries
+#: cannot be combined in pint, so every module must use this one.
+UREG: Final = pint.UnitRegistry()
+
+#: Copper weight to thickness: 1 oz/ft² of copper foil taken as 34.79 µm.
+#: Source: common practice (the customary "1 oz = 1.37 mil" figure; 1.37 mil = 34.80 µm).
+#: Note the arithmetic from first principles gives a little less: 1 oz avoirdupois
+#: (28.349523125 g, by definition) spread over 1 ft² (929.0304 cm², by definition of
+#: the foot) is 0.030515 g/cm², which at a copper density of 8.96 g/cm³ is 34.06 µm.
+#: The industry also rounds "1 oz" to 35 µm (so "½ oz" foil is quoted as 17.5 µm), and
+#: foil standards quote a slightly lower nominal (from memory). We keep the customary
+#: factor because that is what customers' drawings mean when they write "1 oz"; the
+#: difference (about 2 %) is well inside any copper thickness window.
+COPPER_OZ_UM: Final[float] = 34.79
+
+
+class UnitError(ValueError):
+    """A value or unit that cannot be stored; the message says what is allowed."""
+
+
+class UnknownQuantity(UnitError):
+    """The quantity identifier is not one this service measures."""
+
+
+class NotANumber(UnitError):
+    """The value is not a number (e.g. '12,5' or 'abc')."""
+
+
+class NotFinite(UnitError):
+    """The value is NaN or infinite."""
+
+
+class UnknownUnit(UnitError):
+    """The unit spelling is not recognised at all."""
+
+
+class WrongDimension(UnitError):
+    """The unit is real but measures something else (e.g. µm for a defect count)."""
+
+
+class NegativeValue(UnitError):
+    """The quantity cannot be negative."""
+
+
+class NotWholeCount(UnitError):
+    """Counts must be whole numbers."""
+
+
+class ImplausibleValue(UnitError):
+    """Above the plausibility ceiling: almost certainly a typing or unit mistake."""
+
+
+# Dimension families. Pint knows length; "percent" and "count" are both
+# dimensionless to pint, so we keep our own family to refuse e.g. "%" for a count.
+_LENGTH = "length"
+_RATIO = "ratio"
+_COUNT = "count"
+
+
+@dataclass(frozen=True)
+class _Quantity:
+    unit: str  # canonical unit, as stored and shown in the API
+    family: str
+    ceiling: float  # plausibility ceiling, in the canonical unit
+    copper: bool = False  # accepts copper weight (oz/ft²)
+    decimals: int = 3  # for format_value
+
+
+_UM_CEILING = 10_000.0  # 10 mm of plating or mask is not a circuit board
+_QUANTITIES: Final[dict[str, _Quantity]] = {
+    "hole_wall_copper": _Quantity("um", _LENGTH, _UM_CEILING, copper=True),
+    "surface_copper": _Quantity("um", _LENGTH, _UM_CEILING, copper=True),
+    "nickel_thickness": _Quantity("um", _LENGTH, _UM_CEILING),
+    "gold_thickness": _Quantity("um", _LENGTH, _UM_CEILING),
+    "palladium_thickness": _Quantity("um", _LENGTH, _UM_CEILING),
+    "silver_thickness": _Quantity("um", _LENGTH, _UM_CEILING),
+    "tin_thickness": _Quantity("um", _LENGTH, _UM_CEILING),
+    "osp_thickness": _Quantity("um", _LENGTH, _UM_CEILING),
+    "mask_registration": _Quantity("um", _LENGTH, _UM_CEILING),
+    "mask_thickness": _Quantity("um", _LENGTH, _UM_CEILING),
+    "conductor_width": _Quantity("um", _LENGTH, 100_000.0, decimals=1),
+    "board_thickness": _Quantity("mm", _LENGTH, 20.0),
+    "vscore_web": _Quantity("mm", _LENGTH, 20.0),
+    "vscore_depth": _Quantity("mm", _LENGTH, 20.0),
+    "finished_hole_diameter": _Quantity("mm", _LENGTH, 25.0),
+    "bow_twist": _Quantity("percent", _RATIO, 100.0, decimals=2),
+    "aoi_defects": _Quantity("count", _COUNT, 1_000_000.0, decimals=0),
+    "etest_opens": _Quantity("count", _COUNT, 1_000_000.0, decimals=0),
+    "etest_shorts": _Quantity("count", _COUNT, 1_000_000.0, decimals=0),
+}
+
+# Accepted spellings -> pint unit name. Exact spelling first, then lower case.
+_LENGTH_UNITS: Final[dict[str, str]] = {
+    "um": "micrometer",
+    "µm": "micrometer",  # U+00B5 MICRO SIGN
+    "μm": "micrometer",  # U+03BC GREEK SMALL LETTER MU
+    "micron": "micrometer",
+    "micrometre": "micrometer",
+    "micrometer": "micrometer",
+    "mm": "millimeter",
+    "millimetre": "millimeter",
+    "millimeter": "millimeter",
+    # pint's "mil" is an angle; the board trade's mil is a thousandth of an inch.
+    "mil": "thou",
+    "mils": "thou",
+    "thou": "thou",
+    "in": "inch",
+    "inch": "inch",
+    '"': "inch",
+    "µin": "microinch",
+    "μin": "microinch",
+    "uin": "microinch",
+    "microinch": "microinch",
+    "microinches": "microinch",
+}
+_COPPER_WEIGHT_UNITS: Final[frozenset[str]] = frozenset(
+    {"oz", "oz/ft2", "oz/ft²", "oz/ft^2", "oz/sqft"}
+)
+_RATIO_UNITS: Final[dict[str, str]] = {"percent": "percent", "%": "percent"}
+_COUNT_UNITS: Final[frozenset[str]] = frozenset({"count", "", "pcs", "ea"})
+
+_DISPLAY: Final[dict[str, str]] = {"um": "µm", "mm": "mm", "percent": "%", "count": ""}
+
+
+def quantities() -> list[str]:
+    """Every quantity identifier the service measures, sorted."""
+    return sorted(_QUANTITIES)
+
+
+def _spec(quantity: str) -> _Quantity:
+    try:
+        return _QUANTITIES[quantity]
+    except (KeyError, TypeError):
+        raise UnknownQuantity(
+            f"unknown quantity {quantity!r}; allowed: {', '.join(quantities())}"
+        ) from None
+
+
+def canonical_unit(quantity: str) -> str:
+    """The unit a quantity is stored in ("um", "mm", "percent" or "count")."""
+    return _spec(quantity).unit
+
+
+def allowed_units(quantity: str) -> list[str]:
+    """Unit spellings accepted for `quantity`, canonical first, for error messages and forms."""
+    q = _spec(quantity)
+    if q.family == _LENGTH:
+        units = [q.unit] + [u for u in _LENGTH_UNITS if u != q.unit]
+        if q.copper:
+            units += sorted(_COPPER_WEIGHT_UNITS)
+        return units
+    if q.family == _RATIO:
+        return ["percent", "%"]
+    return ["count"]
+
+
+def _number(quantity: str, value: float | str) -> float:
+    if isinstance(value, bool):  # bool is an int to Python, never a reading
+        raise NotANumber(f"{quantity}: {value!r} is not a number; give a number such as 12.5")
+    if isinstance(value, int | float):
+        number = float(value)
+    elif isinstance(value, str):
+        text = value.strip()
+        try:
+            number = float(text)
+        except ValueError:
+            hint = " (use a point as the decimal separator)" if "," in text else ""
+            raise NotANumber(
+                f"{quantity}: {value!r} is not a number{hint}; give a number such as 12.5"
+            ) from None
+    else:
+        raise NotANumber(
+            f"{quantity}: {type(value).__name__} is not a number; give a number such as 12.5"
+        )
+    if not math.isfinite(number):
+        raise NotFinite(f"{quantity}: {value!r} is not a finite number; give a real reading")
+    return number
+
+
+def _lookup(table: dict[str, str], unit: str) -> str | None:
+    return table.get(unit) or table.get(unit.lower())
+
+
+def _is_any_known_unit(unit: str) -> bool:
+    return (
+        _lookup(_LENGTH_UNITS, unit) is not None
+        or _lookup(_RATIO_UNITS, unit) is not None
+        or unit.lower() in _COUNT_UNITS
+        or unit.lower() in _COPPER_WEIGHT_UNITS
+    )
+
+
+def _convert(quantity: str, q: _Quantity, number: float, unit: str) -> float:
+    unit = unit.strip()
+    wrong = WrongDimension(
+        f"{quantity}: unit {unit!r} does not measure this quantity; "
+        f"allowed: {', '.join(repr(u) for u in allowed_units(quantity))}"
+    )
+    if q.family == _LENGTH:
+        if unit.lower() in _COPPER_WEIGHT_UNITS:
+            if not q.copper:
+                raise wrong
+            micrometres = number * COPPER_OZ_UM
+            return float(UREG.Quantity(micrometres, "micrometer").to(_pint_name(q.unit)).magnitude)
+        name = _lookup(_LENGTH_UNITS, unit)
+        if name is None:
+            if _is_any_known_unit(unit):
+                raise wrong
+            raise UnknownUnit(
+                f"{quantity}: unknown unit {unit!r}; allowed: "
+                f"{', '.join(repr(u) for u in allowed_units(quantity))}"
+            )
+        return float(UREG.Quantity(number, name).to(_pint_name(q.unit)).magnitude)
+    if q.family == _RATIO:
+        name = _lookup(_RATIO_UNITS, unit)
+        if name is None:
+            if _is_any_known_unit(unit):
+                raise wrong
+            raise UnknownUnit(f"{quantity}: unknown unit {unit!r}; allowed: 'percent', '%'")
+        return float(UREG.Quantity(number, name).to("percent").magnitude)
+    if unit.lower() not in _COUNT_UNITS:
+        if _is_any_known_unit(unit):
+            raise wrong
+        raise UnknownUnit(f"{quantity}: unknown unit {unit!r}; allowed: 'count'")
+    return number
+
+
+def _pint_name(canonical: str) -> str:
+    return {"um": "micrometer", "mm": "millimeter"}[canonical]
+
+
+def to_canonical(quantity: str, value: float | str, unit: str) -> float:
+    """Convert one reading to the quantity's canonical unit, refusing what cannot be real.
+
+    Raises a `UnitError` subclass whose message names the quantity, what was wrong and
+    what is allowed, so an API can pass it straight to the person who typed it.
+    """
+    q = _spec(quantity)
+    number = _number(quantity, value)
+    if not isinstance(unit, str):
+        raise UnknownUnit(
+            f"{quantity}: unit must be text; allowed: "
+            f"{', '.join(repr(u) for u in allowed_units(quantity))}"
+        )
+    converted = _convert(quantity, q, number, unit)
+    if converted < 0:
+        what = "a count" if q.family == _COUNT else "this quantity"
+        raise NegativeValue(
+            f"{quantity}: {number:g} {unit} is negative; {what} cannot be below zero"
+        )
+    if q.family == _COUNT and not converted.is_integer():
+        raise NotWholeCount(f"{quantity}: {number:g} is not a whole number; counts are 0, 1, 2 …")
+    if converted > q.ceiling:
+        raise ImplausibleValue(
+            f"{quantity}: {number:g} {unit} is {converted:g} {q.unit}, above the plausible "
+            f"maximum of {q.ceiling:g} {q.unit}; check the value and its unit"
+        )
+    return converted
+
+
+def _fmt_number(value: float, decimals: int) -> str:
+    text = f"{value:.{decimals}f}"
+    if "." in text:
+        text = text.rstrip("0").rstrip(".")
+    return "0" if text in {"-0", ""} else text
+
+
+def format_value(quantity: str, value: float) -> str:
+    """A stored value for a person: '20 µm', '1.6 mm', '0.75 %', '3'."""
+    q = _spec(quantity)
+    number = _fmt_number(float(value), q.decimals)
+    symbol = _DISPLAY[q.unit]
+    if not symbol:
+        return number
+    return f"{number} {symbol}"

@@ -1,0 +1,23 @@
+"""URL map: tablet pages under /floor/, engineering under /engineering/, supervisor and
+quality pages under /board/ and /quality/, the API under /api/v1/."""
+
+from django.contrib import admin
+from django.urls import include, path
+from drf_spectacular.views import SpectacularAPIView, SpectacularSwaggerView
+
+from shopfloor import views
+
+urlpatterns = [
+    path("", views.home, name="home"),
+    path("healthz", views.healthz, name="healthz"),
+    path("admin/", admin.site.urls),
+    path("floor/", include("shopfloor.floor.urls")),
+    path("engineering/", include("routing.urls")),
+    path("", include("shopfloor.quality.urls")),
+    path("api/v1/", include("shopfloor.api_urls")),
+    path("api/schema/", SpectacularAPIView.as_view(), name="schema"),
+    path("api/docs/", SpectacularSwaggerView.as_view(url_name="schema"), name="api-docs"),
+]
+
+handler403 = "shopfloor.views.forbidden"
+handler404 = "shopfloor.views.not_found"
