@@ -163,6 +163,14 @@ CELERY_BROKER_CONNECTION_RETRY_ON_STARTUP = True
 CELERY_BROKER_TRANSPORT_OPTIONS = {"visibility_timeout": env_int("CELERY_VISIBILITY_TIMEOUT", 300)}
 CELERY_DB_REUSE_MAX = 200
 OUTBOX_RELAY_SECONDS = env_int("OUTBOX_RELAY_SECONDS", 15, minimum=1)
+CELERY_BEAT_SCHEDULE = {
+    "relay-outbox": {
+        "task": "shopfloor.quality.tasks.relay_outbox",
+        "schedule": float(OUTBOX_RELAY_SECONDS),
+    },
+    "check-queue-times": {"task": "shopfloor.quality.tasks.check_queue_times", "schedule": 60.0},
+    "check-due-dates": {"task": "shopfloor.quality.tasks.check_due_dates", "schedule": 900.0},
+}
 
 # Mail (Django 6.1 MAILERS); alerts go to each work center's notification list.
 MAILERS = {

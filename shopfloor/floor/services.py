@@ -23,6 +23,7 @@ from shopfloor.audit import services as audit
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Equipment, Lot, MaterialLot, Person, Qualification
+from shopfloor.quality import outbox
 from shopfloor.quality.models import OutboxEvent
 from shopfloor.windows import judge_window
 
@@ -371,11 +372,12 @@ def _store_reading(step: LotStep, lot: Lot, person: Person, data: ReadingInput,
                "value": value, "unit": reading.unit, "sample": reading.sample_index,
                "in_window": reading.in_window, "source": window.get("source")},
     )
-    OutboxEvent.objects.create(
+    event = OutboxEvent.objects.create(
         kind="reading.recorded",
         payload={"reading": reading.pk, "lot": lot.pk, "lot_step": step.pk,
                  "in_window": judgement.in_window, "message": judgement.message},
     )
+    outbox.enqueue(event)
     return reading
 
 

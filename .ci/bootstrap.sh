@@ -1,0 +1,39 @@
+# Sourced by .ci/demo, .ci/test and bench/run: find Python >= 3.12, make var/venv,
+# install the locked dependencies (only when requirements.lock changed).
+set -euo pipefail
+ROOT="$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)"
+cd "$ROOT"
+mkdir -p var
+
+find_python() {
+  local c
+  for c in python3.13 python3.12 python3; do
+    if command -v "$c" >/dev/null 2>&1 && "$c" -c 'import sys; sys.exit(0 if sys.version_info >= (3, 12) else 1)' 2>/dev/null; then
+      command -v "$c"; return 0
+    fi
+  done
+  for c in "${PYENV_ROOT:-$HOME/.pyenv}"/versions/3.1[2-9]*/bin/python3; do
+    if [ -x "$c" ]; then echo "$c"; return 0; fi
+  done
+  return 1
+}
+
+VENV="$ROOT/var/venv"
+if [ ! -x "$VENV/bin/python" ]; then
+  PY="$(find_python)" || {
+    echo "ERROR: this service needs Python 3.12 or newer (Django 6). None was found on PATH" >&2
+    echo "       (python3.13, python3.12, python3) or under ~/.pyenv/versions. Install one and retry." >&2
+    exit 3
+  }
+  echo "setup: creating var/venv with $PY"
+  "$PY" -m venv "$VENV"
+fi
+STAMP="$VENV/.lock-installed"
+if [ ! -f "$STAMP" ] || ! cmp -s requirements.lock "$STAMP"; then
+  echo "setup: installing locked dependencies (requirements.lock)"
+  "$VENV/bin/python" -m pip install -q --upgrade pip >/dev/null
+  "$VENV/bin/python" -m pip install -q -r requirements.lock
+  cp requirements.lock "$STAMP"
+fi
+export PATH="$VENV/bin:$PATH"
+PYTHON="$VENV/bin/python"

@@ -1,0 +1,841 @@
+"""The build spec: what a customer's board is, as the routing builder needs to know it.
+
+Why a hand-written validator instead of a schema library: a sales engineer pastes or
+types a spec and needs every problem at once, each tied to the field it came from
+("vias[2].to"), with the allowed values beside it. A schema error list does not know
+shop rules (plating aspect ratio, microvia depth, lamination sequence), so we check
+types and shop rules in one pass and collect everything.
+
+The lamination plan (how many press cycles a via structure needs) is derived here too,
+because a via structure no press sequence can build is a spec error, not a build error.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from typing import Any, Final
+
+__all__ = [
+    "FINISHES",
+    "BuildSpec",
+    "LaminationPlan",
+    "Legend",
+    "ShopCapability",
+    "SolderMask",
+    "SpecError",
+    "SpecInvalid",
+    "StackupLayer",
+    "SubAssembly",
+    "Via",
+    "parse_spec",
+    "plan_lamination",
+    "spec_json_schema",
+]
+
+FINISHES: Final = (
+    "enig",
+    "enepig",
+    "immersion_silver",
+    "immersion_tin",
+    "hasl_lead_free",
+    "osp",
+    "none",
+)
+SIDES: Final = ("both", "top", "bottom", "none")
+PROFILES: Final = ("route", "v_score", "route_and_v_score")
+ELECTRICAL_TESTS: Final = ("flying_probe", "fixture")
+VIA_KINDS: Final = ("blind", "buried", "through")
+DRILLS: Final = ("laser", "mechanical")
+STACKUP_KINDS: Final = ("copper", "core", "prepreg")
+LAYER_COUNTS: Final = (1, 2, *range(4, 41, 2))
+MASK_COLOURS: Final = ("green", "matte_green", "red", "blue", "black", "white", "yellow", "purple")
+
+REQUIRED_KEYS: Final = (
+    "layers",
+    "ipc_class",
+    "board_thickness_mm",
+    "outer_copper_base_um",
+    "finish",
+    "profile",
+    "electrical_test",
+    "min_hole_mm",
+)
+OPTIONAL_KEYS: Final = (
+    "inner_copper_um",
+    "hard_gold_fingers",
+    "solder_mask",
+    "legend",
+    "vias",
+    "stackup",
+)
+
+#: Summed stack-up thickness may differ from the stated board thickness by this much.
+#: Common practice: finished thickness tolerance is ±10 % unless the drawing says less.
+STACKUP_TOLERANCE: Final = 0.10
+
+
+@dataclass(frozen=True)
+class ShopCapability:
+    """What this shop's lines can plate and drill; parameters, because shops differ.
+
+    Defaults are common practice: through-hole plating is routinely good to 8:1 and
+    possible to 10:1 with care; a laser microvia should be no deeper than it is wide
+    (1:1, IPC-2226 guidance from memory) and normally spans one dielectric.
+    """
+
+    max_aspect_ratio: float = 10.0
+    warn_aspect_ratio: float = 8.0
+    laser_hole_mm: float = 0.1
+    max_microvia_aspect_ratio: float = 1.0
+    #: Copper layers a laser via may span without a warning (adjacent layers = 2).
+    laser_layers_ok: int = 2
+    #: Copper layers a laser via may span at all (3 = a "skip via", warned).
+    laser_layers_max: int = 3
+
+
+@dataclass(frozen=True)
+class SpecError:
+    """One problem with a spec: where, what was given, what is wrong, what is allowed."""
+
+    field: str
+    value: Any
+    problem: str
+    allowed: str | list[Any] | None = None
+
+    def as_dict(self) -> dict[str, Any]:
+        """JSON-safe form for the API (values that are not JSON become their repr)."""
+        return {
+            "field": self.field,
+            "value": _json_safe(self.value),
+            "problem": self.problem,
+            "allowed": self.allowed,
+        }
+
+
+def _json_safe(value: Any) -> Any:
+    if value is None or isinstance(value, bool | int | str):
+        return value
+    if isinstance(value, float):
+        return value if math.isfinite(value) else repr(value)
+    if isinstance(value, list | tuple):
+        return [_json_safe(v) for v in value]
+    if isinstance(value, Mapping):
+        return {str(k): _json_safe(v) for k, v in value.items()}
+    return repr(value)
+
+
+class SpecInvalid(ValueError):
+    """Raised with every problem found in a spec, not just the first."""
+
+    def __init__(self, errors: list[SpecError]) -> None:
+        self.errors = list(errors)
+        lines = "; ".join(f"{e.field}: {e.problem}" for e in self.errors)
+        super().__init__(f"{len(self.errors)} problem(s) in build spec: {lines}")
+
+    def as_dicts(self) -> list[dict[str, Any]]:
+        return [e.as_dict() for e in self.errors]
+
+
+@dataclass(frozen=True)
+class SolderMask:
+    sides: str = "both"
+    colour: str = "green"
+
+
+@dataclass(frozen=True)
+class Legend:
+    sides: str = "both"
+
+
+@dataclass(frozen=True)
+class Via:
+    """A via structure: copper layers `from_layer`..`to_layer` (1 = top), inclusive."""
+
+    from_layer: int
+    to_layer: int
+    kind: str
+    drill: str
+
+    @property
+    def span(self) -> tuple[int, int]:
+        return (self.from_layer, self.to_layer)
+
+    @property
+    def layers_spanned(self) -> int:
+        return self.to_layer - self.from_layer + 1
+
+    def label(self) -> str:
+        return f"L{self.from_layer}-L{self.to_layer} {self.kind} {self.drill}"
+
+
+@dataclass(frozen=True)
+class StackupLayer:
+    kind: str
+    thickness_um: float
+    material: str = ""
+
+
+@dataclass(frozen=True)
+class SubAssembly:
+    """Layers lo..hi laminated (or a single core) and drilled before the next press."""
+
+    lo: int
+    hi: int
+    cycle: int
+    vias: tuple[Via, ...]
+
+    @property
+    def needs_press(self) -> bool:
+        """A single core (two adjacent copper layers) is already laminated."""
+        return self.hi - self.lo >= 2
+
+    def label(self) -> str:
+        return f"L{self.lo}-L{self.hi}"
+
+
+@dataclass(frozen=True)
+class LaminationPlan:
+    """Press cycles for a board: sub-assemblies by cycle, then the final cycle."""
+
+    cycles: int
+    sub_assemblies: tuple[SubAssembly, ...]
+    final_vias: tuple[Via, ...]
+
+    def in_cycle(self, cycle: int) -> tuple[SubAssembly, ...]:
+        return tuple(s for s in self.sub_assemblies if s.cycle == cycle)
+
+
+@dataclass(frozen=True)
+class BuildSpec:
+    layers: int
+    ipc_class: int
+    board_thickness_mm: float
+    outer_copper_base_um: float
+    inner_copper_um: float | None
+    finish: str
+    hard_gold_fingers: bool
+    solder_mask: SolderMask
+    legend: Legend
+    profile: str
+    electrical_test: str
+    min_hole_mm: float
+    vias: tuple[Via, ...] = ()
+    stackup: tuple[StackupLayer, ...] | None = None
+    #: Problems that do not stop a build but a process engineer should see.
+    warnings: tuple[str, ...] = ()
+    lamination: LaminationPlan = field(
+        default_factory=lambda: LaminationPlan(cycles=0, sub_assemblies=(), final_vias=())
+    )
+    microvia_aspect_ratio: float | None = None
+
+    @property
+    def aspect_ratio(self) -> float:
+        """Board thickness over smallest hole: what limits plating into the hole."""
+        return round(self.board_thickness_mm / self.min_hole_mm, 3)
+
+    @property
+    def has_mask(self) -> bool:
+        return self.solder_mask.sides != "none"
+
+    @property
+    def has_legend(self) -> bool:
+        return self.legend.sides != "none"
+
+
+# --------------------------------------------------------------------------- helpers
+
+
+class _Collector:
+    def __init__(self) -> None:
+        self.errors: list[SpecError] = []
+        self.warnings: list[str] = []
+
+    def add(
+        self, field_: str, value: Any, problem: str, allowed: str | list[Any] | None = None
+    ) -> None:
+        self.errors.append(SpecError(field_, value, problem, allowed))
+
+    def keys(
+        self, where: str, data: Mapping[str, Any], required: tuple[str, ...], optional: tuple[str, ...]
+    ) -> None:
+        prefix = f"{where}." if where else ""
+        allowed = sorted([*required, *optional])
+        for key in data:
+            if key not in required and key not in optional:
+                self.add(f"{prefix}{key}", data[key], "unknown key", allowed)
+        for key in required:
+            if key not in data:
+                self.add(f"{prefix}{key}", None, "missing required key", allowed)
+
+    def number(
+        self,
+        field_: str,
+        value: Any,
+        *,
+        low: float,
+        high: float,
+        low_inclusive: bool = False,
+        unit: str = "",
+    ) -> float | None:
+        if isinstance(value, bool) or not isinstance(value, int | float):
+            self.add(field_, value, f"must be a number ({unit})".replace(" ()", ""))
+            return None
+        number = float(value)
+        span = f"{'>=' if low_inclusive else '>'} {low:g} and <= {high:g} {unit}".strip()
+        if not math.isfinite(number):
+            self.add(field_, value, "must be a finite number", span)
+            return None
+        too_low = number < low if low_inclusive else number <= low
+        if too_low:
+            problem = "must be greater than zero" if low == 0 and not low_inclusive else "too small"
+            self.add(field_, value, problem, span)
+            return None
+        if number > high:
+            self.add(field_, value, "implausibly large; check the value and its unit", span)
+            return None
+        return number
+
+    def integer(self, field_: str, value: Any, allowed: list[int] | tuple[int, ...]) -> int | None:
+        if isinstance(value, bool) or not isinstance(value, int):
+            if isinstance(value, float) and value.is_integer():
+                value = int(value)
+            else:
+                self.add(field_, value, "must be a whole number", list(allowed))
+                return None
+        if value not in allowed:
+            return None
+        return int(value)
+
+    def choice(self, field_: str, value: Any, allowed: tuple[str, ...]) -> str | None:
+        if not isinstance(value, str):
+            self.add(field_, value, "must be text", list(allowed))
+            return None
+        if value not in allowed:
+            self.add(field_, value, "not one of the allowed values", list(allowed))
+            return None
+        return value
+
+
+# --------------------------------------------------------------------------- parse
+
+
+def parse_spec(data: object, capability: ShopCapability | None = None) -> BuildSpec:
+    """Validate a JSON-decoded spec and return it as frozen dataclasses.
+
+    Raises `SpecInvalid` listing every problem found. Rules that only make a job risky
+    (aspect ratio above the comfortable limit, a laser skip via, a microvia depth
+    estimated without a stack-up) become `BuildSpec.warnings` instead.
+    """
+    cap = capability or ShopCapability()
+    c = _Collector()
+    if not isinstance(data, Mapping):
+        c.add("(spec)", data, "the spec must be a JSON object", "an object with keys " + ", ".join(REQUIRED_KEYS))
+        raise SpecInvalid(c.errors)
+    d: Mapping[str, Any] = data
+    c.keys("", d, REQUIRED_KEYS, OPTIONAL_KEYS)
+
+    layers: int | None = None
+    if "layers" in d:
+        layers = c.integer("layers", d["layers"], LAYER_COUNTS)
+        if layers is None and not any(e.field == "layers" for e in c.errors):
+            v = d["layers"]
+            odd = isinstance(v, int) and 3 <= v <= 40 and v % 2
+            c.add(
+                "layers",
+                v,
+                "a multilayer board has an even number of copper layers"
+                if odd
+                else "layer count out of range",
+                "1, 2 or an even number from 4 to 40",
+            )
+
+    ipc_class: int | None = None
+    if "ipc_class" in d:
+        ipc_class = c.integer("ipc_class", d["ipc_class"], (1, 2, 3))
+        if ipc_class is None and not any(e.field == "ipc_class" for e in c.errors):
+            c.add("ipc_class", d["ipc_class"], "IPC class must be 1, 2 or 3", [1, 2, 3])
+
+    thickness = (
+        c.number("board_thickness_mm", d["board_thickness_mm"], low=0.1, high=10.0,
+                 low_inclusive=True, unit="mm")
+        if "board_thickness_mm" in d
+        else None
+    )
+    outer_cu = (
+        c.number("outer_copper_base_um", d["outer_copper_base_um"], low=0, high=420.0, unit="um")
+        if "outer_copper_base_um" in d
+        else None
+    )
+    inner_cu: float | None = None
+    if "inner_copper_um" in d and not (d["inner_copper_um"] is None and (layers or 0) < 4):
+        inner_cu = c.number("inner_copper_um", d["inner_copper_um"], low=0, high=420.0, unit="um")
+    elif layers is not None and layers >= 4:
+        c.add("inner_copper_um", None, "required for boards with inner layers (4 or more)",
+              "a number > 0 and <= 420 um")
+
+    finish = c.choice("finish", d["finish"], FINISHES) if "finish" in d else None
+    profile = c.choice("profile", d["profile"], PROFILES) if "profile" in d else None
+    etest = (
+        c.choice("electrical_test", d["electrical_test"], ELECTRICAL_TESTS)
+        if "electrical_test" in d
+        else None
+    )
+    min_hole = (
+        c.number("min_hole_mm", d["min_hole_mm"], low=0.05, high=10.0, low_inclusive=True, unit="mm")
+        if "min_hole_mm" in d
+        else None
+    )
+
+    gold = False
+    if "hard_gold_fingers" in d:
+        if not isinstance(d["hard_gold_fingers"], bool):
+            c.add("hard_gold_fingers", d["hard_gold_fingers"], "must be true or false", [True, False])
+        else:
+            gold = d["hard_gold_fingers"]
+
+    mask = _parse_mask(c, d.get("solder_mask", {}))
+    legend = _parse_legend(c, d.get("legend", {}))
+    vias = _parse_vias(c, d.get("vias", []), layers)
+    stackup = _parse_stackup(c, d["stackup"]) if "stackup" in d and d["stackup"] is not None else None
+
+    if layers is not None and stackup is not None:
+        _check_stackup(c, stackup, layers, thickness, outer_cu)
+
+    aspect: float | None = None
+    if thickness is not None and min_hole is not None and layers is not None and layers >= 2:
+        aspect = thickness / min_hole
+        allowed = f"<= {cap.max_aspect_ratio:g}:1 (shop plating capability)"
+        if aspect > cap.max_aspect_ratio:
+            c.add("min_hole_mm", d["min_hole_mm"],
+                  f"aspect ratio {aspect:.1f}:1 (board thickness / smallest hole) is beyond "
+                  "what the plating line can plate reliably", allowed)
+        elif aspect > cap.warn_aspect_ratio:
+            c.warnings.append(
+                f"aspect ratio {aspect:.1f}:1 is above {cap.warn_aspect_ratio:g}:1; "
+                "expect slower plating and extra cross-sections"
+            )
+
+    plan: LaminationPlan | None = None
+    microvia_ar: float | None = None
+    via_errors_before = len(c.errors)
+    if layers is not None and not any(e.field.startswith("vias") for e in c.errors):
+        _check_laser_depth(c, cap, vias)
+        microvia_ar = _microvia_aspect_ratio(c, cap, vias, layers, thickness, outer_cu, inner_cu, stackup)
+        if len(c.errors) == via_errors_before:
+            plan = _plan_or_error(c, layers, vias)
+
+    if c.errors:
+        raise SpecInvalid(c.errors)
+    assert layers is not None and ipc_class is not None and thickness is not None
+    assert outer_cu is not None and finish is not None and profile is not None
+    assert etest is not None and min_hole is not None and plan is not None
+    return BuildSpec(
+        layers=layers,
+        ipc_class=ipc_class,
+        board_thickness_mm=thickness,
+        outer_copper_base_um=outer_cu,
+        inner_copper_um=inner_cu,
+        finish=finish,
+        hard_gold_fingers=gold,
+        solder_mask=mask or SolderMask(),
+        legend=legend or Legend(),
+        profile=profile,
+        electrical_test=etest,
+        min_hole_mm=min_hole,
+        vias=vias,
+        stackup=stackup,
+        warnings=tuple(c.warnings),
+        lamination=plan,
+        microvia_aspect_ratio=microvia_ar,
+    )
+
+
+def _parse_mask(c: _Collector, raw: Any) -> SolderMask | None:
+    if not isinstance(raw, Mapping):
+        c.add("solder_mask", raw, "must be an object", "{'sides': ..., 'colour': ...}")
+        return None
+    c.keys("solder_mask", raw, (), ("sides", "colour"))
+    sides = c.choice("solder_mask.sides", raw.get("sides", "both"), SIDES)
+    colour = c.choice("solder_mask.colour", raw.get("colour", "green"), MASK_COLOURS)
+    if sides is None or colour is None:
+        return None
+    return SolderMask(sides=sides, colour=colour)
+
+
+def _parse_legend(c: _Collector, raw: Any) -> Legend | None:
+    if not isinstance(raw, Mapping):
+        c.add("legend", raw, "must be an object", "{'sides': ...}")
+        return None
+    c.keys("legend", raw, (), ("sides",))
+    sides = c.choice("legend.sides", raw.get("sides", "both"), SIDES)
+    return Legend(sides=sides) if sides is not None else None
+
+
+def _parse_vias(c: _Collector, raw: Any, layers: int | None) -> tuple[Via, ...]:
+    if not isinstance(raw, list):
+        c.add("vias", raw, "must be a list", "a list of {'from', 'to', 'kind', 'drill'}")
+        return ()
+    out: list[Via] = []
+    if layers == 1 and raw:
+        c.add("vias", raw, "a single-sided board has no plated vias", "[]")
+        return ()
+    for i, item in enumerate(raw):
+        where = f"vias[{i}]"
+        if not isinstance(item, Mapping):
+            c.add(where, item, "must be an object", "{'from', 'to', 'kind', 'drill'}")
+            continue
+        n_before = len(c.errors)
+        c.keys(where, item, ("from", "to", "kind", "drill"), ())
+        ends: dict[str, int | None] = {}
+        for end in ("from", "to"):
+            if end not in item:
+                ends[end] = None
+                continue
+            v = item[end]
+            if isinstance(v, bool) or not isinstance(v, int):
+                c.add(f"{where}.{end}", v, "must be a whole layer number", f"1 to {layers or 40}")
+                ends[end] = None
+            elif layers is not None and not 1 <= v <= layers:
+                c.add(f"{where}.{end}", v, f"layer {v} does not exist on a {layers}-layer board",
+                      f"1 to {layers}")
+                ends[end] = None
+            else:
+                ends[end] = v
+        kind = c.choice(f"{where}.kind", item["kind"], VIA_KINDS) if "kind" in item else None
+        drill = c.choice(f"{where}.drill", item["drill"], DRILLS) if "drill" in item else None
+        lo, hi = ends.get("from"), ends.get("to")
+        if lo is not None and hi is not None and lo >= hi:
+            c.add(f"{where}.to", hi, f"must be greater than 'from' ({lo}); layers count from the top",
+                  f"{lo + 1} to {layers or 40}")
+        elif lo is not None and hi is not None and kind is not None and layers is not None:
+            _check_kind(c, where, lo, hi, kind, layers)
+        if len(c.errors) == n_before:
+            assert lo is not None and hi is not None and kind is not None and drill is not None
+            out.append(Via(lo, hi, kind, drill))
+    return tuple(out)
+
+
+def _check_kind(c: _Collector, where: str, lo: int, hi: int, kind: str, layers: int) -> None:
+    top, bottom = lo == 1, hi == layers
+    if top and bottom:
+        actual = "through"
+    elif top or bottom:
+        actual = "blind"
+    else:
+        actual = "buried"
+    if kind != actual:
+        c.add(f"{where}.kind", kind,
+              f"a via from layer {lo} to {hi} on a {layers}-layer board is {actual}, not {kind}",
+              [actual])
+
+
+def _check_laser_depth(c: _Collector, cap: ShopCapability, vias: tuple[Via, ...]) -> None:
+    for i, v in enumerate(vias):
+        if v.drill != "laser":
+            continue
+        if v.layers_spanned > cap.laser_layers_max:
+            c.add(f"vias[{i}].drill", "laser",
+                  f"a laser via spanning {v.layers_spanned} copper layers is too deep to drill "
+                  "and plate reliably; stack microvias instead (one per level) or drill mechanically",
+                  f"laser vias span at most {cap.laser_layers_max} copper layers")
+        elif v.layers_spanned > cap.laser_layers_ok:
+            c.warnings.append(
+                f"vias[{i}] {v.label()}: a laser skip via spans two dielectrics; "
+                "check the microvia depth and plating with a cross-section"
+            )
+
+
+def _dielectric_depth_um(
+    v: Via,
+    layers: int,
+    thickness: float | None,
+    outer_cu: float | None,
+    inner_cu: float | None,
+    stackup: tuple[StackupLayer, ...] | None,
+) -> tuple[float | None, bool]:
+    """Dielectric between the via's end layers; (depth, estimated?)."""
+    if stackup is not None and sum(1 for s in stackup if s.kind == "copper") == layers:
+        depth = 0.0
+        copper_index = 0
+        for s in stackup:
+            if s.kind == "copper":
+                copper_index += 1
+            elif v.from_layer <= copper_index < v.to_layer:
+                depth += s.thickness_um
+        return depth, False
+    if thickness is None or outer_cu is None or layers < 2:
+        return None, True
+    copper = 2 * outer_cu + (layers - 2) * (inner_cu or 0.0)
+    gap = max(thickness * 1000.0 - copper, 0.0) / (layers - 1)
+    return gap * (v.to_layer - v.from_layer), True
+
+
+def _microvia_aspect_ratio(
+    c: _Collector,
+    cap: ShopCapability,
+    vias: tuple[Via, ...],
+    layers: int,
+    thickness: float | None,
+    outer_cu: float | None,
+    inner_cu: float | None,
+    stackup: tuple[StackupLayer, ...] | None,
+) -> float | None:
+    worst: float | None = None
+    for i, v in enumerate(vias):
+        if v.drill != "laser":
+            continue
+        depth, estimated = _dielectric_depth_um(v, layers, thickness, outer_cu, inner_cu, stackup)
+        if depth is None:
+            continue
+        ratio = round(depth / (cap.laser_hole_mm * 1000.0), 3)
+        worst = ratio if worst is None else max(worst, ratio)
+        if ratio <= cap.max_microvia_aspect_ratio:
+            continue
+        text = (
+            f"microvia aspect ratio {ratio:.2f}:1 (dielectric {depth:.0f} um over a "
+            f"{cap.laser_hole_mm:g} mm laser hole) exceeds {cap.max_microvia_aspect_ratio:g}:1"
+        )
+        if estimated:
+            c.warnings.append(
+                f"vias[{i}] {v.label()}: {text}, estimated from evenly spaced layers; "
+                "give a stack-up to check it properly"
+            )
+        else:
+            c.add(f"vias[{i}]", _json_safe({"from": v.from_layer, "to": v.to_layer}),
+                  text + " (IPC-2226 guidance, from memory; common practice)",
+                  f"dielectric depth <= {cap.max_microvia_aspect_ratio * cap.laser_hole_mm * 1000:g} um")
+    return worst
+
+
+def _parse_stackup(c: _Collector, raw: Any) -> tuple[StackupLayer, ...] | None:
+    if not isinstance(raw, list) or not raw:
+        c.add("stackup", raw, "must be a non-empty list, top to bottom",
+              "a list of {'kind', 'thickness_um', 'material'}")
+        return None
+    out: list[StackupLayer] = []
+    ok = True
+    for i, item in enumerate(raw):
+        where = f"stackup[{i}]"
+        if not isinstance(item, Mapping):
+            c.add(where, item, "must be an object", "{'kind', 'thickness_um', 'material'}")
+            ok = False
+            continue
+        n_before = len(c.errors)
+        c.keys(where, item, ("kind", "thickness_um"), ("material",))
+        kind = c.choice(f"{where}.kind", item["kind"], STACKUP_KINDS) if "kind" in item else None
+        t = (
+            c.number(f"{where}.thickness_um", item["thickness_um"], low=0, high=5000.0, unit="um")
+            if "thickness_um" in item
+            else None
+        )
+        material = item.get("material", "")
+        if not isinstance(material, str) or len(material) > 80:
+            c.add(f"{where}.material", material, "must be text of at most 80 characters",
+                  "e.g. 'FR-4 high-Tg core'")
+        if len(c.errors) != n_before:
+            ok = False
+            continue
+        assert kind is not None and t is not None
+        out.append(StackupLayer(kind, t, material if isinstance(material, str) else ""))
+    return tuple(out) if ok else None
+
+
+def _check_stackup(
+    c: _Collector,
+    stackup: tuple[StackupLayer, ...],
+    layers: int,
+    thickness: float | None,
+    outer_cu: float | None,
+) -> None:
+    coppers = [i for i, s in enumerate(stackup) if s.kind == "copper"]
+    if len(coppers) != layers:
+        c.add("stackup", f"{len(coppers)} copper layers",
+              f"the stack-up has {len(coppers)} copper layers but 'layers' is {layers}",
+              f"exactly {layers} copper entries")
+    if stackup[0].kind != "copper" or (layers > 1 and stackup[-1].kind != "copper"):
+        c.add("stackup", [stackup[0].kind, stackup[-1].kind],
+              "a stack-up starts and ends with copper (outer layers)", "copper first and last")
+    for a, b in zip(coppers, coppers[1:], strict=False):
+        if b == a + 1:
+            c.add(f"stackup[{b}]", "copper",
+                  "two copper layers touch; a dielectric (core or prepreg) must separate them",
+                  "core or prepreg between copper layers")
+    if outer_cu is not None and coppers:
+        for idx in {coppers[0], coppers[-1]}:
+            if abs(stackup[idx].thickness_um - outer_cu) > 0.5:
+                c.add(f"stackup[{idx}].thickness_um", stackup[idx].thickness_um,
+                      "outer copper in the stack-up disagrees with outer_copper_base_um",
+                      f"{outer_cu:g} um")
+    if thickness is not None:
+        total_mm = sum(s.thickness_um for s in stackup) / 1000.0
+        lo, hi = thickness * (1 - STACKUP_TOLERANCE), thickness * (1 + STACKUP_TOLERANCE)
+        if not lo <= total_mm <= hi:
+            c.add("stackup", f"{total_mm:.3f} mm",
+                  f"summed stack-up thickness {total_mm:.3f} mm is outside board_thickness_mm "
+                  f"{thickness:g} mm ±10 % (common practice)",
+                  f"{lo:.3f} to {hi:.3f} mm")
+
+
+# --------------------------------------------------------------------------- lamination
+
+
+class _Unbuildable(ValueError):
+    pass
+
+
+def _required_stack(v: Via, layers: int) -> tuple[int, int] | None:
+    """The stack a via must be drilled in; None for the final (full) stack."""
+    if v.from_layer == 1 or v.to_layer == layers:
+        return None
+    if v.drill == "mechanical":
+        return (v.from_layer, v.to_layer)
+    # A laser via drills into a surface, so the stack must have that layer outside;
+    # build-ups are added in symmetric pairs to keep the panel flat.
+    if v.from_layer - 1 <= layers - v.to_layer:
+        return (v.from_layer, layers + 1 - v.from_layer)
+    return (layers + 1 - v.to_layer, v.to_layer)
+
+
+def plan_lamination(layers: int, vias: tuple[Via, ...]) -> LaminationPlan:
+    """Derive press cycles from the via structure.
+
+    Rule (group vias by span, then nest):
+
+    1. Through vias and blind vias that start at an outer layer are drilled in the
+       final cycle, after the last press (laser or controlled-depth drilling).
+    2. Every other via is buried and must be drilled and plated while its layers are a
+       stack of their own, before the layers around it are pressed on:
+       - a mechanical buried via a..b needs the stack La..Lb (a buried 3-4 via in an
+         8-layer is a single core drilled and plated before the final press: 2 cycles);
+       - a laser buried via needs a stack with its layer on the surface; build-ups are
+         pressed in symmetric pairs, so a laser 2-3 via on 8 layers needs L2-L7.
+    3. Equal spans merge. Stacks must nest or be disjoint; partial overlap (2-4 with
+       3-5) cannot be pressed in any order and is refused.
+    4. A stack's cycle is one more than the deepest stack inside it; disjoint stacks of
+       the same depth are processed side by side in one cycle. The final cycle follows.
+       Stacked laser vias 1-2 and 2-3 (and their mirror) therefore need one cycle per
+       stacking level: L2-L(n-1) then the final press.
+
+    One- and two-layer boards are not laminated: 0 cycles.
+    """
+    if layers < 4:
+        return LaminationPlan(cycles=0, sub_assemblies=(), final_vias=vias)
+    by_stack: dict[tuple[int, int], list[Via]] = {}
+    final: list[Via] = []
+    for v in vias:
+        stack = _required_stack(v, layers)
+        if stack is None:
+            final.append(v)
+        else:
+            by_stack.setdefault(stack, []).append(v)
+    spans = sorted(by_stack, key=lambda s: (s[1] - s[0], s[0]))
+    for i, a in enumerate(spans):
+        for b in spans[i + 1 :]:
+            disjoint = a[1] < b[0] or b[1] < a[0]
+            nested = (b[0] <= a[0] and a[1] <= b[1]) or (a[0] <= b[0] and b[1] <= a[1])
+            if not (disjoint or nested):
+                raise _Unbuildable(
+                    f"sub-assemblies L{a[0]}-L{a[1]} and L{b[0]}-L{b[1]} overlap without "
+                    "nesting; no press sequence can build them"
+                )
+    cycle_of: dict[tuple[int, int], int] = {}
+    for s in spans:  # smallest first, so everything inside s is already numbered
+        inner = [cycle_of[t] for t in cycle_of if s[0] <= t[0] and t[1] <= s[1]]
+        cycle_of[s] = 1 + max(inner, default=0)
+    subs = tuple(
+        SubAssembly(lo=s[0], hi=s[1], cycle=cycle_of[s], vias=tuple(by_stack[s]))
+        for s in sorted(spans, key=lambda s: (cycle_of[s], s[0]))
+    )
+    cycles = 1 + max(cycle_of.values(), default=0)
+    return LaminationPlan(cycles=cycles, sub_assemblies=subs, final_vias=tuple(final))
+
+
+def _plan_or_error(c: _Collector, layers: int, vias: tuple[Via, ...]) -> LaminationPlan | None:
+    try:
+        return plan_lamination(layers, vias)
+    except _Unbuildable as exc:
+        c.add("vias", [v.label() for v in vias], str(exc),
+              "buried spans that nest inside each other or do not touch")
+        return None
+
+
+# --------------------------------------------------------------------------- schema
+
+
+def spec_json_schema() -> dict[str, Any]:
+    """JSON Schema (2020-12) of the spec, for the OpenAPI docs and client-side forms.
+
+    The schema covers shape and enumerations only; cross-field shop rules (stack-up
+    agreement, aspect ratios, lamination) are enforced by `parse_spec`.
+    """
+    sides = {"type": "string", "enum": list(SIDES), "default": "both"}
+    return {
+        "$schema": "https://json-schema.org/draft/2020-12/schema",
+        "title": "BuildSpec",
+        "description": "What the board is; the routing builder derives the process from it.",
+        "type": "object",
+        "additionalProperties": False,
+        "required": list(REQUIRED_KEYS),
+        "properties": {
+            "layers": {"type": "integer", "enum": list(LAYER_COUNTS)},
+            "ipc_class": {"type": "integer", "enum": [1, 2, 3]},
+            "board_thickness_mm": {"type": "number", "minimum": 0.1, "maximum": 10},
+            "outer_copper_base_um": {"type": "number", "exclusiveMinimum": 0, "maximum": 420},
+            "inner_copper_um": {
+                "type": "number",
+                "exclusiveMinimum": 0,
+                "maximum": 420,
+                "description": "Required when layers >= 4.",
+            },
+            "finish": {"type": "string", "enum": list(FINISHES)},
+            "hard_gold_fingers": {"type": "boolean", "default": False},
+            "solder_mask": {
+                "type": "object",
+                "additionalProperties": False,
+                "properties": {
+                    "sides": sides,
+                    "colour": {"type": "string", "enum": list(MASK_COLOURS), "default": "green"},
+                },
+            },
+            "legend": {
+                "type": "object",
+                "additionalProperties": False,
+                "properties": {"sides": sides},
+            },
+            "profile": {"type": "string", "enum": list(PROFILES)},
+            "electrical_test": {"type": "string", "enum": list(ELECTRICAL_TESTS)},
+            "min_hole_mm": {"type": "number", "minimum": 0.05, "maximum": 10},
+            "vias": {
+                "type": "array",
+                "default": [],
+                "items": {
+                    "type": "object",
+                    "additionalProperties": False,
+                    "required": ["from", "to", "kind", "drill"],
+                    "properties": {
+                        "from": {"type": "integer", "minimum": 1, "maximum": 40},
+                        "to": {"type": "integer", "minimum": 1, "maximum": 40},
+                        "kind": {"type": "string", "enum": list(VIA_KINDS)},
+                        "drill": {"type": "string", "enum": list(DRILLS)},
+                    },
+                },
+            },
+            "stackup": {
+                "type": "array",
+                "minItems": 1,
+                "description": "Optional, top to bottom.",
+                "items": {
+                    "type": "object",
+                    "additionalProperties": False,
+                    "required": ["kind", "thickness_um"],
+                    "properties": {
+                        "kind": {"type": "string", "enum": list(STACKUP_KINDS)},
+                        "thickness_um": {"type": "number", "exclusiveMinimum": 0, "maximum": 5000},
+                        "material": {"type": "string", "maxLength": 80},
+                    },
+                },
+            },
+        },
+    }
