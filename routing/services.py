@@ -64,11 +64,25 @@ def _build(spec: Any, overrides: list[dict[str, Any]], library: ProcessLibrary) 
     routing = builder.build_routing(parsed, library)
     if overrides:
         try:
-            parsed_overrides = [overrides_core.Override.from_dict(o) for o in overrides]
+            parsed_overrides = [_override(o) for o in overrides]
             routing = overrides_core.apply_overrides(routing, parsed_overrides)
         except (overrides_core.OverrideRefused, ValueError, TypeError, KeyError) as exc:
             raise InvalidInput(f"Customer override refused: {exc}") from exc
     return render.routing_to_dict(routing)
+
+
+def _override(raw: Any) -> overrides_core.Override:
+    if not isinstance(raw, dict) or "quantity" not in raw:
+        raise ValueError("each override is an object with at least 'quantity' and 'reason'")
+    allowed = {"quantity", "step_code", "min", "max", "target", "reason", "approved_by"}
+    unknown = set(raw) - allowed
+    if unknown:
+        raise ValueError(f"unknown override keys {sorted(unknown)}; allowed: {sorted(allowed)}")
+    return overrides_core.Override(
+        quantity=str(raw["quantity"]), step_code=raw.get("step_code"), min=raw.get("min"),
+        max=raw.get("max"), target=raw.get("target"), reason=str(raw.get("reason") or ""),
+        approved_by=raw.get("approved_by"),
+    )
 
 
 def _require_role(person: Person, role: str, what: str) -> None:

@@ -1,5 +1,5 @@
-"""Shop-floor traveller service for PCB fabrication."""
+"""Shop-floor traveller service for PCB fabrication.
 
-from shopfloor.celery import app as celery_app
-
-__all__ = ("celery_app",)
+The Celery app lives in shopfloor.celery and is loaded by the quality app's ready()
+hook, so importing a pure-core module (units, windows, SPC) does not pull in Django.
+"""

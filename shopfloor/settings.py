@@ -93,6 +93,10 @@ AUTH_PASSWORD_VALIDATORS = [
     {"NAME": "django.contrib.auth.password_validation.MinimumLengthValidator"},
     {"NAME": "django.contrib.auth.password_validation.CommonPasswordValidator"},
 ]
+PASSWORD_HASHERS = [
+    "django.contrib.auth.hashers.PBKDF2PasswordHasher",
+    "shopfloor.plant.hashers.PinHasher",
+]
 LOGIN_URL = "/floor/login/"
 LOGIN_REDIRECT_URL = "/"
 

@@ -164,7 +164,7 @@ class Person(models.Model):
         return f"{self.printed_name} ({self.badge_number})"
 
     def set_pin(self, pin: str) -> None:
-        self.pin_hash = make_password(pin)
+        self.pin_hash = make_password(pin, hasher="pin_pbkdf2_sha256")
 
     def pin_matches(self, pin: str) -> bool:
         return bool(self.pin_hash) and check_password(pin, self.pin_hash)

@@ -19,11 +19,11 @@ log = logging.getLogger("shopfloor.outbox")
 
 def publish(event_id: int) -> bool:
     """Send one event to the worker; True when the broker took it."""
-    from shopfloor.quality import tasks
-
     try:
+        from shopfloor.quality import tasks
+
         tasks.process_event.delay(event_id)
-    except Exception as exc:  # broker unreachable: the relay will retry
+    except Exception as exc:  # broker unreachable (or task error in eager mode): relay retries
         log.warning("outbox event %s left for the relay: %s", event_id, exc)
         return False
     OutboxEvent.objects.filter(pk=event_id, published_at__isnull=True).update(

@@ -23,6 +23,7 @@ Nothing is rounded inside this module; callers round for display.
 from __future__ import annotations
 
 import functools
+import itertools
 import math
 import statistics
 from collections.abc import Iterable, Mapping, Sequence
@@ -37,8 +38,8 @@ __all__ = [
     "RULES",
     "RULESETS",
     "Capability",
-    "ChartKind",
     "ChartConstants",
+    "ChartKind",
     "Limits",
     "Rule",
     "RuleState",
@@ -297,9 +298,7 @@ def _subgroups(data: object, minimum: int) -> list[list[float]]:
     if isinstance(data, str | bytes) or not isinstance(data, Sequence):
         raise SpcInputError(f"subgroups must be a list of lists, got {type(data).__name__}")
     if len(data) < minimum:
-        raise SpcInputError(
-            f"subgroups has {len(data)} subgroup(s); at least {minimum} are needed"
-        )
+        raise SpcInputError(f"subgroups has {len(data)} subgroup(s); at least {minimum} are needed")
     groups: list[list[float]] = []
     for g, group in enumerate(data):
         if isinstance(group, str | bytes) or not isinstance(group, Sequence):
@@ -327,7 +326,7 @@ def _sample_size(sample_size: object) -> int:
 
 
 def _moving_ranges(values: Sequence[float]) -> list[float]:
-    return [abs(b - a) for a, b in zip(values, values[1:], strict=False)]
+    return [abs(b - a) for a, b in itertools.pairwise(values)]
 
 
 def within_sigma(chart: ChartKind, data: Sequence[Any]) -> float:
@@ -381,9 +380,7 @@ def _xbar_s(groups: list[list[float]]) -> Limits:
     centre = statistics.fmean(statistics.fmean(g) for g in groups)
     s_bar = statistics.fmean(statistics.stdev(g) for g in groups)
     sigma_within = s_bar / k.c4
-    s = Limits(
-        s_bar, k.b4 * s_bar, k.b3 * s_bar, sigma_within * math.sqrt(1.0 - k.c4 * k.c4)
-    )
+    s = Limits(s_bar, k.b4 * s_bar, k.b3 * s_bar, sigma_within * math.sqrt(1.0 - k.c4 * k.c4))
     half = k.a3 * s_bar
     return Limits(centre, centre + half, centre - half, half / 3, s, sigma_within)
 
@@ -613,9 +610,7 @@ class RuleState:
 def _resolve(ruleset: str | tuple[str, ...]) -> frozenset[str]:
     if isinstance(ruleset, str):
         if ruleset not in RULESETS:
-            raise SpcInputError(
-                f"unknown rules {ruleset!r}; allowed are {', '.join(RULESETS)}"
-            )
+            raise SpcInputError(f"unknown rules {ruleset!r}; allowed are {', '.join(RULESETS)}")
         return frozenset(RULESETS[ruleset])
     unknown = [r for r in ruleset if r not in RULES]
     if unknown:
@@ -685,9 +680,7 @@ def step(
 
     beyond3 = x > limits.ucl or x < limits.lcl
     two_of_three = (a2 and _count(above2 & 0b111) >= 2) or (b2 and _count(below2 & 0b111) >= 2)
-    four_of_five = (a1 and _count(above1 & 0b11111) >= 4) or (
-        b1 and _count(below1 & 0b11111) >= 4
-    )
+    four_of_five = (a1 and _count(above1 & 0b11111) >= 4) or (b1 and _count(below1 & 0b11111) >= 4)
 
     def run_same_side(k: int) -> bool:
         full = (1 << k) - 1
@@ -873,8 +866,7 @@ def _parse_fixed_limits(raw: object) -> Limits:
     extra = sorted(set(raw.keys()) - _LIMIT_KEYS)
     if missing or extra:
         raise SpcInputError(
-            f"limits needs centre, ucl and lcl (sigma optional); missing {missing}, "
-            f"unknown {extra}"
+            f"limits needs centre, ucl and lcl (sigma optional); missing {missing}, unknown {extra}"
         )
     return fixed_limits(raw["centre"], raw["ucl"], raw["lcl"], sigma=raw.get("sigma"))
 
@@ -922,7 +914,7 @@ def evaluate(data: object) -> dict[str, Any]:
         sample_size = _sample_size(sample_size)
     elif sample_size is not None:
         raise SpcInputError("sample_size applies only to the p chart")
-    ruleset = data.get("rules", "western_electric")
+    ruleset = data.get("rules") or "western_electric"
     if not isinstance(ruleset, str) or ruleset not in RULESETS:
         raise SpcInputError(f"unknown rules {ruleset!r}; allowed are {', '.join(RULESETS)}")
     lsl, usl = data.get("lsl"), data.get("usl")

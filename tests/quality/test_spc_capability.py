@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import math
 import statistics
 
@@ -66,7 +67,7 @@ def test_capability_from_readings_uses_within_and_overall_sigma() -> None:
     """Invariant: expected values recomputed here from the formulas (not outside data)."""
     cap = capability(READINGS, lsl=9.0, usl=11.5)
     mean = statistics.fmean(READINGS)
-    mr_bar = statistics.fmean(abs(b - a) for a, b in zip(READINGS, READINGS[1:]))
+    mr_bar = statistics.fmean(abs(b - a) for a, b in itertools.pairwise(READINGS))
     within = mr_bar / (2 / math.sqrt(math.pi))  # d2(2) = 2/sqrt(pi) exactly
     overall = statistics.stdev(READINGS)
     assert cap.mean == pytest.approx(mean)

@@ -12,6 +12,7 @@ from shopfloor.quality.spc import SpcInputError, evaluate
 
 from .test_spc_charts import MONTGOMERY_C_COUNTS, MONTGOMERY_P_COUNTS, NIST_INDIVIDUALS
 
+FIXED = {"centre": 1, "ucl": 2, "lcl": 0}
 GROUPS = [[10.1, 9.9, 10.0], [10.2, 10.0, 9.8], [9.9, 10.1, 10.3], [10.0, 9.7, 10.1]]
 
 
@@ -58,7 +59,11 @@ def test_subgroup_charts(chart: str) -> None:
 
 def test_fixed_limits_replace_computed_ones() -> None:
     result = evaluate(
-        {"chart": "individuals", "values": [10.0, 13.5], "limits": {"centre": 10, "ucl": 13, "lcl": 7}}
+        {
+            "chart": "individuals",
+            "values": [10.0, 13.5],
+            "limits": {"centre": 10, "ucl": 13, "lcl": 7},
+        }
     )
     assert (result["centre"], result["ucl"], result["lcl"]) == (10.0, 13.0, 7.0)
     assert result["range"] is None
@@ -95,8 +100,8 @@ def test_fixed_limits_replace_computed_ones() -> None:
         ({"chart": "individuals", "values": [1, 2], "rules": "x"}, "western_electric, nelson"),
         ({"chart": "individuals", "values": [1, 2], "usl ": 3}, "unknown key"),
         ({"chart": "individuals", "values": [1, 2], "lsl": 3, "usl": 1}, "must be below usl"),
-        ({"chart": "individuals", "values": [1], "lsl": 0, "limits": {"centre": 1, "ucl": 2, "lcl": 0}}, "at least 2"),
-        ({"chart": "individuals", "values": [1, 2], "limits": {"centre": 1}}, "needs centre, ucl and lcl"),
+        ({"chart": "individuals", "values": [1], "lsl": 0, "limits": FIXED}, "at least 2"),
+        ({"chart": "individuals", "values": [1, 2], "limits": {"centre": 1}}, "needs centre"),
     ],
 )  # fmt: skip
 def test_bad_input_is_explained(data: object, message: str) -> None:

@@ -6,6 +6,7 @@ values read directly as "sigmas from the centre".
 
 from __future__ import annotations
 
+import itertools
 import json
 
 import pytest
@@ -112,7 +113,7 @@ def test_nelson_7_fifteen_within_1_sigma() -> None:
     assert fired([0.1, 0.2, -0.1, -0.2, 1.25] * 3, "nelson_7") == []
     # Boundary convention: exactly 1 sigma away is "within" (beyond means strictly past).
     assert fired([0.1, 0.2, -0.1, -0.2, 1.0] * 3, "nelson_7") == [14]
-    assert fired(calm[:7] + [1.5] + calm[:14], "nelson_7") == []
+    assert fired([*calm[:7], 1.5, *calm[:14]], "nelson_7") == []
 
 
 def test_nelson_8_eight_beyond_1_sigma_on_both_sides() -> None:
@@ -169,7 +170,8 @@ def reference(values: list[float], ruleset: str) -> list[tuple[int, str]]:
 
         w6, w14, w15, w8 = window(i, 6), window(i, 14), window(i, 15), window(i, 8)
         trend = w6 is not None and (
-            all(b > a for a, b in zip(w6, w6[1:])) or all(b < a for a, b in zip(w6, w6[1:]))
+            all(b > a for a, b in itertools.pairwise(w6))
+            or all(b < a for a, b in itertools.pairwise(w6))
         )
         alternating = w14 is not None and all(
             (b - a) * (c - b) < 0 for a, b, c in zip(w14, w14[1:], w14[2:])

@@ -1,0 +1,188 @@
+"""Routing output: the JSON contract for the API, a text table for people, and diffs.
+
+Why a fixed dict contract: the API, the stored routing revisions and the traveller
+print all read the same shape, and revision diffs compare stored dicts, so the shape
+must not drift with the dataclasses.
+"""
+
+from __future__ import annotations
+
+import json
+from typing import Any
+
+from .build import Routing, Step
+from .windows import Window
+
+__all__ = ["diff_routings", "routing_to_dict", "routing_to_text"]
+
+_STEP_FIELDS = (
+    "name",
+    "work_center",
+    "instructions",
+    "parameters",
+    "hazard",
+    "queue_time_limit_minutes",
+    "standard_minutes",
+    "cycle",
+)
+_WINDOW_FIELDS = ("unit", "min", "max", "target", "samples", "source", "attribute", "deviation")
+
+
+def _num(v: float | None) -> float | None:
+    return None if v is None else float(v)
+
+
+def _window_dict(w: Window) -> dict[str, Any]:
+    return {
+        "quantity": w.quantity,
+        "unit": w.unit,
+        "min": _num(w.min),
+        "max": _num(w.max),
+        "target": _num(w.target),
+        "samples": w.samples,
+        "source": w.source,
+        "attribute": w.attribute,
+        "deviation": w.deviation,
+    }
+
+
+def _step_dict(s: Step) -> dict[str, Any]:
+    return {
+        "seq": s.seq,
+        "code": s.code,
+        "name": s.name,
+        "work_center": s.work_center,
+        "instructions": s.instructions,
+        "parameters": json.loads(json.dumps(s.parameters)),  # a deep, JSON-only copy
+        "hazard": s.hazard,
+        "queue_time_limit_minutes": s.queue_time_limit_minutes,
+        "standard_minutes": s.standard_minutes,
+        "cycle": s.cycle,
+        "measurements": [_window_dict(w) for w in s.measurements],
+    }
+
+
+def routing_to_dict(routing: Routing) -> dict[str, Any]:
+    """The routing as plain JSON types, in the API contract shape."""
+    return {
+        "steps": [_step_dict(s) for s in routing.steps],
+        "warnings": list(routing.warnings),
+        "lamination_cycles": routing.lamination_cycles,
+        "aspect_ratio": routing.aspect_ratio,
+    }
+
+
+def _fmt(v: Any) -> str:
+    if v is None:
+        return "-"
+    if isinstance(v, float):
+        return f"{v:g}"
+    return str(v)
+
+
+def _limits(w: Window) -> str:
+    if w.attribute:
+        return f"max {_fmt(w.max)} {w.unit}"
+    parts = []
+    if w.min is not None:
+        parts.append(f"min {_fmt(w.min)}")
+    if w.target is not None:
+        parts.append(f"target {_fmt(w.target)}")
+    if w.max is not None:
+        parts.append(f"max {_fmt(w.max)}")
+    text = " / ".join(parts) if parts else "record only"
+    return f"{text} {w.unit}"
+
+
+def routing_to_text(routing: Routing) -> str:
+    """A fixed-width table for a person: one line per step, measurements beneath."""
+    rows: list[str] = []
+    head = f"{'seq':>3}  {'code':<28} {'step':<44} {'work center':<14} {'min':>5}"
+    rows.append(head)
+    rows.append("-" * len(head))
+    for s in routing.steps:
+        name = s.name if len(s.name) <= 44 else s.name[:41] + "..."
+        rows.append(
+            f"{s.seq:>3}  {s.code:<28} {name:<44} {s.work_center:<14} {s.standard_minutes:>5}"
+        )
+        for w in s.measurements:
+            flag = "  DEVIATION" if w.deviation else ""
+            samples = "every board" if w.samples is None else f"{w.samples} samples"
+            rows.append(f"{'':>5}  measure {w.quantity}: {_limits(w)}, {samples}{flag}")
+            rows.append(f"{'':>5}    source: {w.source}")
+        if s.queue_time_limit_minutes is not None:
+            until = s.parameters.get("queue_time_until", "the next step")
+            rows.append(f"{'':>5}  queue limit: {s.queue_time_limit_minutes} min until {until}")
+        if s.hazard:
+            rows.append(f"{'':>5}  caution: {s.hazard}")
+    rows.append("-" * len(head))
+    total = routing.standard_minutes
+    rows.append(
+        f"{len(routing.steps)} steps, {total} standard minutes per lot, "
+        f"{routing.lamination_cycles} lamination cycle(s), aspect ratio {routing.aspect_ratio:g}:1"
+    )
+    for warning in routing.warnings:
+        rows.append(f"warning: {warning}")
+    return "\n".join(rows) + "\n"
+
+
+def _show(v: Any) -> str:
+    if isinstance(v, dict | list):
+        return json.dumps(v, sort_keys=True)
+    return _fmt(v)
+
+
+def diff_routings(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
+    """Readable differences between two routing dicts, matched by step code.
+
+    Sequence numbers alone are not reported as changes (inserting a step renumbers
+    everything after it); lines use the new seq for kept and added steps.
+    """
+    lines: list[str] = []
+    old_steps = {s["code"]: s for s in old.get("steps", [])}
+    new_steps = {s["code"]: s for s in new.get("steps", [])}
+    for s in new.get("steps", []):
+        code = s["code"]
+        if code not in old_steps:
+            lines.append(f"+ step {s['seq']} {code} {s['name']}")
+            continue
+        before = old_steps[code]
+        for f in _STEP_FIELDS:
+            if before.get(f) != s.get(f):
+                lines.append(
+                    f"~ step {s['seq']} {code} {f} {_show(before.get(f))} -> {_show(s.get(f))}"
+                )
+        lines += _diff_measurements(s["seq"], code, before, s)
+    for s in old.get("steps", []):
+        if s["code"] not in new_steps:
+            lines.append(f"- step {s['seq']} {s['code']} {s['name']}")
+    for key in ("lamination_cycles", "aspect_ratio"):
+        if old.get(key) != new.get(key):
+            lines.append(f"~ {key} {_show(old.get(key))} -> {_show(new.get(key))}")
+    old_w, new_w = list(old.get("warnings", [])), list(new.get("warnings", []))
+    lines += [f"+ warning {w}" for w in new_w if w not in old_w]
+    lines += [f"- warning {w}" for w in old_w if w not in new_w]
+    return lines
+
+
+def _diff_measurements(seq: int, code: str, old: dict[str, Any], new: dict[str, Any]) -> list[str]:
+    lines: list[str] = []
+    before = {m["quantity"]: m for m in old.get("measurements", [])}
+    after = {m["quantity"]: m for m in new.get("measurements", [])}
+    for q, m in after.items():
+        if q not in before:
+            lines.append(f"+ step {seq} {code} measure {q} {_dict_limits(m)}")
+            continue
+        for f in _WINDOW_FIELDS:
+            a, b = before[q].get(f), m.get(f)
+            if a != b:
+                unit = f" {m.get('unit', '')}" if f in ("min", "max", "target") else ""
+                lines.append(f"~ step {seq} {code} {q} {f} {_show(a)} -> {_show(b)}{unit}")
+    for q, m in before.items():
+        if q not in after:
+            lines.append(f"- step {seq} {code} measure {q} {_dict_limits(m)}")
+    return lines
+
+
+def _dict_limits(m: dict[str, Any]) -> str:
+    return f"min {_fmt(m.get('min'))} max {_fmt(m.get('max'))} {m.get('unit', '')}".rstrip()

@@ -1,0 +1,110 @@
+"""Who may call which API endpoint, in one place (the role matrix test reads the same rules).
+
+Roles are Django groups (shopfloor.plant.models.Role); a superuser counts as admin.
+Instrument tokens (request.auth is an InstrumentToken) may only post readings, and only
+at their own work center. Data-dependent checks (the lot step's work center) are the
+`check_*` helpers below, called by the API views before the one service call.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from rest_framework.permissions import BasePermission
+from rest_framework.request import Request
+
+from shopfloor.errors import NotAllowed
+from shopfloor.floor.models import InstrumentToken, LotStep
+
+#: Roles that work lots on the floor (start, pause, complete, record readings).
+FLOOR_ROLES = frozenset({"operator", "supervisor", "admin"})
+#: Roles that may read lot status, windows and routing previews.
+READ_ROLES = frozenset(
+    {"operator", "supervisor", "process_engineer", "quality_engineer", "admin"}
+)
+#: Operators are limited to the work centers on their badge; these roles are not.
+ANY_WORK_CENTER_ROLES = frozenset({"supervisor", "admin"})
+
+
+def roles_of(user: Any) -> set[str]:
+    """The role names of a user (superusers count as admin)."""
+    if user is None or not getattr(user, "is_authenticated", False):
+        return set()
+    names = set(user.groups.values_list("name", flat=True))
+    if getattr(user, "is_superuser", False):
+        names.add("admin")
+    return names
+
+
+def is_instrument(request: Request) -> bool:
+    return isinstance(getattr(request, "auth", None), InstrumentToken)
+
+
+class _RolePermission(BasePermission):
+    roles: frozenset[str] = frozenset()
+    what = "use this endpoint"
+
+    def has_permission(self, request: Request, view: Any) -> bool:
+        if not request.user or not request.user.is_authenticated:
+            return False  # DRF answers 401 with the authentication scheme
+        if is_instrument(request):
+            self.message = "An instrument token may only post readings (POST /api/v1/readings/)."
+            return False
+        if not roles_of(request.user) & self.roles:
+            allowed = ", ".join(sorted(r.replace("_", " ") for r in self.roles))
+            self.message = f"Only these roles may {self.what}: {allowed}."
+            return False
+        return True
+
+
+class CanRead(_RolePermission):
+    """Lot status, windows and routing previews: every role, no instruments."""
+
+    roles = READ_ROLES
+    what = "read lots and preview routings"
+
+
+class CanWorkSteps(_RolePermission):
+    """Start, pause, complete steps and correct readings: floor roles only (people)."""
+
+    roles = FLOOR_ROLES
+    what = "work lot steps"
+
+
+class CanPostReadings(BasePermission):
+    """People with a floor role, or an instrument token (scoped to its work center later)."""
+
+    message = "Only operators, supervisors, administrators or instruments may post readings."
+
+    def has_permission(self, request: Request, view: Any) -> bool:
+        if not request.user or not request.user.is_authenticated:
+            return False
+        if is_instrument(request):
+            return True
+        return bool(roles_of(request.user) & FLOOR_ROLES)
+
+
+def check_work_center(request: Request, step: LotStep) -> None:
+    """Refuse a step at a work center the caller is not assigned to.
+
+    An instrument belongs to exactly one work center. An operator may only work at the
+    work centers on their badge; supervisors and admins may work anywhere (the services
+    still check qualification when a step is started or signed).
+    """
+    token = getattr(request, "auth", None)
+    if isinstance(token, InstrumentToken):
+        if token.work_center_id != step.work_center_id:
+            raise NotAllowed(
+                f"This instrument token belongs to {token.work_center.name}; the lot's step "
+                f"'{step.name}' is at another work center."
+            )
+        return
+    user = request.user
+    if roles_of(user) & ANY_WORK_CENTER_ROLES:
+        return
+    person = getattr(user, "person", None)
+    if person is None or not person.work_centers.filter(pk=step.work_center_id).exists():
+        raise NotAllowed(
+            f"You are not assigned to the work center of step '{step.name}'. Ask a supervisor "
+            "to add it to your badge."
+        )

@@ -1,0 +1,218 @@
+"""API input and output shapes for lots, steps and readings.
+
+Input serializers check types and ranges only (so a bad body gets every problem at
+once, with nothing saved); the shop rules (window, units, current step, calibration)
+stay in shopfloor.floor.services, which the tablet pages call too.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from django.utils import timezone
+from rest_framework import serializers
+
+from shopfloor.floor.models import LotStep, Reading
+
+MAX_ID = 2**63 - 1
+
+
+class ErrorSerializer(serializers.Serializer):
+    """Every refusal: a code, a sentence for people, and the problems one by one."""
+
+    error = serializers.CharField(help_text="Machine-readable code, e.g. invalid, conflict")
+    detail = serializers.CharField(help_text="What was wrong and what to do")
+    problems = serializers.ListField(
+        child=serializers.DictField(), required=False,
+        help_text="One entry per problem: field, value, problem, allowed",
+    )
+
+
+class NumberOrTextField(serializers.Field):
+    """A reading value as typed: a JSON number or numeric text ("12.5"), never a bool.
+
+    The text is kept as entered (it is stored beside the converted value); the unit
+    conversion in shopfloor.units decides what is plausible for the quantity.
+    """
+
+    default_error_messages = {
+        "invalid": "Give a number such as 12.5 (a point as the decimal separator).",
+        "not_finite": "The value must be a finite number (not NaN or infinity).",
+    }
+
+    def to_internal_value(self, data: Any) -> Any:
+        if isinstance(data, bool) or not isinstance(data, int | float | str):
+            self.fail("invalid")
+        if isinstance(data, str):
+            text = data.strip()
+            if not text or len(text) > 40:
+                self.fail("invalid")
+            try:
+                number = float(text)
+            except ValueError:
+                self.fail("invalid")
+            if not math.isfinite(number):
+                self.fail("not_finite")
+            return text
+        if isinstance(data, float) and not math.isfinite(data):
+            self.fail("not_finite")
+        if isinstance(data, int) and abs(data) > 10**15:
+            self.fail("invalid")
+        return data
+
+    def to_representation(self, value: Any) -> Any:
+        return value
+
+
+class AwareDateTimeField(serializers.DateTimeField):
+    """A capture time must carry its offset: a gauge's local clock is not UTC."""
+
+    def enforce_timezone(self, value: Any) -> Any:
+        if timezone.is_naive(value):
+            raise serializers.ValidationError(
+                "captured_at needs a time zone offset, e.g. 2025-03-01T08:30:00Z or +01:00."
+            )
+        return super().enforce_timezone(value)
+
+
+class ReadingInputSerializer(serializers.Serializer):
+    lot = serializers.CharField(max_length=30, help_text="Lot (traveller) code as scanned")
+    step = serializers.IntegerField(
+        required=False, allow_null=True, min_value=1, max_value=MAX_ID,
+        help_text="Lot step id; default: the lot's current step",
+    )
+    quantity = serializers.CharField(max_length=40, help_text="What is measured, e.g. hole_copper")
+    value = NumberOrTextField(help_text="Number as read (number or numeric text)")
+    unit = serializers.CharField(max_length=20, allow_blank=True,
+                                 help_text="Unit as read, e.g. um, mil, mm, percent, count")
+    sample_index = serializers.IntegerField(default=1, min_value=1, max_value=1000)
+    position = serializers.CharField(max_length=60, required=False, allow_blank=True, default="")
+    equipment = serializers.IntegerField(required=False, allow_null=True, min_value=1,
+                                         max_value=MAX_ID)
+    captured_at = AwareDateTimeField(required=False, allow_null=True)
+
+
+class CorrectionInputSerializer(serializers.Serializer):
+    value = NumberOrTextField()
+    unit = serializers.CharField(max_length=20, allow_blank=True)
+    reason = serializers.CharField(max_length=300, min_length=3,
+                                   help_text="What was wrong with the first reading")
+    captured_at = AwareDateTimeField(required=False, allow_null=True)
+
+
+class StepStartSerializer(serializers.Serializer):
+    equipment = serializers.IntegerField(required=False, allow_null=True, min_value=1,
+                                         max_value=MAX_ID)
+    material_lots = serializers.ListField(
+        child=serializers.IntegerField(min_value=1, max_value=MAX_ID), required=False,
+        max_length=50,
+    )
+
+
+class StepPauseSerializer(serializers.Serializer):
+    reason = serializers.CharField(max_length=300, required=False, allow_blank=True, default="")
+
+
+class StepCompleteSerializer(serializers.Serializer):
+    pin = serializers.CharField(max_length=40, help_text="The signer's PIN (second component)")
+    meaning = serializers.ChoiceField(
+        choices=["performed_by", "verified_by"], default="performed_by",
+        help_text="What the signature means",
+    )
+
+
+class WindowSerializer(serializers.Serializer):
+    """A tolerance window in the canonical unit, always with its source."""
+
+    quantity = serializers.CharField()
+    unit = serializers.CharField()
+    min = serializers.FloatField(allow_null=True)
+    max = serializers.FloatField(allow_null=True)
+    target = serializers.FloatField(allow_null=True)
+    samples = serializers.IntegerField(allow_null=True, help_text="null means every board")
+    source = serializers.CharField(help_text="Standard and clause, shop practice or customer")
+    attribute = serializers.BooleanField()
+    deviation = serializers.BooleanField()
+
+    def to_representation(self, instance: Any) -> Any:
+        if isinstance(instance, dict):
+            instance = window_dict(instance)
+        return super().to_representation(instance)
+
+
+class ReadingSerializer(serializers.ModelSerializer):
+    lot = serializers.CharField(source="lot_step.lot.code", read_only=True)
+    step = serializers.IntegerField(source="lot_step_id", read_only=True)
+    operator = serializers.CharField(source="operator.printed_name", read_only=True)
+    window = WindowSerializer(read_only=True)
+    equipment = serializers.IntegerField(source="equipment_id", allow_null=True, read_only=True)
+    superseded_by = serializers.IntegerField(source="superseded_by_id", allow_null=True,
+                                             read_only=True)
+
+    class Meta:
+        model = Reading
+        fields = [
+            "id", "lot", "step", "quantity", "value", "unit", "entered_value", "entered_unit",
+            "sample_index", "position", "equipment", "operator", "captured_at", "recorded_at",
+            "in_window", "window", "superseded_by", "via",
+        ]
+        read_only_fields = fields
+
+
+class LotStepSerializer(serializers.ModelSerializer):
+    work_center = serializers.CharField(source="work_center.code", read_only=True)
+    started_by = serializers.CharField(source="started_by.printed_name", allow_null=True,
+                                       read_only=True, default=None)
+    completed_by = serializers.CharField(source="completed_by.printed_name", allow_null=True,
+                                         read_only=True, default=None)
+
+    class Meta:
+        model = LotStep
+        fields = [
+            "id", "position", "code", "name", "work_center", "status", "is_rework", "hazard",
+            "queue_time_limit_minutes", "arrived_at", "started_at", "started_by",
+            "completed_at", "completed_by",
+        ]
+        read_only_fields = fields
+
+
+class LotStatusSerializer(serializers.Serializer):
+    code = serializers.CharField()
+    status = serializers.CharField()
+    on_hold = serializers.BooleanField()
+    routing_revision = serializers.IntegerField()
+    current_step = LotStepSerializer(allow_null=True)
+    steps = LotStepSerializer(many=True)
+
+
+class StepWindowsSerializer(serializers.Serializer):
+    lot = serializers.CharField()
+    step = LotStepSerializer(allow_null=True)
+    windows = WindowSerializer(many=True)
+
+
+def lot_status(lot: Any, steps: list[LotStep], current: LotStep | None) -> dict[str, Any]:
+    return {
+        "code": lot.code,
+        "status": lot.status,
+        "on_hold": lot.on_hold,
+        "routing_revision": lot.routing_revision_id,
+        "current_step": current,
+        "steps": steps,
+    }
+
+
+def window_dict(m: dict[str, Any]) -> dict[str, Any]:
+    """A plan entry as the window contract (missing keys become null/false)."""
+    return {
+        "quantity": m.get("quantity", ""),
+        "unit": m.get("unit", ""),
+        "min": m.get("min"),
+        "max": m.get("max"),
+        "target": m.get("target"),
+        "samples": m.get("samples"),
+        "source": m.get("source") or "",
+        "attribute": bool(m.get("attribute")),
+        "deviation": bool(m.get("deviation")),
+    }

@@ -1,0 +1,199 @@
+"""The lot traveller: a QR code of the lot code and a printable PDF of the lot's route.
+
+Why a printed traveller still matters: panels move between wet lines where tablets are
+not allowed, and a scan of the label must open the same lot on any tablet. The QR code
+encodes only the lot code (Lot.code), so nothing else needs to stay in step with it.
+The PDF shows the windows with their sources, the hazard notes and blank sign-off boxes
+so a step done during a network outage can be signed on paper and entered later.
+"""
+
+from __future__ import annotations
+
+import io
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import segno
+from django.conf import settings
+from django.utils import timezone
+
+from shopfloor.floor.models import LotStep
+from shopfloor.plant.models import Job, Lot
+from shopfloor.windows import describe_window
+
+_DEJAVU = Path("/usr/share/fonts/truetype/dejavu")
+
+
+def qr_svg(code: str, scale: int = 6) -> str:
+    """Inline SVG of a QR code that decodes to exactly `code`."""
+    qr = segno.make(code, error="m", micro=False)
+    return qr.svg_inline(scale=scale, border=2, dark="#000", light="#fff")
+
+
+def qr_png(code: str, scale: int = 8) -> bytes:
+    qr = segno.make(code, error="m", micro=False)
+    out = io.BytesIO()
+    qr.save(out, kind="png", scale=scale, border=4)
+    return out.getvalue()
+
+
+def window_source(window: dict[str, Any]) -> str:
+    """The source of a window as one line of text (it may be stored as text or a dict)."""
+    source = window.get("source")
+    if isinstance(source, dict):
+        parts = [str(v) for k, v in source.items() if v not in (None, "") and k != "kind"]
+        return " · ".join(parts) or str(source.get("kind", ""))
+    return str(source or "source not recorded")
+
+
+@dataclass(frozen=True)
+class TravellerData:
+    lot: Lot
+    jobs: list[Job]
+    steps: list[LotStep]
+
+
+def traveller_data(lot: Lot) -> TravellerData:
+    jobs = list(
+        Job.objects.filter(images__panel__lot=lot)
+        .select_related("part_revision__part__customer")
+        .distinct()
+        .order_by("number")
+    )
+    steps = list(LotStep.objects.filter(lot=lot).select_related("work_center").order_by("position"))
+    return TravellerData(lot=lot, jobs=jobs, steps=steps)
+
+
+def _fonts() -> tuple[str, str]:
+    """DejaVu covers µ, ≥ and ≤; fall back to Helvetica when the font is not installed."""
+    from reportlab.pdfbase import pdfmetrics
+    from reportlab.pdfbase.ttfonts import TTFont
+
+    regular, bold = _DEJAVU / "DejaVuSans.ttf", _DEJAVU / "DejaVuSans-Bold.ttf"
+    if regular.exists() and bold.exists():
+        if "DejaVuSans" not in pdfmetrics.getRegisteredFontNames():
+            pdfmetrics.registerFont(TTFont("DejaVuSans", str(regular)))
+            pdfmetrics.registerFont(TTFont("DejaVuSans-Bold", str(bold)))
+        return "DejaVuSans", "DejaVuSans-Bold"
+    return "Helvetica", "Helvetica-Bold"
+
+
+def _safe(text: str, font: str) -> str:
+    from xml.sax.saxutils import escape
+
+    if font == "Helvetica":
+        text = text.replace("≥", ">=").replace("≤", "<=")
+    return escape(text)
+
+
+def traveller_pdf(lot: Lot) -> bytes:
+    """Render the traveller as an A4 PDF (reportlab platypus)."""
+    from reportlab.lib import colors
+    from reportlab.lib.pagesizes import A4
+    from reportlab.lib.styles import ParagraphStyle
+    from reportlab.lib.units import mm
+    from reportlab.platypus import (
+        Image,
+        KeepTogether,
+        Paragraph,
+        SimpleDocTemplate,
+        Spacer,
+        Table,
+        TableStyle,
+    )
+
+    from shopfloor.context import SAFETY_CAUTION
+
+    data = traveller_data(lot)
+    font, bold = _fonts()
+    body = ParagraphStyle("body", fontName=font, fontSize=9, leading=11)
+    small = ParagraphStyle("small", parent=body, fontSize=7.5, leading=9)
+    head = ParagraphStyle("head", parent=body, fontName=bold, fontSize=16, leading=20)
+    h2 = ParagraphStyle("h2", parent=body, fontName=bold, fontSize=11, leading=14,
+                        spaceBefore=6, spaceAfter=3)
+    caution = ParagraphStyle("caution", parent=small, textColor=colors.HexColor("#7a3b00"))
+
+    def p(text: str, style: ParagraphStyle = body) -> Paragraph:
+        return Paragraph(_safe(text, font), style)
+
+    revision = lot.routing_revision
+    part_revision = revision.part_revision
+    tz = timezone.zoneinfo.ZoneInfo(settings.SITE_TIME_ZONE)
+    printed = timezone.now().astimezone(tz)
+
+    story: list[Any] = []
+    qr = Image(io.BytesIO(qr_png(lot.code)), width=32 * mm, height=32 * mm)
+    title = [
+        p(f"Traveller — lot {lot.code}", head),
+        p(f"Part {part_revision.part.number} revision {part_revision.revision} · "
+          f"routing r{revision.number} · IPC class {revision.ipc_class}"),
+        p(f"Panels: {lot.panel_count} · printed {printed:%Y-%m-%d %H:%M} "
+          f"({settings.SITE_TIME_ZONE})", small),
+    ]
+    header = Table([[title, qr]], colWidths=[140 * mm, 36 * mm])
+    header.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP")]))
+    story += [header, Spacer(1, 3 * mm)]
+
+    story.append(p("Jobs", h2))
+    job_rows: list[list[Any]] = [[p(t, small) for t in
+                                  ("Job", "Customer", "Part / rev", "Qty", "Due", "IPC class")]]
+    for job in data.jobs:
+        pr = job.part_revision
+        job_rows.append([p(job.number), p(pr.part.customer.code),
+                         p(f"{pr.part.number} rev {pr.revision}"), p(str(job.quantity)),
+                         p(f"{job.due_date:%Y-%m-%d}"), p(str(job.ipc_class))])
+    story.append(_grid(Table(job_rows, colWidths=[25 * mm, 25 * mm, 50 * mm, 18 * mm,
+                                                  28 * mm, 30 * mm], repeatRows=1)))
+
+    panels = ", ".join(lot.panels.order_by("serial").values_list("serial", flat=True))
+    story += [p("Panels", h2), p(panels or "none recorded", small)]
+
+    story.append(p("Route", h2))
+    for step in data.steps:
+        lines = [p(f"{step.position} · {step.name} — {step.work_center.name}", body)]
+        if step.instructions:
+            lines.append(p(step.instructions, small))
+        if step.parameters:
+            lines.append(p("Parameters: " + ", ".join(
+                f"{k.replace('_', ' ')} {v}" for k, v in step.parameters.items()), small))
+        for m in step.plan:
+            lines.append(p(f"{m.get('quantity', '').replace('_', ' ')}: "
+                           f"{describe_window(m)} × {m.get('samples') or 1} — source: "
+                           f"{window_source(m)}", small))
+        if step.hazard:
+            lines.append(p(f"HAZARD: {step.hazard}", caution))
+        sign = Table([[p("Performed by", small), ""], [p("Date", small), ""]],
+                     colWidths=[20 * mm, 38 * mm], rowHeights=[9 * mm, 7 * mm])
+        sign.setStyle(TableStyle([
+            ("BOX", (1, 0), (1, 0), 0.6, colors.black),
+            ("BOX", (1, 1), (1, 1), 0.6, colors.black),
+            ("VALIGN", (0, 0), (-1, -1), "MIDDLE"),
+        ]))
+        row = Table([[lines, sign]], colWidths=[118 * mm, 60 * mm])
+        row.setStyle(TableStyle([
+            ("VALIGN", (0, 0), (-1, -1), "TOP"),
+            ("LINEBELOW", (0, 0), (-1, -1), 0.3, colors.grey),
+            ("BOTTOMPADDING", (0, 0), (-1, -1), 4),
+        ]))
+        story.append(KeepTogether([row]))
+
+    story += [Spacer(1, 4 * mm), p(SAFETY_CAUTION, caution)]
+    out = io.BytesIO()
+    doc = SimpleDocTemplate(out, pagesize=A4, leftMargin=15 * mm, rightMargin=15 * mm,
+                            topMargin=12 * mm, bottomMargin=12 * mm,
+                            title=f"Traveller {lot.code}", author="Traveller service")
+    doc.build(story)
+    return out.getvalue()
+
+
+def _grid(table: Any) -> Any:
+    from reportlab.lib import colors
+    from reportlab.platypus import TableStyle
+
+    table.setStyle(TableStyle([
+        ("GRID", (0, 0), (-1, -1), 0.4, colors.grey),
+        ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#e8e8e8")),
+        ("VALIGN", (0, 0), (-1, -1), "TOP"),
+    ]))
+    return table

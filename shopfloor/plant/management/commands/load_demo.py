@@ -1,0 +1,234 @@
+"""`manage.py load_demo`: load the invented demo shop (safe to run twice).
+
+Everything goes through the same services the floor uses: routings are built from the
+build specs and released with the engineer's signature, lots are advanced by recording
+in-window readings and signing steps, and the lots meant to be on hold get an
+out-of-window reading, so the alert, hold and NCR come from the real alert task.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+from pathlib import Path
+from typing import Any
+
+from django.conf import settings
+from django.contrib.auth.models import Group, User
+from django.core.management.base import BaseCommand, CommandParser
+from django.db import transaction
+from django.utils import timezone
+
+from routing import services as routing_services
+from routing.models import RoutingRevision
+from shopfloor.floor import services as floor
+from shopfloor.floor.models import LotStep
+from shopfloor.plant import services as plant
+from shopfloor.plant.models import (
+    Customer,
+    Equipment,
+    Job,
+    Lot,
+    MaterialLot,
+    Part,
+    PartRevision,
+    Person,
+    Qualification,
+    Role,
+    WorkCenter,
+)
+
+DEFAULT_FILE = Path(settings.BASE_DIR) / "fixtures" / "demo_shop.json"
+
+
+def in_window_value(window: dict[str, Any], sample: int) -> float:
+    """A plausible conforming value: centred in two-sided windows, a margin above a minimum."""
+    lo, hi, target = window.get("min"), window.get("max"), window.get("target")
+    wobble = ((sample * 37) % 7 - 3) / 100.0  # small spread so SPC charts are not flat
+    if window.get("attribute"):
+        return 0
+    if target is not None:
+        base = float(target)
+    elif lo is not None and hi is not None:
+        base = (float(lo) + float(hi)) / 2
+    elif lo is not None:
+        base = float(lo) * 1.2 if lo else 1.0
+    elif hi is not None:
+        base = float(hi) * 0.6
+    else:
+        base = 1.0
+    span = (float(hi) - float(lo)) if lo is not None and hi is not None else abs(base) * 0.2
+    return round(base + wobble * span, 4)
+
+
+def out_of_window_value(window: dict[str, Any]) -> float:
+    lo, hi = window.get("min"), window.get("max")
+    if window.get("attribute"):
+        return float(hi or 0) + 2
+    if lo is not None and lo > 0:
+        return round(float(lo) * 0.75, 4)
+    if hi is not None:
+        return round(float(hi) * 1.3 + 1, 4)
+    return -1.0
+
+
+class Command(BaseCommand):
+    help = "Load the invented demo shop (people, work centers, jobs, lots). Runs twice safely."
+
+    def add_arguments(self, parser: CommandParser) -> None:
+        parser.add_argument("--file", default=str(DEFAULT_FILE))
+
+    def handle(self, *args: Any, **options: Any) -> None:
+        data = json.loads(Path(options["file"]).read_text(encoding="utf-8"))
+        routing_services.ensure_library(note="built-in library (demo)")
+        people = self._people(data)
+        self._plant(data)
+        engineer = next(p for p in people.values() if Role.PROCESS_ENGINEER in p.roles())
+        operator = people[data["people"][0]["badge"]]
+        routings = self._routings(data, engineer)
+        created = 0
+        for job_data in data["jobs"]:
+            if Job.objects.filter(number=job_data["number"]).exists():
+                continue
+            self._job(job_data, routings, operator, data["pin"])
+            created += 1
+        self.stdout.write(
+            f"demo shop ready: {Job.objects.count()} jobs, {Lot.objects.count()} lots "
+            f"({created} new this run)"
+        )
+
+    # -- people and plant -------------------------------------------------------------
+
+    def _people(self, data: dict[str, Any]) -> dict[str, Person]:
+        for role in Role.values:
+            Group.objects.get_or_create(name=role)
+        admin = data["admin"]
+        if not User.objects.filter(username=admin["username"]).exists():
+            user = User.objects.create_superuser(admin["username"], "", admin["password"])
+            user.groups.add(Group.objects.get(name=Role.ADMIN))
+        all_centers = list(WorkCenter.objects.all())
+        people: dict[str, Person] = {}
+        for p in data["people"]:
+            person = Person.objects.filter(badge_number=p["badge"]).first()
+            if person is None:
+                user = User.objects.create_user(
+                    username=f"badge{p['badge']}", password=None,
+                    first_name=p["name"].split()[0], last_name=p["name"].split()[-1],
+                )
+                user.groups.add(Group.objects.get(name=p["role"]))
+                person = Person(user=user, badge_number=p["badge"], printed_name=p["name"])
+                person.set_pin(data["pin"])
+                person.save()
+                centers = (
+                    all_centers if p["work_centers"] == "*"
+                    else [wc for wc in all_centers if wc.code in p["work_centers"]]
+                )
+                person.work_centers.add(*centers)
+                for wc in centers:
+                    Qualification.objects.get_or_create(
+                        person=person, work_center=wc,
+                        defaults={"valid_until": timezone.localdate() + dt.timedelta(days=365)},
+                    )
+            people[p["badge"]] = person
+        return people
+
+    def _plant(self, data: dict[str, Any]) -> None:
+        for code, emails in data.get("notify", {}).items():
+            WorkCenter.objects.filter(code=code, notify_emails="").update(notify_emails=emails)
+        for e in data["equipment"]:
+            wc = WorkCenter.objects.filter(code=e["work_center"]).first()
+            if wc is None:
+                continue
+            due = timezone.localdate() + dt.timedelta(days=e["cal_days"]) if e.get("gauge") else None
+            Equipment.objects.get_or_create(
+                code=e["code"],
+                defaults={"work_center": wc, "name": e["name"], "is_gauge": e.get("gauge", False),
+                          "calibration_due": due},
+            )
+        for m in data["material_lots"]:
+            MaterialLot.objects.get_or_create(
+                code=m["code"], defaults={"kind": m["kind"], "description": m["description"],
+                                          "received_on": timezone.localdate() - dt.timedelta(days=20)},
+            )
+
+    def _routings(self, data: dict[str, Any], engineer: Person) -> dict[str, RoutingRevision]:
+        routings: dict[str, RoutingRevision] = {}
+        for p in data["parts"]:
+            customer, _ = Customer.objects.get_or_create(code=p["customer"],
+                                                         defaults={"name": p["customer"]})
+            for c in data["customers"]:
+                Customer.objects.filter(code=c["code"]).update(name=c["name"])
+            part, _ = Part.objects.get_or_create(customer=customer, number=p["number"],
+                                                 defaults={"description": p["description"]})
+            part_revision, _ = PartRevision.objects.get_or_create(
+                part=part, revision=p["revision"], defaults={"build_spec": p["spec"]}
+            )
+            released = (
+                RoutingRevision.objects.filter(part_revision=part_revision,
+                                               status=RoutingRevision.Status.RELEASED)
+                .order_by("-number").first()
+            )
+            if released is None:
+                draft = routing_services.create_draft(
+                    person=engineer, part_revision_id=part_revision.pk, reason="first routing"
+                )
+                released = routing_services.release(person=engineer, revision_id=draft.pk,
+                                                    pin=data["pin"])
+            routings[p["number"]] = released
+        return routings
+
+    # -- jobs and lots ----------------------------------------------------------------
+
+    def _job(self, j: dict[str, Any], routings: dict[str, RoutingRevision], operator: Person,
+             pin: str) -> None:
+        routing = routings[j["part"]]
+        with transaction.atomic():
+            job = Job.objects.create(
+                number=j["number"], part_revision=routing.part_revision, quantity=j["quantity"],
+                due_date=timezone.localdate() + dt.timedelta(days=j["due_days"]),
+                ipc_class=routing.ipc_class, routing_revision=routing,
+                customer_spec_notes=j.get("note", ""),
+            )
+            lot = plant.create_lot(actor=operator.user, code=j["lot"], routing_revision=routing,
+                                   images=[(job, 6)], panels=j["panels"])
+        materials = list(MaterialLot.objects.order_by("code").values_list("pk", flat=True)[:3])
+        for _ in range(j["advance"]):
+            step = floor.current_step(lot)
+            if step is None:
+                break
+            if j.get("hold") and step.plan:
+                self._hold(lot, step, operator)
+                return
+            floor.start_step(person=operator, lot_step_id=step.pk,
+                             material_lot_ids=materials if step.code.startswith("layup") else None)
+            for window in step.plan:
+                for sample in range(1, int(window.get("samples") or 1) + 1):
+                    floor.record_reading(
+                        person=operator, lot_step_id=step.pk,
+                        data=floor.ReadingInput(
+                            quantity=window["quantity"], value=in_window_value(window, sample),
+                            unit=window["unit"], sample_index=sample,
+                            position=f"coupon {sample}",
+                        ),
+                    )
+            floor.complete_step(person=operator, lot_step_id=step.pk, pin=pin)
+            lot.refresh_from_db()
+        if j.get("hold"):
+            # no measured step reached within 'advance'; find the next measured one
+            step = floor.current_step(lot)
+            while step is not None and not step.plan:
+                floor.start_step(person=operator, lot_step_id=step.pk)
+                floor.complete_step(person=operator, lot_step_id=step.pk, pin=pin)
+                step = floor.current_step(lot)
+            if step is not None:
+                self._hold(lot, step, operator)
+
+    def _hold(self, lot: Lot, step: LotStep, operator: Person) -> None:
+        floor.start_step(person=operator, lot_step_id=step.pk)
+        window = step.plan[0]
+        floor.record_reading(
+            person=operator, lot_step_id=step.pk,
+            data=floor.ReadingInput(quantity=window["quantity"],
+                                    value=out_of_window_value(window), unit=window["unit"],
+                                    sample_index=1, position="coupon 1"),
+        )
