@@ -1,5 +1,5 @@
 # Sourced by .ci/demo, .ci/test and bench/run: find Python >= 3.12, make var/venv,
-# install the locked dependencies (only when requirements.lock changed).
+# install the locked dependencies (only when .ci/requirements.lock changed).
 set -euo pipefail
 ROOT="$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)"
 cd "$ROOT"
@@ -29,11 +29,11 @@ if [ ! -x "$VENV/bin/python" ]; then
   "$PY" -m venv "$VENV"
 fi
 STAMP="$VENV/.lock-installed"
-if [ ! -f "$STAMP" ] || ! cmp -s requirements.lock "$STAMP"; then
-  echo "setup: installing locked dependencies (requirements.lock)"
+if [ ! -f "$STAMP" ] || ! cmp -s .ci/requirements.lock "$STAMP"; then
+  echo "setup: installing locked dependencies (.ci/requirements.lock)"
   "$VENV/bin/python" -m pip install -q --upgrade pip >/dev/null
-  "$VENV/bin/python" -m pip install -q -r requirements.lock
-  cp requirements.lock "$STAMP"
+  "$VENV/bin/python" -m pip install -q -r .ci/requirements.lock
+  cp .ci/requirements.lock "$STAMP"
 fi
 export PATH="$VENV/bin:$PATH"
 PYTHON="$VENV/bin/python"

@@ -1,5 +1,19 @@
-"""API v1 routes (DRF)."""
+"""API v1 routes (DRF). Permissions per endpoint: shopfloor/floor/permissions.py."""
 
 from django.urls import path
 
-urlpatterns: list = []
+from routing import api as routing_api
+from shopfloor.floor import api as floor_api
+
+urlpatterns = [
+    path("routing/preview/", routing_api.PreviewView.as_view(), name="api-routing-preview"),
+    path("readings/", floor_api.ReadingCreateView.as_view(), name="api-readings"),
+    path("readings/<int:pk>/correct/", floor_api.ReadingCorrectView.as_view(),
+         name="api-reading-correct"),
+    path("steps/<int:pk>/start/", floor_api.StepStartView.as_view(), name="api-step-start"),
+    path("steps/<int:pk>/pause/", floor_api.StepPauseView.as_view(), name="api-step-pause"),
+    path("steps/<int:pk>/complete/", floor_api.StepCompleteView.as_view(),
+         name="api-step-complete"),
+    path("lots/<str:code>/", floor_api.LotStatusView.as_view(), name="api-lot"),
+    path("lots/<str:code>/windows/", floor_api.LotWindowsView.as_view(), name="api-lot-windows"),
+]

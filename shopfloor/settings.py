@@ -177,11 +177,23 @@ CELERY_BEAT_SCHEDULE = {
 }
 
 # Mail (Django 6.1 MAILERS); alerts go to each work center's notification list.
-MAILERS = {
-    "default": {
-        "BACKEND": env_str("MAIL_BACKEND", "django.core.mail.backends.console.EmailBackend"),
+_mail_backend = env_str(
+    "MAIL_BACKEND",
+    "django.core.mail.backends.console.EmailBackend"
+    if DEBUG
+    else "django.core.mail.backends.smtp.EmailBackend",
+) or ""
+_mail_options: dict[str, object] = {}
+if _mail_backend.endswith("smtp.EmailBackend"):
+    _mail_options = {
+        "host": env_str("MAIL_HOST", "localhost"),
+        "port": env_int("MAIL_PORT", 587),
+        "username": env_str("MAIL_USER", "") or "",
+        "password": env_str("MAIL_PASSWORD", "") or "",
+        "use_tls": env_bool("MAIL_USE_TLS", True),
+        "timeout": 10,
     }
-}
+MAILERS = {"default": {"BACKEND": _mail_backend, "OPTIONS": _mail_options}}
 DEFAULT_FROM_EMAIL = env_str("DEFAULT_FROM_EMAIL", "shopfloor@localhost")
 ALERT_WEBHOOK_URL = env_str("ALERT_WEBHOOK_URL", "") or ""
 ALERT_WEBHOOK_SECRET = env_str("ALERT_WEBHOOK_SECRET", "") or ""

@@ -108,3 +108,49 @@ def check_work_center(request: Request, step: LotStep) -> None:
             f"You are not assigned to the work center of step '{step.name}'. Ask a supervisor "
             "to add it to your badge."
         )
+
+
+def access_lot_step(request: Request, lot: Any, step_id: int | None) -> LotStep:
+    """The lot step a request names (default: the lot's current step), if the caller may.
+
+    Raises NotFound for a step of another lot, Conflict when the lot has no open step,
+    NotAllowed when the step is at a work center the caller does not work at.
+    """
+    from shopfloor.errors import Conflict, NotFound
+    from shopfloor.floor import services
+
+    if step_id is None:
+        step = services.current_step(lot)
+        if step is None:
+            raise Conflict(f"Lot {lot.code} has no open step (it is {lot.get_status_display()}).")
+    else:
+        step = LotStep.objects.select_related("work_center").filter(pk=step_id, lot=lot).first()
+        if step is None:
+            raise NotFound(f"Lot {lot.code} has no step with id {step_id}.")
+    check_work_center(request, step)
+    return step
+
+
+def access_step(request: Request, step_id: int) -> LotStep:
+    """A lot step by id, if the caller works at its work center."""
+    from shopfloor.errors import NotFound
+
+    step = LotStep.objects.select_related("work_center", "lot").filter(pk=step_id).first()
+    if step is None:
+        raise NotFound(f"No lot step with id {step_id}.")
+    check_work_center(request, step)
+    return step
+
+
+def access_reading(request: Request, reading_id: int) -> Any:
+    """A reading by id, if the caller works at its step's work center."""
+    from shopfloor.errors import NotFound
+    from shopfloor.floor.models import Reading
+
+    reading = (
+        Reading.objects.select_related("lot_step__work_center").filter(pk=reading_id).first()
+    )
+    if reading is None:
+        raise NotFound(f"No reading with id {reading_id}.")
+    check_work_center(request, reading.lot_step)
+    return reading

@@ -11,6 +11,7 @@ import math
 from typing import Any
 
 from django.utils import timezone
+from drf_spectacular.utils import extend_schema_field
 from rest_framework import serializers
 
 from shopfloor.floor.models import LotStep, Reading
@@ -29,6 +30,10 @@ class ErrorSerializer(serializers.Serializer):
     )
 
 
+@extend_schema_field(
+    {"oneOf": [{"type": "number"}, {"type": "string", "maxLength": 40}],
+     "example": 22.5}
+)
 class NumberOrTextField(serializers.Field):
     """A reading value as typed: a JSON number or numeric text ("12.5"), never a bool.
 
@@ -163,9 +168,9 @@ class ReadingSerializer(serializers.ModelSerializer):
 class LotStepSerializer(serializers.ModelSerializer):
     work_center = serializers.CharField(source="work_center.code", read_only=True)
     started_by = serializers.CharField(source="started_by.printed_name", allow_null=True,
-                                       read_only=True, default=None)
+                                       read_only=True)
     completed_by = serializers.CharField(source="completed_by.printed_name", allow_null=True,
-                                         read_only=True, default=None)
+                                         read_only=True)
 
     class Meta:
         model = LotStep

@@ -9,4 +9,14 @@ app_name = "floor"
 urlpatterns = [
     path("login/", views.login_view, name="login"),
     path("logout/", views.logout_view, name="logout"),
+    path("", views.work_centers, name="work_centers"),
+    path("centers/<str:code>/", views.queue, name="queue"),
+    path("scan/", views.scan, name="scan"),
+    path("lots/<str:code>/", views.lot_page, name="lot"),
+    path("lots/<str:code>/traveller.pdf", views.traveller_pdf, name="traveller_pdf"),
+    path("steps/<int:step_id>/start/", views.start_step, name="start"),
+    path("steps/<int:step_id>/pause/", views.pause_step, name="pause"),
+    path("steps/<int:step_id>/complete/", views.complete_step, name="complete"),
+    path("steps/<int:step_id>/readings/", views.record_reading, name="record_reading"),
+    path("readings/<int:reading_id>/correct/", views.correct_reading, name="correct_reading"),
 ]

@@ -1,14 +1,38 @@
-"""Tablet views: thin; parse the form, call one service, render the result."""
+"""Tablet views: thin; parse the form, call one service, render the result.
+
+Every state-changing POST runs through `idempotency.run` with the key the page made
+when the reading was taken, so a tablet that retries on flaky Wi-Fi never records twice;
+a repeat renders the stored outcome. Refusals from the services (DomainError) are shown
+inline with their status; a person who may not use a page gets the 403 page saying why.
+"""
 
 from __future__ import annotations
 
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any
+
+from django.contrib import messages
 from django.contrib.auth import login, logout
+from django.contrib.auth.decorators import login_required
+from django.core.exceptions import PermissionDenied
+from django.db.models import Exists, OuterRef
 from django.http import HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
-from django.views.decorators.http import require_http_methods
+from django.urls import reverse
+from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
-from shopfloor.errors import DomainError
-from shopfloor.floor import services
+from shopfloor import units
+from shopfloor.errors import DomainError, InvalidInput, NotFound
+from shopfloor.floor import forms, idempotency, services, traveller
+from shopfloor.floor.models import LotStep, Reading
+from shopfloor.plant.models import Equipment, Lot, Person, WorkCenter
+from shopfloor.windows import describe_window
+
+OPEN_STATUSES = [LotStep.Status.WAITING, LotStep.Status.IN_PROGRESS, LotStep.Status.PAUSED]
+
+
+# --- login --------------------------------------------------------------------------
 
 
 @require_http_methods(["GET", "POST"])
@@ -23,7 +47,11 @@ def login_view(request: HttpRequest) -> HttpResponse:
             error = exc.detail
         else:
             login(request, person.user, backend="django.contrib.auth.backends.ModelBackend")
-            return redirect(request.GET.get("next") or "home")
+            target = request.GET.get("next") or ""
+            # Only follow local paths, never another host.
+            if not target.startswith("/") or target.startswith("//"):
+                target = reverse("floor:work_centers")
+            return redirect(target)
     idle = request.GET.get("idle") == "1"
     return render(request, "floor/login.html", {"error": error, "idle": idle},
                   status=400 if error else 200)
@@ -32,3 +60,401 @@ def login_view(request: HttpRequest) -> HttpResponse:
 def logout_view(request: HttpRequest) -> HttpResponse:
     logout(request)
     return redirect("floor:login")
+
+
+# --- reads (scoped by the person) ---------------------------------------------------
+
+
+def _person(request: HttpRequest) -> Person:
+    try:
+        return services.person_for(request.user)
+    except DomainError as exc:
+        raise PermissionDenied(exc.detail) from exc
+
+
+def _work_center_for(person: Person, code: str) -> WorkCenter:
+    wc = WorkCenter.objects.filter(code=code).first()
+    if wc is None:
+        raise PermissionDenied(f"There is no work center {code!r}.")
+    if not person.work_centers.filter(pk=wc.pk).exists():
+        raise PermissionDenied(
+            f"{person.printed_name} is not linked to {wc.name}, so its queue is not shown "
+            "here. Ask a supervisor to add you to this work center."
+        )
+    return wc
+
+
+@dataclass
+class QueueRow:
+    step: LotStep
+    jobs: list[str] = field(default_factory=list)
+    due: Any = None
+    ipc_class: int | None = None
+
+
+def _queue(wc: WorkCenter) -> list[QueueRow]:
+    """Lot steps waiting here: each lot's first open step, if that step is at this center."""
+    earlier_open = LotStep.objects.filter(
+        lot=OuterRef("lot"), position__lt=OuterRef("position"), status__in=OPEN_STATUSES
+    )
+    steps = list(
+        LotStep.objects.filter(work_center=wc, status__in=OPEN_STATUSES)
+        .exclude(lot__status__in=[Lot.Status.COMPLETE, Lot.Status.SCRAPPED])
+        .exclude(Exists(earlier_open))
+        .select_related("lot")
+        .order_by("queue_priority", "lot__priority", "arrived_at", "lot__code")
+    )
+    rows = {s.lot_id: QueueRow(step=s) for s in steps}
+    from shopfloor.plant.models import PanelImage
+
+    for lot_id, number, due, ipc in (
+        PanelImage.objects.filter(panel__lot_id__in=rows)
+        .values_list("panel__lot_id", "job__number", "job__due_date", "job__ipc_class")
+        .distinct()
+    ):
+        row = rows[lot_id]
+        if number not in row.jobs:
+            row.jobs.append(number)
+        row.due = due if row.due is None or due < row.due else row.due
+        row.ipc_class = ipc if row.ipc_class is None else max(row.ipc_class, ipc)
+    return [rows[s.lot_id] for s in steps]
+
+
+@login_required
+@require_GET
+def work_centers(request: HttpRequest) -> HttpResponse:
+    person = _person(request)
+    centers = list(person.work_centers.order_by("code"))
+    return render(request, "floor/work_centers.html", {"centers": centers, "person": person})
+
+
+@login_required
+@require_GET
+def queue(request: HttpRequest, code: str) -> HttpResponse:
+    person = _person(request)
+    wc = _work_center_for(person, code)
+    request.session["work_center"] = wc.code
+    return render(request, "floor/queue.html", {"wc": wc, "rows": _queue(wc)})
+
+
+@login_required
+@require_GET
+def scan(request: HttpRequest) -> HttpResponse:
+    _person(request)
+    form = forms.ScanForm(request.GET)
+    code = request.GET.get("code", "")
+    try:
+        if not form.is_valid():
+            raise InvalidInput("Scan or type a lot code (up to 60 characters).")
+        lot = services.find_lot(form.cleaned_data["code"])
+    except DomainError as exc:
+        return render(request, "floor/scan.html", {"error": exc.detail, "code": code},
+                      status=exc.status)
+    return redirect("floor:lot", code=lot.code)
+
+
+# --- the lot page ---------------------------------------------------------------------
+
+
+@dataclass
+class SampleRow:
+    step: LotStep
+    measurement: dict[str, Any]
+    sample_index: int
+    current: Reading | None
+    history: list[Reading]
+    equipment: list[Equipment]
+    error: str = ""
+    entered: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def quantity(self) -> str:
+        return str(self.measurement["quantity"])
+
+    @property
+    def row_id(self) -> str:
+        return f"r-{self.step.pk}-{self.quantity}-{self.sample_index}"
+
+    @property
+    def units(self) -> list[str]:
+        try:
+            return units.allowed_units(self.quantity)
+        except units.UnitError:
+            return [str(self.measurement.get("unit", ""))]
+
+
+@dataclass
+class PlanItem:
+    measurement: dict[str, Any]
+    window_text: str
+    source: str
+    rows: list[SampleRow]
+
+    @property
+    def label(self) -> str:
+        return str(self.measurement["quantity"]).replace("_", " ")
+
+
+def _equipment(step: LotStep) -> list[Equipment]:
+    return list(Equipment.objects.filter(work_center_id=step.work_center_id).order_by("code"))
+
+
+def _readings_by_sample(step: LotStep) -> dict[tuple[str, int], list[Reading]]:
+    grouped: dict[tuple[str, int], list[Reading]] = {}
+    for r in (Reading.objects.filter(lot_step=step).select_related("equipment", "operator")
+              .order_by("recorded_at", "pk")):
+        grouped.setdefault((r.quantity, r.sample_index), []).append(r)
+    return grouped
+
+
+def _sample_row(step: LotStep, m: dict[str, Any], sample: int, readings: list[Reading],
+                equipment: list[Equipment], **extra: Any) -> SampleRow:
+    current = next((r for r in reversed(readings) if r.superseded_by_id is None), None)
+    history = [r for r in readings if r.superseded_by_id is not None]
+    return SampleRow(step=step, measurement=m, sample_index=sample, current=current,
+                     history=history, equipment=equipment, **extra)
+
+
+def _plan(step: LotStep) -> list[PlanItem]:
+    equipment = _equipment(step)
+    grouped = _readings_by_sample(step)
+    items = []
+    for m in step.plan:
+        samples = int(m.get("samples") or 1)
+        rows = [_sample_row(step, m, s, grouped.get((m["quantity"], s), []), equipment)
+                for s in range(1, samples + 1)]
+        items.append(PlanItem(measurement=m, window_text=describe_window(m),
+                              source=traveller.window_source(m), rows=rows))
+    return items
+
+
+def _single_row(step: LotStep, quantity: str, sample: int, **extra: Any) -> SampleRow | None:
+    m = next((m for m in step.plan if m["quantity"] == quantity), None)
+    if m is None:
+        return None
+    readings = list(Reading.objects.filter(lot_step=step, quantity=quantity, sample_index=sample)
+                    .select_related("equipment", "operator").order_by("recorded_at", "pk"))
+    return _sample_row(step, m, sample, readings, _equipment(step), **extra)
+
+
+def _lot_context(lot: Lot, person: Person) -> dict[str, Any]:
+    lot.refresh_from_db()
+    data = traveller.traveller_data(lot)
+    step = services.current_step(lot)
+    return {
+        "lot": lot,
+        "person": person,
+        "jobs": data.jobs,
+        "route": data.steps,
+        "step": step,
+        "plan": _plan(step) if step else [],
+        "equipment": _equipment(step) if step else [],
+        "holds": list(lot.holds.filter(released_at__isnull=True).order_by("opened_at")),
+        "qr_svg": traveller.qr_svg(lot.code),
+        "part_revision": lot.routing_revision.part_revision,
+    }
+
+
+def _lot_or_none(code: str) -> Lot | None:
+    return (Lot.objects.select_related("routing_revision__part_revision__part")
+            .filter(code=code).first())
+
+
+def _missing_lot(request: HttpRequest, code: str) -> HttpResponse:
+    return render(request, "floor/scan.html",
+                  {"error": f"No lot with code {code!r}. Check the traveller label and scan "
+                            "again.", "code": code}, status=404)
+
+
+@login_required
+@require_GET
+def lot_page(request: HttpRequest, code: str) -> HttpResponse:
+    person = _person(request)
+    lot = _lot_or_none(code)
+    if lot is None:
+        return _missing_lot(request, code)
+    return render(request, "floor/lot.html", _lot_context(lot, person))
+
+
+@login_required
+@require_GET
+def traveller_pdf(request: HttpRequest, code: str) -> HttpResponse:
+    _person(request)
+    lot = _lot_or_none(code)
+    if lot is None:
+        return _missing_lot(request, code)
+    response = HttpResponse(traveller.traveller_pdf(lot), content_type="application/pdf")
+    response["Content-Disposition"] = f'inline; filename="traveller-{lot.code}.pdf"'
+    return response
+
+
+# --- state changes --------------------------------------------------------------------
+
+
+def _key(request: HttpRequest, form: forms.TabletForm) -> str | None:
+    return (request.headers.get("Idempotency-Key")
+            or form.cleaned_data.get("idempotency_key") or None)
+
+
+def _run(request: HttpRequest, form: forms.TabletForm,
+         action: Callable[[], tuple[int, dict[str, Any]]]) -> idempotency.Outcome:
+    return idempotency.run(
+        user=request.user, key=_key(request, form),
+        request_fingerprint=idempotency.fingerprint("POST", request.path, form.payload()),
+        action=action,
+    )
+
+
+def _step_or_404(step_id: int) -> LotStep:
+    step = LotStep.objects.select_related("lot", "work_center").filter(pk=step_id).first()
+    if step is None:
+        raise NotFound(f"No lot step {step_id}; reload the lot page.")
+    return step
+
+
+def _refuse_page(request: HttpRequest, person: Person, lot: Lot | None, error: str,
+                 status: int) -> HttpResponse:
+    if lot is None:
+        return render(request, "floor/scan.html", {"error": error}, status=status)
+    context = _lot_context(lot, person)
+    context["error"] = error
+    return render(request, "floor/lot.html", context, status=status)
+
+
+def _step_action(request: HttpRequest, step_id: int, form_class: type[forms.TabletForm],
+                 call: Callable[[Person, LotStep, dict[str, Any]], str]) -> HttpResponse:
+    """Start / pause / complete: a full-page POST that redirects back to the lot page."""
+    person = _person(request)
+    lot = None
+    try:
+        step = _step_or_404(step_id)
+        lot = step.lot
+        form = form_class(request.POST)
+        if not form.is_valid():
+            raise InvalidInput(form.error_text())
+
+        def action() -> tuple[int, dict[str, Any]]:
+            return 200, {"lot_step": step.pk, "message": call(person, step, form.cleaned_data)}
+
+        outcome = _run(request, form, action)
+    except DomainError as exc:
+        return _refuse_page(request, person, lot, exc.detail, exc.status)
+    messages.success(request, outcome.body.get("message", "Done."))
+    return redirect("floor:lot", code=step.lot.code)
+
+
+@login_required
+@require_POST
+def start_step(request: HttpRequest, step_id: int) -> HttpResponse:
+    def call(person: Person, step: LotStep, data: dict[str, Any]) -> str:
+        services.start_step(person=person, lot_step_id=step.pk,
+                            equipment_id=data.get("equipment"))
+        return f"Started '{step.name}'."
+
+    return _step_action(request, step_id, forms.StartForm, call)
+
+
+@login_required
+@require_POST
+def pause_step(request: HttpRequest, step_id: int) -> HttpResponse:
+    def call(person: Person, step: LotStep, data: dict[str, Any]) -> str:
+        services.pause_step(person=person, lot_step_id=step.pk, reason=data.get("reason", ""))
+        return f"Paused '{step.name}'. Press Start to resume."
+
+    return _step_action(request, step_id, forms.PauseForm, call)
+
+
+@login_required
+@require_POST
+def complete_step(request: HttpRequest, step_id: int) -> HttpResponse:
+    def call(person: Person, step: LotStep, data: dict[str, Any]) -> str:
+        done = services.complete_step(person=person, lot_step_id=step.pk, pin=data["pin"],
+                                      meaning=data["meaning"])
+        sig = done.signature
+        meaning = sig.get_meaning_display() if sig else "Performed by"
+        return f"'{step.name}' signed off. {meaning}: {person.printed_name}."
+
+    return _step_action(request, step_id, forms.CompleteForm, call)
+
+
+def _row_response(request: HttpRequest, row: SampleRow | None, lot: Lot, status: int = 200
+                  ) -> HttpResponse:
+    if row is None or not request.htmx:
+        if status >= 400:
+            return _refuse_page(request, _person(request), lot, row.error if row else "", status)
+        return redirect("floor:lot", code=lot.code)
+    return render(request, "floor/_sample_row.html", {"row": row}, status=status)
+
+
+@login_required
+@require_POST
+def record_reading(request: HttpRequest, step_id: int) -> HttpResponse:
+    person = _person(request)
+    try:
+        step = _step_or_404(step_id)
+    except DomainError as exc:
+        return _refuse_page(request, person, None, exc.detail, exc.status)
+    form = forms.ReadingForm(request.POST)
+    quantity = request.POST.get("quantity", "")
+    try:
+        sample = int(request.POST.get("sample_index", "1"))
+    except ValueError:
+        sample = 1
+    entered = {k: request.POST.get(k, "") for k in ("value", "unit", "position", "equipment")}
+    try:
+        if not form.is_valid():
+            raise InvalidInput(form.error_text())
+        data = form.cleaned_data
+
+        def action() -> tuple[int, dict[str, Any]]:
+            reading = services.record_reading(
+                person=person, lot_step_id=step.pk,
+                data=services.ReadingInput(
+                    quantity=data["quantity"], value=data["value"], unit=data["unit"] or "",
+                    sample_index=data["sample_index"], position=data["position"] or "",
+                    equipment_id=data["equipment"], captured_at=data["captured_at"]),
+            )
+            return 201, {"reading": reading.pk, "in_window": reading.in_window}
+
+        outcome = _run(request, form, action)
+    except DomainError as exc:
+        row = _single_row(step, quantity, sample, error=exc.detail, entered=entered)
+        if row is None:
+            return _refuse_page(request, person, step.lot, exc.detail, exc.status)
+        return _row_response(request, row, step.lot, exc.status)
+    reading = Reading.objects.get(pk=outcome.body["reading"])
+    return _row_response(request, _single_row(step, reading.quantity, reading.sample_index),
+                         step.lot, outcome.status)
+
+
+@login_required
+@require_POST
+def correct_reading(request: HttpRequest, reading_id: int) -> HttpResponse:
+    person = _person(request)
+    old = Reading.objects.select_related("lot_step__lot").filter(pk=reading_id).first()
+    if old is None:
+        return _refuse_page(request, person, None,
+                            f"No reading {reading_id}; reload the lot page.", 404)
+    step = old.lot_step
+    form = forms.CorrectionForm(request.POST)
+    entered = {"value": request.POST.get("value", ""), "unit": request.POST.get("unit", ""),
+               "reason": request.POST.get("reason", ""), "correcting": True}
+    try:
+        if not form.is_valid():
+            raise InvalidInput(form.error_text())
+        data = form.cleaned_data
+
+        def action() -> tuple[int, dict[str, Any]]:
+            new = services.correct_reading(
+                person=person, reading_id=old.pk, value=data["value"],
+                unit=data["unit"] or "", reason=data["reason"],
+                captured_at=data["captured_at"])
+            return 201, {"reading": new.pk, "in_window": new.in_window}
+
+        outcome = _run(request, form, action)
+    except DomainError as exc:
+        row = _single_row(step, old.quantity, old.sample_index, error=exc.detail,
+                          entered=entered)
+        return _row_response(request, row, step.lot, exc.status)
+    return _row_response(request, _single_row(step, old.quantity, old.sample_index), step.lot,
+                         outcome.status)

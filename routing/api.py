@@ -1,0 +1,76 @@
+"""API for process engineering: preview a routing from a build spec (nothing saved)."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from drf_spectacular.utils import OpenApiExample, extend_schema
+from rest_framework.request import Request
+from rest_framework.response import Response
+
+from routing import services
+from routing.serializers import PreviewRequestSerializer, PreviewSerializer
+from shopfloor.errors import InvalidInput
+from shopfloor.floor.api import READ_ERRORS, JsonAPIView, error
+from shopfloor.floor.permissions import CanRead
+
+EXAMPLE_SPEC = {
+    "layers": 4,
+    "ipc_class": 2,
+    "board_thickness_mm": 1.6,
+    "outer_copper_base_um": 17.5,
+    "inner_copper_um": 35,
+    "finish": "enig",
+    "solder_mask": {"sides": "both", "colour": "green"},
+    "legend": {"sides": "both"},
+    "profile": "route",
+    "electrical_test": "flying_probe",
+    "min_hole_mm": 0.3,
+}
+
+
+def split_preview_body(data: Any) -> tuple[Any, list[dict[str, Any]]]:
+    """Accept the spec itself or {"spec": ..., "overrides": [...]}; return (spec, overrides)."""
+    if isinstance(data, dict) and "spec" in data:
+        overrides = data.get("overrides") or []
+        if not isinstance(overrides, list) or not all(isinstance(o, dict) for o in overrides):
+            raise InvalidInput(
+                "overrides must be a list of objects.",
+                problems=[{"field": "overrides", "value": None,
+                           "problem": "not a list of objects",
+                           "allowed": "[{quantity, step_code, min, max, target, reason}]"}],
+            )
+        unknown = sorted(set(data) - {"spec", "overrides"})
+        if unknown:
+            raise InvalidInput(
+                f"Unknown key(s) beside spec: {', '.join(unknown)}.",
+                problems=[{"field": k, "value": None, "problem": "unknown key",
+                           "allowed": ["spec", "overrides"]} for k in unknown],
+            )
+        return data["spec"], overrides
+    return data, []
+
+
+class PreviewView(JsonAPIView):
+    permission_classes = [CanRead]
+
+    @extend_schema(
+        operation_id="routing_preview",
+        summary="Preview the routing a build spec would get (nothing is saved)",
+        description=(
+            "Send the build spec itself, or {\"spec\": ..., \"overrides\": [...]}. A bad spec "
+            "gets 400 with every problem listed (field, value, problem, allowed)."
+        ),
+        request=PreviewRequestSerializer,
+        responses={
+            200: PreviewSerializer,
+            400: error("The spec has problems; every one listed with what is allowed"),
+            **READ_ERRORS,
+            415: error("Send the body as application/json"),
+        },
+        examples=[OpenApiExample("4-layer ENIG", value={"spec": EXAMPLE_SPEC},
+                                 request_only=True)],
+    )
+    def post(self, request: Request) -> Response:
+        spec, overrides = split_preview_body(request.data)
+        return Response(services.preview(spec, overrides))
