@@ -1,6 +1,7 @@
 """URL map: tablet pages under /floor/, engineering under /engineering/, supervisor and
 quality pages under /board/ and /quality/, the API under /api/v1/."""
 
+from django.conf import settings
 from django.contrib import admin
 from django.urls import include, path
 from drf_spectacular.views import SpectacularAPIView, SpectacularSwaggerView
@@ -18,6 +19,11 @@ urlpatterns = [
     path("api/schema/", SpectacularAPIView.as_view(), name="schema"),
     path("api/docs/", SpectacularSwaggerView.as_view(url_name="schema"), name="api-docs"),
 ]
+
+if settings.BENCH_ENDPOINTS:
+    from bench.bare import BareInsert
+
+    urlpatterns.append(path("bench/bare/", BareInsert.as_view()))
 
 handler403 = "shopfloor.views.forbidden"
 handler404 = "shopfloor.views.not_found"

@@ -7,7 +7,13 @@ same routing. The Django app stores specs, libraries and routings and calls in h
 
 from .build import Routing, Step, build_routing
 from .library import DEFAULT_LIBRARY, LibraryInvalid, ProcessLibrary
-from .overrides import Override, OverrideInvalid, OverrideRefused, apply_overrides, classify_override
+from .overrides import (
+    Override,
+    OverrideInvalid,
+    OverrideRefused,
+    apply_overrides,
+    classify_override,
+)
 from .render import diff_routings, routing_to_dict, routing_to_text
 from .spec import BuildSpec, ShopCapability, SpecError, SpecInvalid, parse_spec, spec_json_schema
 from .windows import Provenance, Window, window_rule

@@ -145,9 +145,7 @@ def _cycle_steps(spec: BuildSpec) -> list[_Planned]:
         final = cycle == plan.cycles
         subs = plan.in_cycle(cycle)
         stacks: list[tuple[int, int]] = [(1, n)] if final else [(s.lo, s.hi) for s in subs]
-        vias: tuple[Via, ...] = (
-            plan.final_vias if final else tuple(v for s in subs for v in s.vias)
-        )
+        vias: tuple[Via, ...] = plan.final_vias if final else tuple(v for s in subs for v in s.vias)
         inner = sorted({k for lo, hi in stacks for k in range(lo + 1, hi) if k not in imaged})
         imaged.update(inner)
         if inner:

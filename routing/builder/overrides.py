@@ -65,9 +65,7 @@ def _check(o: Override) -> None:
         except UnitError as exc:
             raise OverrideInvalid(f"override {name}: {exc}") from None
     if o.min is not None and o.max is not None and o.min > o.max:
-        raise OverrideInvalid(
-            f"override of {o.quantity}: min {o.min:g} is above max {o.max:g}"
-        )
+        raise OverrideInvalid(f"override of {o.quantity}: min {o.min:g} is above max {o.max:g}")
 
 
 def _merged(default: Window, o: Override) -> tuple[float | None, float | None, float | None]:
@@ -100,7 +98,9 @@ def _apply_one(w: Window, o: Override) -> Window:
         raise OverrideInvalid(
             f"override of {o.quantity}: the resulting window {lo:g}-{hi:g} {w.unit} is empty"
         )
-    if target is not None and ((lo is not None and target < lo) or (hi is not None and target > hi)):
+    if target is not None and (
+        (lo is not None and target < lo) or (hi is not None and target > hi)
+    ):
         raise OverrideInvalid(
             f"override of {o.quantity}: target {target:g} {w.unit} lies outside the window"
         )

@@ -12,12 +12,14 @@ because a via structure no press sequence can build is a spec error, not a build
 
 from __future__ import annotations
 
+import itertools
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any, Final
 
 __all__ = [
+    "EXAMPLE_SPECS",
     "FINISHES",
     "BuildSpec",
     "LaminationPlan",
@@ -32,7 +34,6 @@ __all__ = [
     "parse_spec",
     "plan_lamination",
     "spec_json_schema",
-    "EXAMPLE_SPECS",
 ]
 
 FINISHES: Final = (
@@ -259,7 +260,11 @@ class _Collector:
         self.errors.append(SpecError(field_, value, problem, allowed))
 
     def keys(
-        self, where: str, data: Mapping[str, Any], required: tuple[str, ...], optional: tuple[str, ...]
+        self,
+        where: str,
+        data: Mapping[str, Any],
+        required: tuple[str, ...],
+        optional: tuple[str, ...],
     ) -> None:
         prefix = f"{where}." if where else ""
         allowed = sorted([*required, *optional])
@@ -332,7 +337,12 @@ def parse_spec(data: object, capability: ShopCapability | None = None) -> BuildS
     cap = capability or ShopCapability()
     c = _Collector()
     if not isinstance(data, Mapping):
-        c.add("(spec)", data, "the spec must be a JSON object", "an object with keys " + ", ".join(REQUIRED_KEYS))
+        c.add(
+            "(spec)",
+            data,
+            "the spec must be a JSON object",
+            "an object with keys " + ", ".join(REQUIRED_KEYS),
+        )
         raise SpecInvalid(c.errors)
     d: Mapping[str, Any] = data
     c.keys("", d, REQUIRED_KEYS, OPTIONAL_KEYS)
@@ -359,8 +369,14 @@ def parse_spec(data: object, capability: ShopCapability | None = None) -> BuildS
             c.add("ipc_class", d["ipc_class"], "IPC class must be 1, 2 or 3", [1, 2, 3])
 
     thickness = (
-        c.number("board_thickness_mm", d["board_thickness_mm"], low=0.1, high=10.0,
-                 low_inclusive=True, unit="mm")
+        c.number(
+            "board_thickness_mm",
+            d["board_thickness_mm"],
+            low=0.1,
+            high=10.0,
+            low_inclusive=True,
+            unit="mm",
+        )
         if "board_thickness_mm" in d
         else None
     )
@@ -373,8 +389,12 @@ def parse_spec(data: object, capability: ShopCapability | None = None) -> BuildS
     if "inner_copper_um" in d and not (d["inner_copper_um"] is None and (layers or 0) < 4):
         inner_cu = c.number("inner_copper_um", d["inner_copper_um"], low=0, high=420.0, unit="um")
     elif layers is not None and layers >= 4:
-        c.add("inner_copper_um", None, "required for boards with inner layers (4 or more)",
-              "a number > 0 and <= 420 um")
+        c.add(
+            "inner_copper_um",
+            None,
+            "required for boards with inner layers (4 or more)",
+            "a number > 0 and <= 420 um",
+        )
 
     finish = c.choice("finish", d["finish"], FINISHES) if "finish" in d else None
     profile = c.choice("profile", d["profile"], PROFILES) if "profile" in d else None
@@ -384,7 +404,9 @@ def parse_spec(data: object, capability: ShopCapability | None = None) -> BuildS
         else None
     )
     min_hole = (
-        c.number("min_hole_mm", d["min_hole_mm"], low=0.05, high=10.0, low_inclusive=True, unit="mm")
+        c.number(
+            "min_hole_mm", d["min_hole_mm"], low=0.05, high=10.0, low_inclusive=True, unit="mm"
+        )
         if "min_hole_mm" in d
         else None
     )
@@ -392,14 +414,18 @@ def parse_spec(data: object, capability: ShopCapability | None = None) -> BuildS
     gold = False
     if "hard_gold_fingers" in d:
         if not isinstance(d["hard_gold_fingers"], bool):
-            c.add("hard_gold_fingers", d["hard_gold_fingers"], "must be true or false", [True, False])
+            c.add(
+                "hard_gold_fingers", d["hard_gold_fingers"], "must be true or false", [True, False]
+            )
         else:
             gold = d["hard_gold_fingers"]
 
     mask = _parse_mask(c, d.get("solder_mask", {}))
     legend = _parse_legend(c, d.get("legend", {}))
     vias = _parse_vias(c, d.get("vias", []), layers)
-    stackup = _parse_stackup(c, d["stackup"]) if "stackup" in d and d["stackup"] is not None else None
+    stackup = (
+        _parse_stackup(c, d["stackup"]) if "stackup" in d and d["stackup"] is not None else None
+    )
 
     if layers is not None and stackup is not None:
         _check_stackup(c, stackup, layers, thickness, outer_cu)
@@ -409,9 +435,13 @@ def parse_spec(data: object, capability: ShopCapability | None = None) -> BuildS
         aspect = thickness / min_hole
         allowed = f"<= {cap.max_aspect_ratio:g}:1 (shop plating capability)"
         if aspect > cap.max_aspect_ratio:
-            c.add("min_hole_mm", d["min_hole_mm"],
-                  f"aspect ratio {aspect:.1f}:1 (board thickness / smallest hole) is beyond "
-                  "what the plating line can plate reliably", allowed)
+            c.add(
+                "min_hole_mm",
+                d["min_hole_mm"],
+                f"aspect ratio {aspect:.1f}:1 (board thickness / smallest hole) is beyond "
+                "what the plating line can plate reliably",
+                allowed,
+            )
         elif aspect > cap.warn_aspect_ratio:
             c.warnings.append(
                 f"aspect ratio {aspect:.1f}:1 is above {cap.warn_aspect_ratio:g}:1; "
@@ -423,7 +453,9 @@ def parse_spec(data: object, capability: ShopCapability | None = None) -> BuildS
     via_errors_before = len(c.errors)
     if layers is not None and not any(e.field.startswith("vias") for e in c.errors):
         _check_laser_depth(c, cap, vias)
-        microvia_ar = _microvia_aspect_ratio(c, cap, vias, layers, thickness, outer_cu, inner_cu, stackup)
+        microvia_ar = _microvia_aspect_ratio(
+            c, cap, vias, layers, thickness, outer_cu, inner_cu, stackup
+        )
         if len(c.errors) == via_errors_before:
             plan = _plan_or_error(c, layers, vias)
 
@@ -499,8 +531,12 @@ def _parse_vias(c: _Collector, raw: Any, layers: int | None) -> tuple[Via, ...]:
                 c.add(f"{where}.{end}", v, "must be a whole layer number", f"1 to {layers or 40}")
                 ends[end] = None
             elif layers is not None and not 1 <= v <= layers:
-                c.add(f"{where}.{end}", v, f"layer {v} does not exist on a {layers}-layer board",
-                      f"1 to {layers}")
+                c.add(
+                    f"{where}.{end}",
+                    v,
+                    f"layer {v} does not exist on a {layers}-layer board",
+                    f"1 to {layers}",
+                )
                 ends[end] = None
             else:
                 ends[end] = v
@@ -508,8 +544,12 @@ def _parse_vias(c: _Collector, raw: Any, layers: int | None) -> tuple[Via, ...]:
         drill = c.choice(f"{where}.drill", item["drill"], DRILLS) if "drill" in item else None
         lo, hi = ends.get("from"), ends.get("to")
         if lo is not None and hi is not None and lo >= hi:
-            c.add(f"{where}.to", hi, f"must be greater than 'from' ({lo}); layers count from the top",
-                  f"{lo + 1} to {layers or 40}")
+            c.add(
+                f"{where}.to",
+                hi,
+                f"must be greater than 'from' ({lo}); layers count from the top",
+                f"{lo + 1} to {layers or 40}",
+            )
         elif lo is not None and hi is not None and kind is not None and layers is not None:
             _check_kind(c, where, lo, hi, kind, layers)
         if len(c.errors) == n_before:
@@ -527,9 +567,12 @@ def _check_kind(c: _Collector, where: str, lo: int, hi: int, kind: str, layers: 
     else:
         actual = "buried"
     if kind != actual:
-        c.add(f"{where}.kind", kind,
-              f"a via from layer {lo} to {hi} on a {layers}-layer board is {actual}, not {kind}",
-              [actual])
+        c.add(
+            f"{where}.kind",
+            kind,
+            f"a via from layer {lo} to {hi} on a {layers}-layer board is {actual}, not {kind}",
+            [actual],
+        )
 
 
 def _check_laser_depth(c: _Collector, cap: ShopCapability, vias: tuple[Via, ...]) -> None:
@@ -537,10 +580,13 @@ def _check_laser_depth(c: _Collector, cap: ShopCapability, vias: tuple[Via, ...]
         if v.drill != "laser":
             continue
         if v.layers_spanned > cap.laser_layers_max:
-            c.add(f"vias[{i}].drill", "laser",
-                  f"a laser via spanning {v.layers_spanned} copper layers is too deep to drill "
-                  "and plate reliably; stack microvias instead (one per level) or drill mechanically",
-                  f"laser vias span at most {cap.laser_layers_max} copper layers")
+            c.add(
+                f"vias[{i}].drill",
+                "laser",
+                f"a laser via spanning {v.layers_spanned} copper layers is too deep to drill "
+                "and plate reliably; stack microvias instead (one per level) or drill mechanically",
+                f"laser vias span at most {cap.laser_layers_max} copper layers",
+            )
         elif v.layers_spanned > cap.laser_layers_ok:
             c.warnings.append(
                 f"vias[{i}] {v.label()}: a laser skip via spans two dielectrics; "
@@ -598,22 +644,30 @@ def _microvia_aspect_ratio(
             f"microvia aspect ratio {ratio:.2f}:1 (dielectric {depth:.0f} um over a "
             f"{cap.laser_hole_mm:g} mm laser hole) exceeds {cap.max_microvia_aspect_ratio:g}:1"
         )
+        limit_um = cap.max_microvia_aspect_ratio * cap.laser_hole_mm * 1000
         if estimated:
             c.warnings.append(
                 f"vias[{i}] {v.label()}: {text}, estimated from evenly spaced layers; "
                 "give a stack-up to check it properly"
             )
         else:
-            c.add(f"vias[{i}]", _json_safe({"from": v.from_layer, "to": v.to_layer}),
-                  text + " (IPC-2226 guidance, from memory; common practice)",
-                  f"dielectric depth <= {cap.max_microvia_aspect_ratio * cap.laser_hole_mm * 1000:g} um")
+            c.add(
+                f"vias[{i}]",
+                _json_safe({"from": v.from_layer, "to": v.to_layer}),
+                text + " (IPC-2226 guidance, from memory; common practice)",
+                f"dielectric depth <= {limit_um:g} um",
+            )
     return worst
 
 
 def _parse_stackup(c: _Collector, raw: Any) -> tuple[StackupLayer, ...] | None:
     if not isinstance(raw, list) or not raw:
-        c.add("stackup", raw, "must be a non-empty list, top to bottom",
-              "a list of {'kind', 'thickness_um', 'material'}")
+        c.add(
+            "stackup",
+            raw,
+            "must be a non-empty list, top to bottom",
+            "a list of {'kind', 'thickness_um', 'material'}",
+        )
         return None
     out: list[StackupLayer] = []
     ok = True
@@ -633,8 +687,12 @@ def _parse_stackup(c: _Collector, raw: Any) -> tuple[StackupLayer, ...] | None:
         )
         material = item.get("material", "")
         if not isinstance(material, str) or len(material) > 80:
-            c.add(f"{where}.material", material, "must be text of at most 80 characters",
-                  "e.g. 'FR-4 high-Tg core'")
+            c.add(
+                f"{where}.material",
+                material,
+                "must be text of at most 80 characters",
+                "e.g. 'FR-4 high-Tg core'",
+            )
         if len(c.errors) != n_before:
             ok = False
             continue
@@ -652,31 +710,47 @@ def _check_stackup(
 ) -> None:
     coppers = [i for i, s in enumerate(stackup) if s.kind == "copper"]
     if len(coppers) != layers:
-        c.add("stackup", f"{len(coppers)} copper layers",
-              f"the stack-up has {len(coppers)} copper layers but 'layers' is {layers}",
-              f"exactly {layers} copper entries")
+        c.add(
+            "stackup",
+            f"{len(coppers)} copper layers",
+            f"the stack-up has {len(coppers)} copper layers but 'layers' is {layers}",
+            f"exactly {layers} copper entries",
+        )
     if stackup[0].kind != "copper" or (layers > 1 and stackup[-1].kind != "copper"):
-        c.add("stackup", [stackup[0].kind, stackup[-1].kind],
-              "a stack-up starts and ends with copper (outer layers)", "copper first and last")
-    for a, b in zip(coppers, coppers[1:], strict=False):
+        c.add(
+            "stackup",
+            [stackup[0].kind, stackup[-1].kind],
+            "a stack-up starts and ends with copper (outer layers)",
+            "copper first and last",
+        )
+    for a, b in itertools.pairwise(coppers):
         if b == a + 1:
-            c.add(f"stackup[{b}]", "copper",
-                  "two copper layers touch; a dielectric (core or prepreg) must separate them",
-                  "core or prepreg between copper layers")
+            c.add(
+                f"stackup[{b}]",
+                "copper",
+                "two copper layers touch; a dielectric (core or prepreg) must separate them",
+                "core or prepreg between copper layers",
+            )
     if outer_cu is not None and coppers:
         for idx in {coppers[0], coppers[-1]}:
             if abs(stackup[idx].thickness_um - outer_cu) > 0.5:
-                c.add(f"stackup[{idx}].thickness_um", stackup[idx].thickness_um,
-                      "outer copper in the stack-up disagrees with outer_copper_base_um",
-                      f"{outer_cu:g} um")
+                c.add(
+                    f"stackup[{idx}].thickness_um",
+                    stackup[idx].thickness_um,
+                    "outer copper in the stack-up disagrees with outer_copper_base_um",
+                    f"{outer_cu:g} um",
+                )
     if thickness is not None:
         total_mm = sum(s.thickness_um for s in stackup) / 1000.0
         lo, hi = thickness * (1 - STACKUP_TOLERANCE), thickness * (1 + STACKUP_TOLERANCE)
         if not lo <= total_mm <= hi:
-            c.add("stackup", f"{total_mm:.3f} mm",
-                  f"summed stack-up thickness {total_mm:.3f} mm is outside board_thickness_mm "
-                  f"{thickness:g} mm ±10 % (common practice)",
-                  f"{lo:.3f} to {hi:.3f} mm")
+            c.add(
+                "stackup",
+                f"{total_mm:.3f} mm",
+                f"summed stack-up thickness {total_mm:.3f} mm is outside board_thickness_mm "
+                f"{thickness:g} mm ±10 % (common practice)",
+                f"{lo:.3f} to {hi:.3f} mm",
+            )
 
 
 # --------------------------------------------------------------------------- lamination
@@ -757,8 +831,12 @@ def _plan_or_error(c: _Collector, layers: int, vias: tuple[Via, ...]) -> Laminat
     try:
         return plan_lamination(layers, vias)
     except _Unbuildable as exc:
-        c.add("vias", [v.label() for v in vias], str(exc),
-              "buried spans that nest inside each other or do not touch")
+        c.add(
+            "vias",
+            [v.label() for v in vias],
+            str(exc),
+            "buried spans that nest inside each other or do not touch",
+        )
         return None
 
 

@@ -99,24 +99,28 @@ class WindowRule:
     provenance: Provenance
 
 
+def _round(v: float | None) -> float | None:
+    """Four decimals: enough for 0.001 um gold, and free of float noise in the API."""
+    return None if v is None else round(float(v), 4)
+
+
 def _w(
     quantity: str,
     *,
-    min: float | None = None,  # noqa: A002 - the window's own vocabulary
-    max: float | None = None,  # noqa: A002
+    min: float | None = None,
+    max: float | None = None,
     target: float | None = None,
     samples: int | None = SAMPLES,
     source: str,
     provenance: Provenance,
 ) -> WindowRule:
     attribute = quantity in ATTRIBUTE_QUANTITIES
-    rnd = (lambda v: None if v is None else round(float(v), 4))
     window = Window(
         quantity=quantity,
         unit=canonical_unit(quantity),
-        min=rnd(min),
-        max=rnd(max),
-        target=rnd(target),
+        min=_round(min),
+        max=_round(max),
+        target=_round(target),
         samples=None if attribute else samples,
         source=source,
         attribute=attribute,
@@ -214,96 +218,207 @@ def window_rule(
     if quantity == "nickel_thickness":
         if hard_gold:
             ni = _HARD_GOLD_NI[cls]
-            return _w(quantity, min=ni, source=(
-                f"IPC-6012 final finish table, nickel under edge-board contact gold, class "
-                f"{cls}: >= {ni:g} um (from memory)"), provenance=Provenance.FROM_MEMORY)
+            return _w(
+                quantity,
+                min=ni,
+                source=(
+                    f"IPC-6012 final finish table, nickel under edge-board contact gold, class "
+                    f"{cls}: >= {ni:g} um (from memory)"
+                ),
+                provenance=Provenance.FROM_MEMORY,
+            )
         std = "IPC-4556 (ENEPIG)" if step_code.startswith("enepig") else "IPC-4552A (ENIG)"
-        return _w(quantity, min=3.0, max=6.0, source=(
-            f"{std} electroless nickel 3-6 um (from memory)"), provenance=Provenance.FROM_MEMORY)
+        return _w(
+            quantity,
+            min=3.0,
+            max=6.0,
+            source=(f"{std} electroless nickel 3-6 um (from memory)"),
+            provenance=Provenance.FROM_MEMORY,
+        )
     if quantity == "gold_thickness":
         if hard_gold:
             au = _HARD_GOLD_AU[cls]
-            return _w(quantity, min=au, source=(
-                f"IPC-6012 final finish table, hard gold on edge-board contacts, class {cls}: "
-                f">= {au:g} um (from memory)"), provenance=Provenance.FROM_MEMORY)
+            return _w(
+                quantity,
+                min=au,
+                source=(
+                    f"IPC-6012 final finish table, hard gold on edge-board contacts, class {cls}: "
+                    f">= {au:g} um (from memory)"
+                ),
+                provenance=Provenance.FROM_MEMORY,
+            )
         if step_code.startswith("enepig"):
-            return _w(quantity, min=0.030, source=(
-                "IPC-4556 (ENEPIG) immersion gold >= 0.030 um (from memory)"),
-                provenance=Provenance.FROM_MEMORY)
-        return _w(quantity, min=0.040, max=0.100, source=(
-            "IPC-4552A (ENIG) immersion gold 0.040-0.100 um (from memory)"),
-            provenance=Provenance.FROM_MEMORY)
+            return _w(
+                quantity,
+                min=0.030,
+                source=("IPC-4556 (ENEPIG) immersion gold >= 0.030 um (from memory)"),
+                provenance=Provenance.FROM_MEMORY,
+            )
+        return _w(
+            quantity,
+            min=0.040,
+            max=0.100,
+            source=("IPC-4552A (ENIG) immersion gold 0.040-0.100 um (from memory)"),
+            provenance=Provenance.FROM_MEMORY,
+        )
     if quantity == "palladium_thickness":
-        return _w(quantity, min=0.05, max=0.30, source=(
-            "IPC-4556 (ENEPIG) electroless palladium 0.05-0.30 um (from memory)"),
-            provenance=Provenance.FROM_MEMORY)
+        return _w(
+            quantity,
+            min=0.05,
+            max=0.30,
+            source=("IPC-4556 (ENEPIG) electroless palladium 0.05-0.30 um (from memory)"),
+            provenance=Provenance.FROM_MEMORY,
+        )
     if quantity == "silver_thickness":
-        return _w(quantity, min=0.12, max=0.40, source=(
-            "IPC-4553A immersion silver, minimum 0.12 um (from memory); "
-            "upper limit 0.40 um shop practice"), provenance=Provenance.FROM_MEMORY)
+        return _w(
+            quantity,
+            min=0.12,
+            max=0.40,
+            source=(
+                "IPC-4553A immersion silver, minimum 0.12 um (from memory); "
+                "upper limit 0.40 um shop practice"
+            ),
+            provenance=Provenance.FROM_MEMORY,
+        )
     if quantity == "tin_thickness":
-        return _w(quantity, min=1.0, source=(
-            "IPC-4554 immersion tin >= 1.0 um (from memory)"), provenance=Provenance.FROM_MEMORY)
+        return _w(
+            quantity,
+            min=1.0,
+            source=("IPC-4554 immersion tin >= 1.0 um (from memory)"),
+            provenance=Provenance.FROM_MEMORY,
+        )
     if quantity == "osp_thickness":
-        return _w(quantity, min=0.2, max=0.5, source=(
-            "shop practice for OSP 0.2-0.5 um (no thickness in a general standard; "
-            "follow the chemistry supplier's data)"), provenance=Provenance.SHOP_PRACTICE)
+        return _w(
+            quantity,
+            min=0.2,
+            max=0.5,
+            source=(
+                "shop practice for OSP 0.2-0.5 um (no thickness in a general standard; "
+                "follow the chemistry supplier's data)"
+            ),
+            provenance=Provenance.SHOP_PRACTICE,
+        )
     if quantity == "mask_registration":
-        return _w(quantity, max=50.0, source=(
-            "shop practice: solder mask registration within 50 um of the pad"),
-            provenance=Provenance.SHOP_PRACTICE)
+        return _w(
+            quantity,
+            max=50.0,
+            source=("shop practice: solder mask registration within 50 um of the pad"),
+            provenance=Provenance.SHOP_PRACTICE,
+        )
     if quantity == "mask_thickness":
-        return _w(quantity, min=10.0, max=40.0, target=20.0, source=(
-            "shop practice: mask over conductor 10-40 um (IPC-SM-840 sets no thickness "
-            "unless the drawing does, from memory)"), provenance=Provenance.SHOP_PRACTICE)
+        return _w(
+            quantity,
+            min=10.0,
+            max=40.0,
+            target=20.0,
+            source=(
+                "shop practice: mask over conductor 10-40 um (IPC-SM-840 sets no thickness "
+                "unless the drawing does, from memory)"
+            ),
+            provenance=Provenance.SHOP_PRACTICE,
+        )
     if quantity in {"vscore_web", "vscore_depth"}:
         web = t / 3.0
         tol = min(0.1, web * 0.3)
         if quantity == "vscore_web":
-            return _w(quantity, min=web - tol, max=web + tol, target=web, source=(
-                f"shop practice: V-score web about one third of board thickness "
-                f"({t:g} mm / 3) ±{tol:.3g} mm"), provenance=Provenance.SHOP_PRACTICE)
+            return _w(
+                quantity,
+                min=web - tol,
+                max=web + tol,
+                target=web,
+                source=(
+                    f"shop practice: V-score web about one third of board thickness "
+                    f"({t:g} mm / 3) ±{tol:.3g} mm"
+                ),
+                provenance=Provenance.SHOP_PRACTICE,
+            )
         depth = (t - web) / 2.0
-        return _w(quantity, min=depth - tol, max=depth + tol, target=depth, source=(
-            f"shop practice: V-score depth per side = (thickness - web) / 2 ±{tol:.3g} mm"),
-            provenance=Provenance.SHOP_PRACTICE)
+        return _w(
+            quantity,
+            min=depth - tol,
+            max=depth + tol,
+            target=depth,
+            source=(f"shop practice: V-score depth per side = (thickness - web) / 2 ±{tol:.3g} mm"),
+            provenance=Provenance.SHOP_PRACTICE,
+        )
     if quantity == "board_thickness":
-        return _w(quantity, min=t * 0.9, max=t * 1.1, target=t, source=(
-            f"shop practice: board thickness {t:g} mm ±10 % unless the drawing states "
-            "otherwise"), provenance=Provenance.SHOP_PRACTICE)
+        return _w(
+            quantity,
+            min=t * 0.9,
+            max=t * 1.1,
+            target=t,
+            source=(
+                f"shop practice: board thickness {t:g} mm ±10 % unless the drawing states otherwise"
+            ),
+            provenance=Provenance.SHOP_PRACTICE,
+        )
     if quantity == "bow_twist":
         limit, what = (0.75, "with") if surface_mount else (1.5, "without")
         other = "1.5 % applies to boards without" if surface_mount else "0.75 % with"
-        return _w(quantity, max=limit, samples=2, source=(
-            f"IPC-6012 bow and twist, boards {what} surface-mount parts: <= {limit:g} % "
-            f"(from memory; {other})"),
-            provenance=Provenance.FROM_MEMORY)
+        return _w(
+            quantity,
+            max=limit,
+            samples=2,
+            source=(
+                f"IPC-6012 bow and twist, boards {what} surface-mount parts: <= {limit:g} % "
+                f"(from memory; {other})"
+            ),
+            provenance=Provenance.FROM_MEMORY,
+        )
     if quantity == "finished_hole_diameter":
         d = spec.min_hole_mm
         tol = 0.05 if _unplated_single_sided(spec) else 0.075
         kind = "unplated" if _unplated_single_sided(spec) else "plated"
-        return _w(quantity, min=max(d - tol, 0.0), max=d + tol, target=d, source=(
-            f"shop practice: smallest {kind} finished hole {d:g} mm ±{tol:g} mm"),
-            provenance=Provenance.SHOP_PRACTICE)
+        return _w(
+            quantity,
+            min=max(d - tol, 0.0),
+            max=d + tol,
+            target=d,
+            source=(f"shop practice: smallest {kind} finished hole {d:g} mm ±{tol:g} mm"),
+            provenance=Provenance.SHOP_PRACTICE,
+        )
     if quantity == "conductor_width":
         reduction = 0.30 if cls == 1 else 0.20
-        rule = (f"IPC-6012 conductor width: no more than {reduction:.0%} below the design "
-                f"width for class {cls} (from memory); upper limit +20 % shop practice")
+        rule = (
+            f"IPC-6012 conductor width: no more than {reduction:.0%} below the design "
+            f"width for class {cls} (from memory); upper limit +20 % shop practice"
+        )
         if design_conductor_um is None:
-            return _w(quantity, source=rule + "; limits are set from the design width at "
-                      "engineering review", provenance=Provenance.FROM_MEMORY)
+            return _w(
+                quantity,
+                source=rule + "; limits are set from the design width at engineering review",
+                provenance=Provenance.FROM_MEMORY,
+            )
         w = design_conductor_um
-        return _w(quantity, min=w * (1 - reduction), max=w * 1.2, target=w,
-                  source=rule + f"; design width {w:g} um", provenance=Provenance.FROM_MEMORY)
+        return _w(
+            quantity,
+            min=w * (1 - reduction),
+            max=w * 1.2,
+            target=w,
+            source=rule + f"; design width {w:g} um",
+            provenance=Provenance.FROM_MEMORY,
+        )
     if quantity == "aoi_defects":
-        return _w(quantity, max=0, source=(
-            "shop practice: every AOI call verified and repaired or scrapped before the "
-            "lot moves (0 open defects)"), provenance=Provenance.SHOP_PRACTICE)
+        return _w(
+            quantity,
+            max=0,
+            source=(
+                "shop practice: every AOI call verified and repaired or scrapped before the "
+                "lot moves (0 open defects)"
+            ),
+            provenance=Provenance.SHOP_PRACTICE,
+        )
     if quantity in {"etest_opens", "etest_shorts"}:
         what = "opens" if quantity == "etest_opens" else "shorts"
-        return _w(quantity, max=0, source=(
-            f"IPC-9252 electrical test of bare boards: a board passes with no {what} "
-            "(from memory)"), provenance=Provenance.FROM_MEMORY)
+        return _w(
+            quantity,
+            max=0,
+            source=(
+                f"IPC-9252 electrical test of bare boards: a board passes with no {what} "
+                "(from memory)"
+            ),
+            provenance=Provenance.FROM_MEMORY,
+        )
     raise KeyError(f"no default window for quantity {quantity!r}; known: {', '.join(QUANTITIES)}")
 
 

@@ -247,6 +247,8 @@ def _lot_context(lot: Lot, person: Person) -> dict[str, Any]:
         "jobs": data.jobs,
         "route": data.steps,
         "step": step,
+        "step_params": [(str(k).replace("_", " "), v) for k, v in (step.parameters or {}).items()]
+        if step else [],
         "plan": _plan(step) if step else [],
         "equipment": _equipment(step) if step else [],
         "holds": list(lot.holds.filter(released_at__isnull=True).order_by("opened_at")),

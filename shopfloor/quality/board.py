@@ -188,6 +188,20 @@ class BoardLot:
         return ""
 
     @property
+    def at_step_text(self) -> str:
+        return duration_text(self.minutes_at_step)
+
+    @property
+    def wip_text(self) -> str:
+        return duration_text(self.minutes_in_wip)
+
+    @property
+    def queue_text(self) -> str:
+        if self.queue is None:
+            return ""
+        return f"{duration_text(self.queue.minutes_waited)} of {duration_text(self.queue.limit_minutes)}"
+
+    @property
     def due_state(self) -> schedule.DueState:
         if not self.jobs:
             return schedule.DueState.ON_TIME
@@ -230,6 +244,18 @@ class Board:
     ipc_classes: list[tuple[int, str]]
     now: dt.datetime
     lot_count: int
+
+
+def duration_text(minutes: float) -> str:
+    """'3 d 4 h', '5 h 10 min', '12 min' for a wall screen."""
+    m = max(int(minutes), 0)
+    days, rest = divmod(m, 1440)
+    hours, mins = divmod(rest, 60)
+    if days:
+        return f"{days} d {hours} h"
+    if hours:
+        return f"{hours} h {mins} min"
+    return f"{mins} min"
 
 
 def _due_end(day: dt.date) -> dt.datetime:

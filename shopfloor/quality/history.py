@@ -478,3 +478,120 @@ def overview(scope: Scope) -> QualityOverview:
                             else Q(lot__in=lots))
                     .select_related("lot", "work_center").order_by("-created_at")[:500]),
     )
+
+
+# --- SPC series reads -----------------------------------------------------------------
+
+SPC_POINTS = 200
+
+
+@dataclass
+class SeriesRow:
+    key: str
+    quantity: str
+    work_center: str
+    equipment: str
+    points: int
+    stored: bool
+
+
+@dataclass
+class SeriesDetail:
+    row: SeriesRow
+    values: list[float]
+    unit: str
+    window: dict[str, Any]
+    limits: Any
+    signals: list[Any]
+    capability: Any
+    message: str
+    rules: str
+
+
+def _series_key(quantity: str, wc: str, eq: str | None) -> str:
+    return f"{quantity}@{wc}" + (f"@{eq}" if eq else "")
+
+
+def spc_series(scope: Scope) -> list[SeriesRow]:
+    """Stored series when the SPC worker has made them; otherwise grouped from readings."""
+    from django.db.models import Count
+
+    from shopfloor.quality.models import SeriesState
+
+    rows: list[SeriesRow] = []
+    for s in SeriesState.objects.select_related("work_center", "equipment").order_by("key"):
+        if scope.sees_work_center(s.work_center_id):
+            rows.append(SeriesRow(s.key, s.quantity, s.work_center.code,
+                                  s.equipment.code if s.equipment else "", s.points, True))
+    if rows:
+        return rows
+    grouped = (
+        Reading.objects.filter(superseded_by__isnull=True)
+        .values("quantity", "lot_step__work_center__code", "lot_step__work_center_id",
+                "equipment__code")
+        .annotate(n=Count("id")).order_by("quantity", "lot_step__work_center__code")
+    )
+    for g in grouped:
+        if scope.sees_work_center(g["lot_step__work_center_id"]):
+            wc, eq = g["lot_step__work_center__code"], g["equipment__code"]
+            rows.append(SeriesRow(_series_key(g["quantity"], wc, eq), g["quantity"], wc,
+                                  eq or "", g["n"], False))
+    return rows
+
+
+def spc_detail(scope: Scope, key: str) -> SeriesDetail:
+    """Points, limits, rule breaks and capability of one series (newest SPC_POINTS)."""
+    from shopfloor.quality import spc
+    from shopfloor.quality.models import SeriesState
+
+    stored = SeriesState.objects.select_related("work_center", "equipment").filter(
+        key=key).first()
+    if stored is not None:
+        row = SeriesRow(stored.key, stored.quantity, stored.work_center.code,
+                        stored.equipment.code if stored.equipment else "", stored.points, True)
+        wc_id = stored.work_center_id
+    else:
+        parts = key.split("@")
+        if len(parts) not in (2, 3) or not all(parts):
+            raise NotFound(f"No SPC series {key!r}. Pick one from the SPC list.")
+        from shopfloor.plant.models import WorkCenter
+
+        wc = WorkCenter.objects.filter(code=parts[1]).first()
+        if wc is None:
+            raise NotFound(f"No SPC series {key!r}: work center {parts[1]!r} does not exist.")
+        wc_id = wc.pk
+        row = SeriesRow(key, parts[0], parts[1], parts[2] if len(parts) == 3 else "", 0, False)
+    if not scope.sees_work_center(wc_id):
+        from shopfloor.errors import NotAllowed
+
+        raise NotAllowed("This series belongs to a work center that is not yours.")
+    qs = Reading.objects.filter(superseded_by__isnull=True, quantity=row.quantity,
+                                lot_step__work_center_id=wc_id)
+    qs = qs.filter(equipment__code=row.equipment) if row.equipment else (
+        qs.filter(equipment__isnull=True) if not stored else qs)
+    recent = list(qs.order_by("-captured_at", "-pk").values_list("value", "unit", "window")
+                  [:SPC_POINTS])
+    recent.reverse()
+    values = [v for v, _, _ in recent]
+    unit = recent[-1][1] if recent else ""
+    window = dict(recent[-1][2]) if recent else {}
+    if not stored:
+        row.points = len(values)
+    rules = stored.rules if stored else "western_electric"
+    limits, signals, cap, message = None, [], None, ""
+    try:
+        if stored and stored.limits:
+            limits = spc.fixed_limits(stored.limits["centre"], stored.limits["ucl"],
+                                      stored.limits["lcl"], sigma=stored.limits.get("sigma"))
+        elif len(values) >= spc.MIN_BASELINE_POINTS:
+            limits = spc.compute_limits("individuals", values)
+        if limits is not None:
+            signals = spc.evaluate_rules(values, limits, rules)
+        lsl, usl = window.get("min"), window.get("max")
+        if len(values) >= 2 and (lsl is not None or usl is not None):
+            cap = spc.capability(values, lsl=lsl, usl=usl)
+    except (spc.SpcInputError, KeyError, TypeError) as exc:
+        message = f"Cannot compute this chart: {exc}"
+    if limits is None and not message:
+        message = "Too few readings to compute control limits yet."
+    return SeriesDetail(row, values, unit, window, limits, signals, cap, message, rules)

@@ -16,19 +16,28 @@ from shopfloor.quality.models import OutboxEvent
 
 log = logging.getLogger("shopfloor.outbox")
 
+# Give up on a dead broker quickly: a request must not hang on it, and the relay
+# publishes the event later anyway.
+RETRY_POLICY = {"max_retries": 1, "interval_start": 0, "interval_step": 0.2, "interval_max": 0.2}
 
-def publish(event_id: int) -> bool:
-    """Send one event to the worker; True when the broker took it."""
+
+def publish(event_id: int, *, republish: bool = False) -> bool:
+    """Send one event to the worker; True when the broker took it.
+
+    `republish` (the relay) stamps the new publish time even if the event had been
+    published before, so a lost message is sent again only once per relay period.
+    """
+    from shopfloor.quality import tasks
+
     try:
-        from shopfloor.quality import tasks
-
-        tasks.process_event.delay(event_id)
-    except Exception as exc:  # broker unreachable (or task error in eager mode): relay retries
+        tasks.process_event.apply_async(args=[event_id], retry_policy=RETRY_POLICY)
+    except Exception as exc:  # broker unreachable: the relay will retry
         log.warning("outbox event %s left for the relay: %s", event_id, exc)
         return False
-    OutboxEvent.objects.filter(pk=event_id, published_at__isnull=True).update(
-        published_at=timezone.now()
-    )
+    events = OutboxEvent.objects.filter(pk=event_id)
+    if not republish:
+        events = events.filter(published_at__isnull=True)
+    events.update(published_at=timezone.now())
     return True
 
 

@@ -27,6 +27,7 @@ import logging
 from dataclasses import dataclass
 from typing import Any
 
+from django.db.models import Q, QuerySet
 from django.utils import timezone
 
 from shopfloor.floor.models import Reading
@@ -38,6 +39,8 @@ log = logging.getLogger("shopfloor.spc")
 DEFAULT_BASELINE = 25
 # How many of the latest readings capability is computed over (bounded work per page).
 CAPABILITY_WINDOW = 500
+# Most readings a recomputed baseline may use (keeps one request's work bounded).
+MAX_BASELINE = 5000
 
 
 @dataclass(frozen=True)
@@ -148,22 +151,23 @@ def add_point(reading: Reading) -> list[DriftSignal]:
     return signals
 
 
-def series_readings(series: SeriesState, limit: int = CAPABILITY_WINDOW) -> list[Reading]:
-    """The latest current readings of a series in time order (corrections replace)."""
+def series_queryset(series: SeriesState) -> QuerySet[Reading]:
+    """Current readings (corrections replace what they correct) of one series."""
     qs = Reading.objects.filter(
         quantity=series.quantity,
         lot_step__work_center_id=series.work_center_id,
         superseded_by__isnull=True,
     )
     if series.equipment_id is None:
-        qs = qs.filter(equipment__isnull=True, lot_step__equipment__isnull=True)
-    else:
-        from django.db.models import Q
+        return qs.filter(equipment__isnull=True, lot_step__equipment__isnull=True)
+    return qs.filter(
+        Q(equipment_id=series.equipment_id)
+        | Q(equipment__isnull=True, lot_step__equipment_id=series.equipment_id)
+    )
 
-        qs = qs.filter(
-            Q(equipment_id=series.equipment_id)
-            | Q(equipment__isnull=True, lot_step__equipment_id=series.equipment_id)
-        )
-    latest = list(qs.order_by("-recorded_at", "-pk")[:limit])
+
+def series_readings(series: SeriesState, limit: int = CAPABILITY_WINDOW) -> list[Reading]:
+    """The latest ``limit`` current readings of a series, oldest first."""
+    latest = list(series_queryset(series).order_by("-recorded_at", "-pk")[:limit])
     latest.reverse()
     return latest

@@ -109,8 +109,16 @@ def test_all_problems_reported_at_once():
 
 def test_missing_required_keys_all_listed():
     errs = errors_of({})
-    for key in ("layers", "ipc_class", "board_thickness_mm", "outer_copper_base_um",
-                "finish", "profile", "electrical_test", "min_hole_mm"):
+    for key in (
+        "layers",
+        "ipc_class",
+        "board_thickness_mm",
+        "outer_copper_base_um",
+        "finish",
+        "profile",
+        "electrical_test",
+        "min_hole_mm",
+    ):
         assert errs[key].problem == "missing required key"
 
 
@@ -185,7 +193,9 @@ def test_plating_aspect_ratio_limits():
     # 1.6 / 0.3 = 5.3:1: no warning
     assert not any("aspect" in w for w in parse_spec(spec()).warnings)
     # a shop with a better plating line may set its own limit
-    s = parse_spec(spec(min_hole_mm=0.15), ShopCapability(max_aspect_ratio=12, warn_aspect_ratio=11))
+    s = parse_spec(
+        spec(min_hole_mm=0.15), ShopCapability(max_aspect_ratio=12, warn_aspect_ratio=11)
+    )
     assert s.aspect_ratio > 10
 
 

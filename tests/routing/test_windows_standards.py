@@ -69,8 +69,10 @@ def test_enig_windows():
 def test_enepig_windows():
     # IPC-4556 (ENEPIG): nickel 3-6 um, palladium 0.05-0.30 um, gold >= 0.030 um (from memory)
     r = build_routing(board(finish="enepig"))
-    assert (window(r, "enepig_gold", "nickel_thickness").min,
-            window(r, "enepig_gold", "nickel_thickness").max) == (3.0, 6.0)
+    assert (
+        window(r, "enepig_gold", "nickel_thickness").min,
+        window(r, "enepig_gold", "nickel_thickness").max,
+    ) == (3.0, 6.0)
     pd = window(r, "enepig_gold", "palladium_thickness")
     assert (pd.min, pd.max) == (0.05, 0.3) and "IPC-4556" in pd.source
     au = window(r, "enepig_gold", "gold_thickness")
@@ -79,8 +81,9 @@ def test_enepig_windows():
 
 def test_immersion_silver_and_tin():
     # IPC-4553A immersion silver: minimum 0.12 um (from memory)
-    ag = window(build_routing(board(finish="immersion_silver")), "silver_immersion",
-                "silver_thickness")
+    ag = window(
+        build_routing(board(finish="immersion_silver")), "silver_immersion", "silver_thickness"
+    )
     assert ag.min == 0.12 and "IPC-4553A" in ag.source
     # IPC-4554 immersion tin: >= 1.0 um (from memory)
     sn = window(build_routing(board(finish="immersion_tin")), "tin_immersion", "tin_thickness")
@@ -93,8 +96,9 @@ def test_osp_is_shop_practice():
     assert (w.min, w.max) == (0.2, 0.5) and w.source.startswith("shop practice")
 
 
-@pytest.mark.parametrize(("ipc_class", "gold", "nickel"), [(1, 0.8, 2.0), (2, 0.8, 2.5),
-                                                          (3, 1.25, 2.5)])
+@pytest.mark.parametrize(
+    ("ipc_class", "gold", "nickel"), [(1, 0.8, 2.0), (2, 0.8, 2.5), (3, 1.25, 2.5)]
+)
 def test_hard_gold_fingers_by_class(ipc_class, gold, nickel):
     # IPC-6012 final finish table, edge-board contacts: hard gold 0.8/0.8/1.25 um over
     # nickel 2.0/2.5/2.5 um (from memory)
@@ -109,8 +113,7 @@ def test_bow_and_twist():
     # IPC-6012 bow and twist: 0.75 % with surface-mount parts, 1.5 % without (from memory)
     s = board()
     assert window(build_routing(s), "final_inspection", "bow_twist").max == 0.75
-    assert window(build_routing(s, surface_mount=False), "final_inspection",
-                  "bow_twist").max == 1.5
+    assert window(build_routing(s, surface_mount=False), "final_inspection", "bow_twist").max == 1.5
 
 
 def test_surface_copper_from_half_ounce_foil():
@@ -123,8 +126,9 @@ def test_surface_copper_from_half_ounce_foil():
     w3 = window(build_routing(board(ipc_class=3)), "pattern_plate_copper", "surface_copper")
     assert w3.min == pytest.approx(38.4, abs=0.5)
     # derived from the base foil: thicker foil, thicker window
-    w1oz = window(build_routing(board(outer_copper_base_um=35)), "pattern_plate_copper",
-                  "surface_copper")
+    w1oz = window(
+        build_routing(board(outer_copper_base_um=35)), "pattern_plate_copper", "surface_copper"
+    )
     assert w1oz.min > w3.min and w1oz.target == pytest.approx(35 + 24)
 
 

@@ -51,9 +51,7 @@ class Command(BaseCommand):
         if fmt == "json":
             self.stdout.write(json.dumps(contract, indent=2, sort_keys=False))
         else:
-            self.stdout.write(render.routing_to_text(services.preview_routing(spec, overrides))
-                              if hasattr(services, "preview_routing")
-                              else _text_from_contract(spec, overrides), ending="")
+            self.stdout.write(_text(spec, overrides), ending="")
 
     def _read(self, where: str) -> tuple[Any, list[dict[str, Any]]]:
         try:
@@ -95,7 +93,7 @@ def _refuse_constant(name: str) -> Any:
     raise ValueError(f"{name} is not allowed in a build spec; give a finite number")
 
 
-def _text_from_contract(spec: Any, overrides: list[dict[str, Any]]) -> str:
+def _text(spec: Any, overrides: list[dict[str, Any]]) -> str:
     """The text table from the pure core (the spec was already validated by preview)."""
     from routing.builder import build as builder
     from routing.builder import overrides as overrides_core

@@ -1,0 +1,879 @@
+"""Quality use cases: turning events into alerts, holds and NCRs, and dispositioning them.
+
+Why this module exists: a reading outside its window must *always* end in exactly one
+alert and one hold, even when the worker crashes, a message is delivered twice, or
+Redis was down when the reading was recorded. Three mechanisms make that true:
+
+* the outbox row is claimed with ``select_for_update`` on ``processed_at IS NULL`` inside
+  the transaction that writes the alert, so two workers never both act on one event;
+* the unique constraints (``Alert.event`` one-to-one, ``Alert.dedupe_key`` unique) decide
+  who wins if anything slips past the claim;
+* notifications (e-mail, webhook) run after commit as a separate, idempotent step
+  (``Alert.notified_at``), so a failing channel can neither undo the hold nor make a
+  second alert.
+
+Severity of an out-of-window alert (shop rule, documented in DEVELOPERS.md by the lead):
+``critical`` for attribute checks (a found defect) and for values beyond the window by
+more than 10 % of the window's span (for a one-sided window: 10 % of the limit's
+magnitude; a one-sided limit of zero makes any excess critical); otherwise ``warning``.
+Both hold the lot: severity says how urgent, not whether to stop.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+from dataclasses import dataclass, field
+from datetime import date, datetime, time, timedelta
+from typing import Any
+from zoneinfo import ZoneInfo
+
+from django.conf import settings
+from django.db import IntegrityError, InterfaceError, OperationalError, transaction
+from django.db.models import F, Q, Sum
+from django.utils import timezone
+
+from shopfloor import schedule
+from shopfloor.audit import services as audit
+from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
+from shopfloor.floor.models import LotStep, Reading
+from shopfloor.plant.models import Job, Lot, Panel, Person, WorkCenter
+from shopfloor.quality import outbox, spc
+from shopfloor.quality import series as series_core
+from shopfloor.quality.models import Alert, Hold, Nonconformance, OutboxEvent, SeriesState
+
+log = logging.getLogger("shopfloor.quality")
+
+# An event whose processing failed this many times is left for a person (last_error says
+# why) instead of being retried for ever.
+MAX_EVENT_ATTEMPTS = 10
+RELAY_BATCH = 200
+# Published but still unprocessed after this long: publish again (the claim makes a
+# duplicate delivery harmless).
+REPUBLISH_AFTER = timedelta(seconds=getattr(settings, "OUTBOX_REPUBLISH_AFTER_SECONDS", 120))
+# Alerts whose notification never ran (lost message) are re-queued after this long,
+# but only for a day: an old alert is seen in the app, a late e-mail helps nobody.
+RENOTIFY_AFTER = timedelta(seconds=60)
+RENOTIFY_HORIZON = timedelta(days=1)
+CHECK_BATCH = 1000
+CRITICAL_FRACTION = 0.10
+
+OPEN_STEP = [LotStep.Status.WAITING, LotStep.Status.IN_PROGRESS, LotStep.Status.PAUSED]
+ACTIVE_LOT = [Lot.Status.NOT_STARTED, Lot.Status.IN_PROCESS]
+
+
+@dataclass(frozen=True)
+class EventOutcome:
+    """What handling one event did; ``acted`` is False when it was already handled."""
+
+    event_id: int
+    acted: bool
+    alert_ids: list[int] = field(default_factory=list)
+
+
+# --- severity -----------------------------------------------------------------------
+
+
+def severity_for(value: float, window: dict[str, Any]) -> str:
+    """Severity of an out-of-window reading (rule in the module docstring)."""
+    if window.get("attribute"):
+        return Alert.Severity.CRITICAL
+    lo, hi = window.get("min"), window.get("max")
+    if lo is not None and value < lo:
+        excess, limit = lo - value, lo
+    elif hi is not None and value > hi:
+        excess, limit = value - hi, hi
+    else:
+        return Alert.Severity.WARNING
+    if lo is not None and hi is not None and hi > lo:
+        reference = hi - lo
+    else:
+        reference = abs(limit)
+    if reference == 0 or excess > CRITICAL_FRACTION * reference:
+        return Alert.Severity.CRITICAL
+    return Alert.Severity.WARNING
+
+
+# --- events -------------------------------------------------------------------------
+
+
+def handle_event(event_id: int) -> EventOutcome:
+    """Act on one outbox event exactly once (see module docstring for how)."""
+    OutboxEvent.objects.filter(pk=event_id, processed_at__isnull=True).update(
+        attempts=F("attempts") + 1
+    )
+    try:
+        with transaction.atomic():
+            event = (
+                OutboxEvent.objects.select_for_update()
+                .filter(pk=event_id, processed_at__isnull=True)
+                .first()
+            )
+            if event is None:
+                return EventOutcome(event_id, acted=False)
+            alerts = _dispatch(event)
+            event.processed_at = timezone.now()
+            event.last_error = ""
+            event.save(update_fields=["processed_at", "last_error"])
+            for alert in alerts:
+                _notify_after_commit(alert.pk)
+            return EventOutcome(event_id, acted=True, alert_ids=[a.pk for a in alerts])
+    except (OperationalError, InterfaceError):
+        raise  # database trouble: the task retries with backoff
+    except Exception as exc:
+        OutboxEvent.objects.filter(pk=event_id).update(last_error=repr(exc)[:2000])
+        raise
+
+
+def _dispatch(event: OutboxEvent) -> list[Alert]:
+    if event.kind == "reading.recorded":
+        return _handle_reading(event)
+    log.warning("outbox event %s has unknown kind %r; marked processed", event.pk, event.kind)
+    return []
+
+
+def _handle_reading(event: OutboxEvent) -> list[Alert]:
+    reading_id = (event.payload or {}).get("reading")
+    reading = (
+        Reading.objects.select_related(
+            "lot_step__work_center", "lot_step__equipment", "lot_step__lot", "equipment"
+        )
+        .filter(pk=reading_id)
+        .first()
+    )
+    if reading is None:
+        log.warning("outbox event %s names reading %r, which does not exist", event.pk,
+                    reading_id)
+        return []
+    alerts: list[Alert] = []
+    if not reading.in_window:
+        alert = _out_of_window(event, reading)
+        if alert is not None:
+            alerts.append(alert)
+    drift = series_core.add_point(reading)
+    if reading.in_window:  # an out-of-window reading already has its alert and hold
+        for signal in drift:
+            alert = _drift_alert(reading, signal)
+            if alert is not None:
+                alerts.append(alert)
+    return alerts
+
+
+def _lot_job(lot: Lot) -> Job | None:
+    return Job.objects.filter(panels__lot=lot).order_by("pk").first()
+
+
+def _create_alert(**fields: Any) -> Alert | None:
+    """Create an alert unless its dedupe key (or event) already has one."""
+    try:
+        with transaction.atomic():
+            return Alert.objects.create(**fields)
+    except IntegrityError:
+        return None
+
+
+def _open_ncr(lot: Lot, step: LotStep | None, alert: Alert, description: str) -> Nonconformance:
+    """The open NCR of this lot step, or a new one; several bad readings share one NCR."""
+    ncr = Nonconformance.objects.filter(lot=lot, lot_step=step,
+                                        status=Nonconformance.Status.OPEN).first()
+    if ncr is not None:
+        return ncr
+    ncr = Nonconformance.objects.create(number=f"NCR-T{alert.pk}", lot=lot, lot_step=step,
+                                        alert=alert, description=description)
+    ncr.number = f"NCR-{ncr.pk:06d}"
+    ncr.save(update_fields=["number"])
+    audit.record(actor=None, action="ncr.opened", object_type="ncr", object_id=ncr.pk,
+                 after={"number": ncr.number, "lot": lot.code, "alert": alert.pk,
+                        "description": description})
+    return ncr
+
+
+def _hold(lot: Lot, step: LotStep | None, alert: Alert, ncr: Nonconformance, reason: str) -> Hold:
+    hold = Hold.objects.create(lot=lot, lot_step=step, alert=alert, ncr=ncr, reason=reason)
+    if not lot.on_hold:
+        lot.on_hold = True
+        lot.save(update_fields=["on_hold"])
+    audit.record(actor=None, action="lot.held", object_type="lot", object_id=lot.pk,
+                 before=None, after={"hold": hold.pk, "ncr": ncr.number, "reason": reason})
+    return hold
+
+
+def _out_of_window(event: OutboxEvent, reading: Reading) -> Alert | None:
+    step = reading.lot_step
+    lot = Lot.objects.select_for_update().get(pk=step.lot_id)
+    window = reading.window or {}
+    detail = (event.payload or {}).get("message") or "outside its window"
+    source = window.get("source") or "no source recorded"
+    message = (
+        f"Lot {lot.code} at '{step.name}' ({step.work_center.name}): {reading.quantity} "
+        f"sample {reading.sample_index}: {detail} (window source: {source}). "
+        "The lot is on hold until quality dispositions the NCR."
+    )
+    alert = _create_alert(
+        kind=Alert.Kind.OUT_OF_WINDOW,
+        severity=severity_for(reading.value, window),
+        event=event,
+        dedupe_key=f"reading:{reading.pk}:out_of_window",
+        lot=lot,
+        lot_step=step,
+        job=_lot_job(lot),
+        reading=reading,
+        work_center=step.work_center,
+        message=message,
+    )
+    if alert is None:
+        return None
+    audit.record(actor=None, action="alert.raised", object_type="alert", object_id=alert.pk,
+                 after={"kind": alert.kind, "severity": alert.severity, "lot": lot.code,
+                        "reading": reading.pk, "event": event.pk})
+    ncr = _open_ncr(lot, step, alert, f"{reading.quantity} out of window at '{step.name}': "
+                                      f"{detail} (source: {source})")
+    ncr.readings.add(reading)
+    _hold(lot, step, alert, ncr, f"Reading {reading.pk} out of window ({detail})")
+    return alert
+
+
+def _drift_alert(reading: Reading, signal: series_core.DriftSignal) -> Alert | None:
+    step = reading.lot_step
+    s = signal.series
+    alert = _create_alert(
+        kind=Alert.Kind.DRIFT,
+        severity=Alert.Severity.WARNING,
+        dedupe_key=f"drift:{s.pk}:{signal.rule}:{signal.index}"[:120],
+        lot_id=step.lot_id,
+        lot_step=step,
+        reading=reading,
+        work_center=step.work_center,
+        rule=signal.rule[:40],
+        message=(
+            f"Process drift on {s.quantity} at {step.work_center.name}"
+            f"{' (' + s.key.split('|')[2] + ')' if s.equipment_id else ''}: "
+            f"{signal.description} (rule {signal.rule}), point {signal.index + 1}. "
+            "The readings are still in window; no hold. Review the process."
+        ),
+    )
+    if alert is not None:
+        audit.record(actor=None, action="alert.raised", object_type="alert",
+                     object_id=alert.pk, after={"kind": alert.kind, "rule": signal.rule,
+                                                "series": s.key, "reading": reading.pk})
+    return alert
+
+
+def _notify_after_commit(alert_id: int) -> None:
+    def queue() -> None:
+        from shopfloor.quality import tasks
+
+        try:
+            tasks.notify_alert.apply_async(args=[alert_id], retry_policy=outbox.RETRY_POLICY)
+        except Exception as exc:  # broker down: relay_outbox re-queues it
+            log.warning("notification of alert %s left for the relay: %s", alert_id, exc)
+
+    transaction.on_commit(queue)
+
+
+# --- relay --------------------------------------------------------------------------
+
+
+def relay_outbox(now: datetime | None = None, batch: int = RELAY_BATCH) -> dict[str, int]:
+    """Publish events the broker never got (or lost), and re-queue lost notifications."""
+    from shopfloor.quality import tasks
+
+    now = now or timezone.now()
+    ids = list(
+        OutboxEvent.objects.filter(processed_at__isnull=True, attempts__lt=MAX_EVENT_ATTEMPTS)
+        .filter(Q(published_at__isnull=True) | Q(published_at__lt=now - REPUBLISH_AFTER))
+        .order_by("pk")
+        .values_list("pk", flat=True)[:batch]
+    )
+    published = 0
+    for event_id in ids:
+        if not outbox.publish(event_id, republish=True):
+            break  # broker still down: try again on the next beat
+        published += 1
+    stuck = OutboxEvent.objects.filter(processed_at__isnull=True,
+                                       attempts__gte=MAX_EVENT_ATTEMPTS).count()
+    if stuck:
+        log.error("%s outbox event(s) failed %s times and need a person; see last_error",
+                  stuck, MAX_EVENT_ATTEMPTS)
+    renotified = 0
+    alert_ids = list(
+        Alert.objects.filter(notified_at__isnull=True, created_at__lt=now - RENOTIFY_AFTER,
+                             created_at__gte=now - RENOTIFY_HORIZON)
+        .order_by("pk").values_list("pk", flat=True)[:batch]
+    )
+    for alert_id in alert_ids:
+        try:
+            tasks.notify_alert.apply_async(args=[alert_id], retry_policy=outbox.RETRY_POLICY)
+        except Exception as exc:
+            log.warning("relay could not queue notification of alert %s: %s", alert_id, exc)
+            break
+        renotified += 1
+    return {"candidates": len(ids), "published": published, "renotified": renotified,
+            "stuck": stuck}
+
+
+# --- notifications ------------------------------------------------------------------
+
+
+def notify_alert(alert_id: int) -> bool:
+    """Send an alert's e-mail and webhook once; True when this call did it.
+
+    The alert row stays locked while sending, so two workers cannot both send; if the
+    worker dies mid-send the transaction rolls back and the task is delivered again.
+    A failing webhook is handed to a bounded retry task and never blocks anything.
+    """
+    from shopfloor.quality import notify
+
+    with transaction.atomic():
+        alert = (
+            Alert.objects.select_for_update(of=("self",))
+            .select_related("lot", "work_center", "job")
+            .filter(pk=alert_id, notified_at__isnull=True)
+            .first()
+        )
+        if alert is None:
+            return False
+        sent = notify.send_email(alert)
+        webhook_ok = True
+        if notify.webhook_configured():
+            try:
+                notify.post_webhook(alert)
+            except notify.WebhookFailed as exc:
+                log.warning("webhook for alert %s failed, will retry: %s", alert.pk, exc)
+                webhook_ok = False
+        alert.notified_at = timezone.now()
+        alert.save(update_fields=["notified_at"])
+        log.info("alert %s notified (%s e-mail(s), webhook %s)", alert.pk, sent,
+                 "ok" if webhook_ok else "retrying" if notify.webhook_configured() else "off")
+        if not webhook_ok:
+            def retry() -> None:
+                from shopfloor.quality import tasks
+
+                try:
+                    tasks.deliver_webhook.apply_async(args=[alert_id], countdown=2,
+                                                      retry_policy=outbox.RETRY_POLICY)
+                except Exception as exc:
+                    log.warning("could not queue webhook retry for alert %s: %s",
+                                alert_id, exc)
+
+            transaction.on_commit(retry)
+    return True
+
+
+def deliver_webhook(alert_id: int) -> None:
+    """One more webhook attempt (raises notify.WebhookFailed so the task retries)."""
+    from shopfloor.quality import notify
+
+    alert = Alert.objects.select_related("lot", "work_center", "job").filter(pk=alert_id).first()
+    if alert is None or not notify.webhook_configured():
+        return
+    notify.post_webhook(alert)
+
+
+# --- queue times and due dates --------------------------------------------------------
+
+
+def check_queue_times(now: datetime | None = None) -> dict[str, int]:
+    """Warn before a queue-time limit; once exceeded, alert, open an NCR and hold the lot.
+
+    Only steps that are waiting in an active lot with a limit and an arrival time count.
+    Each step is judged in its own short transaction; dedupe keys make reruns harmless.
+    """
+    now = now or timezone.now()
+    ids = list(
+        LotStep.objects.filter(
+            queue_time_limit_minutes__isnull=False,
+            arrived_at__isnull=False,
+            started_at__isnull=True,
+            status=LotStep.Status.WAITING,
+            lot__status=Lot.Status.IN_PROCESS,
+        ).order_by("arrived_at").values_list("pk", flat=True)[:CHECK_BATCH]
+    )
+    counts = {"checked": len(ids), "warnings": 0, "exceeded": 0}
+    for step_id in ids:
+        result = _check_queue_step(step_id, now)
+        if result:
+            counts[result] += 1
+    return counts
+
+
+def _check_queue_step(step_id: int, now: datetime) -> str | None:
+    with transaction.atomic():
+        step = (
+            LotStep.objects.select_for_update().select_related("work_center")
+            .filter(pk=step_id, status=LotStep.Status.WAITING, started_at__isnull=True)
+            .first()
+        )
+        if step is None or step.arrived_at is None or step.queue_time_limit_minutes is None:
+            return None
+        state = schedule.queue_state(step.arrived_at, now, step.queue_time_limit_minutes)
+        if state.exceeded:
+            lot = Lot.objects.select_for_update().get(pk=step.lot_id)
+            message = (
+                f"Lot {lot.code} waited {state.minutes_waited:.0f} min for '{step.name}' at "
+                f"{step.work_center.name}; the queue-time limit is {state.limit_minutes} min. "
+                "The lot is on hold until quality dispositions the NCR."
+            )
+            alert = _create_alert(
+                kind=Alert.Kind.QUEUE_EXCEEDED, severity=Alert.Severity.CRITICAL,
+                dedupe_key=f"queue_exceeded:{step.pk}", lot=lot, lot_step=step,
+                job=_lot_job(lot), work_center=step.work_center, message=message,
+            )
+            if alert is None:
+                return None
+            audit.record(actor=None, action="alert.raised", object_type="alert",
+                         object_id=alert.pk, after={"kind": alert.kind, "lot": lot.code,
+                                                    "waited_min": round(state.minutes_waited)})
+            ncr = _open_ncr(lot, step, alert, message)
+            _hold(lot, step, alert, ncr, "Queue-time limit exceeded")
+            _notify_after_commit(alert.pk)
+            return "exceeded"
+        if state.warn and not step.queue_warning_released_reason:
+            left = state.limit_minutes - state.minutes_waited
+            alert = _create_alert(
+                kind=Alert.Kind.QUEUE_WARNING, severity=Alert.Severity.WARNING,
+                dedupe_key=f"queue_warning:{step.pk}", lot_id=step.lot_id, lot_step=step,
+                work_center=step.work_center,
+                message=(
+                    f"'{step.name}' at {step.work_center.name} must start within "
+                    f"{max(left, 0):.0f} min (queue-time limit {state.limit_minutes} min); "
+                    "after that the lot goes on hold."
+                ),
+            )
+            if alert is None:
+                return None
+            audit.record(actor=None, action="alert.raised", object_type="alert",
+                         object_id=alert.pk, after={"kind": alert.kind, "lot_step": step.pk})
+            _notify_after_commit(alert.pk)
+            return "warnings"
+    return None
+
+
+def release_queue_warning(person: Person, lot_step_id: int, reason: str) -> LotStep:
+    """A supervisor accepts a queue-time warning (closes it and stops repeats).
+
+    It does not lift the limit itself: if the step still has not started when the limit
+    passes, the lot is held as usual, because the limit protects the product.
+    """
+    if not person.roles() & {"supervisor", "admin"}:
+        raise NotAllowed("Only a supervisor can release a queue-time warning.")
+    reason = (reason or "").strip()
+    if len(reason) < 3:
+        raise InvalidInput("Releasing a queue-time warning needs a reason (at least 3 "
+                           "characters) saying why waiting longer is acceptable.")
+    if len(reason) > 300:
+        raise InvalidInput("The reason may be at most 300 characters.")
+    with transaction.atomic():
+        step = LotStep.objects.select_for_update().filter(pk=lot_step_id).first()
+        if step is None:
+            raise NotFound(f"No lot step {lot_step_id}.")
+        if step.queue_time_limit_minutes is None:
+            raise Conflict(f"'{step.name}' has no queue-time limit, so there is no warning.")
+        if step.queue_warning_released_reason:
+            raise Conflict(f"The queue-time warning of '{step.name}' was already released: "
+                           f"{step.queue_warning_released_reason}")
+        step.queue_warning_released_reason = reason
+        step.save(update_fields=["queue_warning_released_reason"])
+        closed = Alert.objects.filter(dedupe_key=f"queue_warning:{step.pk}",
+                                      closed_at__isnull=True).update(closed_at=timezone.now())
+        audit.record(actor=person.user, action="queue_warning.released",
+                     object_type="lot_step", object_id=step.pk,
+                     after={"reason": reason, "alerts_closed": closed})
+        return step
+
+
+def due_at(due_date: date) -> datetime:
+    """A job is due by the end of its due date in the site's time zone."""
+    tz = ZoneInfo(getattr(settings, "SITE_TIME_ZONE", "UTC") or "UTC")
+    return datetime.combine(due_date + timedelta(days=1), time.min, tzinfo=tz)
+
+
+def job_remaining_minutes(job: Job) -> float | None:
+    """Standard minutes left on the job's slowest active lot (lots run side by side);
+    None when the job has no active lot."""
+    lots = Lot.objects.filter(panels__jobs=job, status__in=ACTIVE_LOT).distinct()
+    if not lots.exists():
+        return None
+    per_lot = (
+        LotStep.objects.filter(lot__in=lots, status__in=OPEN_STEP)
+        .values("lot").annotate(total=Sum("standard_minutes"))
+    )
+    return float(max((row["total"] or 0 for row in per_lot), default=0))
+
+
+def check_due_dates(now: datetime | None = None) -> dict[str, int]:
+    """Raise one alert per job and state (at risk, late) using shopfloor.schedule."""
+    now = now or timezone.now()
+    jobs = list(
+        Job.objects.filter(panels__lot__status__in=ACTIVE_LOT).distinct()
+        .order_by("due_date", "pk")[:CHECK_BATCH]
+    )
+    counts = {"checked": len(jobs), "at_risk": 0, "late": 0}
+    for job in jobs:
+        remaining = job_remaining_minutes(job)
+        if remaining is None:
+            continue
+        state = schedule.due_state(now, due_at(job.due_date), remaining)
+        if state == schedule.DueState.ON_TIME:
+            continue
+        late = state == schedule.DueState.LATE
+        message = (
+            f"Job {job.number} is late: it was due {job.due_date:%Y-%m-%d}."
+            if late else
+            f"Job {job.number} is at risk of missing {job.due_date:%Y-%m-%d}: "
+            f"{remaining:.0f} standard minutes of work remain."
+        )
+        with transaction.atomic():
+            alert = _create_alert(
+                kind=Alert.Kind.LATE if late else Alert.Kind.DUE_RISK,
+                severity=Alert.Severity.CRITICAL if late else Alert.Severity.WARNING,
+                dedupe_key=f"job:{job.pk}:{state.value}", job=job, message=message,
+            )
+            if alert is None:
+                continue
+            audit.record(actor=None, action="alert.raised", object_type="alert",
+                         object_id=alert.pk, after={"kind": alert.kind, "job": job.number,
+                                                    "remaining_min": remaining})
+            _notify_after_commit(alert.pk)
+        counts["late" if late else "at_risk"] += 1
+    return counts
+
+
+# --- SPC: the engineer's controls -----------------------------------------------------
+
+
+def _require_quality(person: Person, what: str) -> None:
+    if "quality_engineer" not in person.roles():
+        raise NotAllowed(f"Only a quality engineer can {what}.")
+
+
+def _get_series_locked(series_id: int) -> SeriesState:
+    found = SeriesState.objects.select_for_update().filter(pk=series_id).first()
+    if found is None:
+        raise NotFound(f"No SPC series {series_id}.")
+    return found
+
+
+def fix_limits(person: Person, series_id: int, centre: float, ucl: float,
+               lcl: float) -> SeriesState:
+    """Set a series' control limits by hand (e.g. after a capability study)."""
+    _require_quality(person, "fix control limits")
+    try:
+        limits = spc.fixed_limits(centre, ucl, lcl)
+    except spc.SpcInputError as exc:
+        raise InvalidInput(f"Control limits not accepted: {exc}.") from exc
+    with transaction.atomic():
+        s = _get_series_locked(series_id)
+        before = s.limits
+        s.limits = series_core.limits_to_dict(limits, source=f"fixed by {person.printed_name}")
+        s.limits_fixed = True
+        s.updated_at = timezone.now()
+        s.save(update_fields=["limits", "limits_fixed", "updated_at"])
+        audit.record(actor=person.user, action="spc.limits_fixed", object_type="spc_series",
+                     object_id=s.pk, before=before, after=s.limits)
+        return s
+
+
+def recompute_limits(person: Person, series_id: int, start: datetime,
+                     end: datetime) -> SeriesState:
+    """Recompute a series' limits from the readings recorded in [start, end]."""
+    _require_quality(person, "recompute control limits")
+    if not isinstance(start, datetime) or not isinstance(end, datetime):
+        raise InvalidInput("Give the baseline window as two date-times (from, to).")
+    if timezone.is_naive(start) or timezone.is_naive(end):
+        raise InvalidInput("The baseline window's date-times must include a time zone.")
+    if start >= end:
+        raise InvalidInput("The baseline window must start before it ends.")
+    with transaction.atomic():
+        s = _get_series_locked(series_id)
+        values = [
+            r.value
+            for r in series_core.series_queryset(s)
+            .filter(recorded_at__gte=start, recorded_at__lte=end)
+            .order_by("recorded_at", "pk")[: series_core.MAX_BASELINE]
+        ]
+        if len(values) < spc.MIN_BASELINE_POINTS:
+            raise InvalidInput(
+                f"The window {start:%Y-%m-%d %H:%M} to {end:%Y-%m-%d %H:%M} holds "
+                f"{len(values)} reading(s) of {s.key}; at least "
+                f"{spc.MIN_BASELINE_POINTS} are needed (25 or more is common practice)."
+            )
+        try:
+            limits = spc.compute_limits(s.chart, values)  # type: ignore[arg-type]
+        except spc.SpcInputError as exc:
+            raise InvalidInput(f"Limits cannot be computed from that window: {exc}.") from exc
+        before = s.limits
+        s.limits = series_core.limits_to_dict(
+            limits, source=f"recomputed from {len(values)} readings "
+                           f"{start.isoformat()} to {end.isoformat()}")
+        s.limits_fixed = True
+        s.updated_at = timezone.now()
+        s.save(update_fields=["limits", "limits_fixed", "updated_at"])
+        audit.record(actor=person.user, action="spc.limits_recomputed",
+                     object_type="spc_series", object_id=s.pk, before=before, after=s.limits)
+        return s
+
+
+def series_capability(series_id: int) -> dict[str, Any]:
+    """Cp, Cpk, Pp, Ppk and ppm of a series' latest readings against their window.
+
+    The window is the one the newest reading was judged against (lots carry windows
+    snapshotted from their routing). ``capability`` is None, with ``reason``, when it
+    cannot be computed (fewer than 2 readings, no limits, an attribute chart).
+    """
+    s = SeriesState.objects.filter(pk=series_id).first()
+    if s is None:
+        raise NotFound(f"No SPC series {series_id}.")
+    readings = series_core.series_readings(s)
+    values = [r.value for r in readings]
+    window = readings[-1].window if readings else {}
+    lsl, usl = window.get("min"), window.get("max")
+    result: dict[str, Any] = {
+        "series": s.key, "chart": s.chart, "n": len(values), "lsl": lsl, "usl": usl,
+        "unit": readings[-1].unit if readings else "", "source": window.get("source"),
+        "limits": s.limits, "capability": None, "reason": "",
+    }
+    if s.chart != "individuals":
+        result["reason"] = "capability applies to measured values, not attribute counts"
+    elif len(values) < 2:
+        result["reason"] = f"{len(values)} reading(s); at least 2 are needed"
+    elif lsl is None and usl is None:
+        result["reason"] = "the window has no specification limits"
+    else:
+        try:
+            cap = spc.capability(values, lsl=lsl, usl=usl)
+        except spc.SpcInputError as exc:
+            result["reason"] = str(exc)
+        else:
+            result["capability"] = {**cap.to_dict(), "mean": cap.mean,
+                                    "within_sigma": cap.within_sigma,
+                                    "overall_sigma": cap.overall_sigma}
+    return result
+
+
+# --- disposition --------------------------------------------------------------------
+
+DEFAULT_REWORK = {"name": "Strip and replate"}
+MAX_REWORK_STEPS = 10
+
+
+@dataclass(frozen=True)
+class ReworkStep:
+    name: str
+    work_center: WorkCenter | None
+    instructions: str
+    standard_minutes: int | None
+    same_plan: bool
+
+
+def _parse_rework(raw: Any) -> list[ReworkStep]:
+    items = raw if raw else [DEFAULT_REWORK]
+    if not isinstance(items, list) or len(items) > MAX_REWORK_STEPS:
+        raise InvalidInput(f"rework_steps must be a list of 1 to {MAX_REWORK_STEPS} steps, "
+                           'each like {"name": "Strip and replate"}.')
+    parsed: list[ReworkStep] = []
+    problems: list[dict[str, Any]] = []
+    allowed = {"name", "work_center", "instructions", "standard_minutes", "same_plan"}
+    for i, item in enumerate(items):
+        if not isinstance(item, dict):
+            problems.append({"field": f"rework_steps[{i}]", "problem": "must be an object"})
+            continue
+        unknown = sorted(set(item) - allowed)
+        if unknown:
+            problems.append({"field": f"rework_steps[{i}]", "problem": f"unknown {unknown}",
+                             "allowed": sorted(allowed)})
+        name = item.get("name")
+        if not isinstance(name, str) or not 3 <= len(name.strip()) <= 120:
+            problems.append({"field": f"rework_steps[{i}].name",
+                             "problem": "a name of 3 to 120 characters is required"})
+            continue
+        wc = None
+        if item.get("work_center") is not None:
+            wc = WorkCenter.objects.filter(code=item["work_center"]).first()
+            if wc is None:
+                problems.append({"field": f"rework_steps[{i}].work_center",
+                                 "value": item["work_center"],
+                                 "problem": "no work center with that code"})
+        minutes = item.get("standard_minutes")
+        if minutes is not None and (isinstance(minutes, bool) or not isinstance(minutes, int)
+                                    or not 1 <= minutes <= 10_000):
+            problems.append({"field": f"rework_steps[{i}].standard_minutes",
+                             "problem": "a whole number of minutes from 1 to 10000"})
+        same_plan = item.get("same_plan", True)
+        if not isinstance(same_plan, bool):
+            problems.append({"field": f"rework_steps[{i}].same_plan",
+                             "problem": "true or false"})
+        parsed.append(ReworkStep(name.strip(), wc, str(item.get("instructions") or ""),
+                                 minutes, bool(same_plan)))
+    if problems:
+        raise InvalidInput(f"The rework steps have {len(problems)} problem(s).",
+                           problems=problems)
+    return parsed
+
+
+def _parse_panel_ids(raw: Any) -> set[int] | None:
+    if raw is None:
+        return None
+    if not isinstance(raw, list | tuple | set) or not raw or not all(
+        isinstance(p, int) and not isinstance(p, bool) for p in raw
+    ):
+        raise InvalidInput("scrap_panel_ids must be a non-empty list of panel ids "
+                           "(leave it out to scrap the whole lot).")
+    return set(raw)
+
+
+def _insert_rework(ncr: Nonconformance, lot: Lot, held: LotStep | None,
+                   items: list[ReworkStep]) -> list[dict[str, Any]]:
+    """Insert rework steps right after the held step, between the existing positions."""
+    if held is None:
+        raise Conflict(f"{ncr.number} names no lot step, so rework has nowhere to go.")
+    after = held.position
+    nxt = LotStep.objects.filter(lot=lot, position__gt=after).order_by("position").first()
+    need = len(items)
+    if nxt is None:
+        end = after + 10 * (need + 1)
+    else:
+        end = nxt.position
+        if end - after <= need:  # no room between: move the later steps along
+            shift = 10 * math.ceil((need + 1) / 10)
+            for later in (LotStep.objects.select_for_update().filter(lot=lot, position__gt=after)
+                          .order_by("-position")):
+                later.position += shift
+                later.save(update_fields=["position"])
+            end += shift
+    spacing = (end - after) // (need + 1)
+    created: list[dict[str, Any]] = []
+    for i, item in enumerate(items, start=1):
+        step = LotStep.objects.create(
+            lot=lot,
+            position=after + spacing * i,
+            code=f"RW-{ncr.number}-{i}"[:60],
+            name=item.name,
+            work_center=item.work_center or held.work_center,
+            instructions=item.instructions or f"Rework for {ncr.number}: {ncr.description}"[:2000],
+            parameters=dict(held.parameters) if item.same_plan else {},
+            plan=list(held.plan) if item.same_plan else [],
+            hazard=held.hazard,
+            standard_minutes=item.standard_minutes or held.standard_minutes,
+            is_rework=True,
+            added_by_ncr=ncr,
+        )
+        created.append({"lot_step": step.pk, "position": step.position, "name": step.name,
+                        "work_center": step.work_center.code})
+    audit.record(actor=None, action="lot.rework_added", object_type="lot", object_id=lot.pk,
+                 after={"ncr": ncr.number, "after_position": after, "steps": created})
+    return created
+
+
+def _scrap(ncr: Nonconformance, lot: Lot, panel_ids: set[int] | None) -> dict[str, Any]:
+    live = {p.pk: p for p in Panel.objects.select_for_update().filter(lot=lot, scrapped=False)}
+    if panel_ids is not None:
+        unknown = sorted(panel_ids - set(live))
+        if unknown:
+            raise InvalidInput(
+                f"Panel id(s) {unknown} are not live panels of lot {lot.code}. Allowed: "
+                f"{sorted(live)}.",
+                problems=[{"field": "scrap_panel_ids", "value": unknown,
+                           "allowed": sorted(live)}],
+            )
+    if panel_ids is None or panel_ids == set(live):
+        Panel.objects.filter(pk__in=list(live)).update(scrapped=True)
+        lot.status = Lot.Status.SCRAPPED
+        lot.save(update_fields=["status"])
+        audit.record(actor=None, action="lot.scrapped", object_type="lot", object_id=lot.pk,
+                     after={"ncr": ncr.number, "panels": sorted(p.serial for p in live.values())})
+        return {"scrapped": "all", "panels": sorted(p.serial for p in live.values())}
+    n = Lot.objects.filter(split_from=lot).count() + 1
+    suffix = f"-S{n}"
+    split = Lot.objects.create(
+        code=lot.code[: 30 - len(suffix)] + suffix, routing_revision=lot.routing_revision,
+        status=Lot.Status.SCRAPPED, priority=lot.priority, split_from=lot,
+        panel_count=len(panel_ids), started_at=lot.started_at,
+    )
+    serials = sorted(live[pk].serial for pk in panel_ids)
+    Panel.objects.filter(pk__in=list(panel_ids)).update(lot=split, scrapped=True)
+    lot.panel_count = max(lot.panel_count - len(panel_ids), 0)
+    lot.save(update_fields=["panel_count"])
+    ncr.scrap_lot = split
+    audit.record(actor=None, action="lot.split", object_type="lot", object_id=lot.pk,
+                 after={"ncr": ncr.number, "split_lot": split.code, "panels": serials,
+                        "status": "scrapped"})
+    return {"scrapped": "some", "split_lot": split.code, "panels": serials}
+
+
+def disposition_ncr(
+    person: Person,
+    ncr_id: int,
+    disposition: str,
+    note: str,
+    pin: str,
+    scrap_panel_ids: list[int] | None = None,
+    rework_steps: list[dict[str, Any]] | None = None,
+) -> Nonconformance:
+    """Decide what happens to a nonconforming lot, e-sign it, and release its hold.
+
+    use_as_is releases the hold; rework inserts rework steps after the held step;
+    scrap scraps the lot, or (with scrap_panel_ids) splits the named panels off into a
+    scrapped lot "<code>-S<n>" and lets the rest continue. Only this releases a hold.
+    """
+    from shopfloor.floor.services import verify_pin
+
+    _require_quality(person, "disposition a nonconformance")
+    allowed = [c.value for c in Nonconformance.Disposition]
+    if disposition not in allowed:
+        raise InvalidInput(f"Disposition {disposition!r} is not known; use one of "
+                           f"{', '.join(allowed)}.")
+    note = (note or "").strip()
+    if len(note) < 3:
+        raise InvalidInput("A disposition needs a note (at least 3 characters) saying why.")
+    if disposition != Nonconformance.Disposition.REWORK and rework_steps:
+        raise InvalidInput("rework_steps apply only to a rework disposition.")
+    if disposition != Nonconformance.Disposition.SCRAP and scrap_panel_ids:
+        raise InvalidInput("scrap_panel_ids apply only to a scrap disposition.")
+    rework = (_parse_rework(rework_steps)
+              if disposition == Nonconformance.Disposition.REWORK else [])
+    panel_ids = _parse_panel_ids(scrap_panel_ids)
+    if not (pin or "").strip():
+        raise InvalidInput("Enter your PIN to sign the disposition.")
+    verify_pin(person, pin)
+    with transaction.atomic():
+        ncr = Nonconformance.objects.select_for_update().filter(pk=ncr_id).first()
+        if ncr is None:
+            raise NotFound(f"No nonconformance {ncr_id}.")
+        if ncr.status != Nonconformance.Status.OPEN:
+            raise Conflict(f"{ncr.number} was already dispositioned "
+                           f"({ncr.get_disposition_display().lower()}).")
+        held = (LotStep.objects.select_for_update().get(pk=ncr.lot_step_id)
+                if ncr.lot_step_id else None)
+        lot = Lot.objects.select_for_update().get(pk=ncr.lot_id)
+        detail: dict[str, Any] = {}
+        if disposition == Nonconformance.Disposition.REWORK:
+            detail["rework_steps"] = _insert_rework(ncr, lot, held, rework)
+        elif disposition == Nonconformance.Disposition.SCRAP:
+            detail.update(_scrap(ncr, lot, panel_ids))
+        now = timezone.now()
+        ncr.disposition = disposition
+        ncr.disposition_note = note
+        ncr.dispositioned_at = now
+        ncr.status = Nonconformance.Status.CLOSED
+        content = {"number": ncr.number, "lot": lot.code, "disposition": disposition,
+                   "note": note, **detail}
+        sig = audit.sign(person=person, meaning="dispositioned_by", record_type="ncr",
+                         record_id=ncr.pk, content=content)
+        ncr.disposition_signature = sig
+        ncr.save()
+        holds = list(Hold.objects.select_for_update().filter(ncr=ncr, released_at__isnull=True))
+        Hold.objects.filter(pk__in=[h.pk for h in holds]).update(released_at=now)
+        Alert.objects.filter(
+            Q(hold__in=holds) | Q(ncr=ncr), closed_at__isnull=True
+        ).update(closed_at=now)
+        still_held = Hold.objects.filter(lot=lot, released_at__isnull=True).exists()
+        if lot.on_hold and not still_held:
+            lot.on_hold = False
+            lot.save(update_fields=["on_hold"])
+        audit.record(actor=person.user, action="ncr.dispositioned", object_type="ncr",
+                     object_id=ncr.pk, before={"status": "open"},
+                     after={**content, "signature": sig.pk,
+                            "holds_released": [h.pk for h in holds],
+                            "lot_on_hold": lot.on_hold})
+        return ncr

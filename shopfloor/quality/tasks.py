@@ -1,0 +1,75 @@
+"""Celery tasks of the quality app: thin wrappers that take ids and call one service.
+
+All tasks are idempotent (a row claim or a unique constraint decides who wins), are
+acknowledged late (a worker that dies mid-task gets the message redelivered) and retry
+a bounded number of times with exponential backoff.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import time
+
+from celery import shared_task
+from django.db import InterfaceError, OperationalError
+
+from shopfloor.quality import notify, services
+
+log = logging.getLogger("shopfloor.tasks")
+
+# Fault-injection hook for the worker tests only: seconds to sleep after an event's
+# transaction committed and before the task returns (and the message is acknowledged),
+# so a test can kill the worker in exactly that gap. Unset in every real deployment.
+PAUSE_ENV = "SHOPFLOOR_FAULT_PAUSE_AFTER_EVENT_S"
+
+_DB_ERRORS = (OperationalError, InterfaceError)
+
+
+@shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=5, retry_backoff=True,
+             retry_backoff_max=60, retry_jitter=True)
+def process_event(event_id: int) -> None:
+    outcome = services.handle_event(event_id)
+    pause = os.environ.get(PAUSE_ENV)
+    if pause and outcome.acted:
+        time.sleep(float(pause))
+
+
+@shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
+def relay_outbox() -> dict[str, int]:
+    return services.relay_outbox()
+
+
+@shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
+def check_queue_times() -> dict[str, int]:
+    return services.check_queue_times()
+
+
+@shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
+def check_due_dates() -> dict[str, int]:
+    return services.check_due_dates()
+
+
+@shared_task(acks_late=True, autoretry_for=(*_DB_ERRORS, OSError), max_retries=5,
+             retry_backoff=True, retry_backoff_max=300)
+def notify_alert(alert_id: int) -> bool:
+    return services.notify_alert(alert_id)
+
+
+@shared_task(acks_late=True, autoretry_for=(notify.WebhookFailed,), max_retries=5,
+             retry_backoff=2, retry_backoff_max=300, retry_jitter=True)
+def deliver_webhook(alert_id: int) -> None:
+    services.deliver_webhook(alert_id)
+
+
+@shared_task(acks_late=True)
+def noop(marker: str = "") -> None:
+    """Writes nothing to the database; with a marker it sets a Redis key to the time it
+    ran (the benchmark's reference for a bare task round trip)."""
+    if marker:
+        from django.conf import settings
+
+        if settings.REDIS_URL:
+            import redis
+
+            redis.Redis.from_url(settings.REDIS_URL).set(marker, repr(time.time()), ex=300)

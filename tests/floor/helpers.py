@@ -1,0 +1,85 @@
+"""Helpers for the floor tests: walk a lot along its route through the real services."""
+
+from __future__ import annotations
+
+from shopfloor.floor import services
+from shopfloor.floor.models import LotStep
+from shopfloor.plant.models import Lot, Person
+from tests.factories import PIN
+
+
+def finish_step(person: Person, step: LotStep) -> None:
+    """Start and sign one step, recording in-window readings (each window's middle)."""
+    if step.status != LotStep.Status.IN_PROGRESS:
+        services.start_step(person=person, lot_step_id=step.pk)
+    for m in step.plan:
+        for sample in range(1, int(m.get("samples") or 1) + 1):
+            services.record_reading(
+                person=person, lot_step_id=step.pk,
+                data=services.ReadingInput(quantity=m["quantity"], value=in_window_value(m),
+                                           unit=m["unit"], sample_index=sample),
+            )
+    services.complete_step(person=person, lot_step_id=step.pk, pin=PIN)
+
+
+def in_window_value(m: dict) -> float:
+    lo, hi, target = m.get("min"), m.get("max"), m.get("target")
+    if target is not None:
+        return float(target)
+    if lo is not None and hi is not None:
+        return (lo + hi) / 2
+    if lo is not None:
+        return float(lo) * 1.1 + 1
+    if hi is not None:
+        return float(hi) / 2 if hi > 0 else 0.0
+    return 1.0
+
+
+def out_of_window_value(m: dict) -> float:
+    lo, hi = m.get("min"), m.get("max")
+    if lo is not None and lo > 0:
+        return float(lo) / 2
+    if hi is not None:
+        return float(hi) + 1 + abs(float(hi))
+    raise AssertionError(f"window {m} has no limit to fall outside")
+
+
+def advance_to(lot: Lot, person: Person, want) -> LotStep:
+    """Complete steps in routing order until `want(step)` holds for the current step."""
+    for _ in range(200):  # bounded: a route is far shorter than this
+        step = services.current_step(lot)
+        assert step is not None, "route ended before a matching step"
+        if want(step):
+            return step
+        finish_step(person, step)
+    raise AssertionError("no matching step within 200 steps")
+
+
+def advance_to_measured_step(lot: Lot, person: Person, *, attribute: bool = False) -> LotStep:
+    """The first step with a measurement plan: variable windows by default, or (with
+    attribute=True) one with an attribute count."""
+    def want(step: LotStep) -> bool:
+        return any(bool(m.get("attribute")) == attribute
+                   and (m.get("min") is not None or m.get("max") is not None)
+                   for m in step.plan)
+
+    return advance_to(lot, person, want)
+
+
+def advance_to_code(lot: Lot, person: Person, code: str) -> LotStep:
+    return advance_to(lot, person, lambda step: step.code == code)
+
+
+def park_outbox(monkeypatch) -> list[int]:
+    """Leave outbox events unpublished, as if the broker were down (the relay sends them
+    later). The alert worker has its own tests; here only the floor's side is checked."""
+    from shopfloor.quality import outbox
+
+    parked: list[int] = []
+
+    def publish(event_id: int) -> bool:
+        parked.append(event_id)
+        return False
+
+    monkeypatch.setattr(outbox, "publish", publish)
+    return parked
