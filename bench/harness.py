@@ -37,9 +37,14 @@ started: list[subprocess.Popen[bytes]] = []
 def env(**extra: str) -> dict[str, str]:
     e = dict(os.environ)
     e.update(
-        DATABASE_URL=DATABASE_URL, REDIS_URL=REDIS_URL, DEBUG="0",
-        SECRET_KEY="bench-" + "x" * 60, ALLOWED_HOSTS="127.0.0.1,localhost",
-        SECURE_SSL_REDIRECT="0", BENCH_ENDPOINTS="1", LOG_LEVEL="WARNING",
+        DATABASE_URL=DATABASE_URL,
+        REDIS_URL=REDIS_URL,
+        DEBUG="0",
+        SECRET_KEY="bench-" + "x" * 60,
+        ALLOWED_HOSTS="127.0.0.1,localhost",
+        SECURE_SSL_REDIRECT="0",
+        BENCH_ENDPOINTS="1",
+        LOG_LEVEL="WARNING",
         MAIL_BACKEND="django.core.mail.backends.locmem.EmailBackend",
     )
     e.update(extra)
@@ -47,8 +52,9 @@ def env(**extra: str) -> dict[str, str]:
 
 
 def run(cmd: list[str], **kw: Any) -> str:
-    out = subprocess.run(cmd, cwd=ROOT, env=kw.pop("env", env()), check=True,
-                         capture_output=True, text=True, **kw)
+    out = subprocess.run(
+        cmd, cwd=ROOT, env=kw.pop("env", env()), check=True, capture_output=True, text=True, **kw
+    )
     return out.stdout
 
 
@@ -59,9 +65,10 @@ def free_port() -> int:
 
 
 def start(cmd: list[str], log: str) -> subprocess.Popen[bytes]:
-    fh = open(ROOT / "var" / log, "wb")  # noqa: SIM115 - closed with the process
-    proc = subprocess.Popen(cmd, cwd=ROOT, env=env(), stdout=fh, stderr=subprocess.STDOUT,
-                            start_new_session=True)
+    fh = open(ROOT / "var" / log, "wb")
+    proc = subprocess.Popen(
+        cmd, cwd=ROOT, env=env(), stdout=fh, stderr=subprocess.STDOUT, start_new_session=True
+    )
     started.append(proc)
     return proc
 
@@ -91,10 +98,29 @@ def wait_http(port: int, timeout: float = 30) -> None:
 def wrk(port: int, clients: int, mode: str, token: str, offset: int) -> dict[str, Any]:
     threads = str(min(clients, 2))
     out = subprocess.run(
-        ["wrk", "-t", threads, "-c", str(clients), "-d", f"{SECONDS}s", "--timeout", "10s",
-         "-s", str(ROOT / "bench" / "post.lua"), f"http://127.0.0.1:{port}",
-         "--", mode, token, str(offset), str(NLOTS)],
-        capture_output=True, text=True, check=True, timeout=SECONDS + 60,
+        [
+            "wrk",
+            "-t",
+            threads,
+            "-c",
+            str(clients),
+            "-d",
+            f"{SECONDS}s",
+            "--timeout",
+            "10s",
+            "-s",
+            str(ROOT / "bench" / "post.lua"),
+            f"http://127.0.0.1:{port}",
+            "--",
+            mode,
+            token,
+            str(offset),
+            str(NLOTS),
+        ],
+        capture_output=True,
+        text=True,
+        check=True,
+        timeout=SECONDS + 60,
     ).stdout
     match = re.search(r"WRKJSON (\{.*\})", out)
     if not match:
@@ -103,10 +129,16 @@ def wrk(port: int, clients: int, mode: str, token: str, offset: int) -> dict[str
 
 
 def setup_database() -> str:
-    subprocess.run(["psql", PG + "/postgres", "-qc", f"DROP DATABASE IF EXISTS {DB_NAME}"],
-                   check=True, capture_output=True)
-    subprocess.run(["psql", PG + "/postgres", "-qc", f"CREATE DATABASE {DB_NAME}"],
-                   check=True, capture_output=True)
+    subprocess.run(
+        ["psql", PG + "/postgres", "-qc", f"DROP DATABASE IF EXISTS {DB_NAME}"],
+        check=True,
+        capture_output=True,
+    )
+    subprocess.run(
+        ["psql", PG + "/postgres", "-qc", f"CREATE DATABASE {DB_NAME}"],
+        check=True,
+        capture_output=True,
+    )
     run([PY, "manage.py", "migrate", "--noinput", "-v0"])
     run([PY, "manage.py", "load_demo"], env=env(REDIS_URL=""))
     return run([PY, "bench/seed_ingest.py", str(NLOTS)]).strip().splitlines()[-1]
@@ -115,11 +147,34 @@ def setup_database() -> str:
 def ingest(results: dict[str, Any]) -> None:
     token = setup_database()
     port = free_port()
-    start([str(Path(PY).parent / "gunicorn"), "shopfloor.wsgi:application", "--bind",
-           f"127.0.0.1:{port}", "--workers", "2", "--log-level", "warning"], "bench-web.log")
-    start([str(Path(PY).parent / "celery"), "-A", "shopfloor", "worker", "--pool=solo",
-           "--without-heartbeat", "--without-gossip", "--without-mingle", "-l", "WARNING"],
-          "bench-worker.log")
+    start(
+        [
+            str(Path(PY).parent / "gunicorn"),
+            "shopfloor.wsgi:application",
+            "--bind",
+            f"127.0.0.1:{port}",
+            "--workers",
+            "2",
+            "--log-level",
+            "warning",
+        ],
+        "bench-web.log",
+    )
+    start(
+        [
+            str(Path(PY).parent / "celery"),
+            "-A",
+            "shopfloor",
+            "worker",
+            "--pool=solo",
+            "--without-heartbeat",
+            "--without-gossip",
+            "--without-mingle",
+            "-l",
+            "WARNING",
+        ],
+        "bench-worker.log",
+    )
     wait_http(port)
     wrk(port, 4, "bare", "", 0)  # warm-up: both workers, connection pools
     offset = 1_000_000
@@ -147,8 +202,9 @@ def ingest(results: dict[str, Any]) -> None:
             break
         time.sleep(2)
     results["outbox_unprocessed_after_load"] = left
-    verify = subprocess.run([PY, "manage.py", "audit", "verify"], cwd=ROOT, env=env(),
-                            capture_output=True, text=True)
+    verify = subprocess.run(
+        [PY, "manage.py", "audit", "verify"], cwd=ROOT, env=env(), capture_output=True, text=True
+    )
     results["audit_chain_after_load"] = "intact" if verify.returncode == 0 else verify.stderr
     stop_all()
     started.clear()
@@ -157,8 +213,9 @@ def ingest(results: dict[str, Any]) -> None:
 def sub_bench(module: str) -> dict[str, Any]:
     """Run a bench module's run() in its own process (its own set-up and clean-up)."""
     code = f"import json, bench.{module} as m; print('BENCHJSON ' + json.dumps(m.run()))"
-    out = subprocess.run([PY, "-c", code], cwd=ROOT, env=env(), capture_output=True,
-                         text=True, timeout=900)
+    out = subprocess.run(
+        [PY, "-c", code], cwd=ROOT, env=env(), capture_output=True, text=True, timeout=900
+    )
     match = re.search(r"BENCHJSON (\{.*\})", out.stdout)
     if out.returncode != 0 or not match:
         return {f"{module}_error": (out.stderr or out.stdout)[-2000:]}
@@ -166,22 +223,40 @@ def sub_bench(module: str) -> dict[str, Any]:
 
 
 def write_report(results: dict[str, Any]) -> None:
-    (ROOT / "bench" / "results.json").write_text(json.dumps(results, indent=2, sort_keys=True)
-                                                 + "\n")
+    (ROOT / "bench" / "results.json").write_text(
+        json.dumps(results, indent=2, sort_keys=True) + "\n"
+    )
     goals = [
-        ("ingest ≥ 60 % of bare endpoint at 32 clients", results.get("ingest_ratio_32"),
-         lambda v: v is not None and v >= 0.6),
-        ("alert latency p95 < 1 s", results.get("alert_p95_s"),
-         lambda v: v is not None and v < 1.0),
-        ("board at 2,000 lots < 150 ms", results.get("board_ms_2000"),
-         lambda v: v is not None and v < 150),
-        ("board queries ≤ 15 and equal at 20 and 2,000 lots",
-         (results.get("board_queries_20"), results.get("board_queries_2000")),
-         lambda v: v[0] is not None and v[0] == v[1] and v[1] <= 15),
-        ("lot history with 20,000 readings < 1 s", results.get("history_ms_20000"),
-         lambda v: v is not None and v < 1000),
-        ("24-layer routing build < 20 ms", results.get("routing_ms_24"),
-         lambda v: v is not None and v < 20),
+        (
+            "ingest ≥ 60 % of bare endpoint at 32 clients",
+            results.get("ingest_ratio_32"),
+            lambda v: v is not None and v >= 0.6,
+        ),
+        (
+            "alert latency p95 < 1 s",
+            results.get("alert_p95_s"),
+            lambda v: v is not None and v < 1.0,
+        ),
+        (
+            "board at 2,000 lots < 150 ms",
+            results.get("board_ms_2000"),
+            lambda v: v is not None and v < 150,
+        ),
+        (
+            "board queries ≤ 15 and equal at 20 and 2,000 lots",
+            (results.get("board_queries_20"), results.get("board_queries_2000")),
+            lambda v: v[0] is not None and v[0] == v[1] and v[1] <= 15,
+        ),
+        (
+            "lot history with 20,000 readings < 1 s",
+            results.get("history_ms_20000"),
+            lambda v: v is not None and v < 1000,
+        ),
+        (
+            "24-layer routing build < 20 ms",
+            results.get("routing_ms_24"),
+            lambda v: v is not None and v < 20,
+        ),
     ]
     lines = [
         "# Benchmarks",
@@ -197,9 +272,13 @@ def write_report(results: dict[str, Any]) -> None:
     ]
     for name, value, ok in goals:
         lines.append(f"| {name} | {value} | {'yes' if ok(value) else 'NO'} |")
-    lines += ["", "## Reading ingest (wrk, gunicorn 2 sync workers, PostgreSQL, Redis, 1 worker)",
-              "", "| clients | bare rps | ingest rps | ratio | ingest p50 / p95 / p99 ms |",
-              "|---|---|---|---|---|"]
+    lines += [
+        "",
+        "## Reading ingest (wrk, gunicorn 2 sync workers, PostgreSQL, Redis, 1 worker)",
+        "",
+        "| clients | bare rps | ingest rps | ratio | ingest p50 / p95 / p99 ms |",
+        "|---|---|---|---|---|",
+    ]
     for c in CLIENTS:
         lines.append(
             f"| {c} | {results.get(f'bare_rps_{c}')} | {results.get(f'ingest_rps_{c}')} | "
@@ -218,7 +297,7 @@ def main() -> None:
     results: dict[str, Any] = {
         "date": datetime.now(UTC).strftime("%Y-%m-%d %H:%M UTC"),
         "machine": f"{platform.node()} {platform.machine()} {os.cpu_count()} cores, "
-                   f"Python {platform.python_version()}",
+        f"Python {platform.python_version()}",
     }
     try:
         ingest(results)

@@ -14,7 +14,7 @@ from pathlib import Path
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 os.environ.setdefault("DJANGO_SETTINGS_MODULE", "shopfloor.settings")
 
-import django  # noqa: E402
+import django
 
 django.setup()
 
@@ -27,39 +27,64 @@ from shopfloor.floor.api_auth import hash_token  # noqa: E402
 from shopfloor.floor.models import InstrumentToken, LotStep  # noqa: E402
 from shopfloor.plant.models import Lot, Person, WorkCenter  # noqa: E402
 
-PLAN = [{"quantity": "hole_wall_copper", "unit": "um", "min": 20.0, "max": None,
-         "target": None, "samples": 32000, "source": "benchmark plan (invented)",
-         "attribute": False, "deviation": False}]
+PLAN = [
+    {
+        "quantity": "hole_wall_copper",
+        "unit": "um",
+        "min": 20.0,
+        "max": None,
+        "target": None,
+        "samples": 32000,
+        "source": "benchmark plan (invented)",
+        "attribute": False,
+        "deviation": False,
+    }
+]
 
 
 def main(nlots: int) -> None:
     with connection.cursor() as cursor:
-        cursor.execute("CREATE TABLE IF NOT EXISTS bench_ping (id bigserial primary key, "
-                       "payload text not null, at timestamptz not null default now())")
+        cursor.execute(
+            "CREATE TABLE IF NOT EXISTS bench_ping (id bigserial primary key, "
+            "payload text not null, at timestamptz not null default now())"
+        )
     routing = RoutingRevision.objects.filter(status="released").first()
     assert routing is not None, "load_demo first: the bench lots borrow a released routing"
-    wc, _ = WorkCenter.objects.get_or_create(code="bench_plating",
-                                             defaults={"name": "Bench plating line"})
+    wc, _ = WorkCenter.objects.get_or_create(
+        code="bench_plating", defaults={"name": "Bench plating line"}
+    )
     raw = secrets.token_urlsafe(32)
     with transaction.atomic():
         user, _ = User.objects.get_or_create(username="instrument-bench")
         person, _ = Person.objects.get_or_create(
-            user=user, defaults={"badge_number": "INST-BENCH", "printed_name": "Bench gauge",
-                                 "pin_hash": "!"})
+            user=user,
+            defaults={"badge_number": "INST-BENCH", "printed_name": "Bench gauge", "pin_hash": "!"},
+        )
         person.work_centers.add(wc)
         InstrumentToken.objects.filter(user=user).delete()
-        InstrumentToken.objects.create(name="bench gauge", work_center=wc, user=user,
-                                       key_hash=hash_token(raw))
+        InstrumentToken.objects.create(
+            name="bench gauge", work_center=wc, user=user, key_hash=hash_token(raw)
+        )
         now = timezone.now()
         for k in range(nlots):
             code = f"BENCH-{k:04d}"
             if Lot.objects.filter(code=code).exists():
                 continue
-            lot = Lot.objects.create(code=code, routing_revision=routing,
-                                     status=Lot.Status.IN_PROCESS, started_at=now)
-            LotStep.objects.create(lot=lot, position=10, code="bench_plate", name="Bench plate",
-                                   work_center=wc, plan=PLAN, status=LotStep.Status.IN_PROGRESS,
-                                   arrived_at=now, started_at=now, started_by=person)
+            lot = Lot.objects.create(
+                code=code, routing_revision=routing, status=Lot.Status.IN_PROCESS, started_at=now
+            )
+            LotStep.objects.create(
+                lot=lot,
+                position=10,
+                code="bench_plate",
+                name="Bench plate",
+                work_center=wc,
+                plan=PLAN,
+                status=LotStep.Status.IN_PROGRESS,
+                arrived_at=now,
+                started_at=now,
+                started_by=person,
+            )
     print(raw)
 
 

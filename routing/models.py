@@ -67,7 +67,10 @@ class RoutingRevision(models.Model):
     )
     created_at = models.DateTimeField(default=timezone.now)
     created_by = models.ForeignKey(
-        settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
+        settings.AUTH_USER_MODEL,
+        null=True,
+        blank=True,
+        on_delete=models.PROTECT,
         related_name="+",
     )
     released_at = models.DateTimeField(null=True, blank=True)
@@ -86,10 +89,6 @@ class RoutingRevision(models.Model):
     def __str__(self) -> str:
         return f"{self.part_revision} routing r{self.number} ({self.status})"
 
-    @property
-    def is_released(self) -> bool:
-        return self.status == self.Status.RELEASED
-
     def save(self, *args: Any, **kwargs: Any) -> None:
         if self.pk:
             stored = RoutingRevision.objects.filter(pk=self.pk).values("status").first()
@@ -104,6 +103,10 @@ class RoutingRevision(models.Model):
         if self.is_released:
             raise ReleasedRevisionError("a released routing revision cannot be deleted")
         return super().delete(*args, **kwargs)
+
+    @property
+    def is_released(self) -> bool:
+        return self.status == self.Status.RELEASED
 
 
 class RoutingStep(models.Model):

@@ -13,7 +13,8 @@ from django.utils import timezone
 
 from routing.builder import build as builder
 from routing.builder import overrides as overrides_core
-from routing.builder import render, spec as spec_core
+from routing.builder import render
+from routing.builder import spec as spec_core
 from routing.builder.library import ProcessLibrary
 from routing.models import ProcessLibraryVersion, RoutingRevision, RoutingStep
 from shopfloor.audit import services as audit
@@ -79,8 +80,12 @@ def _override(raw: Any) -> overrides_core.Override:
     if unknown:
         raise ValueError(f"unknown override keys {sorted(unknown)}; allowed: {sorted(allowed)}")
     return overrides_core.Override(
-        quantity=str(raw["quantity"]), step_code=raw.get("step_code"), min=raw.get("min"),
-        max=raw.get("max"), target=raw.get("target"), reason=str(raw.get("reason") or ""),
+        quantity=str(raw["quantity"]),
+        step_code=raw.get("step_code"),
+        min=raw.get("min"),
+        max=raw.get("max"),
+        target=raw.get("target"),
+        reason=str(raw.get("reason") or ""),
         approved_by=raw.get("approved_by"),
     )
 
@@ -109,7 +114,9 @@ def create_draft(
         built = _build(part_revision.build_spec, overrides or [], library)
         previous = (
             RoutingRevision.objects.select_for_update()
-            .filter(part_revision=part_revision).order_by("-number").first()
+            .filter(part_revision=part_revision)
+            .order_by("-number")
+            .first()
         )
         if previous is not None and not reason:
             raise InvalidInput("A new routing revision needs a reason for the change.")
@@ -131,27 +138,46 @@ def create_draft(
         for step in built["steps"]:
             wc = centers.get(step["work_center"])
             if wc is None:
-                wc = WorkCenter.objects.create(code=step["work_center"],
-                                               name=step["work_center"].replace("_", " "))
+                wc = WorkCenter.objects.create(
+                    code=step["work_center"], name=step["work_center"].replace("_", " ")
+                )
                 centers[wc.code] = wc
             RoutingStep.objects.create(
-                revision=revision, seq=step["seq"], code=step["code"], name=step["name"],
-                work_center=wc, instructions=step.get("instructions") or "",
-                parameters=step.get("parameters") or {}, hazard=step.get("hazard") or "",
+                revision=revision,
+                seq=step["seq"],
+                code=step["code"],
+                name=step["name"],
+                work_center=wc,
+                instructions=step.get("instructions") or "",
+                parameters=step.get("parameters") or {},
+                hazard=step.get("hazard") or "",
                 queue_time_limit_minutes=step.get("queue_time_limit_minutes"),
                 standard_minutes=step.get("standard_minutes") or 30,
-                cycle=step.get("cycle"), measurements=step.get("measurements") or [],
+                cycle=step.get("cycle"),
+                measurements=step.get("measurements") or [],
             )
-        audit.record(actor=person.user, action="routing.drafted", object_type="routing_revision",
-                     object_id=revision.pk,
-                     after={"part_revision": str(part_revision), "number": revision.number,
-                            "reason": revision.reason, "steps": len(built["steps"])})
+        audit.record(
+            actor=person.user,
+            action="routing.drafted",
+            object_type="routing_revision",
+            object_id=revision.pk,
+            after={
+                "part_revision": str(part_revision),
+                "number": revision.number,
+                "reason": revision.reason,
+                "steps": len(built["steps"]),
+            },
+        )
         return revision
 
 
 def revision_content(revision: RoutingRevision) -> dict[str, Any]:
-    return {"built": revision.built, "build_spec": revision.build_spec,
-            "overrides": revision.overrides, "number": revision.number}
+    return {
+        "built": revision.built,
+        "build_spec": revision.build_spec,
+        "overrides": revision.overrides,
+        "number": revision.number,
+    }
 
 
 def release(*, person: Person, revision_id: int, pin: str) -> RoutingRevision:
@@ -166,16 +192,26 @@ def release(*, person: Person, revision_id: int, pin: str) -> RoutingRevision:
             raise NotFound(f"No routing revision {revision_id}.")
         if revision.is_released:
             raise Conflict(f"Routing revision r{revision.number} is already released.")
-        sig = audit.sign(person=person, meaning="released_by", record_type="routing_revision",
-                         record_id=revision.pk, content=revision_content(revision))
+        sig = audit.sign(
+            person=person,
+            meaning="released_by",
+            record_type="routing_revision",
+            record_id=revision.pk,
+            content=revision_content(revision),
+        )
         RoutingRevision.objects.filter(pk=revision.pk).update(
-            status=RoutingRevision.Status.RELEASED, released_at=timezone.now(),
+            status=RoutingRevision.Status.RELEASED,
+            released_at=timezone.now(),
             release_signature=sig,
         )
-        audit.record(actor=person.user, action="routing.released",
-                     object_type="routing_revision", object_id=revision.pk,
-                     before={"status": "draft"}, after={"status": "released",
-                                                        "signature": sig.pk})
+        audit.record(
+            actor=person.user,
+            action="routing.released",
+            object_type="routing_revision",
+            object_id=revision.pk,
+            before={"status": "draft"},
+            after={"status": "released", "signature": sig.pk},
+        )
         revision.refresh_from_db()
         return revision
 
@@ -199,11 +235,13 @@ def move_lot(*, person: Person, lot_id: int, revision_id: int, reason: str) -> L
         if LotStep.objects.filter(lot=lot, status=LotStep.Status.IN_PROGRESS).exists():
             raise Conflict("Finish or pause the step in progress before moving the lot.")
         done_codes = set(
-            LotStep.objects.filter(lot=lot, status=LotStep.Status.DONE).values_list("code",
-                                                                                    flat=True)
+            LotStep.objects.filter(lot=lot, status=LotStep.Status.DONE).values_list(
+                "code", flat=True
+            )
         )
-        open_steps = LotStep.objects.filter(lot=lot, status__in=[LotStep.Status.WAITING,
-                                                                  LotStep.Status.PAUSED])
+        open_steps = LotStep.objects.filter(
+            lot=lot, status__in=[LotStep.Status.WAITING, LotStep.Status.PAUSED]
+        )
         skipped = open_steps.update(status=LotStep.Status.SKIPPED)
         last = LotStep.objects.filter(lot=lot).order_by("-position").first()
         position = (last.position if last else 0) + 10
@@ -217,19 +255,34 @@ def move_lot(*, person: Person, lot_id: int, revision_id: int, reason: str) -> L
         old = lot.routing_revision_id
         lot.routing_revision = target
         lot.save(update_fields=["routing_revision"])
-        audit.record(actor=person.user, action="lot.moved_revision", object_type="lot",
-                     object_id=lot.pk, before={"routing_revision": old},
-                     after={"routing_revision": target.pk, "reason": reason,
-                            "skipped_steps": skipped, "added_steps": added})
+        audit.record(
+            actor=person.user,
+            action="lot.moved_revision",
+            object_type="lot",
+            object_id=lot.pk,
+            before={"routing_revision": old},
+            after={
+                "routing_revision": target.pk,
+                "reason": reason,
+                "skipped_steps": skipped,
+                "added_steps": added,
+            },
+        )
         return lot
 
 
 def lot_step_fields(rstep: RoutingStep) -> dict[str, Any]:
     """The snapshot of a routing step that a lot carries with it."""
     return {
-        "code": rstep.code, "name": rstep.name, "work_center_id": rstep.work_center_id,
-        "routing_step": rstep, "cycle": rstep.cycle, "instructions": rstep.instructions,
-        "parameters": rstep.parameters, "plan": rstep.measurements, "hazard": rstep.hazard,
+        "code": rstep.code,
+        "name": rstep.name,
+        "work_center_id": rstep.work_center_id,
+        "routing_step": rstep,
+        "cycle": rstep.cycle,
+        "instructions": rstep.instructions,
+        "parameters": rstep.parameters,
+        "plan": rstep.measurements,
+        "hazard": rstep.hazard,
         "queue_time_limit_minutes": rstep.queue_time_limit_minutes,
         "standard_minutes": rstep.standard_minutes,
     }

@@ -37,7 +37,9 @@ def env_bool(name: str, default: bool) -> bool:
         return True
     if value in _FALSE:
         return False
-    raise ImproperlyConfigured(f"{name}={raw!r} is not a yes/no value; use one of 1, 0, true, false")
+    raise ImproperlyConfigured(
+        f"{name}={raw!r} is not a yes/no value; use one of 1, 0, true, false"
+    )
 
 
 def env_int(name: str, default: int, *, minimum: int | None = None) -> int:

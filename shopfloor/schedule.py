@@ -23,8 +23,9 @@ class DueState(StrEnum):
 DEFAULT_FLOW_FACTOR = 3.0
 
 
-def due_state(now: datetime, due: datetime, remaining_minutes: float,
-              flow_factor: float = DEFAULT_FLOW_FACTOR) -> DueState:
+def due_state(
+    now: datetime, due: datetime, remaining_minutes: float, flow_factor: float = DEFAULT_FLOW_FACTOR
+) -> DueState:
     if now >= due:
         return DueState.LATE
     needed = timedelta(minutes=remaining_minutes * flow_factor)
@@ -43,8 +44,9 @@ class QueueState:
 QUEUE_WARN_FRACTION = 0.8
 
 
-def queue_state(arrived: datetime, now: datetime, limit_minutes: int,
-                warn_fraction: float = QUEUE_WARN_FRACTION) -> QueueState:
+def queue_state(
+    arrived: datetime, now: datetime, limit_minutes: int, warn_fraction: float = QUEUE_WARN_FRACTION
+) -> QueueState:
     waited = (now - arrived).total_seconds() / 60.0
     return QueueState(
         minutes_waited=waited,

@@ -178,12 +178,15 @@ CELERY_BEAT_SCHEDULE = {
 }
 
 # Mail (Django 6.1 MAILERS); alerts go to each work center's notification list.
-_mail_backend = env_str(
-    "MAIL_BACKEND",
-    "django.core.mail.backends.console.EmailBackend"
-    if DEBUG
-    else "django.core.mail.backends.smtp.EmailBackend",
-) or ""
+_mail_backend = (
+    env_str(
+        "MAIL_BACKEND",
+        "django.core.mail.backends.console.EmailBackend"
+        if DEBUG
+        else "django.core.mail.backends.smtp.EmailBackend",
+    )
+    or ""
+)
 _mail_options: dict[str, object] = {}
 if _mail_backend.endswith("smtp.EmailBackend"):
     _mail_options = {

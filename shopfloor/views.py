@@ -25,4 +25,6 @@ def forbidden(request: HttpRequest, exception: Exception | None = None) -> HttpR
 
 
 def not_found(request: HttpRequest, exception: Exception | None = None) -> HttpResponse:
-    return render(request, "404.html", {"reason": "That page or record does not exist."}, status=404)
+    return render(
+        request, "404.html", {"reason": "That page or record does not exist."}, status=404
+    )

@@ -35,7 +35,9 @@ def judge(value: float, low: float | None, high: float | None, unit: str = "") -
         margins.append(high - value)
         if value > high:
             return Judgement(
-                False, "high", high - value,
+                False,
+                "high",
+                high - value,
                 f"{value:g}{suffix} is above the maximum {high:g}{suffix}",
             )
     return Judgement(True, "in", min(margins) if margins else None, "in window")

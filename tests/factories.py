@@ -46,9 +46,14 @@ SPEC_4L_ENIG: dict[str, Any] = {
 }
 
 
-def make_person(role: str | None, badge: str | None = None, name: str | None = None,
-                pin: str = PIN, work_centers: list[WorkCenter] | None = None,
-                qualified_until: dt.date | None = None) -> Person:
+def make_person(
+    role: str | None,
+    badge: str | None = None,
+    name: str | None = None,
+    pin: str = PIN,
+    work_centers: list[WorkCenter] | None = None,
+    qualified_until: dt.date | None = None,
+) -> Person:
     n = next(_seq)
     badge = badge or f"9{n:04d}"
     user = User.objects.create_user(username=f"user{badge}", password=f"pw-{badge}-long")
@@ -61,40 +66,57 @@ def make_person(role: str | None, badge: str | None = None, name: str | None = N
     for wc in work_centers or []:
         person.work_centers.add(wc)
         Qualification.objects.create(
-            person=person, work_center=wc,
+            person=person,
+            work_center=wc,
             valid_until=qualified_until or (timezone.localdate() + dt.timedelta(days=365)),
         )
     return person
 
 
-def make_part_revision(spec: dict[str, Any] | None = None, number: str | None = None) -> PartRevision:
+def make_part_revision(
+    spec: dict[str, Any] | None = None, number: str | None = None
+) -> PartRevision:
     n = next(_seq)
     customer, _ = Customer.objects.get_or_create(code="TST", defaults={"name": "Test Customer"})
     part = Part.objects.create(customer=customer, number=number or f"TP-{n:04d}")
     return PartRevision.objects.create(part=part, revision="A", build_spec=spec or SPEC_4L_ENIG)
 
 
-def release_routing(part_revision: PartRevision, engineer: Person,
-                    overrides: list[dict[str, Any]] | None = None) -> RoutingRevision:
-    draft = routing_services.create_draft(person=engineer, part_revision_id=part_revision.pk,
-                                          reason="test", overrides=overrides)
+def release_routing(
+    part_revision: PartRevision, engineer: Person, overrides: list[dict[str, Any]] | None = None
+) -> RoutingRevision:
+    draft = routing_services.create_draft(
+        person=engineer, part_revision_id=part_revision.pk, reason="test", overrides=overrides
+    )
     return routing_services.release(person=engineer, revision_id=draft.pk, pin=PIN)
 
 
-def make_job(part_revision: PartRevision, routing: RoutingRevision | None = None,
-             due_in_days: int = 10, quantity: int = 100) -> Job:
+def make_job(
+    part_revision: PartRevision,
+    routing: RoutingRevision | None = None,
+    due_in_days: int = 10,
+    quantity: int = 100,
+) -> Job:
     n = next(_seq)
     return Job.objects.create(
-        number=f"J{n:05d}", part_revision=part_revision, quantity=quantity,
+        number=f"J{n:05d}",
+        part_revision=part_revision,
+        quantity=quantity,
         due_date=timezone.localdate() + dt.timedelta(days=due_in_days),
-        ipc_class=part_revision.build_spec.get("ipc_class", 2), routing_revision=routing,
+        ipc_class=part_revision.build_spec.get("ipc_class", 2),
+        routing_revision=routing,
     )
 
 
 def make_lot(routing: RoutingRevision, job: Job, panels: int = 2, code: str | None = None) -> Lot:
     n = next(_seq)
-    return plant_services.create_lot(actor=None, code=code or f"L{n:05d}",
-                                     routing_revision=routing, images=[(job, 4)], panels=panels)
+    return plant_services.create_lot(
+        actor=None,
+        code=code or f"L{n:05d}",
+        routing_revision=routing,
+        images=[(job, 4)],
+        panels=panels,
+    )
 
 
 @dataclass
@@ -113,8 +135,9 @@ def make_floor() -> Floor:
     everywhere = list(centers.values())
     personas = {
         "operator": make_person(Role.OPERATOR, "1001", "Olu Operator", work_centers=everywhere),
-        "supervisor": make_person(Role.SUPERVISOR, "1002", "Sam Supervisor",
-                                  work_centers=everywhere),
+        "supervisor": make_person(
+            Role.SUPERVISOR, "1002", "Sam Supervisor", work_centers=everywhere
+        ),
         "process_engineer": make_person(Role.PROCESS_ENGINEER, "1003", "Pat Engineer"),
         "quality_engineer": make_person(Role.QUALITY_ENGINEER, "1004", "Quinn Quality"),
         "outsider": make_person(None, "1005", "Otto Outsider"),
@@ -125,8 +148,12 @@ def make_floor() -> Floor:
     lot = make_lot(routing, job)
     first_wc = lot.steps.order_by("position").first().work_center
     gauge = Equipment.objects.create(
-        work_center=first_wc, code=f"G-{first_wc.code}", name="Test gauge", is_gauge=True,
+        work_center=first_wc,
+        code=f"G-{first_wc.code}",
+        name="Test gauge",
+        is_gauge=True,
         calibration_due=timezone.localdate() + dt.timedelta(days=90),
     )
-    return Floor(personas=personas, routing=routing, job=job, lot=lot, work_centers=centers,
-                 gauge=gauge)
+    return Floor(
+        personas=personas, routing=routing, job=job, lot=lot, work_centers=centers, gauge=gauge
+    )

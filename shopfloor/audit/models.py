@@ -20,6 +20,9 @@ class AuditHead(models.Model):
     last_seq = models.BigIntegerField(default=0)
     last_hash = models.CharField(max_length=64, default="0" * 64)
 
+    def __str__(self) -> str:
+        return f"audit head #{self.last_seq}"
+
 
 class AuditEntry(models.Model):
     """An append-only record of one change: who, when, what, before and after."""
@@ -72,4 +75,6 @@ class Signature(models.Model):
         indexes = [models.Index(fields=["record_type", "record_id"])]
 
     def __str__(self) -> str:
-        return f"{self.get_meaning_display()} {self.printed_name} at {self.signed_at:%Y-%m-%d %H:%M}Z"
+        return (
+            f"{self.get_meaning_display()} {self.printed_name} at {self.signed_at:%Y-%m-%d %H:%M}Z"
+        )

@@ -112,12 +112,16 @@ def verify_chain() -> ChainReport:
     for entry in AuditEntry.objects.order_by("seq").iterator(chunk_size=2000):
         if entry.seq != expected_seq:
             return ChainReport(
-                False, checked, expected_seq,
+                False,
+                checked,
+                expected_seq,
                 f"entry #{expected_seq} is missing (next stored entry is #{entry.seq})",
             )
         if entry.prev_hash != prev_hash:
             return ChainReport(
-                False, checked, entry.seq,
+                False,
+                checked,
+                entry.seq,
                 f"entry #{entry.seq} does not link to the entry before it",
             )
         if entry_hash(prev_hash, entry_content(entry)) != entry.hash:
@@ -130,7 +134,9 @@ def verify_chain() -> ChainReport:
     head = AuditHead.objects.filter(pk=1).first()
     if head and head.last_seq != checked:
         return ChainReport(
-            False, checked, checked + 1,
+            False,
+            checked,
+            checked + 1,
             f"entries after #{checked} were removed (the trail recorded #{head.last_seq})",
         )
     return ChainReport(True, checked, None, "intact")

@@ -80,8 +80,12 @@ def run(
             refusal = exc
         else:
             IdempotencyRecord.objects.create(
-                user=user, key=key, fingerprint=request_fingerprint, completed=True,
-                status_code=status, body=body,
+                user=user,
+                key=key,
+                fingerprint=request_fingerprint,
+                completed=True,
+                status_code=status,
+                body=body,
             )
     if refusal is not None:
         raise refusal

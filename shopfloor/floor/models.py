@@ -41,7 +41,10 @@ class LotStep(models.Model):
     standard_minutes = models.PositiveIntegerField(default=30)
     is_rework = models.BooleanField(default=False)
     added_by_ncr = models.ForeignKey(
-        "quality.Nonconformance", null=True, blank=True, on_delete=models.PROTECT,
+        "quality.Nonconformance",
+        null=True,
+        blank=True,
+        on_delete=models.PROTECT,
         related_name="rework_steps",
     )
     status = models.CharField(max_length=12, choices=Status.choices, default=Status.WAITING)
@@ -124,9 +127,10 @@ class IdempotencyRecord(models.Model):
     created_at = models.DateTimeField(default=timezone.now)
 
     class Meta:
-        constraints = [
-            models.UniqueConstraint(fields=["user", "key"], name="idempotency_unique")
-        ]
+        constraints = [models.UniqueConstraint(fields=["user", "key"], name="idempotency_unique")]
+
+    def __str__(self) -> str:
+        return f"{self.user_id}:{self.key}"
 
 
 class InstrumentToken(models.Model):

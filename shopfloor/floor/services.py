@@ -79,12 +79,15 @@ def verify_pin(person: Person, pin: str) -> None:
         locked.save(update_fields=fields)
         if locked.locked_at:
             audit.record(
-                actor=locked.user, action="person.locked", object_type="person",
-                object_id=locked.pk, after={"reason": "too many wrong PINs",
-                                            "failures": locked.pin_failures},
+                actor=locked.user,
+                action="person.locked",
+                object_type="person",
+                object_id=locked.pk,
+                after={"reason": "too many wrong PINs", "failures": locked.pin_failures},
             )
-            log.warning("badge %s locked after %s wrong PINs", locked.badge_number,
-                        locked.pin_failures)
+            log.warning(
+                "badge %s locked after %s wrong PINs", locked.badge_number, locked.pin_failures
+            )
     # Raised outside the atomic block so the failure count is kept.
     if locked.locked_at:
         raise NotAllowed("Wrong PIN. This badge is now locked; ask a supervisor to unlock it.")
@@ -100,8 +103,9 @@ def unlock_person(*, by: Person, person_id: int) -> Person:
         person.locked_at = None
         person.pin_failures = 0
         person.save(update_fields=["locked_at", "pin_failures"])
-        audit.record(actor=by.user, action="person.unlocked", object_type="person",
-                     object_id=person.pk)
+        audit.record(
+            actor=by.user, action="person.unlocked", object_type="person", object_id=person.pk
+        )
     return person
 
 
@@ -213,22 +217,33 @@ def start_step(
             lot.status = Lot.Status.IN_PROCESS
             lot.started_at = now
             lot.save(update_fields=["status", "started_at"])
-        audit.record(actor=person.user, action="step.started", object_type="lot_step",
-                     object_id=step.pk, before=before, after=_step_state(step))
+        audit.record(
+            actor=person.user,
+            action="step.started",
+            object_type="lot_step",
+            object_id=step.pk,
+            before=before,
+            after=_step_state(step),
+        )
         return step
 
 
 def pause_step(*, person: Person, lot_step_id: int, reason: str = "") -> LotStep:
     with transaction.atomic():
-        step, lot = _lock_step(lot_step_id)
+        step, _lot = _lock_step(lot_step_id)
         if step.status != LotStep.Status.IN_PROGRESS:
             raise Conflict(f"'{step.name}' is not in progress, so it cannot be paused.")
         before = _step_state(step)
         step.status = LotStep.Status.PAUSED
         step.save(update_fields=["status"])
-        audit.record(actor=person.user, action="step.paused", object_type="lot_step",
-                     object_id=step.pk, before=before, after={**_step_state(step),
-                                                              "reason": reason})
+        audit.record(
+            actor=person.user,
+            action="step.paused",
+            object_type="lot_step",
+            object_id=step.pk,
+            before=before,
+            after={**_step_state(step), "reason": reason},
+        )
         return step
 
 
@@ -293,16 +308,24 @@ def _parse_reading(step: LotStep, data: ReadingInput) -> tuple[dict[str, Any], f
     except (units.UnitError, ValueError) as exc:
         raise InvalidInput(
             str(exc),
-            problems=[{"field": "value", "value": str(data.value), "unit": data.unit,
-                       "problem": str(exc), "allowed": units.allowed_units(data.quantity)}],
+            problems=[
+                {
+                    "field": "value",
+                    "value": str(data.value),
+                    "unit": data.unit,
+                    "problem": str(exc),
+                    "allowed": units.allowed_units(data.quantity),
+                }
+            ],
         ) from exc
     samples = int(window.get("samples") or 1)
     if not isinstance(data.sample_index, int) or not 1 <= data.sample_index <= max(samples, 1):
         raise InvalidInput(
             f"Sample {data.sample_index} is outside the plan: this step takes samples 1 to "
             f"{samples} of {data.quantity}.",
-            problems=[{"field": "sample_index", "value": data.sample_index,
-                       "allowed": f"1..{samples}"}],
+            problems=[
+                {"field": "sample_index", "value": data.sample_index, "allowed": f"1..{samples}"}
+            ],
         )
     now = timezone.now()
     captured = data.captured_at or now
@@ -317,8 +340,9 @@ def _parse_reading(step: LotStep, data: ReadingInput) -> tuple[dict[str, Any], f
     return window, value, captured
 
 
-def record_reading(*, person: Person, lot_step_id: int, data: ReadingInput,
-                   via: str = "tablet") -> Reading:
+def record_reading(
+    *, person: Person, lot_step_id: int, data: ReadingInput, via: str = "tablet"
+) -> Reading:
     """Record one reading on the lot's current step, judge it, and queue the event."""
     with transaction.atomic():
         step, lot = _lock_step(lot_step_id)
@@ -329,11 +353,12 @@ def record_reading(*, person: Person, lot_step_id: int, data: ReadingInput,
         equipment = None
         if data.equipment_id is not None:
             equipment = _usable_equipment(data.equipment_id, step.work_center_id)
-        existing = (
-            Reading.objects.filter(lot_step=step, quantity=data.quantity,
-                                   sample_index=data.sample_index, superseded_by__isnull=True)
-            .first()
-        )
+        existing = Reading.objects.filter(
+            lot_step=step,
+            quantity=data.quantity,
+            sample_index=data.sample_index,
+            superseded_by__isnull=True,
+        ).first()
         if existing is not None:
             # A second value for the same sample is a correction, which needs a reason.
             raise Conflict(
@@ -345,9 +370,17 @@ def record_reading(*, person: Person, lot_step_id: int, data: ReadingInput,
         return reading
 
 
-def _store_reading(step: LotStep, lot: Lot, person: Person, data: ReadingInput,
-                   window: dict[str, Any], value: float, captured: datetime,
-                   equipment: Equipment | None, via: str) -> Reading:
+def _store_reading(
+    step: LotStep,
+    lot: Lot,
+    person: Person,
+    data: ReadingInput,
+    window: dict[str, Any],
+    value: float,
+    captured: datetime,
+    equipment: Equipment | None,
+    via: str,
+) -> Reading:
     judgement = judge_window(value, window)
     reading = Reading.objects.create(
         lot_step=step,
@@ -366,23 +399,44 @@ def _store_reading(step: LotStep, lot: Lot, person: Person, data: ReadingInput,
         via=via,
     )
     audit.record(
-        actor=person.user, action="reading.recorded", object_type="reading",
+        actor=person.user,
+        action="reading.recorded",
+        object_type="reading",
         object_id=reading.pk,
-        after={"lot": lot.code, "step": step.code, "quantity": reading.quantity,
-               "value": value, "unit": reading.unit, "sample": reading.sample_index,
-               "in_window": reading.in_window, "source": window.get("source")},
+        after={
+            "lot": lot.code,
+            "step": step.code,
+            "quantity": reading.quantity,
+            "value": value,
+            "unit": reading.unit,
+            "sample": reading.sample_index,
+            "in_window": reading.in_window,
+            "source": window.get("source"),
+        },
     )
     event = OutboxEvent.objects.create(
         kind="reading.recorded",
-        payload={"reading": reading.pk, "lot": lot.pk, "lot_step": step.pk,
-                 "in_window": judgement.in_window, "message": judgement.message},
+        payload={
+            "reading": reading.pk,
+            "lot": lot.pk,
+            "lot_step": step.pk,
+            "in_window": judgement.in_window,
+            "message": judgement.message,
+        },
     )
     outbox.enqueue(event)
     return reading
 
 
-def correct_reading(*, person: Person, reading_id: int, value: Any, unit: str,
-                    reason: str, captured_at: datetime | None = None) -> Reading:
+def correct_reading(
+    *,
+    person: Person,
+    reading_id: int,
+    value: Any,
+    unit: str,
+    reason: str,
+    captured_at: datetime | None = None,
+) -> Reading:
     """Supersede a reading with a new one; both stay in history with the reason."""
     reason = (reason or "").strip()
     if len(reason) < 3:
@@ -395,26 +449,39 @@ def correct_reading(*, person: Person, reading_id: int, value: Any, unit: str,
             raise Conflict("That reading was already corrected; correct the newest one instead.")
         step, lot = _lock_step(old.lot_step_id)
         _require_workable(step, lot)
-        data = ReadingInput(quantity=old.quantity, value=value, unit=unit,
-                            sample_index=old.sample_index, position=old.position,
-                            equipment_id=old.equipment_id, captured_at=captured_at)
+        data = ReadingInput(
+            quantity=old.quantity,
+            value=value,
+            unit=unit,
+            sample_index=old.sample_index,
+            position=old.position,
+            equipment_id=old.equipment_id,
+            captured_at=captured_at,
+        )
         window, canonical, captured = _parse_reading(step, data)
         equipment = old.equipment
-        new = _store_reading(step, lot, person, data, window, canonical, captured, equipment,
-                             "correction")
+        new = _store_reading(
+            step, lot, person, data, window, canonical, captured, equipment, "correction"
+        )
         old.superseded_by = new
         old.correction_reason = reason[:300]
         old.save(update_fields=["superseded_by", "correction_reason"])
-        audit.record(actor=person.user, action="reading.superseded", object_type="reading",
-                     object_id=old.pk, before={"value": old.value},
-                     after={"superseded_by": new.pk, "value": new.value, "reason": reason})
+        audit.record(
+            actor=person.user,
+            action="reading.superseded",
+            object_type="reading",
+            object_id=old.pk,
+            before={"value": old.value},
+            after={"superseded_by": new.pk, "value": new.value, "reason": reason},
+        )
         return new
 
 
 def _step_content(step: LotStep) -> dict[str, Any]:
     readings = list(
         Reading.objects.filter(lot_step=step, superseded_by__isnull=True)
-        .order_by("pk").values_list("pk", "quantity", "sample_index", "value")
+        .order_by("pk")
+        .values_list("pk", "quantity", "sample_index", "value")
     )
     return {
         "lot": step.lot_id,
@@ -433,8 +500,9 @@ def step_content(step: LotStep) -> dict[str, Any]:
     return _step_content(step)
 
 
-def complete_step(*, person: Person, lot_step_id: int, pin: str,
-                  meaning: str = "performed_by") -> LotStep:
+def complete_step(
+    *, person: Person, lot_step_id: int, pin: str, meaning: str = "performed_by"
+) -> LotStep:
     """Sign off the current step (PIN re-entry) and move the lot to its next step."""
     from shopfloor.audit.models import Signature
 
@@ -460,8 +528,13 @@ def complete_step(*, person: Person, lot_step_id: int, pin: str,
         step.status = LotStep.Status.DONE
         step.completed_at = now
         step.completed_by = person
-        sig = audit.sign(person=person, meaning=meaning, record_type="lot_step",
-                         record_id=step.pk, content=_step_content(step))
+        sig = audit.sign(
+            person=person,
+            meaning=meaning,
+            record_type="lot_step",
+            record_id=step.pk,
+            content=_step_content(step),
+        )
         step.signature = sig
         step.save()
         nxt = current_step(lot)
@@ -472,8 +545,12 @@ def complete_step(*, person: Person, lot_step_id: int, pin: str,
         else:
             nxt.arrived_at = now
             nxt.save(update_fields=["arrived_at"])
-        audit.record(actor=person.user, action="step.completed", object_type="lot_step",
-                     object_id=step.pk, before=before,
-                     after={**_step_state(step), "signature": sig.pk,
-                            "next": nxt.code if nxt else None})
+        audit.record(
+            actor=person.user,
+            action="step.completed",
+            object_type="lot_step",
+            object_id=step.pk,
+            before=before,
+            after={**_step_state(step), "signature": sig.pk, "next": nxt.code if nxt else None},
+        )
         return step

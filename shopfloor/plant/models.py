@@ -7,6 +7,8 @@ badge number and a separately hashed PIN used as the second signing component.
 
 from __future__ import annotations
 
+import datetime
+
 from django.conf import settings
 from django.contrib.auth.hashers import check_password, make_password
 from django.db import models
@@ -109,7 +111,7 @@ class Equipment(models.Model):
     def __str__(self) -> str:
         return f"{self.code} {self.name}"
 
-    def calibration_current(self, on: timezone.datetime | None = None) -> bool:
+    def calibration_current(self, on: datetime.datetime | None = None) -> bool:
         if self.calibration_due is None:
             return not self.is_gauge
         today = timezone.localdate(on) if on else timezone.localdate()
@@ -206,7 +208,10 @@ class Job(models.Model):
         default=list, blank=True, help_text="Customer window overrides (see README)"
     )
     routing_revision = models.ForeignKey(
-        "routing.RoutingRevision", null=True, blank=True, on_delete=models.PROTECT,
+        "routing.RoutingRevision",
+        null=True,
+        blank=True,
+        on_delete=models.PROTECT,
         related_name="jobs",
     )
     created_at = models.DateTimeField(default=timezone.now)
@@ -277,3 +282,6 @@ class PanelImage(models.Model):
 
     class Meta:
         constraints = [models.UniqueConstraint(fields=["panel", "job"], name="panel_image_unique")]
+
+    def __str__(self) -> str:
+        return f"{self.panel_id}: {self.count} x job {self.job_id}"

@@ -35,8 +35,13 @@ def create_lot(
     if not images:
         raise InvalidInput("A lot's panels must carry at least one job's images.")
     with transaction.atomic():
-        lot = Lot.objects.create(code=code, routing_revision=routing_revision, priority=priority,
-                                 split_from=split_from, panel_count=panels)
+        lot = Lot.objects.create(
+            code=code,
+            routing_revision=routing_revision,
+            priority=priority,
+            split_from=split_from,
+            panel_count=panels,
+        )
         for n in range(1, panels + 1):
             panel = Panel.objects.create(serial=f"{code}-P{n:02d}", lot=lot)
             PanelImage.objects.bulk_create(
@@ -49,7 +54,16 @@ def create_lot(
         if steps:
             steps[0].arrived_at = timezone.now()
         LotStep.objects.bulk_create(steps)
-        audit.record(actor=actor, action="lot.created", object_type="lot", object_id=lot.pk,
-                     after={"code": code, "routing_revision": routing_revision.pk,
-                            "panels": panels, "jobs": [j.number for j, _ in images]})
+        audit.record(
+            actor=actor,
+            action="lot.created",
+            object_type="lot",
+            object_id=lot.pk,
+            after={
+                "code": code,
+                "routing_revision": routing_revision.pk,
+                "panels": panels,
+                "jobs": [j.number for j, _ in images],
+            },
+        )
         return lot

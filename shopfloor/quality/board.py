@@ -228,6 +228,11 @@ class BoardColumn:
         return len(self.queued) + len(self.in_work) + len(self.on_hold)
 
     @property
+    def rows(self) -> list[BoardLot]:
+        """Held lots first (they need someone), then the ones in work, then the queue."""
+        return self.on_hold + self.in_work + self.queued
+
+    @property
     def warnings(self) -> int:
         return sum(1 for lot in self.queued if lot.queue_word.isupper())
 
@@ -513,8 +518,7 @@ def move_in_queue(person: Person, work_center_id: int, lot_step_id: int,
     return reorder_queue(person, work_center_id, ids)
 
 
-def release_queue_warning(person: Person, lot_step_id: int, reason: str,
-                          pin: str = "") -> Any:
+def release_queue_warning(person: Person, lot_step_id: int, reason: str) -> Any:
     """Hand a queue-time release to the quality service that owns it (signature + audit)."""
     reason = (reason or "").strip()
     if len(reason) < 3:
@@ -526,4 +530,4 @@ def release_queue_warning(person: Person, lot_step_id: int, reason: str,
     release = getattr(quality_services, "release_queue_warning", None)
     if release is None:
         raise InvalidInput("Releasing queue-time warnings is not available yet on this site.")
-    return release(person=person, lot_step_id=lot_step_id, reason=reason, pin=pin)
+    return release(person, lot_step_id, reason)

@@ -26,6 +26,9 @@ class OutboxEvent(models.Model):
         ordering = ["id"]
         indexes = [models.Index(fields=["processed_at", "created_at"])]
 
+    def __str__(self) -> str:
+        return f"event {self.pk} {self.kind}"
+
 
 class Alert(models.Model):
     """Something a supervisor or quality engineer must see."""
@@ -49,8 +52,9 @@ class Alert(models.Model):
         OutboxEvent, null=True, blank=True, on_delete=models.PROTECT, related_name="alert"
     )
     dedupe_key = models.CharField(max_length=120, unique=True)
-    lot = models.ForeignKey("plant.Lot", null=True, blank=True, on_delete=models.PROTECT,
-                            related_name="alerts")
+    lot = models.ForeignKey(
+        "plant.Lot", null=True, blank=True, on_delete=models.PROTECT, related_name="alerts"
+    )
     lot_step = models.ForeignKey("floor.LotStep", null=True, blank=True, on_delete=models.PROTECT)
     job = models.ForeignKey("plant.Job", null=True, blank=True, on_delete=models.PROTECT)
     reading = models.ForeignKey("floor.Reading", null=True, blank=True, on_delete=models.PROTECT)
@@ -85,8 +89,9 @@ class Nonconformance(models.Model):
     number = models.CharField(max_length=20, unique=True)
     lot = models.ForeignKey("plant.Lot", on_delete=models.PROTECT, related_name="ncrs")
     lot_step = models.ForeignKey("floor.LotStep", null=True, on_delete=models.PROTECT)
-    alert = models.OneToOneField(Alert, null=True, blank=True, on_delete=models.PROTECT,
-                                 related_name="ncr")
+    alert = models.OneToOneField(
+        Alert, null=True, blank=True, on_delete=models.PROTECT, related_name="ncr"
+    )
     readings = models.ManyToManyField("floor.Reading", blank=True, related_name="ncrs")
     description = models.TextField()
     status = models.CharField(max_length=10, choices=Status.choices, default=Status.OPEN)
@@ -97,8 +102,14 @@ class Nonconformance(models.Model):
     disposition_signature = models.OneToOneField(
         "audit.Signature", null=True, blank=True, on_delete=models.PROTECT, related_name="+"
     )
-    scrap_lot = models.ForeignKey("plant.Lot", null=True, blank=True, on_delete=models.PROTECT,
-                                  related_name="+", help_text="The split-off scrapped part")
+    scrap_lot = models.ForeignKey(
+        "plant.Lot",
+        null=True,
+        blank=True,
+        on_delete=models.PROTECT,
+        related_name="+",
+        help_text="The split-off scrapped part",
+    )
 
     class Meta:
         ordering = ["-opened_at"]
@@ -113,16 +124,21 @@ class Hold(models.Model):
 
     lot = models.ForeignKey("plant.Lot", on_delete=models.PROTECT, related_name="holds")
     lot_step = models.ForeignKey("floor.LotStep", null=True, on_delete=models.PROTECT)
-    alert = models.OneToOneField(Alert, null=True, blank=True, on_delete=models.PROTECT,
-                                 related_name="hold")
-    ncr = models.ForeignKey(Nonconformance, null=True, blank=True, on_delete=models.PROTECT,
-                            related_name="holds")
+    alert = models.OneToOneField(
+        Alert, null=True, blank=True, on_delete=models.PROTECT, related_name="hold"
+    )
+    ncr = models.ForeignKey(
+        Nonconformance, null=True, blank=True, on_delete=models.PROTECT, related_name="holds"
+    )
     reason = models.TextField()
     opened_at = models.DateTimeField(default=timezone.now)
     released_at = models.DateTimeField(null=True, blank=True)
 
     class Meta:
         ordering = ["-opened_at"]
+
+    def __str__(self) -> str:
+        return f"hold on lot {self.lot_id} ({'open' if self.released_at is None else 'released'})"
 
 
 class SeriesState(models.Model):
@@ -136,8 +152,9 @@ class SeriesState(models.Model):
     key = models.CharField(max_length=160, unique=True)
     quantity = models.CharField(max_length=40)
     work_center = models.ForeignKey("plant.WorkCenter", on_delete=models.PROTECT)
-    equipment = models.ForeignKey("plant.Equipment", null=True, blank=True,
-                                  on_delete=models.PROTECT)
+    equipment = models.ForeignKey(
+        "plant.Equipment", null=True, blank=True, on_delete=models.PROTECT
+    )
     chart = models.CharField(max_length=12, default="individuals")
     baseline_size = models.PositiveIntegerField(default=25)
     baseline = models.JSONField(default=list, blank=True)

@@ -101,8 +101,7 @@ def queue_move(request: HttpRequest, scope: Scope, work_center_id: int) -> HttpR
 @require_POST
 @reader
 def queue_release(request: HttpRequest, scope: Scope, lot_step_id: int) -> HttpResponse:
-    board.release_queue_warning(scope.person, lot_step_id, request.POST.get("reason", ""),
-                                request.POST.get("pin", ""))
+    board.release_queue_warning(scope.person, lot_step_id, request.POST.get("reason", ""))
     return redirect(reverse("quality:board") + _back_query(request))
 
 

@@ -112,21 +112,25 @@ class Command(BaseCommand):
             person = Person.objects.filter(badge_number=p["badge"]).first()
             if person is None:
                 user = User.objects.create_user(
-                    username=f"badge{p['badge']}", password=None,
-                    first_name=p["name"].split()[0], last_name=p["name"].split()[-1],
+                    username=f"badge{p['badge']}",
+                    password=None,
+                    first_name=p["name"].split()[0],
+                    last_name=p["name"].split()[-1],
                 )
                 user.groups.add(Group.objects.get(name=p["role"]))
                 person = Person(user=user, badge_number=p["badge"], printed_name=p["name"])
                 person.set_pin(data["pin"])
                 person.save()
                 centers = (
-                    all_centers if p["work_centers"] == "*"
+                    all_centers
+                    if p["work_centers"] == "*"
                     else [wc for wc in all_centers if wc.code in p["work_centers"]]
                 )
                 person.work_centers.add(*centers)
                 for wc in centers:
                     Qualification.objects.get_or_create(
-                        person=person, work_center=wc,
+                        person=person,
+                        work_center=wc,
                         defaults={"valid_until": timezone.localdate() + dt.timedelta(days=365)},
                     )
             people[p["badge"]] = person
@@ -139,58 +143,82 @@ class Command(BaseCommand):
             wc = WorkCenter.objects.filter(code=e["work_center"]).first()
             if wc is None:
                 continue
-            due = timezone.localdate() + dt.timedelta(days=e["cal_days"]) if e.get("gauge") else None
+            due = (
+                timezone.localdate() + dt.timedelta(days=e["cal_days"]) if e.get("gauge") else None
+            )
             Equipment.objects.get_or_create(
                 code=e["code"],
-                defaults={"work_center": wc, "name": e["name"], "is_gauge": e.get("gauge", False),
-                          "calibration_due": due},
+                defaults={
+                    "work_center": wc,
+                    "name": e["name"],
+                    "is_gauge": e.get("gauge", False),
+                    "calibration_due": due,
+                },
             )
         for m in data["material_lots"]:
             MaterialLot.objects.get_or_create(
-                code=m["code"], defaults={"kind": m["kind"], "description": m["description"],
-                                          "received_on": timezone.localdate() - dt.timedelta(days=20)},
+                code=m["code"],
+                defaults={
+                    "kind": m["kind"],
+                    "description": m["description"],
+                    "received_on": timezone.localdate() - dt.timedelta(days=20),
+                },
             )
 
     def _routings(self, data: dict[str, Any], engineer: Person) -> dict[str, RoutingRevision]:
         routings: dict[str, RoutingRevision] = {}
         for p in data["parts"]:
-            customer, _ = Customer.objects.get_or_create(code=p["customer"],
-                                                         defaults={"name": p["customer"]})
+            customer, _ = Customer.objects.get_or_create(
+                code=p["customer"], defaults={"name": p["customer"]}
+            )
             for c in data["customers"]:
                 Customer.objects.filter(code=c["code"]).update(name=c["name"])
-            part, _ = Part.objects.get_or_create(customer=customer, number=p["number"],
-                                                 defaults={"description": p["description"]})
+            part, _ = Part.objects.get_or_create(
+                customer=customer, number=p["number"], defaults={"description": p["description"]}
+            )
             part_revision, _ = PartRevision.objects.get_or_create(
                 part=part, revision=p["revision"], defaults={"build_spec": p["spec"]}
             )
             released = (
-                RoutingRevision.objects.filter(part_revision=part_revision,
-                                               status=RoutingRevision.Status.RELEASED)
-                .order_by("-number").first()
+                RoutingRevision.objects.filter(
+                    part_revision=part_revision, status=RoutingRevision.Status.RELEASED
+                )
+                .order_by("-number")
+                .first()
             )
             if released is None:
                 draft = routing_services.create_draft(
                     person=engineer, part_revision_id=part_revision.pk, reason="first routing"
                 )
-                released = routing_services.release(person=engineer, revision_id=draft.pk,
-                                                    pin=data["pin"])
+                released = routing_services.release(
+                    person=engineer, revision_id=draft.pk, pin=data["pin"]
+                )
             routings[p["number"]] = released
         return routings
 
     # -- jobs and lots ----------------------------------------------------------------
 
-    def _job(self, j: dict[str, Any], routings: dict[str, RoutingRevision], operator: Person,
-             pin: str) -> None:
+    def _job(
+        self, j: dict[str, Any], routings: dict[str, RoutingRevision], operator: Person, pin: str
+    ) -> None:
         routing = routings[j["part"]]
         with transaction.atomic():
             job = Job.objects.create(
-                number=j["number"], part_revision=routing.part_revision, quantity=j["quantity"],
+                number=j["number"],
+                part_revision=routing.part_revision,
+                quantity=j["quantity"],
                 due_date=timezone.localdate() + dt.timedelta(days=j["due_days"]),
-                ipc_class=routing.ipc_class, routing_revision=routing,
+                ipc_class=routing.ipc_class,
+                routing_revision=routing,
                 customer_spec_notes=j.get("note", ""),
             )
-            lot = plant.create_lot(actor=operator.user, code=j["lot"], routing_revision=routing,
-                                   images=[(job, 6)], panels=j["panels"])
+            lot = plant.create_lot(
+                actor=operator.user,
+                code=j["lot"],
+                routing_revision=routing,
+                images=[(job, 6)],
+                panels=j["panels"],
+            )
         materials = list(MaterialLot.objects.order_by("code").values_list("pk", flat=True)[:3])
         for _ in range(j["advance"]):
             step = floor.current_step(lot)
@@ -199,15 +227,21 @@ class Command(BaseCommand):
             if j.get("hold") and step.plan:
                 self._hold(lot, step, operator)
                 return
-            floor.start_step(person=operator, lot_step_id=step.pk,
-                             material_lot_ids=materials if step.code.startswith("layup") else None)
+            floor.start_step(
+                person=operator,
+                lot_step_id=step.pk,
+                material_lot_ids=materials if step.code.startswith("layup") else None,
+            )
             for window in step.plan:
                 for sample in range(1, int(window.get("samples") or 1) + 1):
                     floor.record_reading(
-                        person=operator, lot_step_id=step.pk,
+                        person=operator,
+                        lot_step_id=step.pk,
                         data=floor.ReadingInput(
-                            quantity=window["quantity"], value=in_window_value(window, sample),
-                            unit=window["unit"], sample_index=sample,
+                            quantity=window["quantity"],
+                            value=in_window_value(window, sample),
+                            unit=window["unit"],
+                            sample_index=sample,
                             position=f"coupon {sample}",
                         ),
                     )
@@ -227,8 +261,13 @@ class Command(BaseCommand):
         floor.start_step(person=operator, lot_step_id=step.pk)
         window = step.plan[0]
         floor.record_reading(
-            person=operator, lot_step_id=step.pk,
-            data=floor.ReadingInput(quantity=window["quantity"],
-                                    value=out_of_window_value(window), unit=window["unit"],
-                                    sample_index=1, position="coupon 1"),
+            person=operator,
+            lot_step_id=step.pk,
+            data=floor.ReadingInput(
+                quantity=window["quantity"],
+                value=out_of_window_value(window),
+                unit=window["unit"],
+                sample_index=1,
+                position="coupon 1",
+            ),
         )

@@ -1,0 +1,61 @@
+"""The alert webhook is signed with HMAC-SHA256 of the exact body (RFC 2104; the digest
+is checked here with Python's hmac module, independent of the code under test)."""
+
+from __future__ import annotations
+
+import hashlib
+import hmac
+import json
+import threading
+from http.server import BaseHTTPRequestHandler, HTTPServer
+
+import pytest
+
+from shopfloor.quality import services
+from shopfloor.quality.models import Alert
+from tests.worker import floorkit as kit
+
+pytestmark = pytest.mark.django_db
+
+
+@pytest.fixture
+def receiver():
+    received: list[tuple[dict[str, str], bytes]] = []
+
+    class Handler(BaseHTTPRequestHandler):
+        def do_POST(self):  # noqa: N802
+            body = self.rfile.read(int(self.headers["Content-Length"]))
+            received.append((dict(self.headers), body))
+            self.send_response(204)
+            self.end_headers()
+
+        def log_message(self, *args):
+            pass
+
+    server = HTTPServer(("127.0.0.1", 0), Handler)
+    thread = threading.Thread(target=server.serve_forever, daemon=True)
+    thread.start()
+    yield f"http://127.0.0.1:{server.server_port}/hook", received
+    server.shutdown()
+    server.server_close()
+
+
+def test_webhook_signed_and_sent_once(floor, settings, receiver):
+    url, received = receiver
+    settings.ALERT_WEBHOOK_URL = url
+    settings.ALERT_WEBHOOK_SECRET = "shared-secret-for-test"
+    step = kit.start_at(floor, floor.lot)
+    services.handle_event(kit.event_for(kit.record(floor, step, "hole_wall_copper", 15.0)).pk)
+    alert = Alert.objects.get()
+
+    services.notify_alert(alert.pk)
+    services.notify_alert(alert.pk)
+
+    assert len(received) == 1
+    headers, body = received[0]
+    expected = hmac.new(b"shared-secret-for-test", body, hashlib.sha256).hexdigest()
+    assert headers["X-Signature-SHA256"] == expected
+    assert headers["X-Alert-Id"] == str(alert.pk)
+    payload = json.loads(body)
+    assert payload["id"] == alert.pk and payload["lot"] == floor.lot.code
+    assert payload["severity"] == "critical"  # 5 um below a 20 um minimum (> 10 %)
