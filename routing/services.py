@@ -101,9 +101,25 @@ def create_draft(
     part_revision_id: int,
     reason: str,
     overrides: list[dict[str, Any]] | None = None,
+    deviation_pin: str | None = None,
 ) -> RoutingRevision:
-    """Build and store a draft routing revision for a part revision's build spec."""
+    """Build and store a draft routing revision for a part revision's build spec.
+
+    Customer overrides tighter than the default are free. A looser one is a deviation:
+    it needs this process engineer's PIN (`deviation_pin`), which records an e-signature
+    "deviation approved by" bound to the revision, and the window is marked as a deviation.
+    """
     _require_role(person, "process_engineer", "create routing revisions")
+    overrides = [dict(o) if isinstance(o, dict) else o for o in (overrides or [])]
+    approving = bool(overrides and deviation_pin)
+    if approving:
+        from shopfloor.floor.services import verify_pin
+
+        verify_pin(person, deviation_pin or "")
+        approver = f"{person.printed_name} ({person.badge_number})"
+        overrides = [
+            {**o, "approved_by": approver} if isinstance(o, dict) else o for o in overrides
+        ]
     reason = (reason or "").strip()
     part_revision = PartRevision.objects.filter(pk=part_revision_id).first()
     if part_revision is None:
@@ -155,6 +171,20 @@ def create_draft(
                 standard_minutes=step.get("standard_minutes") or 30,
                 cycle=step.get("cycle"),
                 measurements=step.get("measurements") or [],
+            )
+        deviations = [
+            f"{step['code']}:{m['quantity']}"
+            for step in built["steps"]
+            for m in step.get("measurements", [])
+            if m.get("deviation")
+        ]
+        if deviations and approving:
+            audit.sign(
+                person=person,
+                meaning="deviation_approved_by",
+                record_type="routing_revision",
+                record_id=revision.pk,
+                content={"overrides": overrides, "deviations": deviations},
             )
         audit.record(
             actor=person.user,

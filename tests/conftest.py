@@ -15,6 +15,13 @@ from tests import factories
 
 
 def pytest_configure(config: pytest.Config) -> None:
+    # Password hashing cost is a production concern; tests create many users. The PIN
+    # hasher stays the real one so stored PINs verify the same way in worker processes.
+    settings.PASSWORD_HASHERS = [
+        "django.contrib.auth.hashers.MD5PasswordHasher",
+        "shopfloor.plant.hashers.PinHasher",
+        "django.contrib.auth.hashers.PBKDF2PasswordHasher",
+    ]
     if os.environ.get("CI", "").lower() == "true":
         engine = settings.DATABASES["default"]["ENGINE"]
         if "postgresql" not in engine:

@@ -157,3 +157,16 @@ def make_floor() -> Floor:
     return Floor(
         personas=personas, routing=routing, job=job, lot=lot, work_centers=centers, gauge=gauge
     )
+
+
+def release_routing_from(
+    part_revision: PartRevision, engineer: Person, overrides: list[dict[str, Any]] | None = None
+) -> RoutingRevision:
+    """A new released revision for a part revision that already has one."""
+    draft = routing_services.create_draft(
+        person=engineer,
+        part_revision_id=part_revision.pk,
+        reason="test change",
+        overrides=overrides,
+    )
+    return routing_services.release(person=engineer, revision_id=draft.pk, pin=PIN)

@@ -44,7 +44,10 @@ def scope_for(user: Any) -> Scope:
     """The read scope of a signed-in user; NotAllowed (403) with the reason otherwise."""
     if user is None or not getattr(user, "is_authenticated", False):
         raise NotAllowed("Sign in with your badge to see the board and quality records.")
-    person = Person.objects.filter(user=user).first()
+    try:
+        person = user.person  # cached on the user, so templates reuse it without a query
+    except Person.DoesNotExist:
+        person = None
     if person is None:
         raise NotAllowed(
             "This account has no badge on file, so it cannot see shop-floor records. "

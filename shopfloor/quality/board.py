@@ -420,7 +420,7 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
     finishes = sorted(
         {
             str(f) for f in Lot.objects.filter(status__in=ACTIVE_LOT)
-            .values_list("routing_revision__build_spec__finish", flat=True).distinct()
+            .order_by().values_list("routing_revision__build_spec__finish", flat=True).distinct()
             if f
         }
     )

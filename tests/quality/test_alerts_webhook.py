@@ -25,7 +25,7 @@ def receiver():
     class Handler(BaseHTTPRequestHandler):
         def do_POST(self):  # noqa: N802
             body = self.rfile.read(int(self.headers["Content-Length"]))
-            received.append((dict(self.headers), body))
+            received.append(({k.lower(): v for k, v in self.headers.items()}, body))
             self.send_response(204)
             self.end_headers()
 
@@ -54,8 +54,8 @@ def test_webhook_signed_and_sent_once(floor, settings, receiver):
     assert len(received) == 1
     headers, body = received[0]
     expected = hmac.new(b"shared-secret-for-test", body, hashlib.sha256).hexdigest()
-    assert headers["X-Signature-SHA256"] == expected
-    assert headers["X-Alert-Id"] == str(alert.pk)
+    assert headers["x-signature-sha256"] == expected
+    assert headers["x-alert-id"] == str(alert.pk)
     payload = json.loads(body)
     assert payload["id"] == alert.pk and payload["lot"] == floor.lot.code
     assert payload["severity"] == "critical"  # 5 um below a 20 um minimum (> 10 %)
