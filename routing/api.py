@@ -36,16 +36,28 @@ def split_preview_body(data: Any) -> tuple[Any, list[dict[str, Any]]]:
         if not isinstance(overrides, list) or not all(isinstance(o, dict) for o in overrides):
             raise InvalidInput(
                 "overrides must be a list of objects.",
-                problems=[{"field": "overrides", "value": None,
-                           "problem": "not a list of objects",
-                           "allowed": "[{quantity, step_code, min, max, target, reason}]"}],
+                problems=[
+                    {
+                        "field": "overrides",
+                        "value": None,
+                        "problem": "not a list of objects",
+                        "allowed": "[{quantity, step_code, min, max, target, reason}]",
+                    }
+                ],
             )
         unknown = sorted(set(data) - {"spec", "overrides"})
         if unknown:
             raise InvalidInput(
                 f"Unknown key(s) beside spec: {', '.join(unknown)}.",
-                problems=[{"field": k, "value": None, "problem": "unknown key",
-                           "allowed": ["spec", "overrides"]} for k in unknown],
+                problems=[
+                    {
+                        "field": k,
+                        "value": None,
+                        "problem": "unknown key",
+                        "allowed": ["spec", "overrides"],
+                    }
+                    for k in unknown
+                ],
             )
         return data["spec"], overrides
     return data, []
@@ -58,7 +70,7 @@ class PreviewView(JsonAPIView):
         operation_id="routing_preview",
         summary="Preview the routing a build spec would get (nothing is saved)",
         description=(
-            "Send the build spec itself, or {\"spec\": ..., \"overrides\": [...]}. A bad spec "
+            'Send the build spec itself, or {"spec": ..., "overrides": [...]}. A bad spec '
             "gets 400 with every problem listed (field, value, problem, allowed)."
         ),
         request=PreviewRequestSerializer,
@@ -68,8 +80,7 @@ class PreviewView(JsonAPIView):
             **READ_ERRORS,
             415: error("Send the body as application/json"),
         },
-        examples=[OpenApiExample("4-layer ENIG", value={"spec": EXAMPLE_SPEC},
-                                 request_only=True)],
+        examples=[OpenApiExample("4-layer ENIG", value={"spec": EXAMPLE_SPEC}, request_only=True)],
     )
     def post(self, request: Request) -> Response:
         spec, overrides = split_preview_body(request.data)

@@ -47,7 +47,8 @@ class PreviewRequestSerializer(serializers.Serializer):
 
     spec = BuildSpecField()
     overrides = serializers.ListField(
-        child=serializers.DictField(), required=False,
+        child=serializers.DictField(),
+        required=False,
         help_text="Customer window overrides: quantity, step_code, min, max, target, reason",
     )
 
@@ -59,8 +60,9 @@ class PreviewStepSerializer(serializers.Serializer):
     work_center = serializers.CharField()
     instructions = serializers.CharField(allow_blank=True)
     parameters = serializers.DictField()
-    hazard = serializers.CharField(allow_null=True, allow_blank=True,
-                                   help_text="Caution text; defer to site safety procedures")
+    hazard = serializers.CharField(
+        allow_null=True, allow_blank=True, help_text="Caution text; defer to site safety procedures"
+    )
     queue_time_limit_minutes = serializers.IntegerField(allow_null=True)
     standard_minutes = serializers.IntegerField()
     cycle = serializers.IntegerField(allow_null=True)

@@ -1,5 +1,15 @@
-"""Engineering pages: enter a build spec, preview, release, diff."""
+"""Engineering pages: enter a build spec, preview, draft, release, diff."""
+
+from django.urls import path
+
+from routing import views
 
 app_name = "routing"
 
-urlpatterns: list = []
+urlpatterns = [
+    path("", views.index, name="index"),
+    path("preview/", views.preview, name="preview"),
+    path("part-revisions/<int:part_revision_id>/draft/", views.create_draft, name="draft"),
+    path("revisions/<int:pk>/", views.revision, name="revision"),
+    path("revisions/<int:pk>/release/", views.release, name="release"),
+]

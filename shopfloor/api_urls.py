@@ -8,12 +8,16 @@ from shopfloor.floor import api as floor_api
 urlpatterns = [
     path("routing/preview/", routing_api.PreviewView.as_view(), name="api-routing-preview"),
     path("readings/", floor_api.ReadingCreateView.as_view(), name="api-readings"),
-    path("readings/<int:pk>/correct/", floor_api.ReadingCorrectView.as_view(),
-         name="api-reading-correct"),
+    path(
+        "readings/<int:pk>/correct/",
+        floor_api.ReadingCorrectView.as_view(),
+        name="api-reading-correct",
+    ),
     path("steps/<int:pk>/start/", floor_api.StepStartView.as_view(), name="api-step-start"),
     path("steps/<int:pk>/pause/", floor_api.StepPauseView.as_view(), name="api-step-pause"),
-    path("steps/<int:pk>/complete/", floor_api.StepCompleteView.as_view(),
-         name="api-step-complete"),
+    path(
+        "steps/<int:pk>/complete/", floor_api.StepCompleteView.as_view(), name="api-step-complete"
+    ),
     path("lots/<str:code>/", floor_api.LotStatusView.as_view(), name="api-lot"),
     path("lots/<str:code>/windows/", floor_api.LotWindowsView.as_view(), name="api-lot-windows"),
 ]

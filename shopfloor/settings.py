@@ -164,8 +164,15 @@ CELERY_TASK_ACKS_LATE = True
 CELERY_TASK_REJECT_ON_WORKER_LOST = True
 CELERY_WORKER_PREFETCH_MULTIPLIER = 1
 CELERY_BROKER_CONNECTION_RETRY_ON_STARTUP = True
-CELERY_BROKER_TRANSPORT_OPTIONS = {"visibility_timeout": env_int("CELERY_VISIBILITY_TIMEOUT", 300)}
+# Redis redelivers a task nobody acknowledged after visibility_timeout; kombu sweeps for
+# such messages every unacked_restore_interval seconds (lower them only for fault tests).
+CELERY_BROKER_TRANSPORT_OPTIONS = {
+    "visibility_timeout": env_int("CELERY_VISIBILITY_TIMEOUT", 300, minimum=1),
+    "unacked_restore_interval": env_int("CELERY_UNACKED_RESTORE_INTERVAL", 100, minimum=1),
+}
 CELERY_DB_REUSE_MAX = 200
+# The relay re-publishes an event published this long ago but still not processed.
+OUTBOX_REPUBLISH_AFTER_SECONDS = env_int("OUTBOX_REPUBLISH_AFTER_SECONDS", 120, minimum=5)
 BENCH_ENDPOINTS = env_bool("BENCH_ENDPOINTS", False)  # bench/run only
 OUTBOX_RELAY_SECONDS = env_int("OUTBOX_RELAY_SECONDS", 15, minimum=1)
 CELERY_BEAT_SCHEDULE = {

@@ -47,6 +47,7 @@ from shopfloor.floor.serializers import (
     window_dict,
 )
 
+
 class InstrumentTokenScheme(OpenApiAuthenticationExtension):  # type: ignore[no-untyped-call]
     """Documents the instrument token header (the class lives in floor.api_auth)."""
 
@@ -66,7 +67,10 @@ class InstrumentTokenScheme(OpenApiAuthenticationExtension):  # type: ignore[no-
 # --- shared by every API view (routing/api.py uses these too) ------------------------
 
 IDEMPOTENCY_KEY = OpenApiParameter(
-    "Idempotency-Key", OpenApiTypes.STR, OpenApiParameter.HEADER, required=False,
+    "Idempotency-Key",
+    OpenApiTypes.STR,
+    OpenApiParameter.HEADER,
+    required=False,
     description=(
         "Any unique text up to 100 characters. A repeat with the same key and body gets the "
         "stored reply (header Idempotent-Replay: true) and records nothing; the same key "
@@ -74,7 +78,10 @@ IDEMPOTENCY_KEY = OpenApiParameter(
     ),
 )
 REPLAY_HEADER = OpenApiParameter(
-    "Idempotent-Replay", OpenApiTypes.STR, OpenApiParameter.HEADER, response=True,
+    "Idempotent-Replay",
+    OpenApiTypes.STR,
+    OpenApiParameter.HEADER,
+    response=True,
     description="'true' when this reply is the stored reply of an earlier identical request",
 )
 
@@ -105,8 +112,14 @@ def problems_from(errors: Any, data: Any, prefix: str = "") -> list[dict[str, An
             if isinstance(message, dict | list):
                 problems += problems_from(message, data, prefix)
             else:
-                problems.append({"field": prefix or "body", "value": None,
-                                 "problem": str(message), "allowed": None})
+                problems.append(
+                    {
+                        "field": prefix or "body",
+                        "value": None,
+                        "problem": str(message),
+                        "allowed": None,
+                    }
+                )
         return problems
     for field, messages in errors.items():
         name = "body" if field == "non_field_errors" else field
@@ -119,8 +132,14 @@ def problems_from(errors: Any, data: Any, prefix: str = "") -> list[dict[str, An
             if isinstance(message, dict | list):
                 problems += problems_from(message, value, path)
             else:
-                problems.append({"field": path, "value": _json_safe(value),
-                                 "problem": str(message), "allowed": None})
+                problems.append(
+                    {
+                        "field": path,
+                        "value": _json_safe(value),
+                        "problem": str(message),
+                        "allowed": None,
+                    }
+                )
     return problems
 
 
@@ -149,8 +168,9 @@ def idempotent(request: Request, action: Callable[[], tuple[int, Any]]) -> Respo
     outcome = idempotency.run(
         user=request.user,
         key=request.headers.get("Idempotency-Key"),
-        request_fingerprint=idempotency.fingerprint(request.method or "POST", request.path,
-                                                    request.data),
+        request_fingerprint=idempotency.fingerprint(
+            request.method or "POST", request.path, request.data
+        ),
         action=stored_action,
     )
     response = Response(outcome.body, status=outcome.status)
@@ -188,15 +208,20 @@ class ReadingCreateView(JsonAPIView):
         lot = services.find_lot(data["lot"])
         step = access_lot_step(request, lot, data.get("step"))
         reading_input = services.ReadingInput(
-            quantity=data["quantity"], value=data["value"], unit=data["unit"],
-            sample_index=data["sample_index"], position=data.get("position") or "",
-            equipment_id=data.get("equipment"), captured_at=data.get("captured_at"),
+            quantity=data["quantity"],
+            value=data["value"],
+            unit=data["unit"],
+            sample_index=data["sample_index"],
+            position=data.get("position") or "",
+            equipment_id=data.get("equipment"),
+            captured_at=data.get("captured_at"),
         )
         via = "instrument" if is_instrument(request) else "api"
 
         def action() -> tuple[int, Any]:
-            reading = services.record_reading(person=person, lot_step_id=step.pk,
-                                              data=reading_input, via=via)
+            reading = services.record_reading(
+                person=person, lot_step_id=step.pk, data=reading_input, via=via
+            )
             return 201, ReadingSerializer(reading).data
 
         return idempotent(request, action)
@@ -219,10 +244,14 @@ class ReadingCorrectView(JsonAPIView):
         reading = access_reading(request, pk)
 
         def action() -> tuple[int, Any]:
-            new = services.correct_reading(person=person, reading_id=reading.pk,
-                                           value=data["value"], unit=data["unit"],
-                                           reason=data["reason"],
-                                           captured_at=data.get("captured_at"))
+            new = services.correct_reading(
+                person=person,
+                reading_id=reading.pk,
+                value=data["value"],
+                unit=data["unit"],
+                reason=data["reason"],
+                captured_at=data.get("captured_at"),
+            )
             return 201, ReadingSerializer(new).data
 
         return idempotent(request, action)
@@ -250,9 +279,12 @@ class StepStartView(JsonAPIView):
         step = access_step(request, pk)
 
         def action() -> tuple[int, Any]:
-            done = services.start_step(person=person, lot_step_id=step.pk,
-                                       equipment_id=data.get("equipment"),
-                                       material_lot_ids=data.get("material_lots"))
+            done = services.start_step(
+                person=person,
+                lot_step_id=step.pk,
+                equipment_id=data.get("equipment"),
+                material_lot_ids=data.get("material_lots"),
+            )
             return 200, LotStepSerializer(done).data
 
         return idempotent(request, action)
@@ -268,8 +300,9 @@ class StepPauseView(JsonAPIView):
         step = access_step(request, pk)
 
         def action() -> tuple[int, Any]:
-            done = services.pause_step(person=person, lot_step_id=step.pk,
-                                       reason=data.get("reason") or "")
+            done = services.pause_step(
+                person=person, lot_step_id=step.pk, reason=data.get("reason") or ""
+            )
             return 200, LotStepSerializer(done).data
 
         return idempotent(request, action)
@@ -285,8 +318,9 @@ class StepCompleteView(JsonAPIView):
         step = access_step(request, pk)
 
         def action() -> tuple[int, Any]:
-            done = services.complete_step(person=person, lot_step_id=step.pk, pin=data["pin"],
-                                          meaning=data["meaning"])
+            done = services.complete_step(
+                person=person, lot_step_id=step.pk, pin=data["pin"], meaning=data["meaning"]
+            )
             return 200, LotStepSerializer(done).data
 
         return idempotent(request, action)
@@ -304,8 +338,11 @@ class LotStatusView(APIView):
     )
     def get(self, request: Request, code: str) -> Response:
         lot = services.find_lot(code)
-        steps = list(lot.steps.select_related("work_center", "started_by", "completed_by")
-                     .order_by("position"))
+        steps = list(
+            lot.steps.select_related("work_center", "started_by", "completed_by").order_by(
+                "position"
+            )
+        )
         current = next((s for s in steps if s.status not in {"done", "skipped"}), None)
         return Response(LotStatusSerializer(lot_status(lot, steps, current)).data)
 

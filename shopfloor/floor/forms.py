@@ -25,8 +25,7 @@ class CapturedAtField(forms.CharField):
             parsed = datetime.fromisoformat(text.replace("Z", "+00:00"))
         except ValueError:
             raise forms.ValidationError(
-                f"Capture time {text!r} is not an ISO 8601 time such as "
-                "2030-01-31T22:15:00+01:00."
+                f"Capture time {text!r} is not an ISO 8601 time such as 2030-01-31T22:15:00+01:00."
             ) from None
         if timezone.is_naive(parsed):
             raise forms.ValidationError(
@@ -93,8 +92,9 @@ class CorrectionForm(TabletForm):
 
 class CompleteForm(TabletForm):
     pin = forms.CharField(max_length=20, label="PIN", strip=False)
-    meaning = forms.ChoiceField(choices=[("performed_by", "Performed by")],
-                                initial="performed_by", label="Meaning")
+    meaning = forms.ChoiceField(
+        choices=[("performed_by", "Performed by")], initial="performed_by", label="Meaning"
+    )
 
     def payload(self) -> dict[str, Any]:
         # The PIN is never part of the stored fingerprint input in clear; a hash would let a

@@ -37,9 +37,13 @@ class IdleTimeoutMiddleware:
     @staticmethod
     def _to_login(request: HttpRequest) -> HttpResponse:
         if request.path.startswith("/api/"):
-            return JsonResponse({"error": "not_authenticated",
-                                 "detail": "The session was idle too long; log in again."},
-                                status=401)
+            return JsonResponse(
+                {
+                    "error": "not_authenticated",
+                    "detail": "The session was idle too long; log in again.",
+                },
+                status=401,
+            )
         params = {"idle": "1"}
         if request.method == "GET":
             params["next"] = request.get_full_path()

@@ -19,9 +19,7 @@ from shopfloor.floor.models import InstrumentToken, LotStep
 #: Roles that work lots on the floor (start, pause, complete, record readings).
 FLOOR_ROLES = frozenset({"operator", "supervisor", "admin"})
 #: Roles that may read lot status, windows and routing previews.
-READ_ROLES = frozenset(
-    {"operator", "supervisor", "process_engineer", "quality_engineer", "admin"}
-)
+READ_ROLES = frozenset({"operator", "supervisor", "process_engineer", "quality_engineer", "admin"})
 #: Operators are limited to the work centers on their badge; these roles are not.
 ANY_WORK_CENTER_ROLES = frozenset({"supervisor", "admin"})
 
@@ -147,9 +145,7 @@ def access_reading(request: Request, reading_id: int) -> Any:
     from shopfloor.errors import NotFound
     from shopfloor.floor.models import Reading
 
-    reading = (
-        Reading.objects.select_related("lot_step__work_center").filter(pk=reading_id).first()
-    )
+    reading = Reading.objects.select_related("lot_step__work_center").filter(pk=reading_id).first()
     if reading is None:
         raise NotFound(f"No reading with id {reading_id}.")
     check_work_center(request, reading.lot_step)

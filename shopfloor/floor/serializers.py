@@ -25,14 +25,14 @@ class ErrorSerializer(serializers.Serializer):
     error = serializers.CharField(help_text="Machine-readable code, e.g. invalid, conflict")
     detail = serializers.CharField(help_text="What was wrong and what to do")
     problems = serializers.ListField(
-        child=serializers.DictField(), required=False,
+        child=serializers.DictField(),
+        required=False,
         help_text="One entry per problem: field, value, problem, allowed",
     )
 
 
 @extend_schema_field(
-    {"oneOf": [{"type": "number"}, {"type": "string", "maxLength": 40}],
-     "example": 22.5}
+    {"oneOf": [{"type": "number"}, {"type": "string", "maxLength": 40}], "example": 22.5}
 )
 class NumberOrTextField(serializers.Field):
     """A reading value as typed: a JSON number or numeric text ("12.5"), never a bool.
@@ -84,33 +84,41 @@ class AwareDateTimeField(serializers.DateTimeField):
 class ReadingInputSerializer(serializers.Serializer):
     lot = serializers.CharField(max_length=30, help_text="Lot (traveller) code as scanned")
     step = serializers.IntegerField(
-        required=False, allow_null=True, min_value=1, max_value=MAX_ID,
+        required=False,
+        allow_null=True,
+        min_value=1,
+        max_value=MAX_ID,
         help_text="Lot step id; default: the lot's current step",
     )
     quantity = serializers.CharField(max_length=40, help_text="What is measured, e.g. hole_copper")
     value = NumberOrTextField(help_text="Number as read (number or numeric text)")
-    unit = serializers.CharField(max_length=20, allow_blank=True,
-                                 help_text="Unit as read, e.g. um, mil, mm, percent, count")
+    unit = serializers.CharField(
+        max_length=20, allow_blank=True, help_text="Unit as read, e.g. um, mil, mm, percent, count"
+    )
     sample_index = serializers.IntegerField(default=1, min_value=1, max_value=1000)
     position = serializers.CharField(max_length=60, required=False, allow_blank=True, default="")
-    equipment = serializers.IntegerField(required=False, allow_null=True, min_value=1,
-                                         max_value=MAX_ID)
+    equipment = serializers.IntegerField(
+        required=False, allow_null=True, min_value=1, max_value=MAX_ID
+    )
     captured_at = AwareDateTimeField(required=False, allow_null=True)
 
 
 class CorrectionInputSerializer(serializers.Serializer):
     value = NumberOrTextField()
     unit = serializers.CharField(max_length=20, allow_blank=True)
-    reason = serializers.CharField(max_length=300, min_length=3,
-                                   help_text="What was wrong with the first reading")
+    reason = serializers.CharField(
+        max_length=300, min_length=3, help_text="What was wrong with the first reading"
+    )
     captured_at = AwareDateTimeField(required=False, allow_null=True)
 
 
 class StepStartSerializer(serializers.Serializer):
-    equipment = serializers.IntegerField(required=False, allow_null=True, min_value=1,
-                                         max_value=MAX_ID)
+    equipment = serializers.IntegerField(
+        required=False, allow_null=True, min_value=1, max_value=MAX_ID
+    )
     material_lots = serializers.ListField(
-        child=serializers.IntegerField(min_value=1, max_value=MAX_ID), required=False,
+        child=serializers.IntegerField(min_value=1, max_value=MAX_ID),
+        required=False,
         max_length=50,
     )
 
@@ -122,7 +130,8 @@ class StepPauseSerializer(serializers.Serializer):
 class StepCompleteSerializer(serializers.Serializer):
     pin = serializers.CharField(max_length=40, help_text="The signer's PIN (second component)")
     meaning = serializers.ChoiceField(
-        choices=["performed_by", "verified_by"], default="performed_by",
+        choices=["performed_by", "verified_by"],
+        default="performed_by",
         help_text="What the signature means",
     )
 
@@ -152,32 +161,61 @@ class ReadingSerializer(serializers.ModelSerializer):
     operator = serializers.CharField(source="operator.printed_name", read_only=True)
     window = WindowSerializer(read_only=True)
     equipment = serializers.IntegerField(source="equipment_id", allow_null=True, read_only=True)
-    superseded_by = serializers.IntegerField(source="superseded_by_id", allow_null=True,
-                                             read_only=True)
+    superseded_by = serializers.IntegerField(
+        source="superseded_by_id", allow_null=True, read_only=True
+    )
 
     class Meta:
         model = Reading
         fields = [
-            "id", "lot", "step", "quantity", "value", "unit", "entered_value", "entered_unit",
-            "sample_index", "position", "equipment", "operator", "captured_at", "recorded_at",
-            "in_window", "window", "superseded_by", "via",
+            "id",
+            "lot",
+            "step",
+            "quantity",
+            "value",
+            "unit",
+            "entered_value",
+            "entered_unit",
+            "sample_index",
+            "position",
+            "equipment",
+            "operator",
+            "captured_at",
+            "recorded_at",
+            "in_window",
+            "window",
+            "superseded_by",
+            "via",
         ]
         read_only_fields = fields
 
 
 class LotStepSerializer(serializers.ModelSerializer):
     work_center = serializers.CharField(source="work_center.code", read_only=True)
-    started_by = serializers.CharField(source="started_by.printed_name", allow_null=True,
-                                       read_only=True)
-    completed_by = serializers.CharField(source="completed_by.printed_name", allow_null=True,
-                                         read_only=True)
+    started_by = serializers.CharField(
+        source="started_by.printed_name", allow_null=True, read_only=True
+    )
+    completed_by = serializers.CharField(
+        source="completed_by.printed_name", allow_null=True, read_only=True
+    )
 
     class Meta:
         model = LotStep
         fields = [
-            "id", "position", "code", "name", "work_center", "status", "is_rework", "hazard",
-            "queue_time_limit_minutes", "arrived_at", "started_at", "started_by",
-            "completed_at", "completed_by",
+            "id",
+            "position",
+            "code",
+            "name",
+            "work_center",
+            "status",
+            "is_rework",
+            "hazard",
+            "queue_time_limit_minutes",
+            "arrived_at",
+            "started_at",
+            "started_by",
+            "completed_at",
+            "completed_by",
         ]
         read_only_fields = fields
 

@@ -124,6 +124,17 @@ def check_qualified(person: Person, work_center_id: int, on: datetime | None = N
         )
 
 
+def check_assigned(person: Person, work_center_id: int) -> None:
+    """Readings are taken by people assigned to the work center (supervisors anywhere)."""
+    if person.user.is_superuser or person.roles() & {"supervisor", "admin"}:
+        return
+    if not person.work_centers.filter(pk=work_center_id).exists():
+        raise NotAllowed(
+            f"{person.printed_name} is not assigned to this work center, so cannot record its "
+            "readings. Ask a supervisor to add the work center to your badge."
+        )
+
+
 # --- lookups ------------------------------------------------------------------------
 
 
@@ -347,6 +358,7 @@ def record_reading(
     with transaction.atomic():
         step, lot = _lock_step(lot_step_id)
         _require_workable(step, lot)
+        check_assigned(person, step.work_center_id)
         if step.status != LotStep.Status.IN_PROGRESS:
             raise Conflict(f"Start '{step.name}' before recording readings.")
         window, value, captured = _parse_reading(step, data)
@@ -449,6 +461,7 @@ def correct_reading(
             raise Conflict("That reading was already corrected; correct the newest one instead.")
         step, lot = _lock_step(old.lot_step_id)
         _require_workable(step, lot)
+        check_assigned(person, step.work_center_id)
         data = ReadingInput(
             quantity=old.quantity,
             value=value,

@@ -28,7 +28,7 @@ _DEJAVU = Path("/usr/share/fonts/truetype/dejavu")
 def qr_svg(code: str, scale: int = 6) -> str:
     """Inline SVG of a QR code that decodes to exactly `code`."""
     qr = segno.make(code, error="m", micro=False)
-    return qr.svg_inline(scale=scale, border=2, dark="#000", light="#fff")
+    return qr.svg_inline(scale=scale, border=2, dark="#000", light="#fff", omitsize=True)
 
 
 def qr_png(code: str, scale: int = 8) -> bytes:
@@ -110,8 +110,9 @@ def traveller_pdf(lot: Lot) -> bytes:
     body = ParagraphStyle("body", fontName=font, fontSize=9, leading=11)
     small = ParagraphStyle("small", parent=body, fontSize=7.5, leading=9)
     head = ParagraphStyle("head", parent=body, fontName=bold, fontSize=16, leading=20)
-    h2 = ParagraphStyle("h2", parent=body, fontName=bold, fontSize=11, leading=14,
-                        spaceBefore=6, spaceAfter=3)
+    h2 = ParagraphStyle(
+        "h2", parent=body, fontName=bold, fontSize=11, leading=14, spaceBefore=6, spaceAfter=3
+    )
     caution = ParagraphStyle("caution", parent=small, textColor=colors.HexColor("#7a3b00"))
 
     def p(text: str, style: ParagraphStyle = body) -> Paragraph:
@@ -126,25 +127,45 @@ def traveller_pdf(lot: Lot) -> bytes:
     qr = Image(io.BytesIO(qr_png(lot.code)), width=32 * mm, height=32 * mm)
     title = [
         p(f"Traveller — lot {lot.code}", head),
-        p(f"Part {part_revision.part.number} revision {part_revision.revision} · "
-          f"routing r{revision.number} · IPC class {revision.ipc_class}"),
-        p(f"Panels: {lot.panel_count} · printed {printed:%Y-%m-%d %H:%M} "
-          f"({settings.SITE_TIME_ZONE})", small),
+        p(
+            f"Part {part_revision.part.number} revision {part_revision.revision} · "
+            f"routing r{revision.number} · IPC class {revision.ipc_class}"
+        ),
+        p(
+            f"Panels: {lot.panel_count} · printed {printed:%Y-%m-%d %H:%M} "
+            f"({settings.SITE_TIME_ZONE})",
+            small,
+        ),
     ]
     header = Table([[title, qr]], colWidths=[140 * mm, 36 * mm])
     header.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP")]))
     story += [header, Spacer(1, 3 * mm)]
 
     story.append(p("Jobs", h2))
-    job_rows: list[list[Any]] = [[p(t, small) for t in
-                                  ("Job", "Customer", "Part / rev", "Qty", "Due", "IPC class")]]
+    job_rows: list[list[Any]] = [
+        [p(t, small) for t in ("Job", "Customer", "Part / rev", "Qty", "Due", "IPC class")]
+    ]
     for job in data.jobs:
         pr = job.part_revision
-        job_rows.append([p(job.number), p(pr.part.customer.code),
-                         p(f"{pr.part.number} rev {pr.revision}"), p(str(job.quantity)),
-                         p(f"{job.due_date:%Y-%m-%d}"), p(str(job.ipc_class))])
-    story.append(_grid(Table(job_rows, colWidths=[25 * mm, 25 * mm, 50 * mm, 18 * mm,
-                                                  28 * mm, 30 * mm], repeatRows=1)))
+        job_rows.append(
+            [
+                p(job.number),
+                p(pr.part.customer.code),
+                p(f"{pr.part.number} rev {pr.revision}"),
+                p(str(job.quantity)),
+                p(f"{job.due_date:%Y-%m-%d}"),
+                p(str(job.ipc_class)),
+            ]
+        )
+    story.append(
+        _grid(
+            Table(
+                job_rows,
+                colWidths=[25 * mm, 25 * mm, 50 * mm, 18 * mm, 28 * mm, 30 * mm],
+                repeatRows=1,
+            )
+        )
+    )
 
     panels = ", ".join(lot.panels.order_by("serial").values_list("serial", flat=True))
     story += [p("Panels", h2), p(panels or "none recorded", small)]
@@ -155,34 +176,62 @@ def traveller_pdf(lot: Lot) -> bytes:
         if step.instructions:
             lines.append(p(step.instructions, small))
         if step.parameters:
-            lines.append(p("Parameters: " + ", ".join(
-                f"{k.replace('_', ' ')} {v}" for k, v in step.parameters.items()), small))
+            lines.append(
+                p(
+                    "Parameters: "
+                    + ", ".join(f"{k.replace('_', ' ')} {v}" for k, v in step.parameters.items()),
+                    small,
+                )
+            )
         for m in step.plan:
-            lines.append(p(f"{m.get('quantity', '').replace('_', ' ')}: "
-                           f"{describe_window(m)} × {m.get('samples') or 1} — source: "
-                           f"{window_source(m)}", small))
+            lines.append(
+                p(
+                    f"{m.get('quantity', '').replace('_', ' ')}: "
+                    f"{describe_window(m)} × {m.get('samples') or 1} — source: "
+                    f"{window_source(m)}",
+                    small,
+                )
+            )
         if step.hazard:
             lines.append(p(f"HAZARD: {step.hazard}", caution))
-        sign = Table([[p("Performed by", small), ""], [p("Date", small), ""]],
-                     colWidths=[20 * mm, 38 * mm], rowHeights=[9 * mm, 7 * mm])
-        sign.setStyle(TableStyle([
-            ("BOX", (1, 0), (1, 0), 0.6, colors.black),
-            ("BOX", (1, 1), (1, 1), 0.6, colors.black),
-            ("VALIGN", (0, 0), (-1, -1), "MIDDLE"),
-        ]))
+        sign = Table(
+            [[p("Performed by", small), ""], [p("Date", small), ""]],
+            colWidths=[25 * mm, 33 * mm],
+            rowHeights=[9 * mm, 7 * mm],
+        )
+        sign.setStyle(
+            TableStyle(
+                [
+                    ("BOX", (1, 0), (1, 0), 0.6, colors.black),
+                    ("BOX", (1, 1), (1, 1), 0.6, colors.black),
+                    ("VALIGN", (0, 0), (-1, -1), "MIDDLE"),
+                ]
+            )
+        )
         row = Table([[lines, sign]], colWidths=[118 * mm, 60 * mm])
-        row.setStyle(TableStyle([
-            ("VALIGN", (0, 0), (-1, -1), "TOP"),
-            ("LINEBELOW", (0, 0), (-1, -1), 0.3, colors.grey),
-            ("BOTTOMPADDING", (0, 0), (-1, -1), 4),
-        ]))
+        row.setStyle(
+            TableStyle(
+                [
+                    ("VALIGN", (0, 0), (-1, -1), "TOP"),
+                    ("LINEBELOW", (0, 0), (-1, -1), 0.3, colors.grey),
+                    ("BOTTOMPADDING", (0, 0), (-1, -1), 4),
+                ]
+            )
+        )
         story.append(KeepTogether([row]))
 
     story += [Spacer(1, 4 * mm), p(SAFETY_CAUTION, caution)]
     out = io.BytesIO()
-    doc = SimpleDocTemplate(out, pagesize=A4, leftMargin=15 * mm, rightMargin=15 * mm,
-                            topMargin=12 * mm, bottomMargin=12 * mm,
-                            title=f"Traveller {lot.code}", author="Traveller service")
+    doc = SimpleDocTemplate(
+        out,
+        pagesize=A4,
+        leftMargin=15 * mm,
+        rightMargin=15 * mm,
+        topMargin=12 * mm,
+        bottomMargin=12 * mm,
+        title=f"Traveller {lot.code}",
+        author="Traveller service",
+    )
     doc.build(story)
     return out.getvalue()
 
@@ -191,9 +240,13 @@ def _grid(table: Any) -> Any:
     from reportlab.lib import colors
     from reportlab.platypus import TableStyle
 
-    table.setStyle(TableStyle([
-        ("GRID", (0, 0), (-1, -1), 0.4, colors.grey),
-        ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#e8e8e8")),
-        ("VALIGN", (0, 0), (-1, -1), "TOP"),
-    ]))
+    table.setStyle(
+        TableStyle(
+            [
+                ("GRID", (0, 0), (-1, -1), 0.4, colors.grey),
+                ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#e8e8e8")),
+                ("VALIGN", (0, 0), (-1, -1), "TOP"),
+            ]
+        )
+    )
     return table

@@ -53,8 +53,9 @@ def login_view(request: HttpRequest) -> HttpResponse:
                 target = reverse("floor:work_centers")
             return redirect(target)
     idle = request.GET.get("idle") == "1"
-    return render(request, "floor/login.html", {"error": error, "idle": idle},
-                  status=400 if error else 200)
+    return render(
+        request, "floor/login.html", {"error": error, "idle": idle}, status=400 if error else 200
+    )
 
 
 def logout_view(request: HttpRequest) -> HttpResponse:
@@ -148,8 +149,9 @@ def scan(request: HttpRequest) -> HttpResponse:
             raise InvalidInput("Scan or type a lot code (up to 60 characters).")
         lot = services.find_lot(form.cleaned_data["code"])
     except DomainError as exc:
-        return render(request, "floor/scan.html", {"error": exc.detail, "code": code},
-                      status=exc.status)
+        return render(
+            request, "floor/scan.html", {"error": exc.detail, "code": code}, status=exc.status
+        )
     return redirect("floor:lot", code=lot.code)
 
 
@@ -201,18 +203,34 @@ def _equipment(step: LotStep) -> list[Equipment]:
 
 def _readings_by_sample(step: LotStep) -> dict[tuple[str, int], list[Reading]]:
     grouped: dict[tuple[str, int], list[Reading]] = {}
-    for r in (Reading.objects.filter(lot_step=step).select_related("equipment", "operator")
-              .order_by("recorded_at", "pk")):
+    for r in (
+        Reading.objects.filter(lot_step=step)
+        .select_related("equipment", "operator")
+        .order_by("recorded_at", "pk")
+    ):
         grouped.setdefault((r.quantity, r.sample_index), []).append(r)
     return grouped
 
 
-def _sample_row(step: LotStep, m: dict[str, Any], sample: int, readings: list[Reading],
-                equipment: list[Equipment], **extra: Any) -> SampleRow:
+def _sample_row(
+    step: LotStep,
+    m: dict[str, Any],
+    sample: int,
+    readings: list[Reading],
+    equipment: list[Equipment],
+    **extra: Any,
+) -> SampleRow:
     current = next((r for r in reversed(readings) if r.superseded_by_id is None), None)
     history = [r for r in readings if r.superseded_by_id is not None]
-    return SampleRow(step=step, measurement=m, sample_index=sample, current=current,
-                     history=history, equipment=equipment, **extra)
+    return SampleRow(
+        step=step,
+        measurement=m,
+        sample_index=sample,
+        current=current,
+        history=history,
+        equipment=equipment,
+        **extra,
+    )
 
 
 def _plan(step: LotStep) -> list[PlanItem]:
@@ -221,10 +239,18 @@ def _plan(step: LotStep) -> list[PlanItem]:
     items = []
     for m in step.plan:
         samples = int(m.get("samples") or 1)
-        rows = [_sample_row(step, m, s, grouped.get((m["quantity"], s), []), equipment)
-                for s in range(1, samples + 1)]
-        items.append(PlanItem(measurement=m, window_text=describe_window(m),
-                              source=traveller.window_source(m), rows=rows))
+        rows = [
+            _sample_row(step, m, s, grouped.get((m["quantity"], s), []), equipment)
+            for s in range(1, samples + 1)
+        ]
+        items.append(
+            PlanItem(
+                measurement=m,
+                window_text=describe_window(m),
+                source=traveller.window_source(m),
+                rows=rows,
+            )
+        )
     return items
 
 
@@ -232,8 +258,11 @@ def _single_row(step: LotStep, quantity: str, sample: int, **extra: Any) -> Samp
     m = next((m for m in step.plan if m["quantity"] == quantity), None)
     if m is None:
         return None
-    readings = list(Reading.objects.filter(lot_step=step, quantity=quantity, sample_index=sample)
-                    .select_related("equipment", "operator").order_by("recorded_at", "pk"))
+    readings = list(
+        Reading.objects.filter(lot_step=step, quantity=quantity, sample_index=sample)
+        .select_related("equipment", "operator")
+        .order_by("recorded_at", "pk")
+    )
     return _sample_row(step, m, sample, readings, _equipment(step), **extra)
 
 
@@ -248,7 +277,8 @@ def _lot_context(lot: Lot, person: Person) -> dict[str, Any]:
         "route": data.steps,
         "step": step,
         "step_params": [(str(k).replace("_", " "), v) for k, v in (step.parameters or {}).items()]
-        if step else [],
+        if step
+        else [],
         "plan": _plan(step) if step else [],
         "equipment": _equipment(step) if step else [],
         "holds": list(lot.holds.filter(released_at__isnull=True).order_by("opened_at")),
@@ -258,14 +288,23 @@ def _lot_context(lot: Lot, person: Person) -> dict[str, Any]:
 
 
 def _lot_or_none(code: str) -> Lot | None:
-    return (Lot.objects.select_related("routing_revision__part_revision__part")
-            .filter(code=code).first())
+    return (
+        Lot.objects.select_related("routing_revision__part_revision__part")
+        .filter(code=code)
+        .first()
+    )
 
 
 def _missing_lot(request: HttpRequest, code: str) -> HttpResponse:
-    return render(request, "floor/scan.html",
-                  {"error": f"No lot with code {code!r}. Check the traveller label and scan "
-                            "again.", "code": code}, status=404)
+    return render(
+        request,
+        "floor/scan.html",
+        {
+            "error": f"No lot with code {code!r}. Check the traveller label and scan again.",
+            "code": code,
+        },
+        status=404,
+    )
 
 
 @login_required
@@ -294,14 +333,17 @@ def traveller_pdf(request: HttpRequest, code: str) -> HttpResponse:
 
 
 def _key(request: HttpRequest, form: forms.TabletForm) -> str | None:
-    return (request.headers.get("Idempotency-Key")
-            or form.cleaned_data.get("idempotency_key") or None)
+    return (
+        request.headers.get("Idempotency-Key") or form.cleaned_data.get("idempotency_key") or None
+    )
 
 
-def _run(request: HttpRequest, form: forms.TabletForm,
-         action: Callable[[], tuple[int, dict[str, Any]]]) -> idempotency.Outcome:
+def _run(
+    request: HttpRequest, form: forms.TabletForm, action: Callable[[], tuple[int, dict[str, Any]]]
+) -> idempotency.Outcome:
     return idempotency.run(
-        user=request.user, key=_key(request, form),
+        user=request.user,
+        key=_key(request, form),
         request_fingerprint=idempotency.fingerprint("POST", request.path, form.payload()),
         action=action,
     )
@@ -314,8 +356,9 @@ def _step_or_404(step_id: int) -> LotStep:
     return step
 
 
-def _refuse_page(request: HttpRequest, person: Person, lot: Lot | None, error: str,
-                 status: int) -> HttpResponse:
+def _refuse_page(
+    request: HttpRequest, person: Person, lot: Lot | None, error: str, status: int
+) -> HttpResponse:
     if lot is None:
         return render(request, "floor/scan.html", {"error": error}, status=status)
     context = _lot_context(lot, person)
@@ -323,8 +366,12 @@ def _refuse_page(request: HttpRequest, person: Person, lot: Lot | None, error: s
     return render(request, "floor/lot.html", context, status=status)
 
 
-def _step_action(request: HttpRequest, step_id: int, form_class: type[forms.TabletForm],
-                 call: Callable[[Person, LotStep, dict[str, Any]], str]) -> HttpResponse:
+def _step_action(
+    request: HttpRequest,
+    step_id: int,
+    form_class: type[forms.TabletForm],
+    call: Callable[[Person, LotStep, dict[str, Any]], str],
+) -> HttpResponse:
     """Start / pause / complete: a full-page POST that redirects back to the lot page."""
     person = _person(request)
     lot = None
@@ -349,8 +396,7 @@ def _step_action(request: HttpRequest, step_id: int, form_class: type[forms.Tabl
 @require_POST
 def start_step(request: HttpRequest, step_id: int) -> HttpResponse:
     def call(person: Person, step: LotStep, data: dict[str, Any]) -> str:
-        services.start_step(person=person, lot_step_id=step.pk,
-                            equipment_id=data.get("equipment"))
+        services.start_step(person=person, lot_step_id=step.pk, equipment_id=data.get("equipment"))
         return f"Started '{step.name}'."
 
     return _step_action(request, step_id, forms.StartForm, call)
@@ -370,8 +416,9 @@ def pause_step(request: HttpRequest, step_id: int) -> HttpResponse:
 @require_POST
 def complete_step(request: HttpRequest, step_id: int) -> HttpResponse:
     def call(person: Person, step: LotStep, data: dict[str, Any]) -> str:
-        done = services.complete_step(person=person, lot_step_id=step.pk, pin=data["pin"],
-                                      meaning=data["meaning"])
+        done = services.complete_step(
+            person=person, lot_step_id=step.pk, pin=data["pin"], meaning=data["meaning"]
+        )
         sig = done.signature
         meaning = sig.get_meaning_display() if sig else "Performed by"
         return f"'{step.name}' signed off. {meaning}: {person.printed_name}."
@@ -379,8 +426,9 @@ def complete_step(request: HttpRequest, step_id: int) -> HttpResponse:
     return _step_action(request, step_id, forms.CompleteForm, call)
 
 
-def _row_response(request: HttpRequest, row: SampleRow | None, lot: Lot, status: int = 200
-                  ) -> HttpResponse:
+def _row_response(
+    request: HttpRequest, row: SampleRow | None, lot: Lot, status: int = 200
+) -> HttpResponse:
     if row is None or not request.htmx:
         if status >= 400:
             return _refuse_page(request, _person(request), lot, row.error if row else "", status)
@@ -410,11 +458,17 @@ def record_reading(request: HttpRequest, step_id: int) -> HttpResponse:
 
         def action() -> tuple[int, dict[str, Any]]:
             reading = services.record_reading(
-                person=person, lot_step_id=step.pk,
+                person=person,
+                lot_step_id=step.pk,
                 data=services.ReadingInput(
-                    quantity=data["quantity"], value=data["value"], unit=data["unit"] or "",
-                    sample_index=data["sample_index"], position=data["position"] or "",
-                    equipment_id=data["equipment"], captured_at=data["captured_at"]),
+                    quantity=data["quantity"],
+                    value=data["value"],
+                    unit=data["unit"] or "",
+                    sample_index=data["sample_index"],
+                    position=data["position"] or "",
+                    equipment_id=data["equipment"],
+                    captured_at=data["captured_at"],
+                ),
             )
             return 201, {"reading": reading.pk, "in_window": reading.in_window}
 
@@ -425,8 +479,9 @@ def record_reading(request: HttpRequest, step_id: int) -> HttpResponse:
             return _refuse_page(request, person, step.lot, exc.detail, exc.status)
         return _row_response(request, row, step.lot, exc.status)
     reading = Reading.objects.get(pk=outcome.body["reading"])
-    return _row_response(request, _single_row(step, reading.quantity, reading.sample_index),
-                         step.lot, outcome.status)
+    return _row_response(
+        request, _single_row(step, reading.quantity, reading.sample_index), step.lot, outcome.status
+    )
 
 
 @login_required
@@ -435,12 +490,17 @@ def correct_reading(request: HttpRequest, reading_id: int) -> HttpResponse:
     person = _person(request)
     old = Reading.objects.select_related("lot_step__lot").filter(pk=reading_id).first()
     if old is None:
-        return _refuse_page(request, person, None,
-                            f"No reading {reading_id}; reload the lot page.", 404)
+        return _refuse_page(
+            request, person, None, f"No reading {reading_id}; reload the lot page.", 404
+        )
     step = old.lot_step
     form = forms.CorrectionForm(request.POST)
-    entered = {"value": request.POST.get("value", ""), "unit": request.POST.get("unit", ""),
-               "reason": request.POST.get("reason", ""), "correcting": True}
+    entered = {
+        "value": request.POST.get("value", ""),
+        "unit": request.POST.get("unit", ""),
+        "reason": request.POST.get("reason", ""),
+        "correcting": True,
+    }
     try:
         if not form.is_valid():
             raise InvalidInput(form.error_text())
@@ -448,15 +508,19 @@ def correct_reading(request: HttpRequest, reading_id: int) -> HttpResponse:
 
         def action() -> tuple[int, dict[str, Any]]:
             new = services.correct_reading(
-                person=person, reading_id=old.pk, value=data["value"],
-                unit=data["unit"] or "", reason=data["reason"],
-                captured_at=data["captured_at"])
+                person=person,
+                reading_id=old.pk,
+                value=data["value"],
+                unit=data["unit"] or "",
+                reason=data["reason"],
+                captured_at=data["captured_at"],
+            )
             return 201, {"reading": new.pk, "in_window": new.in_window}
 
         outcome = _run(request, form, action)
     except DomainError as exc:
-        row = _single_row(step, old.quantity, old.sample_index, error=exc.detail,
-                          entered=entered)
+        row = _single_row(step, old.quantity, old.sample_index, error=exc.detail, entered=entered)
         return _row_response(request, row, step.lot, exc.status)
-    return _row_response(request, _single_row(step, old.quantity, old.sample_index), step.lot,
-                         outcome.status)
+    return _row_response(
+        request, _single_row(step, old.quantity, old.sample_index), step.lot, outcome.status
+    )

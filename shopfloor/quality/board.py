@@ -22,6 +22,7 @@ from typing import Any
 from django.conf import settings
 from django.db import transaction
 from django.db.models import Exists, F, IntegerField, OuterRef, Q, QuerySet, Subquery, Sum
+from django.db.models.fields.json import KeyTextTransform
 from django.db.models.functions import Coalesce
 from django.utils import timezone
 
@@ -36,19 +37,22 @@ from shopfloor.quality.models import Alert, Hold
 OPEN_STEP = (LotStep.Status.WAITING, LotStep.Status.IN_PROGRESS, LotStep.Status.PAUSED)
 ACTIVE_LOT = (Lot.Status.NOT_STARTED, Lot.Status.IN_PROCESS)
 SORTS = {
-    "queue": "queue order (supervisor order, then lot priority, then arrival)",
+    "queue": "queue order",
     "due": "earliest due date first",
     "age": "longest waiting first",
     "lot": "lot code",
 }
 MAX_DUE_RANGE_DAYS = 400
 ALERT_LIMIT = 200
+MAX_ROWS_PER_CENTER = 400
 
 # Worst first: a lot shows the worst state among the jobs imaged on its panels.
-_DUE_RANK = {schedule.DueState.LATE: 0, schedule.DueState.AT_RISK: 1,
-             schedule.DueState.ON_TIME: 2}
-DUE_WORDS = {schedule.DueState.LATE: "LATE", schedule.DueState.AT_RISK: "AT RISK",
-             schedule.DueState.ON_TIME: "on time"}
+_DUE_RANK = {schedule.DueState.LATE: 0, schedule.DueState.AT_RISK: 1, schedule.DueState.ON_TIME: 2}
+DUE_WORDS = {
+    schedule.DueState.LATE: "LATE",
+    schedule.DueState.AT_RISK: "AT RISK",
+    schedule.DueState.ON_TIME: "on time",
+}
 
 
 @dataclass(frozen=True)
@@ -199,7 +203,8 @@ class BoardLot:
     def queue_text(self) -> str:
         if self.queue is None:
             return ""
-        return f"{duration_text(self.queue.minutes_waited)} of {duration_text(self.queue.limit_minutes)}"
+        waited = duration_text(self.queue.minutes_waited)
+        return f"{waited} of {duration_text(self.queue.limit_minutes)}"
 
     @property
     def due_state(self) -> schedule.DueState:
@@ -229,8 +234,13 @@ class BoardColumn:
 
     @property
     def rows(self) -> list[BoardLot]:
-        """Held lots first (they need someone), then the ones in work, then the queue."""
-        return self.on_hold + self.in_work + self.queued
+        """Held lots first (they need someone), then the ones in work, then the queue;
+        at most MAX_ROWS_PER_CENTER (a wall screen cannot show more; counts stay exact)."""
+        return (self.on_hold + self.in_work + self.queued)[:MAX_ROWS_PER_CENTER]
+
+    @property
+    def hidden(self) -> int:
+        return max(self.count - MAX_ROWS_PER_CENTER, 0)
 
     @property
     def warnings(self) -> int:
@@ -323,8 +333,12 @@ def _sort_key(sort: str) -> Any:
         return lambda b: (-b.minutes_at_step, b.lot_code)
     if sort == "lot":
         return lambda b: b.lot_code
-    return lambda b: (b.queue_priority, b.lot_priority, b.arrived_at or b.lot_started_at
-                      or timezone.now(), b.lot_code)
+    return lambda b: (
+        b.queue_priority,
+        b.lot_priority,
+        b.arrived_at or b.lot_started_at or timezone.now(),
+        b.lot_code,
+    )
 
 
 def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = None) -> Board:
@@ -333,42 +347,68 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
     centers = list(WorkCenter.objects.order_by("code"))
     steps = list(
         _filtered(current_steps(scope), filters)
-        .select_related("lot__routing_revision")
+        .select_related("lot")
+        .annotate(finish=KeyTextTransform("finish", "lot__routing_revision__build_spec"))
         .only(
-            "id", "name", "status", "arrived_at", "queue_time_limit_minutes",
-            "queue_priority", "queue_warning_released_reason", "work_center_id", "position",
-            "lot__id", "lot__code", "lot__on_hold", "lot__priority", "lot__started_at",
-            "lot__created_at", "lot__routing_revision__build_spec",
+            "id",
+            "name",
+            "status",
+            "arrived_at",
+            "queue_time_limit_minutes",
+            "queue_priority",
+            "queue_warning_released_reason",
+            "work_center_id",
+            "position",
+            "lot__id",
+            "lot__code",
+            "lot__on_hold",
+            "lot__priority",
+            "lot__started_at",
+            "lot__created_at",
         )
     )
     lot_ids = [s.lot_id for s in steps]
-    lot_filter = _filtered(current_steps(scope), filters).values("lot_id")
-
+    wanted = set(lot_ids)
+    # Jobs and holds are read for every active lot and matched here: a plain join is
+    # cheaper than repeating the current-step subquery inside an IN (...).
     jobs_by_lot: dict[int, dict[int, JobOnLot]] = defaultdict(dict)
     for row in (
-        PanelImage.objects.filter(panel__lot_id__in=lot_filter)
+        PanelImage.objects.filter(panel__lot__status__in=ACTIVE_LOT)
+        .order_by()
         .values(
-            "panel__lot_id", "job_id", "job__number", "job__due_date", "job__ipc_class",
-            "job__part_revision__part__number", "job__part_revision__part__customer__code",
+            "panel__lot_id",
+            "job_id",
+            "job__number",
+            "job__due_date",
+            "job__ipc_class",
+            "job__part_revision__part__number",
+            "job__part_revision__part__customer__code",
         )
         .distinct()
     ):
+        if row["panel__lot_id"] not in wanted:
+            continue
         jobs_by_lot[row["panel__lot_id"]][row["job_id"]] = JobOnLot(
-            id=row["job_id"], number=row["job__number"],
+            id=row["job_id"],
+            number=row["job__number"],
             part_number=row["job__part_revision__part__number"],
             customer_code=row["job__part_revision__part__customer__code"],
-            due_date=row["job__due_date"], ipc_class=row["job__ipc_class"],
+            due_date=row["job__due_date"],
+            ipc_class=row["job__ipc_class"],
         )
     hold_reasons: dict[int, str] = {}
-    for lot_id, reason in Hold.objects.filter(
-        released_at__isnull=True, lot_id__in=lot_filter
-    ).order_by("opened_at").values_list("lot_id", "reason"):
-        hold_reasons.setdefault(lot_id, reason)
+    for lot_id, reason in (
+        Hold.objects.filter(released_at__isnull=True, lot__status__in=ACTIVE_LOT)
+        .order_by("opened_at")
+        .values_list("lot_id", "reason")
+    ):
+        if lot_id in wanted:
+            hold_reasons.setdefault(lot_id, reason)
 
     open_alerts = Alert.objects.filter(closed_at__isnull=True)
     if not scope.sees_all:
         open_alerts = open_alerts.filter(
-            Q(work_center_id__in=scope.work_center_ids) | Q(lot_id__in=lot_ids[:5000])
+            Q(work_center_id__in=scope.work_center_ids) | Q(lot_id__in=lot_ids)
         )
     alerts = list(
         open_alerts.select_related("lot", "work_center", "job").order_by("-created_at")[
@@ -392,16 +432,25 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
         for job in jobs:
             job.due_state = schedule.due_state(now, _due_end(job.due_date), s.remaining)
         item = BoardLot(
-            step_id=s.pk, step_name=s.name, step_status=s.status, lot_id=lot.pk,
-            lot_code=lot.code, on_hold=lot.on_hold, hold_reason=hold_reasons.get(lot.pk, ""),
-            finish=str((lot.routing_revision.build_spec or {}).get("finish", "")),
-            arrived_at=s.arrived_at, lot_started_at=lot.started_at,
+            step_id=s.pk,
+            step_name=s.name,
+            step_status=s.status,
+            lot_id=lot.pk,
+            lot_code=lot.code,
+            on_hold=lot.on_hold,
+            hold_reason=hold_reasons.get(lot.pk, ""),
+            finish=s.finish or "",
+            arrived_at=s.arrived_at,
+            lot_started_at=lot.started_at,
             minutes_at_step=(now - arrived).total_seconds() / 60.0,
             minutes_in_wip=(now - started).total_seconds() / 60.0,
-            remaining_minutes=int(s.remaining), queue=queue,
+            remaining_minutes=int(s.remaining),
+            queue=queue,
             queue_released=s.queue_warning_released_reason,
-            queue_priority=s.queue_priority, lot_priority=lot.priority,
-            jobs=sorted(jobs, key=lambda j: j.number), alerts=alerts_by_lot.get(lot.pk, []),
+            queue_priority=s.queue_priority,
+            lot_priority=lot.priority,
+            jobs=sorted(jobs, key=lambda j: j.number),
+            alerts=alerts_by_lot.get(lot.pk, []),
         )
         column = by_center.get(s.work_center_id)
         if column is None:
@@ -414,21 +463,32 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
         column.in_work.sort(key=key)
         column.on_hold.sort(key=key)
     columns = [
-        by_center[c.pk] for c in centers
-        if scope.sees_work_center(c.pk) and (not filters.work_center or c.code == filters.work_center)
+        by_center[c.pk]
+        for c in centers
+        if scope.sees_work_center(c.pk)
+        and (not filters.work_center or c.code == filters.work_center)
     ]
     finishes = sorted(
         {
-            str(f) for f in Lot.objects.filter(status__in=ACTIVE_LOT)
-            .order_by().values_list("routing_revision__build_spec__finish", flat=True).distinct()
+            str(f)
+            for f in Lot.objects.filter(status__in=ACTIVE_LOT)
+            .order_by()
+            .values_list("routing_revision__build_spec__finish", flat=True)
+            .distinct()
             if f
         }
     )
     return Board(
-        columns=columns, alerts=alerts, alert_count=len(alerts), filters=filters,
-        customers=list(Customer.objects.order_by("code")), finishes=finishes,
+        columns=columns,
+        alerts=alerts,
+        alert_count=len(alerts),
+        filters=filters,
+        customers=list(Customer.objects.order_by("code")),
+        finishes=finishes,
         work_centers=[c for c in centers if scope.sees_work_center(c.pk)],
-        ipc_classes=[(c.value, c.label) for c in IpcClass], now=now, lot_count=len(steps),
+        ipc_classes=[(c.value, c.label) for c in IpcClass],
+        now=now,
+        lot_count=len(steps),
     )
 
 
@@ -439,12 +499,17 @@ def _queue(work_center_id: int) -> list[LotStep]:
     """The lots waiting at a work center, in the order the board shows them."""
     steps = list(
         current_steps()
-        .filter(work_center_id=work_center_id, status=LotStep.Status.WAITING,
-                lot__on_hold=False)
+        .filter(work_center_id=work_center_id, status=LotStep.Status.WAITING, lot__on_hold=False)
         .select_related("lot")
     )
-    steps.sort(key=lambda s: (s.queue_priority, s.lot.priority,
-                              s.arrived_at or s.lot.created_at, s.lot.code))
+    steps.sort(
+        key=lambda s: (
+            s.queue_priority,
+            s.lot.priority,
+            s.arrived_at or s.lot.created_at,
+            s.lot.code,
+        )
+    )
     return steps
 
 
@@ -454,8 +519,9 @@ def _require_reorder(person: Person) -> None:
 
 
 @transaction.atomic
-def reorder_queue(person: Person, work_center_id: int,
-                  ordered_lot_step_ids: list[int]) -> list[LotStep]:
+def reorder_queue(
+    person: Person, work_center_id: int, ordered_lot_step_ids: list[int]
+) -> list[LotStep]:
     """Put a work center's waiting lots in the order given (first runs first).
 
     Lots named come first, in the order named; lots not named keep their order after
@@ -469,8 +535,11 @@ def reorder_queue(person: Person, work_center_id: int,
     if len(set(ordered_lot_step_ids)) != len(ordered_lot_step_ids):
         raise InvalidInput("A lot appears twice in the new order; name each lot once.")
     # Lock the queue's rows so two supervisors reordering at once apply one after the other.
-    list(LotStep.objects.select_for_update().filter(work_center_id=work_center_id,
-                                                   status=LotStep.Status.WAITING))
+    list(
+        LotStep.objects.select_for_update().filter(
+            work_center_id=work_center_id, status=LotStep.Status.WAITING
+        )
+    )
     queue = _queue(work_center_id)
     by_id = {s.pk: s for s in queue}
     unknown = [i for i in ordered_lot_step_ids if i not in by_id]
@@ -489,8 +558,11 @@ def reorder_queue(person: Person, work_center_id: int,
         step.queue_priority = i - n
     LotStep.objects.bulk_update(new_order, ["queue_priority"])
     audit.record(
-        actor=person.user, action="queue.reordered", object_type="work_center",
-        object_id=center.pk, before={"order": before},
+        actor=person.user,
+        action="queue.reordered",
+        object_type="work_center",
+        object_id=center.pk,
+        before={"order": before},
         after={"order": [s.lot.code for s in new_order]},
     )
     return new_order
@@ -499,8 +571,9 @@ def reorder_queue(person: Person, work_center_id: int,
 MOVES = ("up", "down", "top")
 
 
-def move_in_queue(person: Person, work_center_id: int, lot_step_id: int,
-                  move: str) -> list[LotStep]:
+def move_in_queue(
+    person: Person, work_center_id: int, lot_step_id: int, move: str
+) -> list[LotStep]:
     """Move one lot up, down or to the top of its work center's queue."""
     if move not in MOVES:
         raise InvalidInput(f"Move {move!r} is not known; allowed: {', '.join(MOVES)}.")

@@ -76,8 +76,9 @@ def control_chart(
     left, right, top, bottom = 70.0, width - 90.0, 34.0, height - 70.0
     fig.shapes.append(Shape("text", (left, 20), text=title, size=15))
     if not values:
-        fig.shapes.append(Shape("text", (width / 2, height / 2), text="No points yet",
-                                size=14, anchor="middle"))
+        fig.shapes.append(
+            Shape("text", (width / 2, height / 2), text="No points yet", size=14, anchor="middle")
+        )
         return fig
     ys = [*values, centre, ucl, lcl] + [x for x in (lsl, usl) if x is not None]
     lo, hi = min(ys), max(ys)
@@ -91,21 +92,45 @@ def control_chart(
 
     fig.shapes.append(Shape("rect", (left, top, right - left, bottom - top), stroke=GRID))
     for value, label, colour, dash in (
-        (ucl, "UCL", LIMIT, True), (centre, "CL", INK, False), (lcl, "LCL", LIMIT, True),
+        (ucl, "UCL", LIMIT, True),
+        (centre, "CL", INK, False),
+        (lcl, "LCL", LIMIT, True),
     ):
-        fig.shapes.append(Shape("line", (left, y(value), right, y(value)), stroke=colour,
-                                dash=dash, width=1.5))
-        fig.shapes.append(Shape("text", (right + 6, y(value) + 4),
-                                text=f"{label} {_fmt(value)}", size=11, stroke=colour))
+        fig.shapes.append(
+            Shape("line", (left, y(value), right, y(value)), stroke=colour, dash=dash, width=1.5)
+        )
+        fig.shapes.append(
+            Shape(
+                "text",
+                (right + 6, y(value) + 4),
+                text=f"{label} {_fmt(value)}",
+                size=11,
+                stroke=colour,
+            )
+        )
     for value, label in ((lsl, "LSL"), (usl, "USL")):
         if value is not None:
-            fig.shapes.append(Shape("line", (left, y(value), right, y(value)), stroke=SPEC,
-                                    width=1, dash=True))
-            fig.shapes.append(Shape("text", (left - 6, y(value) + 4),
-                                    text=f"{label} {_fmt(value)}", size=10, stroke=SPEC,
-                                    anchor="end"))
-    fig.shapes.append(Shape("polyline", tuple(c for i, v in enumerate(values)
-                                              for c in (x(i), y(v))), stroke=POINT, width=1.5))
+            fig.shapes.append(
+                Shape("line", (left, y(value), right, y(value)), stroke=SPEC, width=1, dash=True)
+            )
+            fig.shapes.append(
+                Shape(
+                    "text",
+                    (left - 6, y(value) + 4),
+                    text=f"{label} {_fmt(value)}",
+                    size=10,
+                    stroke=SPEC,
+                    anchor="end",
+                )
+            )
+    fig.shapes.append(
+        Shape(
+            "polyline",
+            tuple(c for i, v in enumerate(values) for c in (x(i), y(v))),
+            stroke=POINT,
+            width=1.5,
+        )
+    )
     broken: dict[int, list[str]] = {}
     for index, rule in signals:
         if 0 <= index < n:
@@ -117,15 +142,32 @@ def control_chart(
             fig.shapes.append(Shape("circle", (x(i), y(v), 3), stroke=POINT, fill=POINT))
     fig.shapes.append(Shape("text", (left, bottom + 16), text="1", size=10))
     fig.shapes.append(Shape("text", (right, bottom + 16), text=str(n), size=10, anchor="end"))
-    fig.shapes.append(Shape("text", ((left + right) / 2, bottom + 16),
-                            text=f"point (in time order){', ' + unit if unit else ''}",
-                            size=10, anchor="middle"))
+    fig.shapes.append(
+        Shape(
+            "text",
+            ((left + right) / 2, bottom + 16),
+            text=f"point (in time order){', ' + unit if unit else ''}",
+            size=10,
+            anchor="middle",
+        )
+    )
     rules = sorted({r for rs in broken.values() for r in rs})
-    legend = ("Square = rule broken: " + "; ".join(
-        f"{r} at point(s) {', '.join(str(i + 1) for i in sorted(broken) if r in broken[i])}"
-        for r in rules)) if rules else "No rule broken."
-    fig.shapes.append(Shape("text", (left, bottom + 40), text=legend[:160], size=11,
-                            stroke=BREAK if rules else INK))
+    legend = (
+        (
+            "Square = rule broken: "
+            + "; ".join(
+                f"{r} at point(s) {', '.join(str(i + 1) for i in sorted(broken) if r in broken[i])}"
+                for r in rules
+            )
+        )
+        if rules
+        else "No rule broken."
+    )
+    fig.shapes.append(
+        Shape(
+            "text", (left, bottom + 40), text=legend[:160], size=11, stroke=BREAK if rules else INK
+        )
+    )
     return fig
 
 
@@ -156,8 +198,9 @@ def capability_histogram(
     left, right, top, bottom = 50.0, width - 30.0, 34.0, height - 50.0
     fig.shapes.append(Shape("text", (left, 20), text=title, size=15))
     if not values:
-        fig.shapes.append(Shape("text", (width / 2, height / 2), text="No readings yet",
-                                size=14, anchor="middle"))
+        fig.shapes.append(
+            Shape("text", (width / 2, height / 2), text="No readings yet", size=14, anchor="middle")
+        )
         return fig
     xs = [*values] + [v for v in (lsl, usl, target) if v is not None]
     lo, hi = min(xs), max(xs)
@@ -176,22 +219,46 @@ def capability_histogram(
     for i, c in enumerate(counts):
         x0, x1 = x(data_lo + i * bw), x(data_lo + (i + 1) * bw)
         h = c / peak * (bottom - top - 20)
-        fig.shapes.append(Shape("rect", (x0, bottom - h, max(x1 - x0 - 1, 1), h), stroke=POINT,
-                                fill=BAR))
+        fig.shapes.append(
+            Shape("rect", (x0, bottom - h, max(x1 - x0 - 1, 1), h), stroke=POINT, fill=BAR)
+        )
     fig.shapes.append(Shape("line", (left, bottom, right, bottom)))
     for value, label in ((lsl, "LSL"), (usl, "USL"), (target, "target")):
         if value is not None:
-            fig.shapes.append(Shape("line", (x(value), top, x(value), bottom), stroke=SPEC,
-                                    width=2, dash=label == "target"))
-            fig.shapes.append(Shape("text", (x(value), top - 4), text=f"{label} {_fmt(value)}",
-                                    size=11, stroke=SPEC, anchor="middle"))
+            fig.shapes.append(
+                Shape(
+                    "line",
+                    (x(value), top, x(value), bottom),
+                    stroke=SPEC,
+                    width=2,
+                    dash=label == "target",
+                )
+            )
+            fig.shapes.append(
+                Shape(
+                    "text",
+                    (x(value), top - 4),
+                    text=f"{label} {_fmt(value)}",
+                    size=11,
+                    stroke=SPEC,
+                    anchor="middle",
+                )
+            )
     fig.shapes.append(Shape("text", (left, bottom + 18), text=_fmt(lo), size=10))
     fig.shapes.append(Shape("text", (right, bottom + 18), text=_fmt(hi), size=10, anchor="end"))
-    outside = sum(1 for v in values if (lsl is not None and v < lsl)
-                  or (usl is not None and v > usl))
-    fig.shapes.append(Shape("text", ((left + right) / 2, bottom + 36),
-                            text=f"{len(values)} readings{', ' + unit if unit else ''}; "
-                            f"{outside} outside the window", size=11, anchor="middle"))
+    outside = sum(
+        1 for v in values if (lsl is not None and v < lsl) or (usl is not None and v > usl)
+    )
+    fig.shapes.append(
+        Shape(
+            "text",
+            ((left + right) / 2, bottom + 36),
+            text=f"{len(values)} readings{', ' + unit if unit else ''}; "
+            f"{outside} outside the window",
+            size=11,
+            anchor="middle",
+        )
+    )
     return fig
 
 
@@ -207,25 +274,32 @@ def to_svg(fig: Figure) -> str:
         common = f'stroke="{s.stroke}" stroke-width="{s.width:g}" fill="{s.fill}"{dash}'
         c = s.coords
         if s.kind == "line":
-            out.append(f'<line x1="{c[0]:.1f}" y1="{c[1]:.1f}" x2="{c[2]:.1f}" '
-                       f'y2="{c[3]:.1f}" {common}/>')
+            out.append(
+                f'<line x1="{c[0]:.1f}" y1="{c[1]:.1f}" x2="{c[2]:.1f}" y2="{c[3]:.1f}" {common}/>'
+            )
         elif s.kind == "rect":
-            out.append(f'<rect x="{c[0]:.1f}" y="{c[1]:.1f}" width="{c[2]:.1f}" '
-                       f'height="{c[3]:.1f}" {common}/>')
+            out.append(
+                f'<rect x="{c[0]:.1f}" y="{c[1]:.1f}" width="{c[2]:.1f}" '
+                f'height="{c[3]:.1f}" {common}/>'
+            )
         elif s.kind == "circle":
             out.append(f'<circle cx="{c[0]:.1f}" cy="{c[1]:.1f}" r="{c[2]:g}" {common}/>')
         elif s.kind == "square":
             r = c[2]
-            out.append(f'<rect class="rule-break" x="{c[0] - r:.1f}" y="{c[1] - r:.1f}" '
-                       f'width="{2 * r:g}" height="{2 * r:g}" {common}/>')
+            out.append(
+                f'<rect class="rule-break" x="{c[0] - r:.1f}" y="{c[1] - r:.1f}" '
+                f'width="{2 * r:g}" height="{2 * r:g}" {common}/>'
+            )
         elif s.kind == "polyline":
             pts = " ".join(f"{c[i]:.1f},{c[i + 1]:.1f}" for i in range(0, len(c), 2))
             out.append(f'<polyline points="{pts}" {common}/>')
         elif s.kind == "text":
             anchor = {"start": "start", "middle": "middle", "end": "end"}[s.anchor]
-            out.append(f'<text x="{c[0]:.1f}" y="{c[1]:.1f}" font-size="{s.size:g}" '
-                       f'text-anchor="{anchor}" fill="{s.stroke}" '
-                       f'font-family="sans-serif">{escape(s.text)}</text>')
+            out.append(
+                f'<text x="{c[0]:.1f}" y="{c[1]:.1f}" font-size="{s.size:g}" '
+                f'text-anchor="{anchor}" fill="{s.stroke}" '
+                f'font-family="sans-serif">{escape(s.text)}</text>'
+            )
     out.append("</svg>")
     return "".join(out)
 
@@ -244,24 +318,60 @@ def to_drawing(fig: Figure, scale: float = 0.55) -> Any:
         c = s.coords
         dash = [6, 4] if s.dash else None
         if s.kind == "line":
-            group.add(Line(c[0], h - c[1], c[2], h - c[3], strokeColor=col(s.stroke),
-                           strokeWidth=s.width, strokeDashArray=dash))
+            group.add(
+                Line(
+                    c[0],
+                    h - c[1],
+                    c[2],
+                    h - c[3],
+                    strokeColor=col(s.stroke),
+                    strokeWidth=s.width,
+                    strokeDashArray=dash,
+                )
+            )
         elif s.kind == "rect":
-            group.add(Rect(c[0], h - c[1] - c[3], c[2], c[3], strokeColor=col(s.stroke),
-                           fillColor=col(s.fill), strokeWidth=s.width))
+            group.add(
+                Rect(
+                    c[0],
+                    h - c[1] - c[3],
+                    c[2],
+                    c[3],
+                    strokeColor=col(s.stroke),
+                    fillColor=col(s.fill),
+                    strokeWidth=s.width,
+                )
+            )
         elif s.kind == "circle":
-            group.add(Circle(c[0], h - c[1], c[2], strokeColor=col(s.stroke),
-                             fillColor=col(s.fill)))
+            group.add(
+                Circle(c[0], h - c[1], c[2], strokeColor=col(s.stroke), fillColor=col(s.fill))
+            )
         elif s.kind == "square":
             r = c[2]
-            group.add(Rect(c[0] - r, h - c[1] - r, 2 * r, 2 * r, strokeColor=col(s.stroke),
-                           fillColor=col(s.fill)))
+            group.add(
+                Rect(
+                    c[0] - r,
+                    h - c[1] - r,
+                    2 * r,
+                    2 * r,
+                    strokeColor=col(s.stroke),
+                    fillColor=col(s.fill),
+                )
+            )
         elif s.kind == "polyline":
             pts = [v if i % 2 == 0 else h - v for i, v in enumerate(c)]
             group.add(PolyLine(pts, strokeColor=col(s.stroke), strokeWidth=s.width))
         elif s.kind == "text":
-            group.add(String(c[0], h - c[1], s.text, fontSize=s.size, fontName="Helvetica",
-                             fillColor=col(s.stroke), textAnchor=s.anchor))
+            group.add(
+                String(
+                    c[0],
+                    h - c[1],
+                    s.text,
+                    fontSize=s.size,
+                    fontName="Helvetica",
+                    fillColor=col(s.stroke),
+                    textAnchor=s.anchor,
+                )
+            )
     group.scale(scale, scale)
     drawing = Drawing(fig.width * scale, fig.height * scale)
     drawing.add(group)

@@ -26,9 +26,25 @@ from shopfloor.windows import describe_window
 
 CHUNK = 2000
 CSV_HEADER = [
-    "record", "at", "lot", "step_position", "step", "work_center", "what", "quantity",
-    "value", "unit", "sample", "window_min", "window_max", "window_source", "in_window",
-    "who", "equipment", "superseded_by", "note",
+    "record",
+    "at",
+    "lot",
+    "step_position",
+    "step",
+    "work_center",
+    "what",
+    "quantity",
+    "value",
+    "unit",
+    "sample",
+    "window_min",
+    "window_max",
+    "window_source",
+    "in_window",
+    "who",
+    "equipment",
+    "superseded_by",
+    "note",
 ]
 
 
@@ -43,20 +59,50 @@ def lot_csv_rows(lot: Lot) -> Iterator[list[Any]]:
     """Every step event and every reading (superseded ones included) as CSV rows."""
     yield CSV_HEADER
     steps = (
-        LotStep.objects.filter(lot=lot).select_related("work_center", "equipment",
-                                                        "started_by", "completed_by")
+        LotStep.objects.filter(lot=lot)
+        .select_related("work_center", "equipment", "started_by", "completed_by")
         .order_by("position")
     )
     for s in steps.iterator(chunk_size=CHUNK):
         base = ["step", None, lot.code, s.position, s.code, s.work_center.code]
         if s.started_at:
-            yield [base[0], s.started_at.isoformat(), *base[2:], "started", "", "", "", "", "",
-                   "", "", "", history._person(s.started_by),
-                   s.equipment.code if s.equipment else "", "", ""]
+            yield [
+                base[0],
+                s.started_at.isoformat(),
+                *base[2:],
+                "started",
+                "",
+                "",
+                "",
+                "",
+                "",
+                "",
+                "",
+                "",
+                history._person(s.started_by),
+                s.equipment.code if s.equipment else "",
+                "",
+                "",
+            ]
         if s.completed_at:
-            yield [base[0], s.completed_at.isoformat(), *base[2:], "completed", "", "", "", "",
-                   "", "", "", "", history._person(s.completed_by),
-                   s.equipment.code if s.equipment else "", "", ""]
+            yield [
+                base[0],
+                s.completed_at.isoformat(),
+                *base[2:],
+                "completed",
+                "",
+                "",
+                "",
+                "",
+                "",
+                "",
+                "",
+                "",
+                history._person(s.completed_by),
+                s.equipment.code if s.equipment else "",
+                "",
+                "",
+            ]
     readings = (
         Reading.objects.filter(lot_step__lot=lot)
         .select_related("lot_step__work_center", "operator", "equipment")
@@ -64,24 +110,95 @@ def lot_csv_rows(lot: Lot) -> Iterator[list[Any]]:
     )
     for r in readings.iterator(chunk_size=CHUNK):
         w = r.window or {}
-        yield ["reading", r.captured_at.isoformat(), lot.code, r.lot_step.position,
-               r.lot_step.code, r.lot_step.work_center.code, "reading", r.quantity, r.value,
-               r.unit, r.sample_index, w.get("min"), w.get("max"), w.get("source", ""),
-               "yes" if r.in_window else "no", history._person(r.operator),
-               r.equipment.code if r.equipment else "", r.superseded_by_id or "",
-               r.correction_reason]
+        yield [
+            "reading",
+            r.captured_at.isoformat(),
+            lot.code,
+            r.lot_step.position,
+            r.lot_step.code,
+            r.lot_step.work_center.code,
+            "reading",
+            r.quantity,
+            r.value,
+            r.unit,
+            r.sample_index,
+            w.get("min"),
+            w.get("max"),
+            w.get("source", ""),
+            "yes" if r.in_window else "no",
+            history._person(r.operator),
+            r.equipment.code if r.equipment else "",
+            r.superseded_by_id or "",
+            r.correction_reason,
+        ]
     for h in Hold.objects.filter(lot=lot).order_by("opened_at").iterator(chunk_size=CHUNK):
-        yield ["hold", h.opened_at.isoformat(), lot.code, "", "", "", "hold opened", "", "",
-               "", "", "", "", "", "", "", "", "", h.reason]
+        yield [
+            "hold",
+            h.opened_at.isoformat(),
+            lot.code,
+            "",
+            "",
+            "",
+            "hold opened",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            h.reason,
+        ]
     for a in Alert.objects.filter(lot=lot).order_by("created_at").iterator(chunk_size=CHUNK):
-        yield ["alert", a.created_at.isoformat(), lot.code, "", "", "", a.kind, "", "", "", "",
-               "", "", "", "", "", "", "", a.message]
-    for n in Nonconformance.objects.filter(lot=lot).order_by("opened_at").iterator(
-        chunk_size=CHUNK
+        yield [
+            "alert",
+            a.created_at.isoformat(),
+            lot.code,
+            "",
+            "",
+            "",
+            a.kind,
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            a.message,
+        ]
+    for n in (
+        Nonconformance.objects.filter(lot=lot).order_by("opened_at").iterator(chunk_size=CHUNK)
     ):
-        yield ["ncr", n.opened_at.isoformat(), lot.code, "", "", "", n.number, "", "", "", "",
-               "", "", "", "", "", "", "", f"{n.description} | disposition: "
-               f"{n.disposition or 'open'} {n.disposition_note}"]
+        yield [
+            "ncr",
+            n.opened_at.isoformat(),
+            lot.code,
+            "",
+            "",
+            "",
+            n.number,
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            "",
+            f"{n.description} | disposition: {n.disposition or 'open'} {n.disposition_note}",
+        ]
 
 
 def stream_lot_csv(lot: Lot) -> Iterator[str]:
@@ -106,21 +223,34 @@ def reading_summary(h: history.LotHistory) -> list[dict[str, Any]]:
     for n in h.ncrs:
         for r in n.readings.all():
             ncr_by_reading.setdefault(r.pk, []).append(
-                f"{n.number} ({n.get_disposition_display() or 'open'})")
+                f"{n.number} ({n.get_disposition_display() or 'open'})"
+            )
     out = []
     for (quantity, source), rs in sorted(groups.items()):
         values = [r.value for r in rs]
         outside = [r for r in rs if not r.in_window]
         ncrs = sorted({x for r in outside for x in ncr_by_reading.get(r.pk, [])})
-        verdict = "all in window" if not outside else (
-            f"{len(outside)} outside; " + (", ".join(ncrs) if ncrs else "no NCR recorded"))
-        out.append({
-            "quantity": quantity, "unit": rs[0].unit, "count": len(values),
-            "min": min(values), "max": max(values), "mean": statistics.fmean(values),
-            "window": describe_window(rs[-1].window or {}), "source": source,
-            "verdict": verdict, "values": values, "lsl": (rs[-1].window or {}).get("min"),
-            "usl": (rs[-1].window or {}).get("max"),
-        })
+        verdict = (
+            "all in window"
+            if not outside
+            else (f"{len(outside)} outside; " + (", ".join(ncrs) if ncrs else "no NCR recorded"))
+        )
+        out.append(
+            {
+                "quantity": quantity,
+                "unit": rs[0].unit,
+                "count": len(values),
+                "min": min(values),
+                "max": max(values),
+                "mean": statistics.fmean(values),
+                "window": describe_window(rs[-1].window or {}),
+                "source": source,
+                "verdict": verdict,
+                "values": values,
+                "lsl": (rs[-1].window or {}).get("min"),
+                "usl": (rs[-1].window or {}).get("max"),
+            }
+        )
     return out
 
 
@@ -146,15 +276,28 @@ def lot_record_pdf(h: history.LotHistory, *, certificate: bool = False) -> bytes
         canvas.drawRightString(195 * mm, 14 * mm, f"{title} {lot.code} - page {doc.page}")
         canvas.restoreState()
 
-    doc = SimpleDocTemplate(buf, pagesize=A4, leftMargin=15 * mm, rightMargin=15 * mm,
-                            topMargin=15 * mm, bottomMargin=22 * mm, title=f"{title} {lot.code}")
+    doc = SimpleDocTemplate(
+        buf,
+        pagesize=A4,
+        leftMargin=15 * mm,
+        rightMargin=15 * mm,
+        topMargin=15 * mm,
+        bottomMargin=22 * mm,
+        title=f"{title} {lot.code}",
+    )
     p = styles["BodyText"]
     story: list[Any] = [Paragraph(f"{title}: lot {lot.code}", styles["Title"])]
-    grid = TableStyle([("GRID", (0, 0), (-1, -1), 0.4, colors.grey),
-                       ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#e8e8e8")),
-                       ("FONTSIZE", (0, 0), (-1, -1), 8), ("VALIGN", (0, 0), (-1, -1), "TOP")])
-    job_rows = [["Job", "Customer", "Part number", "Rev", "Ordered", "Shipped (images)",
-                 "Due", "IPC class"]]
+    grid = TableStyle(
+        [
+            ("GRID", (0, 0), (-1, -1), 0.4, colors.grey),
+            ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#e8e8e8")),
+            ("FONTSIZE", (0, 0), (-1, -1), 8),
+            ("VALIGN", (0, 0), (-1, -1), "TOP"),
+        ]
+    )
+    job_rows = [
+        ["Job", "Customer", "Part number", "Rev", "Ordered", "Shipped (images)", "Due", "IPC class"]
+    ]
     images_by_job: dict[str, int] = {}
     for panel in h.panels:
         if panel.scrapped:
@@ -162,64 +305,112 @@ def lot_record_pdf(h: history.LotHistory, *, certificate: bool = False) -> bytes
         for img in panel.images.all():
             images_by_job[img.job.number] = images_by_job.get(img.job.number, 0) + img.count
     for j in h.jobs:
-        job_rows.append([j.number, j.part_revision.part.customer.code,
-                         j.part_revision.part.number, j.part_revision.revision, j.quantity,
-                         images_by_job.get(j.number, 0), j.due_date.isoformat(),
-                         f"Class {j.ipc_class}"])
+        job_rows.append(
+            [
+                j.number,
+                j.part_revision.part.customer.code,
+                j.part_revision.part.number,
+                j.part_revision.revision,
+                j.quantity,
+                images_by_job.get(j.number, 0),
+                j.due_date.isoformat(),
+                f"Class {j.ipc_class}",
+            ]
+        )
     story += [Table(job_rows, style=grid), Spacer(1, 4 * mm)]
     finish = (rev.build_spec or {}).get("finish", "")
-    story.append(Paragraph(
-        f"Routing revision r{rev.number}, built to IPC class {rev.ipc_class}; finish "
-        f"{finish or 'not stated'}; {lot.panel_count} panel(s); status "
-        f"{lot.get_status_display()}{'; ON HOLD' if lot.on_hold else ''}.", p))
+    story.append(
+        Paragraph(
+            f"Routing revision r{rev.number}, built to IPC class {rev.ipc_class}; finish "
+            f"{finish or 'not stated'}; {lot.panel_count} panel(s); status "
+            f"{lot.get_status_display()}{'; ON HOLD' if lot.on_hold else ''}.",
+            p,
+        )
+    )
     if lot.split_from_id:
         story.append(Paragraph(f"Split from lot {lot.split_from.code}.", p))
     standards = h.standards
-    story.append(Paragraph("Windows applied (sources): " + ("; ".join(standards)
-                                                            if standards else "none recorded"),
-                           p))
+    story.append(
+        Paragraph(
+            "Windows applied (sources): "
+            + ("; ".join(standards) if standards else "none recorded"),
+            p,
+        )
+    )
     story.append(Spacer(1, 3 * mm))
     story.append(Paragraph("Readings against their windows", styles["Heading2"]))
     summary = reading_summary(h)
     rows = [["Quantity", "n", "Min", "Max", "Mean", "Window", "Source", "Result"]]
     for s in summary:
-        rows.append([s["quantity"], s["count"], f"{s['min']:.4g}", f"{s['max']:.4g}",
-                     f"{s['mean']:.4g}", Paragraph(s["window"], p),
-                     Paragraph(s["source"], p), Paragraph(s["verdict"], p)])
+        rows.append(
+            [
+                s["quantity"],
+                s["count"],
+                f"{s['min']:.4g}",
+                f"{s['max']:.4g}",
+                f"{s['mean']:.4g}",
+                Paragraph(s["window"], p),
+                Paragraph(s["source"], p),
+                Paragraph(s["verdict"], p),
+            ]
+        )
     if len(rows) == 1:
         rows.append(["no readings", "", "", "", "", "", "", ""])
-    story += [Table(rows, style=grid, colWidths=[28 * mm, 9 * mm, 15 * mm, 15 * mm, 15 * mm,
-                                                 32 * mm, 38 * mm, 30 * mm]),
-              Spacer(1, 3 * mm)]
+    story += [
+        Table(
+            rows,
+            style=grid,
+            colWidths=[28 * mm, 9 * mm, 15 * mm, 15 * mm, 15 * mm, 32 * mm, 38 * mm, 30 * mm],
+        ),
+        Spacer(1, 3 * mm),
+    ]
     if h.ncrs:
         story.append(Paragraph("Nonconformances", styles["Heading2"]))
         nrows = [["NCR", "Opened", "Disposition", "Note"]]
         for n in h.ncrs:
-            nrows.append([n.number, n.opened_at.strftime("%Y-%m-%d %H:%M"),
-                          n.get_disposition_display() or "open",
-                          Paragraph(n.disposition_note or n.description, p)])
+            nrows.append(
+                [
+                    n.number,
+                    n.opened_at.strftime("%Y-%m-%d %H:%M"),
+                    n.get_disposition_display() or "open",
+                    Paragraph(n.disposition_note or n.description, p),
+                ]
+            )
         story += [Table(nrows, style=grid), Spacer(1, 3 * mm)]
     story.append(Paragraph("Signatures", styles["Heading2"]))
     srows = [["Meaning", "Printed name", "Signed (UTC)", "Record"]]
     for sig in h.signatures:
-        srows.append([sig.get_meaning_display(), sig.printed_name,
-                      sig.signed_at.strftime("%Y-%m-%d %H:%M:%S"),
-                      f"{sig.record_type} {sig.record_id}"])
+        srows.append(
+            [
+                sig.get_meaning_display(),
+                sig.printed_name,
+                sig.signed_at.strftime("%Y-%m-%d %H:%M:%S"),
+                f"{sig.record_type} {sig.record_id}",
+            ]
+        )
     if len(srows) == 1:
         srows.append(["none yet", "", "", ""])
     story += [Table(srows, style=grid), Spacer(1, 3 * mm)]
     if summary:
         story.append(Paragraph("Charts", styles["Heading2"]))
     for s in summary[:6]:
-        fig = charts.capability_histogram(s["values"], s["lsl"], s["usl"],
-                                          title=f"{s['quantity']} ({s['unit']}) vs window",
-                                          unit=s["unit"])
+        fig = charts.capability_histogram(
+            s["values"],
+            s["lsl"],
+            s["usl"],
+            title=f"{s['quantity']} ({s['unit']}) vs window",
+            unit=s["unit"],
+        )
         story.append(charts.to_drawing(fig, scale=0.55))
     if certificate:
         story.append(Spacer(1, 4 * mm))
-        story.append(Paragraph(
-            "The shop states that the boards listed above were built on the routing revision "
-            "named and measured against the windows and sources shown; readings outside a "
-            "window are listed with the NCR that dispositioned them.", p))
+        story.append(
+            Paragraph(
+                "The shop states that the boards listed above were built on the routing revision "
+                "named and measured against the windows and sources shown; readings outside a "
+                "window are listed with the NCR that dispositioned them.",
+                p,
+            )
+        )
     doc.build(story, onFirstPage=footer, onLaterPages=footer)
     return buf.getvalue()

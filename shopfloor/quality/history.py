@@ -46,10 +46,29 @@ TRACEABILITY_FIELDS = {
         "material_lot": ["code", "kind", "supplier_lot", "received_on"],
     },
     "P2": {
-        "step": ["code", "name", "work_center", "equipment", "started_at", "started_by",
-                 "completed_at", "completed_by", "status", "signature"],
-        "reading": ["quantity", "value", "unit", "window", "source", "in_window",
-                    "operator", "equipment", "captured_at"],
+        "step": [
+            "code",
+            "name",
+            "work_center",
+            "equipment",
+            "started_at",
+            "started_by",
+            "completed_at",
+            "completed_by",
+            "status",
+            "signature",
+        ],
+        "reading": [
+            "quantity",
+            "value",
+            "unit",
+            "window",
+            "source",
+            "in_window",
+            "operator",
+            "equipment",
+            "captured_at",
+        ],
     },
 }
 MAX_RANGE_DAYS = 400
@@ -88,17 +107,18 @@ class LotHistory:
     @property
     def standards(self) -> list[str]:
         """Every window source the lot's readings were judged against."""
-        return sorted({str(r.window.get("source")) for r in self.readings
-                       if r.window.get("source")})
+        return sorted(
+            {str(r.window.get("source")) for r in self.readings if r.window.get("source")}
+        )
 
 
 def find_lot_for(scope: Scope, code: str) -> Lot:
     """The lot with this code if the reader may see it (404 / 403 with a message)."""
     code = (code or "").strip()
     lot = (
-        Lot.objects.select_related("routing_revision__part_revision__part__customer",
-                                   "split_from")
-        .filter(code__iexact=code).first()
+        Lot.objects.select_related("routing_revision__part_revision__part__customer", "split_from")
+        .filter(code__iexact=code)
+        .first()
     )
     if lot is None:
         raise NotFound(f"No lot with code {code!r}. Check the traveller code or search.")
@@ -123,43 +143,57 @@ def lot_history(scope: Scope, code: str) -> LotHistory:
         .order_by("position")
     )
     readings = [r for s in steps for r in s.readings.all()]
-    panels = list(Panel.objects.filter(lot=lot).prefetch_related(
-        Prefetch("images", queryset=PanelImage.objects.select_related("job"))))
+    panels = list(
+        Panel.objects.filter(lot=lot).prefetch_related(
+            Prefetch("images", queryset=PanelImage.objects.select_related("job"))
+        )
+    )
     jobs = list(
-        Job.objects.filter(images__panel__lot=lot).distinct()
-        .select_related("part_revision__part__customer").order_by("number")
+        Job.objects.filter(images__panel__lot=lot)
+        .distinct()
+        .select_related("part_revision__part__customer")
+        .order_by("number")
     )
     holds = list(Hold.objects.filter(lot=lot).select_related("ncr").order_by("opened_at"))
     alerts = list(Alert.objects.filter(lot=lot).order_by("created_at"))
     ncrs = list(
-        Nonconformance.objects.filter(lot=lot).select_related("disposition_signature")
-        .prefetch_related("readings").order_by("opened_at")
+        Nonconformance.objects.filter(lot=lot)
+        .select_related("disposition_signature")
+        .prefetch_related("readings")
+        .order_by("opened_at")
     )
     step_ids = [str(s.pk) for s in steps]
     sig_ids = [n.disposition_signature_id for n in ncrs if n.disposition_signature_id]
     signatures = list(
         Signature.objects.filter(
-            Q(record_type="lot_step", record_id__in=step_ids) | Q(pk__in=sig_ids)
+            Q(record_type="lot_step", record_id__in=step_ids)
+            | Q(pk__in=sig_ids)
             | Q(record_type="lot", record_id=str(lot.pk))
         ).order_by("signed_at")
     )
     moves = list(
-        AuditEntry.objects.filter(object_type="lot", object_id=str(lot.pk),
-                                  action="lot.moved_revision").order_by("seq")
+        AuditEntry.objects.filter(
+            object_type="lot", object_id=str(lot.pk), action="lot.moved_revision"
+        ).order_by("seq")
     )
     splits = list(Lot.objects.filter(split_from=lot).order_by("code"))
-    history = LotHistory(lot, jobs, panels, steps, readings, signatures, holds, alerts, ncrs,
-                         moves, splits)
+    history = LotHistory(
+        lot, jobs, panels, steps, readings, signatures, holds, alerts, ncrs, moves, splits
+    )
     history.timeline = _timeline(history)
     return history
 
 
 def _timeline(h: LotHistory) -> list[TimelineEvent]:
-    ev: list[TimelineEvent] = [TimelineEvent(h.lot.created_at, "lot", f"Lot {h.lot.code} created",
-                                             f"{h.lot.panel_count} panel(s)")]
+    ev: list[TimelineEvent] = [
+        TimelineEvent(
+            h.lot.created_at, "lot", f"Lot {h.lot.code} created", f"{h.lot.panel_count} panel(s)"
+        )
+    ]
     if h.lot.split_from_id:
-        ev.append(TimelineEvent(h.lot.created_at, "split",
-                                f"Split from lot {h.lot.split_from.code}"))
+        ev.append(
+            TimelineEvent(h.lot.created_at, "split", f"Split from lot {h.lot.split_from.code}")
+        )
     for child in h.splits:
         ev.append(TimelineEvent(child.created_at, "split", f"Lot {child.code} split off"))
     for s in h.steps:
@@ -173,69 +207,125 @@ def _timeline(h: LotHistory) -> list[TimelineEvent]:
         if s.arrived_at:
             ev.append(TimelineEvent(s.arrived_at, "arrived", f"Arrived at {s.name}", where))
         if s.started_at:
-            ev.append(TimelineEvent(s.started_at, "step", f"Started {s.name}",
-                                    "; ".join([where, *extra]), _person(s.started_by)))
+            ev.append(
+                TimelineEvent(
+                    s.started_at,
+                    "step",
+                    f"Started {s.name}",
+                    "; ".join([where, *extra]),
+                    _person(s.started_by),
+                )
+            )
         if s.completed_at:
-            ev.append(TimelineEvent(s.completed_at, "step", f"Completed {s.name}",
-                                    "; ".join([where, *extra]), _person(s.completed_by)))
+            ev.append(
+                TimelineEvent(
+                    s.completed_at,
+                    "step",
+                    f"Completed {s.name}",
+                    "; ".join([where, *extra]),
+                    _person(s.completed_by),
+                )
+            )
         if s.queue_warning_released_reason:
-            ev.append(TimelineEvent(s.arrived_at or h.lot.created_at, "queue",
-                                    f"Queue-time warning released at {s.name}",
-                                    s.queue_warning_released_reason))
+            ev.append(
+                TimelineEvent(
+                    s.arrived_at or h.lot.created_at,
+                    "queue",
+                    f"Queue-time warning released at {s.name}",
+                    s.queue_warning_released_reason,
+                )
+            )
         for r in s.readings.all():
             verdict = "in window" if r.in_window else "OUT OF WINDOW"
-            detail = (f"{describe_window(r.window)}; source: {r.window.get('source', 'none')}; "
-                      f"{verdict}")
+            detail = (
+                f"{describe_window(r.window)}; source: {r.window.get('source', 'none')}; {verdict}"
+            )
             if r.superseded_by_id:
                 detail += f"; SUPERSEDED (reason: {r.correction_reason})"
-            ev.append(TimelineEvent(
-                r.captured_at, "reading",
-                f"{r.quantity} sample {r.sample_index} = {r.value:g} {r.unit} at {s.name}",
-                detail, _person(r.operator), superseded=bool(r.superseded_by_id)))
+            ev.append(
+                TimelineEvent(
+                    r.captured_at,
+                    "reading",
+                    f"{r.quantity} sample {r.sample_index} = {r.value:g} {r.unit} at {s.name}",
+                    detail,
+                    _person(r.operator),
+                    superseded=bool(r.superseded_by_id),
+                )
+            )
     for sig in h.signatures:
-        ev.append(TimelineEvent(sig.signed_at, "signature",
-                                f"Signed: {sig.get_meaning_display()}",
-                                f"{sig.record_type} {sig.record_id}", sig.printed_name))
+        ev.append(
+            TimelineEvent(
+                sig.signed_at,
+                "signature",
+                f"Signed: {sig.get_meaning_display()}",
+                f"{sig.record_type} {sig.record_id}",
+                sig.printed_name,
+            )
+        )
     for hold in h.holds:
         ev.append(TimelineEvent(hold.opened_at, "hold", "Hold opened", hold.reason))
         if hold.released_at:
             ev.append(TimelineEvent(hold.released_at, "hold", "Hold released"))
     for a in h.alerts:
-        ev.append(TimelineEvent(a.created_at, "alert", f"Alert: {a.get_kind_display()}",
-                                a.message))
+        ev.append(TimelineEvent(a.created_at, "alert", f"Alert: {a.get_kind_display()}", a.message))
     for n in h.ncrs:
         ev.append(TimelineEvent(n.opened_at, "ncr", f"NCR {n.number} opened", n.description))
         if n.dispositioned_at:
-            ev.append(TimelineEvent(
-                n.dispositioned_at, "disposition",
-                f"NCR {n.number} dispositioned: {n.get_disposition_display()}",
-                n.disposition_note,
-                n.disposition_signature.printed_name if n.disposition_signature else ""))
+            ev.append(
+                TimelineEvent(
+                    n.dispositioned_at,
+                    "disposition",
+                    f"NCR {n.number} dispositioned: {n.get_disposition_display()}",
+                    n.disposition_note,
+                    n.disposition_signature.printed_name if n.disposition_signature else "",
+                )
+            )
     for m in h.moves:
         after = m.after or {}
-        ev.append(TimelineEvent(
-            m.at, "moved", "Moved to another routing revision",
-            f"from revision {(m.before or {}).get('routing_revision')} to "
-            f"{after.get('routing_revision')}: {after.get('reason', '')}", m.actor_name))
+        ev.append(
+            TimelineEvent(
+                m.at,
+                "moved",
+                "Moved to another routing revision",
+                f"from revision {(m.before or {}).get('routing_revision')} to "
+                f"{after.get('routing_revision')}: {after.get('reason', '')}",
+                m.actor_name,
+            )
+        )
     ev.sort(key=lambda e: e.at)
     return ev
 
 
 def _material(m: MaterialLot) -> dict[str, Any]:
-    return {"code": m.code, "kind": m.kind, "description": m.description,
-            "supplier_lot": m.supplier_lot, "received_on": _iso(m.received_on),
-            "expires_on": _iso(m.expires_on)}
+    return {
+        "code": m.code,
+        "kind": m.kind,
+        "description": m.description,
+        "supplier_lot": m.supplier_lot,
+        "received_on": _iso(m.received_on),
+        "expires_on": _iso(m.expires_on),
+    }
 
 
 def _reading(r: Reading) -> dict[str, Any]:
     return {
-        "id": r.pk, "quantity": r.quantity, "value": r.value, "unit": r.unit,
-        "entered_value": r.entered_value, "entered_unit": r.entered_unit,
-        "sample_index": r.sample_index, "position": r.position, "window": r.window,
-        "source": r.window.get("source"), "in_window": r.in_window,
-        "operator": _person(r.operator), "equipment": r.equipment.code if r.equipment else None,
-        "captured_at": _iso(r.captured_at), "recorded_at": _iso(r.recorded_at),
-        "superseded_by": r.superseded_by_id, "correction_reason": r.correction_reason,
+        "id": r.pk,
+        "quantity": r.quantity,
+        "value": r.value,
+        "unit": r.unit,
+        "entered_value": r.entered_value,
+        "entered_unit": r.entered_unit,
+        "sample_index": r.sample_index,
+        "position": r.position,
+        "window": r.window,
+        "source": r.window.get("source"),
+        "in_window": r.in_window,
+        "operator": _person(r.operator),
+        "equipment": r.equipment.code if r.equipment else None,
+        "captured_at": _iso(r.captured_at),
+        "recorded_at": _iso(r.recorded_at),
+        "superseded_by": r.superseded_by_id,
+        "correction_reason": r.correction_reason,
         "via": r.via,
     }
 
@@ -246,58 +336,124 @@ def history_dict(h: LotHistory) -> dict[str, Any]:
     rev = lot.routing_revision
     return {
         "lot": {
-            "code": lot.code, "status": lot.status, "on_hold": lot.on_hold,
-            "panel_count": lot.panel_count, "created_at": _iso(lot.created_at),
-            "started_at": _iso(lot.started_at), "completed_at": _iso(lot.completed_at),
-            "routing_revision": {"id": rev.pk, "number": rev.number,
-                                 "ipc_class": rev.ipc_class,
-                                 "finish": (rev.build_spec or {}).get("finish")},
+            "code": lot.code,
+            "status": lot.status,
+            "on_hold": lot.on_hold,
+            "panel_count": lot.panel_count,
+            "created_at": _iso(lot.created_at),
+            "started_at": _iso(lot.started_at),
+            "completed_at": _iso(lot.completed_at),
+            "routing_revision": {
+                "id": rev.pk,
+                "number": rev.number,
+                "ipc_class": rev.ipc_class,
+                "finish": (rev.build_spec or {}).get("finish"),
+            },
             "split_from": lot.split_from.code if lot.split_from_id else None,
             "splits": [c.code for c in h.splits],
-            "panels": [{"serial": p.serial, "scrapped": p.scrapped,
-                        "jobs": [{"job": i.job.number, "images": i.count}
-                                 for i in p.images.all()]} for p in h.panels],
-            "jobs": [{"number": j.number, "part_number": j.part_revision.part.number,
-                      "part_revision": j.part_revision.revision,
-                      "customer": j.part_revision.part.customer.code,
-                      "quantity": j.quantity, "due_date": _iso(j.due_date),
-                      "ipc_class": j.ipc_class} for j in h.jobs],
+            "panels": [
+                {
+                    "serial": p.serial,
+                    "scrapped": p.scrapped,
+                    "jobs": [{"job": i.job.number, "images": i.count} for i in p.images.all()],
+                }
+                for p in h.panels
+            ],
+            "jobs": [
+                {
+                    "number": j.number,
+                    "part_number": j.part_revision.part.number,
+                    "part_revision": j.part_revision.revision,
+                    "customer": j.part_revision.part.customer.code,
+                    "quantity": j.quantity,
+                    "due_date": _iso(j.due_date),
+                    "ipc_class": j.ipc_class,
+                }
+                for j in h.jobs
+            ],
         },
         "steps": [
             {
-                "position": s.position, "code": s.code, "name": s.name, "status": s.status,
-                "work_center": s.work_center.code, "is_rework": s.is_rework,
+                "position": s.position,
+                "code": s.code,
+                "name": s.name,
+                "status": s.status,
+                "work_center": s.work_center.code,
+                "is_rework": s.is_rework,
                 "equipment": s.equipment.code if s.equipment else None,
                 "arrived_at": _iso(s.arrived_at),
-                "started_at": _iso(s.started_at), "started_by": _person(s.started_by),
-                "completed_at": _iso(s.completed_at), "completed_by": _person(s.completed_by),
+                "started_at": _iso(s.started_at),
+                "started_by": _person(s.started_by),
+                "completed_at": _iso(s.completed_at),
+                "completed_by": _person(s.completed_by),
                 "material_lots": [_material(m) for m in s.material_lots.all()],
-                "signature": ({"meaning": s.signature.meaning,
-                               "printed_name": s.signature.printed_name,
-                               "signed_at": _iso(s.signature.signed_at)}
-                              if s.signature else None),
+                "signature": (
+                    {
+                        "meaning": s.signature.meaning,
+                        "printed_name": s.signature.printed_name,
+                        "signed_at": _iso(s.signature.signed_at),
+                    }
+                    if s.signature
+                    else None
+                ),
                 "queue_warning_released_reason": s.queue_warning_released_reason,
                 "readings": [_reading(r) for r in s.readings.all()],
             }
             for s in h.steps
         ],
-        "signatures": [{"meaning": s.meaning, "meaning_text": s.get_meaning_display(),
-                        "printed_name": s.printed_name, "signed_at": _iso(s.signed_at),
-                        "record_type": s.record_type, "record_id": s.record_id,
-                        "record_hash": s.record_hash} for s in h.signatures],
-        "holds": [{"reason": x.reason, "opened_at": _iso(x.opened_at),
-                   "released_at": _iso(x.released_at)} for x in h.holds],
-        "alerts": [{"kind": a.kind, "severity": a.severity, "message": a.message,
-                    "created_at": _iso(a.created_at), "closed_at": _iso(a.closed_at)}
-                   for a in h.alerts],
-        "ncrs": [{"number": n.number, "status": n.status, "description": n.description,
-                  "disposition": n.disposition, "disposition_note": n.disposition_note,
-                  "dispositioned_at": _iso(n.dispositioned_at),
-                  "readings": [r.pk for r in n.readings.all()]} for n in h.ncrs],
-        "moves": [{"at": _iso(m.at), "by": m.actor_name, "before": m.before, "after": m.after}
-                  for m in h.moves],
-        "timeline": [{"at": _iso(e.at), "kind": e.kind, "title": e.title, "detail": e.detail,
-                      "who": e.who, "superseded": e.superseded} for e in h.timeline],
+        "signatures": [
+            {
+                "meaning": s.meaning,
+                "meaning_text": s.get_meaning_display(),
+                "printed_name": s.printed_name,
+                "signed_at": _iso(s.signed_at),
+                "record_type": s.record_type,
+                "record_id": s.record_id,
+                "record_hash": s.record_hash,
+            }
+            for s in h.signatures
+        ],
+        "holds": [
+            {"reason": x.reason, "opened_at": _iso(x.opened_at), "released_at": _iso(x.released_at)}
+            for x in h.holds
+        ],
+        "alerts": [
+            {
+                "kind": a.kind,
+                "severity": a.severity,
+                "message": a.message,
+                "created_at": _iso(a.created_at),
+                "closed_at": _iso(a.closed_at),
+            }
+            for a in h.alerts
+        ],
+        "ncrs": [
+            {
+                "number": n.number,
+                "status": n.status,
+                "description": n.description,
+                "disposition": n.disposition,
+                "disposition_note": n.disposition_note,
+                "dispositioned_at": _iso(n.dispositioned_at),
+                "readings": [r.pk for r in n.readings.all()],
+            }
+            for n in h.ncrs
+        ],
+        "moves": [
+            {"at": _iso(m.at), "by": m.actor_name, "before": m.before, "after": m.after}
+            for m in h.moves
+        ],
+        "timeline": [
+            {
+                "at": _iso(e.at),
+                "kind": e.kind,
+                "title": e.title,
+                "detail": e.detail,
+                "who": e.who,
+                "superseded": e.superseded,
+            }
+            for e in h.timeline
+        ],
         "standards": h.standards,
         "traceability": TRACEABILITY_CLAIM,
     }
@@ -315,14 +471,22 @@ class JobGenealogy:
 
 def job_genealogy(scope: Scope, number: str) -> JobGenealogy:
     """Job -> the production panels carrying its images -> the lots those panels ran in."""
-    job = (Job.objects.select_related("part_revision__part__customer", "routing_revision")
-           .filter(number__iexact=(number or "").strip()).first())
+    job = (
+        Job.objects.select_related("part_revision__part__customer", "routing_revision")
+        .filter(number__iexact=(number or "").strip())
+        .first()
+    )
     if job is None:
         raise NotFound(f"No job with number {number!r}.")
-    lots = list(visible_lots(scope, Lot.objects.filter(panels__images__job=job).distinct())
-                .order_by("code"))
-    panels = list(Panel.objects.filter(images__job=job, lot__in=lots).select_related("lot")
-                  .prefetch_related("images__job").order_by("serial"))
+    lots = list(
+        visible_lots(scope, Lot.objects.filter(panels__images__job=job).distinct()).order_by("code")
+    )
+    panels = list(
+        Panel.objects.filter(images__job=job, lot__in=lots)
+        .select_related("lot")
+        .prefetch_related("images__job")
+        .order_by("serial")
+    )
     if not scope.sees_all and not lots:
         from shopfloor.errors import NotAllowed
 
@@ -332,10 +496,17 @@ def job_genealogy(scope: Scope, number: str) -> JobGenealogy:
 
 def panel_genealogy(scope: Scope, serial: str) -> Panel:
     """A panel -> every job imaged on it (PanelImage), and the lot it ran in."""
-    panel = (Panel.objects.select_related("lot").prefetch_related(
-        Prefetch("images", queryset=PanelImage.objects.select_related(
-            "job__part_revision__part__customer")))
-        .filter(serial__iexact=(serial or "").strip()).first())
+    panel = (
+        Panel.objects.select_related("lot")
+        .prefetch_related(
+            Prefetch(
+                "images",
+                queryset=PanelImage.objects.select_related("job__part_revision__part__customer"),
+            )
+        )
+        .filter(serial__iexact=(serial or "").strip())
+        .first()
+    )
     if panel is None:
         raise NotFound(f"No panel with serial {serial!r}.")
     require_lot_visible(scope, panel.lot)
@@ -370,7 +541,8 @@ def material_recall(scope: Scope, code: str) -> MaterialRecall:
         raise NotFound(f"No material lot with code {code!r}.")
     steps = list(
         LotStep.objects.filter(material_lots=material, lot__in=visible_lots(scope))
-        .select_related("lot", "work_center").order_by("lot__code", "position")
+        .select_related("lot", "work_center")
+        .order_by("lot__code", "position")
     )
     lot_ids = {s.lot_id for s in steps}
     jobs_by_lot: dict[int, dict[int, Job]] = {}
@@ -380,16 +552,19 @@ def material_recall(scope: Scope, code: str) -> MaterialRecall:
         jobs_by_lot.setdefault(img.panel.lot_id, {})[img.job_id] = img.job
     rows: dict[int, RecallRow] = {}
     for s in steps:
-        row = rows.setdefault(s.lot_id, RecallRow(
-            s.lot, [], sorted(jobs_by_lot.get(s.lot_id, {}).values(), key=lambda j: j.number)))
+        row = rows.setdefault(
+            s.lot_id,
+            RecallRow(
+                s.lot, [], sorted(jobs_by_lot.get(s.lot_id, {}).values(), key=lambda j: j.number)
+            ),
+        )
         row.steps.append(s)
     return MaterialRecall(material, list(rows.values()))
 
 
 # --- search -------------------------------------------------------------------------
 
-SEARCH_FIELDS = ("job", "part", "lot", "customer", "material", "equipment", "date_from",
-                 "date_to")
+SEARCH_FIELDS = ("job", "part", "lot", "customer", "material", "equipment", "date_from", "date_to")
 
 
 @dataclass
@@ -420,11 +595,15 @@ def search(scope: Scope, params: Any) -> SearchResult:
     date_to = _date("To date", crit["date_to"])
     if date_from and date_to:
         if date_to < date_from:
-            raise InvalidInput("The date range ends before it starts: the 'to' date "
-                               "must be on or after the 'from' date.")
+            raise InvalidInput(
+                "The date range ends before it starts: the 'to' date "
+                "must be on or after the 'from' date."
+            )
         if (date_to - date_from).days > MAX_RANGE_DAYS:
-            raise InvalidInput(f"The date range is wider than {MAX_RANGE_DAYS} days; "
-                               "narrow it (or search by job, lot or material instead).")
+            raise InvalidInput(
+                f"The date range is wider than {MAX_RANGE_DAYS} days; "
+                "narrow it (or search by job, lot or material instead)."
+            )
     qs: QuerySet[Lot] = visible_lots(scope)
     if crit["lot"]:
         qs = qs.filter(code__icontains=crit["lot"])
@@ -434,8 +613,10 @@ def search(scope: Scope, params: Any) -> SearchResult:
         qs = qs.filter(panels__images__job__part_revision__part__number__icontains=crit["part"])
     if crit["customer"]:
         c = crit["customer"]
-        qs = qs.filter(Q(panels__images__job__part_revision__part__customer__code__iexact=c)
-                       | Q(panels__images__job__part_revision__part__customer__name__icontains=c))
+        qs = qs.filter(
+            Q(panels__images__job__part_revision__part__customer__code__iexact=c)
+            | Q(panels__images__job__part_revision__part__customer__name__icontains=c)
+        )
     if crit["material"]:
         qs = qs.filter(steps__material_lots__code__iexact=crit["material"])
     if crit["equipment"]:
@@ -447,14 +628,18 @@ def search(scope: Scope, params: Any) -> SearchResult:
         qs = qs.filter(created_at__date__gte=date_from)
     if date_to:
         qs = qs.filter(created_at__date__lte=date_to)
-    lots = list(qs.distinct().select_related("routing_revision").order_by("-created_at")
-                [: SEARCH_LIMIT + 1])
+    lots = list(
+        qs.distinct().select_related("routing_revision").order_by("-created_at")[: SEARCH_LIMIT + 1]
+    )
     truncated = len(lots) > SEARCH_LIMIT
     lots = lots[:SEARCH_LIMIT]
     if not lots:
         return SearchResult([], "No lots match this search.", crit)
-    msg = f"{len(lots)} lot(s) found" + (f" (showing the newest {SEARCH_LIMIT})"
-                                         if truncated else "") + "."
+    msg = (
+        f"{len(lots)} lot(s) found"
+        + (f" (showing the newest {SEARCH_LIMIT})" if truncated else "")
+        + "."
+    )
     return SearchResult(lots, msg, crit, truncated)
 
 
@@ -469,14 +654,22 @@ def overview(scope: Scope) -> QualityOverview:
     """Open holds, open NCRs and open alerts the reader may see."""
     lots = visible_lots(scope)
     return QualityOverview(
-        holds=list(Hold.objects.filter(released_at__isnull=True, lot__in=lots)
-                   .select_related("lot", "ncr").order_by("opened_at")[:500]),
-        ncrs=list(Nonconformance.objects.filter(status=Nonconformance.Status.OPEN, lot__in=lots)
-                  .select_related("lot").order_by("opened_at")[:500]),
-        alerts=list(Alert.objects.filter(closed_at__isnull=True)
-                    .filter(Q(lot__in=lots) | Q(lot__isnull=True) if scope.sees_all
-                            else Q(lot__in=lots))
-                    .select_related("lot", "work_center").order_by("-created_at")[:500]),
+        holds=list(
+            Hold.objects.filter(released_at__isnull=True, lot__in=lots)
+            .select_related("lot", "ncr")
+            .order_by("opened_at")[:500]
+        ),
+        ncrs=list(
+            Nonconformance.objects.filter(status=Nonconformance.Status.OPEN, lot__in=lots)
+            .select_related("lot")
+            .order_by("opened_at")[:500]
+        ),
+        alerts=list(
+            Alert.objects.filter(closed_at__isnull=True)
+            .filter(Q(lot__in=lots) | Q(lot__isnull=True) if scope.sees_all else Q(lot__in=lots))
+            .select_related("lot", "work_center")
+            .order_by("-created_at")[:500]
+        ),
     )
 
 
@@ -521,21 +714,34 @@ def spc_series(scope: Scope) -> list[SeriesRow]:
     rows: list[SeriesRow] = []
     for s in SeriesState.objects.select_related("work_center", "equipment").order_by("key"):
         if scope.sees_work_center(s.work_center_id):
-            rows.append(SeriesRow(s.key, s.quantity, s.work_center.code,
-                                  s.equipment.code if s.equipment else "", s.points, True))
+            rows.append(
+                SeriesRow(
+                    s.key,
+                    s.quantity,
+                    s.work_center.code,
+                    s.equipment.code if s.equipment else "",
+                    s.points,
+                    True,
+                )
+            )
     if rows:
         return rows
     grouped = (
         Reading.objects.filter(superseded_by__isnull=True)
-        .values("quantity", "lot_step__work_center__code", "lot_step__work_center_id",
-                "equipment__code")
-        .annotate(n=Count("id")).order_by("quantity", "lot_step__work_center__code")
+        .values(
+            "quantity", "lot_step__work_center__code", "lot_step__work_center_id", "equipment__code"
+        )
+        .annotate(n=Count("id"))
+        .order_by("quantity", "lot_step__work_center__code")
     )
     for g in grouped:
         if scope.sees_work_center(g["lot_step__work_center_id"]):
             wc, eq = g["lot_step__work_center__code"], g["equipment__code"]
-            rows.append(SeriesRow(_series_key(g["quantity"], wc, eq), g["quantity"], wc,
-                                  eq or "", g["n"], False))
+            rows.append(
+                SeriesRow(
+                    _series_key(g["quantity"], wc, eq), g["quantity"], wc, eq or "", g["n"], False
+                )
+            )
     return rows
 
 
@@ -544,11 +750,16 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
     from shopfloor.quality import spc
     from shopfloor.quality.models import SeriesState
 
-    stored = SeriesState.objects.select_related("work_center", "equipment").filter(
-        key=key).first()
+    stored = SeriesState.objects.select_related("work_center", "equipment").filter(key=key).first()
     if stored is not None:
-        row = SeriesRow(stored.key, stored.quantity, stored.work_center.code,
-                        stored.equipment.code if stored.equipment else "", stored.points, True)
+        row = SeriesRow(
+            stored.key,
+            stored.quantity,
+            stored.work_center.code,
+            stored.equipment.code if stored.equipment else "",
+            stored.points,
+            True,
+        )
         wc_id = stored.work_center_id
     else:
         parts = key.split("@")
@@ -565,12 +776,17 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
         from shopfloor.errors import NotAllowed
 
         raise NotAllowed("This series belongs to a work center that is not yours.")
-    qs = Reading.objects.filter(superseded_by__isnull=True, quantity=row.quantity,
-                                lot_step__work_center_id=wc_id)
-    qs = qs.filter(equipment__code=row.equipment) if row.equipment else (
-        qs.filter(equipment__isnull=True) if not stored else qs)
-    recent = list(qs.order_by("-captured_at", "-pk").values_list("value", "unit", "window")
-                  [:SPC_POINTS])
+    qs = Reading.objects.filter(
+        superseded_by__isnull=True, quantity=row.quantity, lot_step__work_center_id=wc_id
+    )
+    qs = (
+        qs.filter(equipment__code=row.equipment)
+        if row.equipment
+        else (qs.filter(equipment__isnull=True) if not stored else qs)
+    )
+    recent = list(
+        qs.order_by("-captured_at", "-pk").values_list("value", "unit", "window")[:SPC_POINTS]
+    )
     recent.reverse()
     values = [v for v, _, _ in recent]
     unit = recent[-1][1] if recent else ""
@@ -581,8 +797,12 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
     limits, signals, cap, message = None, [], None, ""
     try:
         if stored and stored.limits:
-            limits = spc.fixed_limits(stored.limits["centre"], stored.limits["ucl"],
-                                      stored.limits["lcl"], sigma=stored.limits.get("sigma"))
+            limits = spc.fixed_limits(
+                stored.limits["centre"],
+                stored.limits["ucl"],
+                stored.limits["lcl"],
+                sigma=stored.limits.get("sigma"),
+            )
         elif len(values) >= spc.MIN_BASELINE_POINTS:
             limits = spc.compute_limits("individuals", values)
         if limits is not None:

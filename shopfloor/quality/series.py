@@ -66,8 +66,7 @@ def chart_for(window: dict[str, Any]) -> str:
 def _lock_series(reading: Reading) -> SeriesState:
     step = reading.lot_step
     equipment = reading.equipment or step.equipment
-    key = series_key(reading.quantity, step.work_center.code,
-                     equipment.code if equipment else None)
+    key = series_key(reading.quantity, step.work_center.code, equipment.code if equipment else None)
     SeriesState.objects.get_or_create(
         key=key,
         defaults={

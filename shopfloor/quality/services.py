@@ -142,8 +142,7 @@ def _handle_reading(event: OutboxEvent) -> list[Alert]:
         .first()
     )
     if reading is None:
-        log.warning("outbox event %s names reading %r, which does not exist", event.pk,
-                    reading_id)
+        log.warning("outbox event %s names reading %r, which does not exist", event.pk, reading_id)
         return []
     alerts: list[Alert] = []
     if not reading.in_window:
@@ -174,17 +173,28 @@ def _create_alert(**fields: Any) -> Alert | None:
 
 def _open_ncr(lot: Lot, step: LotStep | None, alert: Alert, description: str) -> Nonconformance:
     """The open NCR of this lot step, or a new one; several bad readings share one NCR."""
-    ncr = Nonconformance.objects.filter(lot=lot, lot_step=step,
-                                        status=Nonconformance.Status.OPEN).first()
+    ncr = Nonconformance.objects.filter(
+        lot=lot, lot_step=step, status=Nonconformance.Status.OPEN
+    ).first()
     if ncr is not None:
         return ncr
-    ncr = Nonconformance.objects.create(number=f"NCR-T{alert.pk}", lot=lot, lot_step=step,
-                                        alert=alert, description=description)
+    ncr = Nonconformance.objects.create(
+        number=f"NCR-T{alert.pk}", lot=lot, lot_step=step, alert=alert, description=description
+    )
     ncr.number = f"NCR-{ncr.pk:06d}"
     ncr.save(update_fields=["number"])
-    audit.record(actor=None, action="ncr.opened", object_type="ncr", object_id=ncr.pk,
-                 after={"number": ncr.number, "lot": lot.code, "alert": alert.pk,
-                        "description": description})
+    audit.record(
+        actor=None,
+        action="ncr.opened",
+        object_type="ncr",
+        object_id=ncr.pk,
+        after={
+            "number": ncr.number,
+            "lot": lot.code,
+            "alert": alert.pk,
+            "description": description,
+        },
+    )
     return ncr
 
 
@@ -193,8 +203,14 @@ def _hold(lot: Lot, step: LotStep | None, alert: Alert, ncr: Nonconformance, rea
     if not lot.on_hold:
         lot.on_hold = True
         lot.save(update_fields=["on_hold"])
-    audit.record(actor=None, action="lot.held", object_type="lot", object_id=lot.pk,
-                 before=None, after={"hold": hold.pk, "ncr": ncr.number, "reason": reason})
+    audit.record(
+        actor=None,
+        action="lot.held",
+        object_type="lot",
+        object_id=lot.pk,
+        before=None,
+        after={"hold": hold.pk, "ncr": ncr.number, "reason": reason},
+    )
     return hold
 
 
@@ -223,11 +239,25 @@ def _out_of_window(event: OutboxEvent, reading: Reading) -> Alert | None:
     )
     if alert is None:
         return None
-    audit.record(actor=None, action="alert.raised", object_type="alert", object_id=alert.pk,
-                 after={"kind": alert.kind, "severity": alert.severity, "lot": lot.code,
-                        "reading": reading.pk, "event": event.pk})
-    ncr = _open_ncr(lot, step, alert, f"{reading.quantity} out of window at '{step.name}': "
-                                      f"{detail} (source: {source})")
+    audit.record(
+        actor=None,
+        action="alert.raised",
+        object_type="alert",
+        object_id=alert.pk,
+        after={
+            "kind": alert.kind,
+            "severity": alert.severity,
+            "lot": lot.code,
+            "reading": reading.pk,
+            "event": event.pk,
+        },
+    )
+    ncr = _open_ncr(
+        lot,
+        step,
+        alert,
+        f"{reading.quantity} out of window at '{step.name}': {detail} (source: {source})",
+    )
     ncr.readings.add(reading)
     _hold(lot, step, alert, ncr, f"Reading {reading.pk} out of window ({detail})")
     return alert
@@ -253,9 +283,13 @@ def _drift_alert(reading: Reading, signal: series_core.DriftSignal) -> Alert | N
         ),
     )
     if alert is not None:
-        audit.record(actor=None, action="alert.raised", object_type="alert",
-                     object_id=alert.pk, after={"kind": alert.kind, "rule": signal.rule,
-                                                "series": s.key, "reading": reading.pk})
+        audit.record(
+            actor=None,
+            action="alert.raised",
+            object_type="alert",
+            object_id=alert.pk,
+            after={"kind": alert.kind, "rule": signal.rule, "series": s.key, "reading": reading.pk},
+        )
     return alert
 
 
@@ -290,16 +324,24 @@ def relay_outbox(now: datetime | None = None, batch: int = RELAY_BATCH) -> dict[
         if not outbox.publish(event_id, republish=True):
             break  # broker still down: try again on the next beat
         published += 1
-    stuck = OutboxEvent.objects.filter(processed_at__isnull=True,
-                                       attempts__gte=MAX_EVENT_ATTEMPTS).count()
+    stuck = OutboxEvent.objects.filter(
+        processed_at__isnull=True, attempts__gte=MAX_EVENT_ATTEMPTS
+    ).count()
     if stuck:
-        log.error("%s outbox event(s) failed %s times and need a person; see last_error",
-                  stuck, MAX_EVENT_ATTEMPTS)
+        log.error(
+            "%s outbox event(s) failed %s times and need a person; see last_error",
+            stuck,
+            MAX_EVENT_ATTEMPTS,
+        )
     renotified = 0
     alert_ids = list(
-        Alert.objects.filter(notified_at__isnull=True, created_at__lt=now - RENOTIFY_AFTER,
-                             created_at__gte=now - RENOTIFY_HORIZON)
-        .order_by("pk").values_list("pk", flat=True)[:batch]
+        Alert.objects.filter(
+            notified_at__isnull=True,
+            created_at__lt=now - RENOTIFY_AFTER,
+            created_at__gte=now - RENOTIFY_HORIZON,
+        )
+        .order_by("pk")
+        .values_list("pk", flat=True)[:batch]
     )
     for alert_id in alert_ids:
         try:
@@ -308,8 +350,12 @@ def relay_outbox(now: datetime | None = None, batch: int = RELAY_BATCH) -> dict[
             log.warning("relay could not queue notification of alert %s: %s", alert_id, exc)
             break
         renotified += 1
-    return {"candidates": len(ids), "published": published, "renotified": renotified,
-            "stuck": stuck}
+    return {
+        "candidates": len(ids),
+        "published": published,
+        "renotified": renotified,
+        "stuck": stuck,
+    }
 
 
 # --- notifications ------------------------------------------------------------------
@@ -343,18 +389,23 @@ def notify_alert(alert_id: int) -> bool:
                 webhook_ok = False
         alert.notified_at = timezone.now()
         alert.save(update_fields=["notified_at"])
-        log.info("alert %s notified (%s e-mail(s), webhook %s)", alert.pk, sent,
-                 "ok" if webhook_ok else "retrying" if notify.webhook_configured() else "off")
+        log.info(
+            "alert %s notified (%s e-mail(s), webhook %s)",
+            alert.pk,
+            sent,
+            "ok" if webhook_ok else "retrying" if notify.webhook_configured() else "off",
+        )
         if not webhook_ok:
+
             def retry() -> None:
                 from shopfloor.quality import tasks
 
                 try:
-                    tasks.deliver_webhook.apply_async(args=[alert_id], countdown=2,
-                                                      retry_policy=outbox.RETRY_POLICY)
+                    tasks.deliver_webhook.apply_async(
+                        args=[alert_id], countdown=2, retry_policy=outbox.RETRY_POLICY
+                    )
                 except Exception as exc:
-                    log.warning("could not queue webhook retry for alert %s: %s",
-                                alert_id, exc)
+                    log.warning("could not queue webhook retry for alert %s: %s", alert_id, exc)
 
             transaction.on_commit(retry)
     return True
@@ -387,7 +438,9 @@ def check_queue_times(now: datetime | None = None) -> dict[str, int]:
             started_at__isnull=True,
             status=LotStep.Status.WAITING,
             lot__status=Lot.Status.IN_PROCESS,
-        ).order_by("arrived_at").values_list("pk", flat=True)[:CHECK_BATCH]
+        )
+        .order_by("arrived_at")
+        .values_list("pk", flat=True)[:CHECK_BATCH]
     )
     counts = {"checked": len(ids), "warnings": 0, "exceeded": 0}
     for step_id in ids:
@@ -400,7 +453,8 @@ def check_queue_times(now: datetime | None = None) -> dict[str, int]:
 def _check_queue_step(step_id: int, now: datetime) -> str | None:
     with transaction.atomic():
         step = (
-            LotStep.objects.select_for_update().select_related("work_center")
+            LotStep.objects.select_for_update()
+            .select_related("work_center")
             .filter(pk=step_id, status=LotStep.Status.WAITING, started_at__isnull=True)
             .first()
         )
@@ -415,15 +469,28 @@ def _check_queue_step(step_id: int, now: datetime) -> str | None:
                 "The lot is on hold until quality dispositions the NCR."
             )
             alert = _create_alert(
-                kind=Alert.Kind.QUEUE_EXCEEDED, severity=Alert.Severity.CRITICAL,
-                dedupe_key=f"queue_exceeded:{step.pk}", lot=lot, lot_step=step,
-                job=_lot_job(lot), work_center=step.work_center, message=message,
+                kind=Alert.Kind.QUEUE_EXCEEDED,
+                severity=Alert.Severity.CRITICAL,
+                dedupe_key=f"queue_exceeded:{step.pk}",
+                lot=lot,
+                lot_step=step,
+                job=_lot_job(lot),
+                work_center=step.work_center,
+                message=message,
             )
             if alert is None:
                 return None
-            audit.record(actor=None, action="alert.raised", object_type="alert",
-                         object_id=alert.pk, after={"kind": alert.kind, "lot": lot.code,
-                                                    "waited_min": round(state.minutes_waited)})
+            audit.record(
+                actor=None,
+                action="alert.raised",
+                object_type="alert",
+                object_id=alert.pk,
+                after={
+                    "kind": alert.kind,
+                    "lot": lot.code,
+                    "waited_min": round(state.minutes_waited),
+                },
+            )
             ncr = _open_ncr(lot, step, alert, message)
             _hold(lot, step, alert, ncr, "Queue-time limit exceeded")
             _notify_after_commit(alert.pk)
@@ -431,8 +498,11 @@ def _check_queue_step(step_id: int, now: datetime) -> str | None:
         if state.warn and not step.queue_warning_released_reason:
             left = state.limit_minutes - state.minutes_waited
             alert = _create_alert(
-                kind=Alert.Kind.QUEUE_WARNING, severity=Alert.Severity.WARNING,
-                dedupe_key=f"queue_warning:{step.pk}", lot_id=step.lot_id, lot_step=step,
+                kind=Alert.Kind.QUEUE_WARNING,
+                severity=Alert.Severity.WARNING,
+                dedupe_key=f"queue_warning:{step.pk}",
+                lot_id=step.lot_id,
+                lot_step=step,
                 work_center=step.work_center,
                 message=(
                     f"'{step.name}' at {step.work_center.name} must start within "
@@ -442,8 +512,13 @@ def _check_queue_step(step_id: int, now: datetime) -> str | None:
             )
             if alert is None:
                 return None
-            audit.record(actor=None, action="alert.raised", object_type="alert",
-                         object_id=alert.pk, after={"kind": alert.kind, "lot_step": step.pk})
+            audit.record(
+                actor=None,
+                action="alert.raised",
+                object_type="alert",
+                object_id=alert.pk,
+                after={"kind": alert.kind, "lot_step": step.pk},
+            )
             _notify_after_commit(alert.pk)
             return "warnings"
     return None
@@ -459,8 +534,10 @@ def release_queue_warning(person: Person, lot_step_id: int, reason: str) -> LotS
         raise NotAllowed("Only a supervisor can release a queue-time warning.")
     reason = (reason or "").strip()
     if len(reason) < 3:
-        raise InvalidInput("Releasing a queue-time warning needs a reason (at least 3 "
-                           "characters) saying why waiting longer is acceptable.")
+        raise InvalidInput(
+            "Releasing a queue-time warning needs a reason (at least 3 "
+            "characters) saying why waiting longer is acceptable."
+        )
     if len(reason) > 300:
         raise InvalidInput("The reason may be at most 300 characters.")
     with transaction.atomic():
@@ -470,15 +547,22 @@ def release_queue_warning(person: Person, lot_step_id: int, reason: str) -> LotS
         if step.queue_time_limit_minutes is None:
             raise Conflict(f"'{step.name}' has no queue-time limit, so there is no warning.")
         if step.queue_warning_released_reason:
-            raise Conflict(f"The queue-time warning of '{step.name}' was already released: "
-                           f"{step.queue_warning_released_reason}")
+            raise Conflict(
+                f"The queue-time warning of '{step.name}' was already released: "
+                f"{step.queue_warning_released_reason}"
+            )
         step.queue_warning_released_reason = reason
         step.save(update_fields=["queue_warning_released_reason"])
-        closed = Alert.objects.filter(dedupe_key=f"queue_warning:{step.pk}",
-                                      closed_at__isnull=True).update(closed_at=timezone.now())
-        audit.record(actor=person.user, action="queue_warning.released",
-                     object_type="lot_step", object_id=step.pk,
-                     after={"reason": reason, "alerts_closed": closed})
+        closed = Alert.objects.filter(
+            dedupe_key=f"queue_warning:{step.pk}", closed_at__isnull=True
+        ).update(closed_at=timezone.now())
+        audit.record(
+            actor=person.user,
+            action="queue_warning.released",
+            object_type="lot_step",
+            object_id=step.pk,
+            after={"reason": reason, "alerts_closed": closed},
+        )
         return step
 
 
@@ -496,7 +580,8 @@ def job_remaining_minutes(job: Job) -> float | None:
         return None
     per_lot = (
         LotStep.objects.filter(lot__in=lots, status__in=OPEN_STEP)
-        .values("lot").annotate(total=Sum("standard_minutes"))
+        .values("lot")
+        .annotate(total=Sum("standard_minutes"))
     )
     return float(max((row["total"] or 0 for row in per_lot), default=0))
 
@@ -505,7 +590,8 @@ def check_due_dates(now: datetime | None = None) -> dict[str, int]:
     """Raise one alert per job and state (at risk, late) using shopfloor.schedule."""
     now = now or timezone.now()
     jobs = list(
-        Job.objects.filter(panels__lot__status__in=ACTIVE_LOT).distinct()
+        Job.objects.filter(panels__lot__status__in=ACTIVE_LOT)
+        .distinct()
         .order_by("due_date", "pk")[:CHECK_BATCH]
     )
     counts = {"checked": len(jobs), "at_risk": 0, "late": 0}
@@ -519,21 +605,27 @@ def check_due_dates(now: datetime | None = None) -> dict[str, int]:
         late = state == schedule.DueState.LATE
         message = (
             f"Job {job.number} is late: it was due {job.due_date:%Y-%m-%d}."
-            if late else
-            f"Job {job.number} is at risk of missing {job.due_date:%Y-%m-%d}: "
+            if late
+            else f"Job {job.number} is at risk of missing {job.due_date:%Y-%m-%d}: "
             f"{remaining:.0f} standard minutes of work remain."
         )
         with transaction.atomic():
             alert = _create_alert(
                 kind=Alert.Kind.LATE if late else Alert.Kind.DUE_RISK,
                 severity=Alert.Severity.CRITICAL if late else Alert.Severity.WARNING,
-                dedupe_key=f"job:{job.pk}:{state.value}", job=job, message=message,
+                dedupe_key=f"job:{job.pk}:{state.value}",
+                job=job,
+                message=message,
             )
             if alert is None:
                 continue
-            audit.record(actor=None, action="alert.raised", object_type="alert",
-                         object_id=alert.pk, after={"kind": alert.kind, "job": job.number,
-                                                    "remaining_min": remaining})
+            audit.record(
+                actor=None,
+                action="alert.raised",
+                object_type="alert",
+                object_id=alert.pk,
+                after={"kind": alert.kind, "job": job.number, "remaining_min": remaining},
+            )
             _notify_after_commit(alert.pk)
         counts["late" if late else "at_risk"] += 1
     return counts
@@ -554,8 +646,9 @@ def _get_series_locked(series_id: int) -> SeriesState:
     return found
 
 
-def fix_limits(person: Person, series_id: int, centre: float, ucl: float,
-               lcl: float) -> SeriesState:
+def fix_limits(
+    person: Person, series_id: int, centre: float, ucl: float, lcl: float
+) -> SeriesState:
     """Set a series' control limits by hand (e.g. after a capability study)."""
     _require_quality(person, "fix control limits")
     try:
@@ -569,13 +662,18 @@ def fix_limits(person: Person, series_id: int, centre: float, ucl: float,
         s.limits_fixed = True
         s.updated_at = timezone.now()
         s.save(update_fields=["limits", "limits_fixed", "updated_at"])
-        audit.record(actor=person.user, action="spc.limits_fixed", object_type="spc_series",
-                     object_id=s.pk, before=before, after=s.limits)
+        audit.record(
+            actor=person.user,
+            action="spc.limits_fixed",
+            object_type="spc_series",
+            object_id=s.pk,
+            before=before,
+            after=s.limits,
+        )
         return s
 
 
-def recompute_limits(person: Person, series_id: int, start: datetime,
-                     end: datetime) -> SeriesState:
+def recompute_limits(person: Person, series_id: int, start: datetime, end: datetime) -> SeriesState:
     """Recompute a series' limits from the readings recorded in [start, end]."""
     _require_quality(person, "recompute control limits")
     if not isinstance(start, datetime) or not isinstance(end, datetime):
@@ -604,13 +702,21 @@ def recompute_limits(person: Person, series_id: int, start: datetime,
             raise InvalidInput(f"Limits cannot be computed from that window: {exc}.") from exc
         before = s.limits
         s.limits = series_core.limits_to_dict(
-            limits, source=f"recomputed from {len(values)} readings "
-                           f"{start.isoformat()} to {end.isoformat()}")
+            limits,
+            source=f"recomputed from {len(values)} readings "
+            f"{start.isoformat()} to {end.isoformat()}",
+        )
         s.limits_fixed = True
         s.updated_at = timezone.now()
         s.save(update_fields=["limits", "limits_fixed", "updated_at"])
-        audit.record(actor=person.user, action="spc.limits_recomputed",
-                     object_type="spc_series", object_id=s.pk, before=before, after=s.limits)
+        audit.record(
+            actor=person.user,
+            action="spc.limits_recomputed",
+            object_type="spc_series",
+            object_id=s.pk,
+            before=before,
+            after=s.limits,
+        )
         return s
 
 
@@ -629,9 +735,16 @@ def series_capability(series_id: int) -> dict[str, Any]:
     window = readings[-1].window if readings else {}
     lsl, usl = window.get("min"), window.get("max")
     result: dict[str, Any] = {
-        "series": s.key, "chart": s.chart, "n": len(values), "lsl": lsl, "usl": usl,
-        "unit": readings[-1].unit if readings else "", "source": window.get("source"),
-        "limits": s.limits, "capability": None, "reason": "",
+        "series": s.key,
+        "chart": s.chart,
+        "n": len(values),
+        "lsl": lsl,
+        "usl": usl,
+        "unit": readings[-1].unit if readings else "",
+        "source": window.get("source"),
+        "limits": s.limits,
+        "capability": None,
+        "reason": "",
     }
     if s.chart != "individuals":
         result["reason"] = "capability applies to measured values, not attribute counts"
@@ -645,9 +758,12 @@ def series_capability(series_id: int) -> dict[str, Any]:
         except spc.SpcInputError as exc:
             result["reason"] = str(exc)
         else:
-            result["capability"] = {**cap.to_dict(), "mean": cap.mean,
-                                    "within_sigma": cap.within_sigma,
-                                    "overall_sigma": cap.overall_sigma}
+            result["capability"] = {
+                **cap.to_dict(),
+                "mean": cap.mean,
+                "within_sigma": cap.within_sigma,
+                "overall_sigma": cap.overall_sigma,
+            }
     return result
 
 
@@ -669,8 +785,10 @@ class ReworkStep:
 def _parse_rework(raw: Any) -> list[ReworkStep]:
     items = raw if raw else [DEFAULT_REWORK]
     if not isinstance(items, list) or len(items) > MAX_REWORK_STEPS:
-        raise InvalidInput(f"rework_steps must be a list of 1 to {MAX_REWORK_STEPS} steps, "
-                           'each like {"name": "Strip and replate"}.')
+        raise InvalidInput(
+            f"rework_steps must be a list of 1 to {MAX_REWORK_STEPS} steps, "
+            'each like {"name": "Strip and replate"}.'
+        )
     parsed: list[ReworkStep] = []
     problems: list[dict[str, Any]] = []
     allowed = {"name", "work_center", "instructions", "standard_minutes", "same_plan"}
@@ -680,50 +798,74 @@ def _parse_rework(raw: Any) -> list[ReworkStep]:
             continue
         unknown = sorted(set(item) - allowed)
         if unknown:
-            problems.append({"field": f"rework_steps[{i}]", "problem": f"unknown {unknown}",
-                             "allowed": sorted(allowed)})
+            problems.append(
+                {
+                    "field": f"rework_steps[{i}]",
+                    "problem": f"unknown {unknown}",
+                    "allowed": sorted(allowed),
+                }
+            )
         name = item.get("name")
         if not isinstance(name, str) or not 3 <= len(name.strip()) <= 120:
-            problems.append({"field": f"rework_steps[{i}].name",
-                             "problem": "a name of 3 to 120 characters is required"})
+            problems.append(
+                {
+                    "field": f"rework_steps[{i}].name",
+                    "problem": "a name of 3 to 120 characters is required",
+                }
+            )
             continue
         wc = None
         if item.get("work_center") is not None:
             wc = WorkCenter.objects.filter(code=item["work_center"]).first()
             if wc is None:
-                problems.append({"field": f"rework_steps[{i}].work_center",
-                                 "value": item["work_center"],
-                                 "problem": "no work center with that code"})
+                problems.append(
+                    {
+                        "field": f"rework_steps[{i}].work_center",
+                        "value": item["work_center"],
+                        "problem": "no work center with that code",
+                    }
+                )
         minutes = item.get("standard_minutes")
-        if minutes is not None and (isinstance(minutes, bool) or not isinstance(minutes, int)
-                                    or not 1 <= minutes <= 10_000):
-            problems.append({"field": f"rework_steps[{i}].standard_minutes",
-                             "problem": "a whole number of minutes from 1 to 10000"})
+        if minutes is not None and (
+            isinstance(minutes, bool) or not isinstance(minutes, int) or not 1 <= minutes <= 10_000
+        ):
+            problems.append(
+                {
+                    "field": f"rework_steps[{i}].standard_minutes",
+                    "problem": "a whole number of minutes from 1 to 10000",
+                }
+            )
         same_plan = item.get("same_plan", True)
         if not isinstance(same_plan, bool):
-            problems.append({"field": f"rework_steps[{i}].same_plan",
-                             "problem": "true or false"})
-        parsed.append(ReworkStep(name.strip(), wc, str(item.get("instructions") or ""),
-                                 minutes, bool(same_plan)))
+            problems.append({"field": f"rework_steps[{i}].same_plan", "problem": "true or false"})
+        parsed.append(
+            ReworkStep(
+                name.strip(), wc, str(item.get("instructions") or ""), minutes, bool(same_plan)
+            )
+        )
     if problems:
-        raise InvalidInput(f"The rework steps have {len(problems)} problem(s).",
-                           problems=problems)
+        raise InvalidInput(f"The rework steps have {len(problems)} problem(s).", problems=problems)
     return parsed
 
 
 def _parse_panel_ids(raw: Any) -> set[int] | None:
     if raw is None:
         return None
-    if not isinstance(raw, list | tuple | set) or not raw or not all(
-        isinstance(p, int) and not isinstance(p, bool) for p in raw
+    if (
+        not isinstance(raw, list | tuple | set)
+        or not raw
+        or not all(isinstance(p, int) and not isinstance(p, bool) for p in raw)
     ):
-        raise InvalidInput("scrap_panel_ids must be a non-empty list of panel ids "
-                           "(leave it out to scrap the whole lot).")
+        raise InvalidInput(
+            "scrap_panel_ids must be a non-empty list of panel ids "
+            "(leave it out to scrap the whole lot)."
+        )
     return set(raw)
 
 
-def _insert_rework(ncr: Nonconformance, lot: Lot, held: LotStep | None,
-                   items: list[ReworkStep]) -> list[dict[str, Any]]:
+def _insert_rework(
+    ncr: Nonconformance, lot: Lot, held: LotStep | None, items: list[ReworkStep]
+) -> list[dict[str, Any]]:
     """Insert rework steps right after the held step, between the existing positions."""
     if held is None:
         raise Conflict(f"{ncr.number} names no lot step, so rework has nowhere to go.")
@@ -736,8 +878,11 @@ def _insert_rework(ncr: Nonconformance, lot: Lot, held: LotStep | None,
         end = nxt.position
         if end - after <= need:  # no room between: move the later steps along
             shift = 10 * math.ceil((need + 1) / 10)
-            for later in (LotStep.objects.select_for_update().filter(lot=lot, position__gt=after)
-                          .order_by("-position")):
+            for later in (
+                LotStep.objects.select_for_update()
+                .filter(lot=lot, position__gt=after)
+                .order_by("-position")
+            ):
                 later.position += shift
                 later.save(update_fields=["position"])
             end += shift
@@ -758,10 +903,21 @@ def _insert_rework(ncr: Nonconformance, lot: Lot, held: LotStep | None,
             is_rework=True,
             added_by_ncr=ncr,
         )
-        created.append({"lot_step": step.pk, "position": step.position, "name": step.name,
-                        "work_center": step.work_center.code})
-    audit.record(actor=None, action="lot.rework_added", object_type="lot", object_id=lot.pk,
-                 after={"ncr": ncr.number, "after_position": after, "steps": created})
+        created.append(
+            {
+                "lot_step": step.pk,
+                "position": step.position,
+                "name": step.name,
+                "work_center": step.work_center.code,
+            }
+        )
+    audit.record(
+        actor=None,
+        action="lot.rework_added",
+        object_type="lot",
+        object_id=lot.pk,
+        after={"ncr": ncr.number, "after_position": after, "steps": created},
+    )
     return created
 
 
@@ -773,31 +929,43 @@ def _scrap(ncr: Nonconformance, lot: Lot, panel_ids: set[int] | None) -> dict[st
             raise InvalidInput(
                 f"Panel id(s) {unknown} are not live panels of lot {lot.code}. Allowed: "
                 f"{sorted(live)}.",
-                problems=[{"field": "scrap_panel_ids", "value": unknown,
-                           "allowed": sorted(live)}],
+                problems=[{"field": "scrap_panel_ids", "value": unknown, "allowed": sorted(live)}],
             )
     if panel_ids is None or panel_ids == set(live):
         Panel.objects.filter(pk__in=list(live)).update(scrapped=True)
         lot.status = Lot.Status.SCRAPPED
         lot.save(update_fields=["status"])
-        audit.record(actor=None, action="lot.scrapped", object_type="lot", object_id=lot.pk,
-                     after={"ncr": ncr.number, "panels": sorted(p.serial for p in live.values())})
+        audit.record(
+            actor=None,
+            action="lot.scrapped",
+            object_type="lot",
+            object_id=lot.pk,
+            after={"ncr": ncr.number, "panels": sorted(p.serial for p in live.values())},
+        )
         return {"scrapped": "all", "panels": sorted(p.serial for p in live.values())}
     n = Lot.objects.filter(split_from=lot).count() + 1
     suffix = f"-S{n}"
     split = Lot.objects.create(
-        code=lot.code[: 30 - len(suffix)] + suffix, routing_revision=lot.routing_revision,
-        status=Lot.Status.SCRAPPED, priority=lot.priority, split_from=lot,
-        panel_count=len(panel_ids), started_at=lot.started_at,
+        code=lot.code[: 30 - len(suffix)] + suffix,
+        routing_revision=lot.routing_revision,
+        status=Lot.Status.SCRAPPED,
+        priority=lot.priority,
+        split_from=lot,
+        panel_count=len(panel_ids),
+        started_at=lot.started_at,
     )
     serials = sorted(live[pk].serial for pk in panel_ids)
     Panel.objects.filter(pk__in=list(panel_ids)).update(lot=split, scrapped=True)
     lot.panel_count = max(lot.panel_count - len(panel_ids), 0)
     lot.save(update_fields=["panel_count"])
     ncr.scrap_lot = split
-    audit.record(actor=None, action="lot.split", object_type="lot", object_id=lot.pk,
-                 after={"ncr": ncr.number, "split_lot": split.code, "panels": serials,
-                        "status": "scrapped"})
+    audit.record(
+        actor=None,
+        action="lot.split",
+        object_type="lot",
+        object_id=lot.pk,
+        after={"ncr": ncr.number, "split_lot": split.code, "panels": serials, "status": "scrapped"},
+    )
     return {"scrapped": "some", "split_lot": split.code, "panels": serials}
 
 
@@ -821,8 +989,9 @@ def disposition_ncr(
     _require_quality(person, "disposition a nonconformance")
     allowed = [c.value for c in Nonconformance.Disposition]
     if disposition not in allowed:
-        raise InvalidInput(f"Disposition {disposition!r} is not known; use one of "
-                           f"{', '.join(allowed)}.")
+        raise InvalidInput(
+            f"Disposition {disposition!r} is not known; use one of {', '.join(allowed)}."
+        )
     note = (note or "").strip()
     if len(note) < 3:
         raise InvalidInput("A disposition needs a note (at least 3 characters) saying why.")
@@ -830,8 +999,7 @@ def disposition_ncr(
         raise InvalidInput("rework_steps apply only to a rework disposition.")
     if disposition != Nonconformance.Disposition.SCRAP and scrap_panel_ids:
         raise InvalidInput("scrap_panel_ids apply only to a scrap disposition.")
-    rework = (_parse_rework(rework_steps)
-              if disposition == Nonconformance.Disposition.REWORK else [])
+    rework = _parse_rework(rework_steps) if disposition == Nonconformance.Disposition.REWORK else []
     panel_ids = _parse_panel_ids(scrap_panel_ids)
     if not (pin or "").strip():
         raise InvalidInput("Enter your PIN to sign the disposition.")
@@ -841,10 +1009,12 @@ def disposition_ncr(
         if ncr is None:
             raise NotFound(f"No nonconformance {ncr_id}.")
         if ncr.status != Nonconformance.Status.OPEN:
-            raise Conflict(f"{ncr.number} was already dispositioned "
-                           f"({ncr.get_disposition_display().lower()}).")
-        held = (LotStep.objects.select_for_update().get(pk=ncr.lot_step_id)
-                if ncr.lot_step_id else None)
+            raise Conflict(
+                f"{ncr.number} was already dispositioned ({ncr.get_disposition_display().lower()})."
+            )
+        held = (
+            LotStep.objects.select_for_update().get(pk=ncr.lot_step_id) if ncr.lot_step_id else None
+        )
         lot = Lot.objects.select_for_update().get(pk=ncr.lot_id)
         detail: dict[str, Any] = {}
         if disposition == Nonconformance.Disposition.REWORK:
@@ -856,24 +1026,42 @@ def disposition_ncr(
         ncr.disposition_note = note
         ncr.dispositioned_at = now
         ncr.status = Nonconformance.Status.CLOSED
-        content = {"number": ncr.number, "lot": lot.code, "disposition": disposition,
-                   "note": note, **detail}
-        sig = audit.sign(person=person, meaning="dispositioned_by", record_type="ncr",
-                         record_id=ncr.pk, content=content)
+        content = {
+            "number": ncr.number,
+            "lot": lot.code,
+            "disposition": disposition,
+            "note": note,
+            **detail,
+        }
+        sig = audit.sign(
+            person=person,
+            meaning="dispositioned_by",
+            record_type="ncr",
+            record_id=ncr.pk,
+            content=content,
+        )
         ncr.disposition_signature = sig
         ncr.save()
         holds = list(Hold.objects.select_for_update().filter(ncr=ncr, released_at__isnull=True))
         Hold.objects.filter(pk__in=[h.pk for h in holds]).update(released_at=now)
-        Alert.objects.filter(
-            Q(hold__in=holds) | Q(ncr=ncr), closed_at__isnull=True
-        ).update(closed_at=now)
+        Alert.objects.filter(Q(hold__in=holds) | Q(ncr=ncr), closed_at__isnull=True).update(
+            closed_at=now
+        )
         still_held = Hold.objects.filter(lot=lot, released_at__isnull=True).exists()
         if lot.on_hold and not still_held:
             lot.on_hold = False
             lot.save(update_fields=["on_hold"])
-        audit.record(actor=person.user, action="ncr.dispositioned", object_type="ncr",
-                     object_id=ncr.pk, before={"status": "open"},
-                     after={**content, "signature": sig.pk,
-                            "holds_released": [h.pk for h in holds],
-                            "lot_on_hold": lot.on_hold})
+        audit.record(
+            actor=person.user,
+            action="ncr.dispositioned",
+            object_type="ncr",
+            object_id=ncr.pk,
+            before={"status": "open"},
+            after={
+                **content,
+                "signature": sig.pk,
+                "holds_released": [h.pk for h in holds],
+                "lot_on_hold": lot.on_hold,
+            },
+        )
         return ncr

@@ -26,8 +26,14 @@ PAUSE_ENV = "SHOPFLOOR_FAULT_PAUSE_AFTER_EVENT_S"
 _DB_ERRORS = (OperationalError, InterfaceError)
 
 
-@shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=5, retry_backoff=True,
-             retry_backoff_max=60, retry_jitter=True)
+@shared_task(
+    acks_late=True,
+    autoretry_for=_DB_ERRORS,
+    max_retries=5,
+    retry_backoff=True,
+    retry_backoff_max=60,
+    retry_jitter=True,
+)
 def process_event(event_id: int) -> None:
     outcome = services.handle_event(event_id)
     pause = os.environ.get(PAUSE_ENV)
@@ -50,14 +56,25 @@ def check_due_dates() -> dict[str, int]:
     return services.check_due_dates()
 
 
-@shared_task(acks_late=True, autoretry_for=(*_DB_ERRORS, OSError), max_retries=5,
-             retry_backoff=True, retry_backoff_max=300)
+@shared_task(
+    acks_late=True,
+    autoretry_for=(*_DB_ERRORS, OSError),
+    max_retries=5,
+    retry_backoff=True,
+    retry_backoff_max=300,
+)
 def notify_alert(alert_id: int) -> bool:
     return services.notify_alert(alert_id)
 
 
-@shared_task(acks_late=True, autoretry_for=(notify.WebhookFailed,), max_retries=5,
-             retry_backoff=2, retry_backoff_max=300, retry_jitter=True)
+@shared_task(
+    acks_late=True,
+    autoretry_for=(notify.WebhookFailed,),
+    max_retries=5,
+    retry_backoff=2,
+    retry_backoff_max=300,
+    retry_jitter=True,
+)
 def deliver_webhook(alert_id: int) -> None:
     services.deliver_webhook(alert_id)
 

@@ -31,8 +31,9 @@ View = Callable[..., HttpResponse]
 
 def _refusal(request: HttpRequest, exc: DomainError) -> HttpResponse:
     template = {403: "403.html", 404: "404.html"}.get(exc.status, "quality/refusal.html")
-    return render(request, template, {"reason": exc.detail, "problems": exc.problems},
-                  status=exc.status)
+    return render(
+        request, template, {"reason": exc.detail, "problems": exc.problems}, status=exc.status
+    )
 
 
 def reader(view: Callable[..., HttpResponse]) -> View:
@@ -61,8 +62,15 @@ def _board_context(request: HttpRequest, scope: Scope) -> dict[str, Any]:
         error, filters = exc.detail, board.BoardFilters()
     data = board.build_board(scope, filters)
     query = urlencode(filters.as_query())
-    return {"board": data, "filters": filters, "query": query, "error": error,
-            "scope": scope, "sorts": board.SORTS, "raw": request.GET}
+    return {
+        "board": data,
+        "filters": filters,
+        "query": query,
+        "error": error,
+        "scope": scope,
+        "sorts": board.SORTS,
+        "raw": request.GET,
+    }
 
 
 @require_GET
@@ -77,8 +85,7 @@ def board_page(request: HttpRequest, scope: Scope) -> HttpResponse:
 def board_body(request: HttpRequest, scope: Scope) -> HttpResponse:
     """The board body alone, polled by htmx with the current filters."""
     ctx = _board_context(request, scope)
-    return render(request, "board/board.html#board_body", ctx,
-                  status=400 if ctx["error"] else 200)
+    return render(request, "board/board.html#board_body", ctx, status=400 if ctx["error"] else 200)
 
 
 def _int(value: Any) -> int | None:
@@ -146,8 +153,9 @@ def lot_csv(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
 def lot_pdf(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
     certificate = request.GET.get("kind") == "certificate"
     h = history.lot_history(scope, code)
-    response = HttpResponse(exports.lot_record_pdf(h, certificate=certificate),
-                            content_type="application/pdf")
+    response = HttpResponse(
+        exports.lot_record_pdf(h, certificate=certificate), content_type="application/pdf"
+    )
     name = "certificate" if certificate else "record"
     response["Content-Disposition"] = f'inline; filename="lot-{h.lot.code}-{name}.pdf"'
     return response
@@ -177,8 +185,12 @@ def search_page(request: HttpRequest, scope: Scope) -> HttpResponse:
     try:
         result = history.search(scope, request.GET) if request.GET else None
     except DomainError as exc:
-        return render(request, "quality/search.html", {"error": exc.detail, "q": request.GET},
-                      status=exc.status)
+        return render(
+            request,
+            "quality/search.html",
+            {"error": exc.detail, "q": request.GET},
+            status=exc.status,
+        )
     return render(request, "quality/search.html", {"result": result, "q": request.GET})
 
 
@@ -194,15 +206,28 @@ def spc_page(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
     d = history.spc_detail(scope, key)
     chart_svg = hist_svg = ""
     if d.limits is not None:
-        chart_svg = charts.to_svg(charts.control_chart(
-            d.values, d.limits.centre, d.limits.ucl, d.limits.lcl,
-            [(s.index, s.rule) for s in d.signals],
-            title=f"{d.row.quantity} at {d.row.work_center} (individuals)", unit=d.unit,
-        ))
+        chart_svg = charts.to_svg(
+            charts.control_chart(
+                d.values,
+                d.limits.centre,
+                d.limits.ucl,
+                d.limits.lcl,
+                [(s.index, s.rule) for s in d.signals],
+                title=f"{d.row.quantity} at {d.row.work_center} (individuals)",
+                unit=d.unit,
+            )
+        )
     if d.values:
-        hist_svg = charts.to_svg(charts.capability_histogram(
-            d.values, d.window.get("min"), d.window.get("max"), target=d.window.get("target"),
-            title=f"{d.row.quantity} against its window", unit=d.unit,
-        ))
-    return render(request, "quality/spc_series.html",
-                  {"d": d, "chart_svg": chart_svg, "hist_svg": hist_svg})
+        hist_svg = charts.to_svg(
+            charts.capability_histogram(
+                d.values,
+                d.window.get("min"),
+                d.window.get("max"),
+                target=d.window.get("target"),
+                title=f"{d.row.quantity} against its window",
+                unit=d.unit,
+            )
+        )
+    return render(
+        request, "quality/spc_series.html", {"d": d, "chart_svg": chart_svg, "hist_svg": hist_svg}
+    )

@@ -30,7 +30,10 @@ def advance_to(lot: Lot, code: str, person: Person) -> LotStep:
 
 def gauge_at(step: LotStep, code: str = "XRF-T1") -> Equipment:
     return Equipment.objects.create(
-        work_center=step.work_center, code=code, name="Test thickness gauge", is_gauge=True,
+        work_center=step.work_center,
+        code=code,
+        name="Test thickness gauge",
+        is_gauge=True,
         calibration_due=timezone.localdate() + dt.timedelta(days=60),
     )
 

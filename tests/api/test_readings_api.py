@@ -38,14 +38,21 @@ def operator_client(floor):
 
 
 def body(floor, **over):
-    data = {"lot": floor.lot.code, "quantity": "hole_wall_copper", "value": 0.8, "unit": "mil",
-            "sample_index": 1, "position": "panel 1 corner A"}
+    data = {
+        "lot": floor.lot.code,
+        "quantity": "hole_wall_copper",
+        "value": 0.8,
+        "unit": "mil",
+        "sample_index": 1,
+        "position": "panel 1 corner A",
+    }
     data.update(over)
     return data
 
 
-def test_reading_is_converted_judged_and_returns_window_with_source(floor, plating,
-                                                                    operator_client):
+def test_reading_is_converted_judged_and_returns_window_with_source(
+    floor, plating, operator_client
+):
     gauge = gauge_at(plating)
     reply = operator_client.post(URL, body(floor, equipment=gauge.pk), format="json")
     assert reply.status_code == 201, reply.content
@@ -80,8 +87,7 @@ BAD_INPUTS = [
     ("wrong dimension", {"unit": "percent"}, 400, "value"),
     ("absurd magnitude", {"value": 5, "unit": "m"}, 400, "value"),
     ("negative", {"value": -3}, 400, "value"),
-    ("quantity not measured here", {"quantity": "bow_twist", "unit": "percent"}, 400,
-     "quantity"),
+    ("quantity not measured here", {"quantity": "bow_twist", "unit": "percent"}, 400, "quantity"),
     ("sample beyond the plan", {"sample_index": 6}, 400, "sample_index"),
     ("naive capture time", {"captured_at": "2025-01-01T08:00:00"}, 400, "captured_at"),
     ("missing lot", {"lot": None}, 400, "lot"),
@@ -92,8 +98,9 @@ BAD_INPUTS = [
 
 
 @pytest.mark.parametrize("label,change,status,field", BAD_INPUTS, ids=[b[0] for b in BAD_INPUTS])
-def test_bad_input_gets_structured_refusal_and_saves_nothing(floor, plating, operator_client,
-                                                             label, change, status, field):
+def test_bad_input_gets_structured_refusal_and_saves_nothing(
+    floor, plating, operator_client, label, change, status, field
+):
     before = Reading.objects.count()
     reply = operator_client.post(URL, body(floor, **change), format="json")
     assert reply.status_code == status, reply.content
@@ -105,8 +112,9 @@ def test_bad_input_gets_structured_refusal_and_saves_nothing(floor, plating, ope
 
 
 def test_nan_literal_in_json_is_refused(floor, plating, operator_client):
-    raw = ('{"lot": "%s", "quantity": "hole_wall_copper", "value": NaN, "unit": "um"}'
-           % floor.lot.code)
+    raw = (
+        f'{{"lot": "{floor.lot.code}", "quantity": "hole_wall_copper", "value": NaN, "unit": "um"}}'
+    )
     reply = operator_client.post(URL, raw, content_type="application/json")
     assert reply.status_code == 400
     assert reply.json()["error"] == "parse_error"
@@ -115,8 +123,11 @@ def test_nan_literal_in_json_is_refused(floor, plating, operator_client):
 
 def test_step_that_is_not_current_is_a_conflict(floor, plating, operator_client):
     later = floor.lot.steps.filter(code="final_inspection").get()
-    reply = operator_client.post(URL, body(floor, step=later.pk, quantity="board_thickness",
-                                           value=1.6, unit="mm"), format="json")
+    reply = operator_client.post(
+        URL,
+        body(floor, step=later.pk, quantity="board_thickness", value=1.6, unit="mm"),
+        format="json",
+    )
     assert reply.status_code == 409
     assert "current step" in reply.json()["detail"]
     assert not Reading.objects.filter(lot_step=later).exists()
@@ -146,9 +157,13 @@ def test_same_key_while_first_still_running_is_409(floor, plating, operator_clie
     user = floor.personas["operator"].user
     settings = connection.settings_dict
     # A second session holds the advisory lock the first request would hold mid-flight.
-    with psycopg.connect(host=settings["HOST"] or "127.0.0.1", port=settings["PORT"] or 5432,
-                         user=settings["USER"], dbname=settings["NAME"],
-                         autocommit=True) as other:
+    with psycopg.connect(
+        host=settings["HOST"] or "127.0.0.1",
+        port=settings["PORT"] or 5432,
+        user=settings["USER"],
+        dbname=settings["NAME"],
+        autocommit=True,
+    ) as other:
         other.execute("SELECT pg_advisory_lock(%s)", [idempotency._lock_id(user.pk, key)])
         reply = operator_client.post(URL, body(floor), format="json", HTTP_IDEMPOTENCY_KEY=key)
     assert reply.status_code == 409
@@ -198,16 +213,21 @@ def test_withdrawn_or_wrong_token_is_401(floor, plating):
 
 def test_correction_supersedes_with_reason(floor, plating, operator_client):
     first = operator_client.post(URL, body(floor, value=0.7), format="json").json()
-    reply = operator_client.post(f"/api/v1/readings/{first['id']}/correct/",
-                                 {"value": 21.0, "unit": "um", "reason": "probe not seated"},
-                                 format="json")
+    reply = operator_client.post(
+        f"/api/v1/readings/{first['id']}/correct/",
+        {"value": 21.0, "unit": "um", "reason": "probe not seated"},
+        format="json",
+    )
     assert reply.status_code == 201, reply.content
     assert reply.json()["in_window"] is True
     old = Reading.objects.get(pk=first["id"])
     assert old.superseded_by_id == reply.json()["id"]
     assert old.correction_reason == "probe not seated"
-    no_reason = operator_client.post(f"/api/v1/readings/{reply.json()['id']}/correct/",
-                                     {"value": 22, "unit": "um", "reason": ""}, format="json")
+    no_reason = operator_client.post(
+        f"/api/v1/readings/{reply.json()['id']}/correct/",
+        {"value": 22, "unit": "um", "reason": ""},
+        format="json",
+    )
     assert no_reason.status_code == 400
     assert Reading.objects.count() == 2
 
@@ -216,16 +236,24 @@ def test_steps_start_pause_complete_via_api(floor, operator_client):
     from tests.factories import PIN
 
     step = floor.lot.steps.order_by("position").first()
-    assert operator_client.post(f"/api/v1/steps/{step.pk}/start/", {},
-                                format="json").json()["status"] == "in_progress"
-    assert operator_client.post(f"/api/v1/steps/{step.pk}/pause/", {"reason": "break"},
-                                format="json").json()["status"] == "paused"
+    assert (
+        operator_client.post(f"/api/v1/steps/{step.pk}/start/", {}, format="json").json()["status"]
+        == "in_progress"
+    )
+    assert (
+        operator_client.post(
+            f"/api/v1/steps/{step.pk}/pause/", {"reason": "break"}, format="json"
+        ).json()["status"]
+        == "paused"
+    )
     operator_client.post(f"/api/v1/steps/{step.pk}/start/", {}, format="json")
-    wrong = operator_client.post(f"/api/v1/steps/{step.pk}/complete/", {"pin": "0000"},
-                                 format="json")
+    wrong = operator_client.post(
+        f"/api/v1/steps/{step.pk}/complete/", {"pin": "0000"}, format="json"
+    )
     assert wrong.status_code == 403 and "Wrong PIN" in wrong.json()["detail"]
-    done = operator_client.post(f"/api/v1/steps/{step.pk}/complete/",
-                                {"pin": PIN, "meaning": "performed_by"}, format="json")
+    done = operator_client.post(
+        f"/api/v1/steps/{step.pk}/complete/", {"pin": PIN, "meaning": "performed_by"}, format="json"
+    )
     assert done.status_code == 200 and done.json()["status"] == "done"
     lot = operator_client.get(f"/api/v1/lots/{floor.lot.code}/").json()
     assert lot["current_step"]["position"] > step.position

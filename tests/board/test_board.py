@@ -60,8 +60,9 @@ def test_due_words_late_at_risk_on_time(floor, client):
     l_late = bulk_lots(floor.routing, late, 1, wc, prefix="LATE")[0]
     l_soon = bulk_lots(floor.routing, soon, 1, wc, prefix="SOON")[0]
     # 60 remaining standard minutes x3 flow factor = 3 h: at risk only if < 3 h to midnight
-    b = board.build_board(scope_for(floor.personas["supervisor"].user), board.BoardFilters(),
-                          now=timezone.now())
+    b = board.build_board(
+        scope_for(floor.personas["supervisor"].user), board.BoardFilters(), now=timezone.now()
+    )
     words = {lot.lot_code: lot.due_word for col in b.columns for lot in col.rows}
     assert words[l_late.code] == "LATE"  # due date passed: late by definition
     assert words[floor.lot.code] == "on time"
@@ -77,9 +78,14 @@ def test_filters_customer_ipc_finish_work_center_due(floor, client):
     pr = factories.make_part_revision()
     pr.part.customer = other
     pr.part.save()
-    job = Job.objects.create(number="J-OTHER", part_revision=pr, quantity=5, ipc_class=3,
-                             due_date=timezone.localdate() + dt.timedelta(days=40),
-                             routing_revision=floor.routing)
+    job = Job.objects.create(
+        number="J-OTHER",
+        part_revision=pr,
+        quantity=5,
+        ipc_class=3,
+        due_date=timezone.localdate() + dt.timedelta(days=40),
+        routing_revision=floor.routing,
+    )
     wc = WorkCenter.objects.get(code="drilling")
     lot = bulk_lots(floor.routing, job, 1, [wc], prefix="OTH")[0]
     sup = floor.personas["supervisor"]
@@ -113,10 +119,12 @@ def test_bad_filters_give_clear_400(floor, client):
 def test_sort_by_due_puts_earliest_first(floor):
     wc = list(WorkCenter.objects.filter(code="drilling"))
     pr = floor.job.part_revision
-    later = bulk_lots(floor.routing, factories.make_job(pr, floor.routing, due_in_days=30), 1,
-                      wc, prefix="LTR")[0]
-    sooner = bulk_lots(floor.routing, factories.make_job(pr, floor.routing, due_in_days=3), 1,
-                       wc, prefix="SNR")[0]
+    later = bulk_lots(
+        floor.routing, factories.make_job(pr, floor.routing, due_in_days=30), 1, wc, prefix="LTR"
+    )[0]
+    sooner = bulk_lots(
+        floor.routing, factories.make_job(pr, floor.routing, due_in_days=3), 1, wc, prefix="SNR"
+    )[0]
     scope = scope_for(floor.personas["supervisor"].user)
     b = board.build_board(scope, board.parse_filters({"sort": "due", "work_center": "drilling"}))
     assert [lot.lot_code for lot in b.columns[0].queued] == [sooner.code, later.code]
@@ -128,14 +136,22 @@ def test_reorder_is_audited_and_only_for_supervisors(floor, client):
     wc = WorkCenter.objects.get(code="drilling")
     lots = bulk_lots(floor.routing, floor.job, 3, [wc], prefix="Q")
     scope = scope_for(floor.personas["supervisor"].user)
-    queue = [x.step_id for x in board.build_board(
-        scope, board.parse_filters({"work_center": "drilling"})).columns[0].queued]
+    queue = [
+        x.step_id
+        for x in board.build_board(scope, board.parse_filters({"work_center": "drilling"}))
+        .columns[0]
+        .queued
+    ]
     assert len(queue) == 3
     client.force_login(floor.personas["supervisor"].user)
     r = client.post(f"/board/queue/{wc.pk}/move/", {"lot_step": queue[2], "move": "top"})
     assert r.status_code == 302
-    after = [x.lot_code for x in board.build_board(
-        scope, board.parse_filters({"work_center": "drilling"})).columns[0].queued]
+    after = [
+        x.lot_code
+        for x in board.build_board(scope, board.parse_filters({"work_center": "drilling"}))
+        .columns[0]
+        .queued
+    ]
     assert after[0] == LotStep.objects.get(pk=queue[2]).lot.code
     entry = AuditEntry.objects.filter(action="queue.reordered").latest("seq")
     assert entry.object_id == str(wc.pk) and entry.after["order"] == after
@@ -171,10 +187,20 @@ def test_fragment_is_body_only_and_keeps_filters(floor, client):
 
 
 def test_open_alerts_listed(floor, client):
-    Alert.objects.create(kind=Alert.Kind.OUT_OF_WINDOW, severity=Alert.Severity.CRITICAL,
-                         dedupe_key="t1", lot=floor.lot, message="Copper thin on test lot")
-    Alert.objects.create(kind=Alert.Kind.LATE, severity=Alert.Severity.WARNING,
-                         dedupe_key="t2", message="closed one", closed_at=timezone.now())
+    Alert.objects.create(
+        kind=Alert.Kind.OUT_OF_WINDOW,
+        severity=Alert.Severity.CRITICAL,
+        dedupe_key="t1",
+        lot=floor.lot,
+        message="Copper thin on test lot",
+    )
+    Alert.objects.create(
+        kind=Alert.Kind.LATE,
+        severity=Alert.Severity.WARNING,
+        dedupe_key="t2",
+        message="closed one",
+        closed_at=timezone.now(),
+    )
     html = _get(client, floor.personas["supervisor"]).content.decode()
     assert "Copper thin on test lot" in html and "closed one" not in html
     assert "ALERT: Reading out of window" in html
@@ -187,8 +213,9 @@ def test_release_queue_warning_calls_quality_service(floor, client):
     client.force_login(floor.personas["supervisor"].user)
     r = client.post(f"/board/steps/{step.pk}/release-queue-warning/", {"reason": ""})
     assert r.status_code == 400
-    r = client.post(f"/board/steps/{step.pk}/release-queue-warning/",
-                    {"reason": "Oven slot booked in 20 min"})
+    r = client.post(
+        f"/board/steps/{step.pk}/release-queue-warning/", {"reason": "Oven slot booked in 20 min"}
+    )
     assert r.status_code == 302
     step.refresh_from_db()
     assert step.queue_warning_released_reason == "Oven slot booked in 20 min"

@@ -23,17 +23,20 @@ def operator(floor):
 
 @pytest.fixture
 def measured_step(floor, operator, parked_outbox):
-    """The lot advanced to its first step with a variable window (pattern plating)."""
-    step = helpers.advance_to_measured_step(floor.lot, operator)
-    return step
+    """The lot at its first step with a variable window (pattern plating). Earlier steps
+    are marked done directly (a set-up shortcut; test_floor_rules walks the real route)."""
+    return helpers.skip_to_measured_step(floor.lot)
 
 
 @pytest.fixture
 def gauge_at(db):
     def make(work_center, *, due_in_days: int = 90, code: str | None = None) -> Equipment:
         return Equipment.objects.create(
-            work_center=work_center, code=code or f"GA-{work_center.code}-{due_in_days}",
-            name="Thickness gauge", is_gauge=True,
+            work_center=work_center,
+            code=code or f"GA-{work_center.code}-{due_in_days}",
+            name="Thickness gauge",
+            is_gauge=True,
             calibration_due=timezone.localdate() + dt.timedelta(days=due_in_days),
         )
+
     return make

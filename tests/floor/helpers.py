@@ -15,9 +15,14 @@ def finish_step(person: Person, step: LotStep) -> None:
     for m in step.plan:
         for sample in range(1, int(m.get("samples") or 1) + 1):
             services.record_reading(
-                person=person, lot_step_id=step.pk,
-                data=services.ReadingInput(quantity=m["quantity"], value=in_window_value(m),
-                                           unit=m["unit"], sample_index=sample),
+                person=person,
+                lot_step_id=step.pk,
+                data=services.ReadingInput(
+                    quantity=m["quantity"],
+                    value=in_window_value(m),
+                    unit=m["unit"],
+                    sample_index=sample,
+                ),
             )
     services.complete_step(person=person, lot_step_id=step.pk, pin=PIN)
 
@@ -58,10 +63,13 @@ def advance_to(lot: Lot, person: Person, want) -> LotStep:
 def advance_to_measured_step(lot: Lot, person: Person, *, attribute: bool = False) -> LotStep:
     """The first step with a measurement plan: variable windows by default, or (with
     attribute=True) one with an attribute count."""
+
     def want(step: LotStep) -> bool:
-        return any(bool(m.get("attribute")) == attribute
-                   and (m.get("min") is not None or m.get("max") is not None)
-                   for m in step.plan)
+        return any(
+            bool(m.get("attribute")) == attribute
+            and (m.get("min") is not None or m.get("max") is not None)
+            for m in step.plan
+        )
 
     return advance_to(lot, person, want)
 
@@ -83,3 +91,20 @@ def park_outbox(monkeypatch) -> list[int]:
 
     monkeypatch.setattr(outbox, "publish", publish)
     return parked
+
+
+def skip_to_measured_step(lot: Lot, *, attribute: bool = False) -> LotStep:
+    """Set-up shortcut: mark the steps before the first measured one done (no services)."""
+    from django.utils import timezone
+
+    for step in lot.steps.order_by("position"):
+        if any(
+            bool(m.get("attribute")) == attribute
+            and (m.get("min") is not None or m.get("max") is not None)
+            for m in step.plan
+        ):
+            lot.steps.filter(position__lt=step.position).update(status=LotStep.Status.DONE)
+            step.arrived_at = timezone.now()
+            step.save(update_fields=["arrived_at"])
+            return step
+    raise AssertionError("no measured step on this route")

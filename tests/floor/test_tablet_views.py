@@ -87,8 +87,7 @@ def test_login_locked_badge_refused_even_with_right_pin(client, floor):
 
 
 def test_login_next_only_follows_local_paths(client, floor):
-    r = client.post("/floor/login/?next=https://elsewhere.example/", {"badge": "1001",
-                                                                       "pin": PIN})
+    r = client.post("/floor/login/?next=https://elsewhere.example/", {"badge": "1001", "pin": PIN})
     assert r["Location"] == "/floor/"
 
 
@@ -149,9 +148,8 @@ def test_queue_order_and_columns(op_client, floor):
     assert "IPC class 2" in body
 
 
-def test_queue_lists_only_lots_whose_current_step_is_here(op_client, floor, operator,
-                                                          parked_outbox):
-    step = helpers.advance_to_measured_step(floor.lot, operator, attribute=True)
+def test_queue_lists_only_lots_whose_current_step_is_here(op_client, floor):
+    step = helpers.skip_to_measured_step(floor.lot, attribute=True)
     earlier = floor.lot.steps.order_by("position").first().work_center
     if earlier.pk != step.work_center_id:
         assert floor.lot.code not in text(op_client.get(f"/floor/centers/{earlier.code}/"))
@@ -183,7 +181,8 @@ def test_unknown_lot_page_inline_404(op_client, floor):
 def test_lot_page_shows_hazard_caution_and_qr(op_client, floor):
     step = floor.lot.steps.exclude(hazard="").order_by("position").first()
     LotStep.objects.filter(lot=floor.lot, position__lt=step.position).update(
-        status=LotStep.Status.DONE)
+        status=LotStep.Status.DONE
+    )
     body = text(op_client.get(f"/floor/lots/{floor.lot.code}/"))
     assert "Caution — hazardous step" in body
     assert step.hazard.split(".")[0] in body.replace("&#x27;", "'")
@@ -192,8 +191,7 @@ def test_lot_page_shows_hazard_caution_and_qr(op_client, floor):
     assert floor.routing.part_revision.part.number in body
 
 
-def test_lot_page_shows_each_window_with_its_source(op_client, floor, measured_step,
-                                                    gauge_at):
+def test_lot_page_shows_each_window_with_its_source(op_client, floor, measured_step, gauge_at):
     gauge_at(measured_step.work_center, due_in_days=30, code="GA-OK")
     body = text(op_client.get(f"/floor/lots/{floor.lot.code}/"))
     for m in measured_step.plan:
@@ -246,15 +244,31 @@ def test_unknown_step_inline_404(op_client, floor):
 
 def test_in_and_out_of_window_feedback(op_client, started):
     m = plan_item(started, "surface_copper")
-    r = htmx_post(op_client, reading_url(started), {
-        "quantity": m["quantity"], "sample_index": 1, "value": str(m["min"]), "unit": "um",
-        "idempotency_key": "r-in"})
+    r = htmx_post(
+        op_client,
+        reading_url(started),
+        {
+            "quantity": m["quantity"],
+            "sample_index": 1,
+            "value": str(m["min"]),
+            "unit": "um",
+            "idempotency_key": "r-in",
+        },
+    )
     # On the lower limit exactly: inside (limits are inclusive, common practice).
     assert r.status_code == 201
     assert "✓ In window" in text(r) and 'class="sample-row ok"' in text(r)
-    r = htmx_post(op_client, reading_url(started), {
-        "quantity": m["quantity"], "sample_index": 2, "value": str(m["min"] - 0.01),
-        "unit": "um", "idempotency_key": "r-out"})
+    r = htmx_post(
+        op_client,
+        reading_url(started),
+        {
+            "quantity": m["quantity"],
+            "sample_index": 2,
+            "value": str(m["min"] - 0.01),
+            "unit": "um",
+            "idempotency_key": "r-out",
+        },
+    )
     assert r.status_code == 201
     body = text(r)
     assert "OUT OF WINDOW" in body and "Quality will be alerted; the lot will be held." in body
@@ -264,9 +278,17 @@ def test_in_and_out_of_window_feedback(op_client, started):
 
 def test_reading_in_mil_is_converted(op_client, started):
     # 1.6 mil = 1.6 × 25.4 µm = 40.64 µm (1 in = 25.4 mm exactly, 1959 agreement).
-    r = htmx_post(op_client, reading_url(started), {
-        "quantity": "surface_copper", "sample_index": 3, "value": "1.6", "unit": "mil",
-        "idempotency_key": "r-mil"})
+    r = htmx_post(
+        op_client,
+        reading_url(started),
+        {
+            "quantity": "surface_copper",
+            "sample_index": 3,
+            "value": "1.6",
+            "unit": "mil",
+            "idempotency_key": "r-mil",
+        },
+    )
     assert r.status_code == 201
     reading = Reading.objects.get(lot_step=started, sample_index=3, quantity="surface_copper")
     assert reading.value == pytest.approx(40.64)
@@ -281,8 +303,11 @@ def test_reading_in_mil_is_converted(op_client, started):
         ({"value": "20", "unit": "%"}, 400, "does not measure this quantity"),
         ({"value": "", "unit": "um"}, 400, "Value"),
         ({"value": "20", "unit": "um", "sample_index": 9}, 400, "outside the plan"),
-        ({"value": "20", "unit": "um", "captured_at": "2030-01-01T10:00:00"}, 400,
-         "offset from UTC"),
+        (
+            {"value": "20", "unit": "um", "captured_at": "2030-01-01T10:00:00"},
+            400,
+            "offset from UTC",
+        ),
         ({"value": "20", "unit": "um", "captured_at": "yesterday"}, 400, "ISO 8601"),
     ],
 )
@@ -295,36 +320,55 @@ def test_bad_reading_input_refused_nothing_saved(op_client, started, data, statu
 
 
 def test_unknown_quantity_refused(op_client, started):
-    r = htmx_post(op_client, reading_url(started), {"quantity": "gold_thickness",
-                                                    "sample_index": 1, "value": "1",
-                                                    "unit": "um"})
+    r = htmx_post(
+        op_client,
+        reading_url(started),
+        {"quantity": "gold_thickness", "sample_index": 1, "value": "1", "unit": "um"},
+    )
     assert r.status_code == 400
     assert "is not measured at" in text(r)
-    assert not Reading.objects.exists()
+    assert not Reading.objects.filter(lot_step=started).exists()
 
 
 def test_expired_gauge_refused(op_client, started, gauge_at):
     gauge = gauge_at(started.work_center, due_in_days=-1, code="GA-OLD")
     page = text(op_client.get(f"/floor/lots/{started.lot.code}/"))
     assert "CAL. EXPIRED" in page
-    r = htmx_post(op_client, reading_url(started), {
-        "quantity": "surface_copper", "sample_index": 1, "value": "40", "unit": "um",
-        "equipment": gauge.pk})
+    r = htmx_post(
+        op_client,
+        reading_url(started),
+        {
+            "quantity": "surface_copper",
+            "sample_index": 1,
+            "value": "40",
+            "unit": "um",
+            "equipment": gauge.pk,
+        },
+    )
     assert r.status_code == 403
     assert "past its calibration due date" in text(r)
-    assert not Reading.objects.exists()
+    assert not Reading.objects.filter(lot_step=started).exists()
 
 
 def test_reading_before_start_refused(op_client, measured_step):
-    r = htmx_post(op_client, reading_url(measured_step), {
-        "quantity": "surface_copper", "sample_index": 1, "value": "40", "unit": "um"})
+    r = htmx_post(
+        op_client,
+        reading_url(measured_step),
+        {"quantity": "surface_copper", "sample_index": 1, "value": "40", "unit": "um"},
+    )
     assert r.status_code == 409
     assert "before recording readings" in text(r)
 
 
 def test_repeat_with_same_key_records_once_and_renders_same(op_client, started):
-    data = {"quantity": "surface_copper", "sample_index": 1, "value": "40", "unit": "um",
-            "captured_at": timezone.now().isoformat(), "idempotency_key": "same-key"}
+    data = {
+        "quantity": "surface_copper",
+        "sample_index": 1,
+        "value": "40",
+        "unit": "um",
+        "captured_at": timezone.now().isoformat(),
+        "idempotency_key": "same-key",
+    }
     first = htmx_post(op_client, reading_url(started), data)
     again = htmx_post(op_client, reading_url(started), data)
     assert first.status_code == again.status_code == 201
@@ -340,7 +384,7 @@ def test_key_in_header_is_honoured(op_client, started):
     data = {"quantity": "surface_copper", "sample_index": 1, "value": "40", "unit": "um"}
     for _ in range(2):
         htmx_post(op_client, reading_url(started), data, HTTP_IDEMPOTENCY_KEY="hdr-1")
-    assert Reading.objects.count() == 1
+    assert Reading.objects.filter(lot_step=started).count() == 1
 
 
 def test_second_value_for_same_sample_needs_correction(op_client, started):
@@ -352,34 +396,46 @@ def test_second_value_for_same_sample_needs_correction(op_client, started):
 
 
 def test_correction_supersedes_and_shows_old_struck_through(op_client, started):
-    htmx_post(op_client, reading_url(started), {"quantity": "surface_copper",
-                                                "sample_index": 1, "value": "20",
-                                                "unit": "um"})
-    old = Reading.objects.get()
+    htmx_post(
+        op_client,
+        reading_url(started),
+        {"quantity": "surface_copper", "sample_index": 1, "value": "20", "unit": "um"},
+    )
+    old = Reading.objects.get(lot_step=started)
     url = f"/floor/readings/{old.pk}/correct/"
     r = htmx_post(op_client, url, {"value": "40", "unit": "um", "reason": ""})
     assert r.status_code == 400 and "Reason" in text(r)
-    assert Reading.objects.count() == 1
-    r = htmx_post(op_client, url, {"value": "40", "unit": "um",
-                                   "reason": "gauge not zeroed", "idempotency_key": "c-1"})
+    assert Reading.objects.filter(lot_step=started).count() == 1
+    r = htmx_post(
+        op_client,
+        url,
+        {"value": "40", "unit": "um", "reason": "gauge not zeroed", "idempotency_key": "c-1"},
+    )
     assert r.status_code == 201
     body = text(r)
     assert "<s>20 um</s>" in body and "superseded" in body and "gauge not zeroed" in body
     assert "✓ In window" in body
     old.refresh_from_db()
     assert old.superseded_by is not None and old.correction_reason == "gauge not zeroed"
-    assert Reading.objects.count() == 2
-    again = htmx_post(op_client, url, {"value": "40", "unit": "um",
-                                       "reason": "gauge not zeroed", "idempotency_key": "c-2"})
+    assert Reading.objects.filter(lot_step=started).count() == 2
+    again = htmx_post(
+        op_client,
+        url,
+        {"value": "40", "unit": "um", "reason": "gauge not zeroed", "idempotency_key": "c-2"},
+    )
     assert again.status_code == 409 and "already corrected" in text(again)
 
 
 def test_non_htmx_reading_post_redirects_back(op_client, started):
-    r = op_client.post(reading_url(started), {"quantity": "surface_copper", "sample_index": 1,
-                                              "value": "40", "unit": "um"})
+    r = op_client.post(
+        reading_url(started),
+        {"quantity": "surface_copper", "sample_index": 1, "value": "40", "unit": "um"},
+    )
     assert r.status_code == 302
-    r = op_client.post(reading_url(started), {"quantity": "surface_copper", "sample_index": 1,
-                                              "value": "x", "unit": "um"})
+    r = op_client.post(
+        reading_url(started),
+        {"quantity": "surface_copper", "sample_index": 1, "value": "x", "unit": "um"},
+    )
     assert r.status_code == 400 and "is not a number" in text(r)
 
 
@@ -391,14 +447,22 @@ def fill_plan(step: LotStep, person: Person) -> None:
 
     for m in step.plan:
         for s in range(1, int(m.get("samples") or 1) + 1):
-            services.record_reading(person=person, lot_step_id=step.pk, data=services.ReadingInput(
-                quantity=m["quantity"], value=helpers.in_window_value(m), unit=m["unit"],
-                sample_index=s))
+            services.record_reading(
+                person=person,
+                lot_step_id=step.pk,
+                data=services.ReadingInput(
+                    quantity=m["quantity"],
+                    value=helpers.in_window_value(m),
+                    unit=m["unit"],
+                    sample_index=s,
+                ),
+            )
 
 
 def test_complete_refused_while_readings_missing(op_client, started):
-    r = op_client.post(f"/floor/steps/{started.pk}/complete/", {"pin": PIN,
-                                                                "meaning": "performed_by"})
+    r = op_client.post(
+        f"/floor/steps/{started.pk}/complete/", {"pin": PIN, "meaning": "performed_by"}
+    )
     assert r.status_code == 409
     assert "readings missing: surface_copper: 0 of 5 samples" in text(r)
     started.refresh_from_db()
@@ -407,16 +471,20 @@ def test_complete_refused_while_readings_missing(op_client, started):
 
 def test_complete_wrong_pin_then_sign(op_client, started, operator):
     fill_plan(started, operator)
-    r = op_client.post(f"/floor/steps/{started.pk}/complete/", {"pin": "9999",
-                                                                "meaning": "performed_by"})
+    r = op_client.post(
+        f"/floor/steps/{started.pk}/complete/", {"pin": "9999", "meaning": "performed_by"}
+    )
     assert r.status_code == 403
     assert "Wrong PIN. 4 more wrong attempt(s)" in text(r)
     started.refresh_from_db()
     assert started.status == LotStep.Status.IN_PROGRESS
     page = text(op_client.get(f"/floor/lots/{started.lot.code}/"))
     assert "Performed by</strong> Olu Operator" in page
-    r = op_client.post(f"/floor/steps/{started.pk}/complete/", {
-        "pin": PIN, "meaning": "performed_by", "idempotency_key": "sign-1"}, follow=True)
+    r = op_client.post(
+        f"/floor/steps/{started.pk}/complete/",
+        {"pin": PIN, "meaning": "performed_by", "idempotency_key": "sign-1"},
+        follow=True,
+    )
     assert r.status_code == 200
     assert "signed off. Performed by: Olu Operator." in text(r)
     started.refresh_from_db()
@@ -427,8 +495,7 @@ def test_complete_wrong_pin_then_sign(op_client, started, operator):
 
 def test_complete_with_unknown_meaning_refused(op_client, started, operator):
     fill_plan(started, operator)
-    r = op_client.post(f"/floor/steps/{started.pk}/complete/", {"pin": PIN,
-                                                                "meaning": "approved"})
+    r = op_client.post(f"/floor/steps/{started.pk}/complete/", {"pin": PIN, "meaning": "approved"})
     assert r.status_code == 400
     started.refresh_from_db()
     assert started.status == LotStep.Status.IN_PROGRESS
@@ -464,8 +531,9 @@ def test_get_on_post_only_view_is_405(op_client, measured_step):
 def test_qr_png_decodes_to_lot_code(floor, tmp_path):
     png = tmp_path / "qr.png"
     png.write_bytes(traveller.qr_png(floor.lot.code))
-    out = subprocess.run(["zbarimg", "--quiet", "--raw", str(png)], capture_output=True,
-                         text=True, check=True)
+    out = subprocess.run(
+        ["zbarimg", "--quiet", "--raw", str(png)], capture_output=True, text=True, check=True
+    )
     assert out.stdout.strip() == floor.lot.code
 
 
@@ -475,8 +543,9 @@ def test_traveller_pdf_text(op_client, floor, tmp_path):
     assert r.status_code == 200 and r["Content-Type"] == "application/pdf"
     pdf = tmp_path / "t.pdf"
     pdf.write_bytes(r.content)
-    out = subprocess.run(["pdftotext", "-layout", str(pdf), "-"], capture_output=True,
-                         text=True, check=True).stdout
+    out = subprocess.run(
+        ["pdftotext", "-layout", str(pdf), "-"], capture_output=True, text=True, check=True
+    ).stdout
     flat = " ".join(out.split())
     assert floor.routing.part_revision.part.number in flat
     assert floor.lot.code in flat and floor.job.number in flat

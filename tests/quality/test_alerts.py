@@ -85,8 +85,9 @@ def test_in_window_reading_no_alert_but_series_point(floor):
 
 def test_two_bad_samples_share_one_ncr(floor):
     step = kit.start_at(floor, floor.lot)
-    events = [kit.event_for(kit.record(floor, step, "surface_copper", 30.0, sample=n))
-              for n in (1, 2)]
+    events = [
+        kit.event_for(kit.record(floor, step, "surface_copper", 30.0, sample=n)) for n in (1, 2)
+    ]
     for e in events:
         services.handle_event(e.pk)
     assert Alert.objects.count() == 2 and Hold.objects.count() == 2
@@ -192,8 +193,7 @@ def test_relay_publishes_unpublished_and_skips_processed(floor, monkeypatch):
     from shopfloor.quality import tasks
 
     sent = []
-    monkeypatch.setattr(tasks.process_event, "apply_async",
-                        lambda args, **kw: sent.append(args[0]))
+    monkeypatch.setattr(tasks.process_event, "apply_async", lambda args, **kw: sent.append(args[0]))
     monkeypatch.setattr(tasks.notify_alert, "apply_async", lambda args, **kw: None)
     step = kit.start_at(floor, floor.lot)
     pending = kit.event_for(kit.record(floor, step, "surface_copper", 41.0, sample=1))

@@ -23,7 +23,7 @@ def receiver():
     received: list[tuple[dict[str, str], bytes]] = []
 
     class Handler(BaseHTTPRequestHandler):
-        def do_POST(self):  # noqa: N802
+        def do_POST(self):
             body = self.rfile.read(int(self.headers["Content-Length"]))
             received.append(({k.lower(): v for k, v in self.headers.items()}, body))
             self.send_response(204)

@@ -39,12 +39,15 @@ def start_at(floor: Any, lot: Lot, code: str = PLATING) -> LotStep:
     return step
 
 
-def record(floor: Any, step: LotStep, quantity: str, value: float, unit: str = "um",
-           sample: int = 1) -> Reading:
+def record(
+    floor: Any, step: LotStep, quantity: str, value: float, unit: str = "um", sample: int = 1
+) -> Reading:
     return floor_services.record_reading(
-        person=floor.personas["operator"], lot_step_id=step.pk,
-        data=floor_services.ReadingInput(quantity=quantity, value=value, unit=unit,
-                                         sample_index=sample),
+        person=floor.personas["operator"],
+        lot_step_id=step.pk,
+        data=floor_services.ReadingInput(
+            quantity=quantity, value=value, unit=unit, sample_index=sample
+        ),
     )
 
 

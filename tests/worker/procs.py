@@ -105,16 +105,34 @@ class WorkerFactory:
         log_path = self.tmp / f"worker-{len(self.started) + 1}.log"
         with log_path.open("wb") as out:
             proc = subprocess.Popen(
-                [str(CELERY), "-A", "shopfloor", "worker", "--pool=solo", "--concurrency=1",
-                 "-Q", "celery", "--without-heartbeat", "--without-gossip", "--without-mingle",
-                 "--loglevel=INFO"],
-                cwd=ROOT, env=full_env, stdout=out, stderr=subprocess.STDOUT,
+                [
+                    str(CELERY),
+                    "-A",
+                    "shopfloor",
+                    "worker",
+                    "--pool=solo",
+                    "--concurrency=1",
+                    "-Q",
+                    "celery",
+                    "--without-heartbeat",
+                    "--without-gossip",
+                    "--without-mingle",
+                    "--loglevel=INFO",
+                ],
+                cwd=ROOT,
+                env=full_env,
+                stdout=out,
+                stderr=subprocess.STDOUT,
                 start_new_session=True,
             )
         worker = WorkerProcess(proc, log_path)
         self.started.append(worker)
-        if not wait_for(lambda: " ready." in worker.log() or proc.poll() is not None,
-                        READY_TIMEOUT, 0.2) or proc.poll() is not None:
+        if (
+            not wait_for(
+                lambda: " ready." in worker.log() or proc.poll() is not None, READY_TIMEOUT, 0.2
+            )
+            or proc.poll() is not None
+        ):
             worker.stop()
             raise RuntimeError(f"Celery worker did not start:\n{worker.log()[-3000:]}")
         return worker
@@ -162,9 +180,20 @@ class PrivateRedis:
 
     def start(self) -> None:
         self.proc = subprocess.Popen(
-            ["redis-server", "--port", str(self.port), "--bind", "127.0.0.1", "--save", "",
-             "--appendonly", "no"],
-            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True,
+            [
+                "redis-server",
+                "--port",
+                str(self.port),
+                "--bind",
+                "127.0.0.1",
+                "--save",
+                "",
+                "--appendonly",
+                "no",
+            ],
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.DEVNULL,
+            start_new_session=True,
         )
         import redis
 

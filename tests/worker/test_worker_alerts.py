@@ -19,8 +19,7 @@ from tests import factories
 from tests.worker import floorkit as kit
 from tests.worker.procs import wait_for
 
-pytestmark = [pytest.mark.worker, pytest.mark.django_db(transaction=True),
-              pytest.mark.timeout(90)]
+pytestmark = [pytest.mark.worker, pytest.mark.django_db(transaction=True), pytest.mark.timeout(90)]
 
 TASK = "shopfloor.quality.tasks.process_event"
 

@@ -34,8 +34,12 @@ class Command(BaseCommand):
         sub = parser.add_subparsers(dest="action", required=True)
         preview = sub.add_parser("preview", help="Build a routing from a spec without saving it")
         preview.add_argument("spec", help="Path to the build spec JSON file, or - for stdin")
-        preview.add_argument("--format", choices=["json", "text"], default="text",
-                             help="json: the preview contract; text: a table for people")
+        preview.add_argument(
+            "--format",
+            choices=["json", "text"],
+            default="text",
+            help="json: the preview contract; text: a table for people",
+        )
 
     def handle(self, *args: Any, **options: Any) -> None:
         fmt = options["format"]

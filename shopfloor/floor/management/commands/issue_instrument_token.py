@@ -46,9 +46,10 @@ class Command(BaseCommand):
             )
         badge = f"INST-{name}"[:20]
         username = f"instrument-{name}"
-        if User.objects.filter(username=username).exists() or Person.objects.filter(
-            badge_number=badge
-        ).exists():
+        if (
+            User.objects.filter(username=username).exists()
+            or Person.objects.filter(badge_number=badge).exists()
+        ):
             raise CommandError(
                 f"An instrument named {name!r} already exists. Withdraw its token in the admin "
                 "(untick active) and issue one under a new name."
@@ -59,14 +60,20 @@ class Command(BaseCommand):
             user.set_unusable_password()
             user.save()
             # '!' prefix: Django's unusable-password marker, so no PIN ever matches.
-            person = Person.objects.create(user=user, badge_number=badge, printed_name=name,
-                                           pin_hash=make_password(None))
+            person = Person.objects.create(
+                user=user, badge_number=badge, printed_name=name, pin_hash=make_password(None)
+            )
             person.work_centers.add(center)
-            token = InstrumentToken.objects.create(name=name, work_center=center, user=user,
-                                                   key_hash=hash_token(raw))
-            audit.record(actor=None, action="instrument_token.issued",
-                         object_type="instrument_token", object_id=token.pk,
-                         after={"name": name, "work_center": center.code, "badge": badge})
+            token = InstrumentToken.objects.create(
+                name=name, work_center=center, user=user, key_hash=hash_token(raw)
+            )
+            audit.record(
+                actor=None,
+                action="instrument_token.issued",
+                object_type="instrument_token",
+                object_id=token.pk,
+                after={"name": name, "work_center": center.code, "badge": badge},
+            )
         self.stdout.write(f"Instrument {name} at {center.code} (badge {badge}).")
         self.stdout.write("Token (shown once; store it in the instrument's configuration):")
         self.stdout.write(raw)

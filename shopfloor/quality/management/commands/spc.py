@@ -24,13 +24,12 @@ class Command(BaseCommand):
     help = "Statistical process control tools. 'evaluate FILE' charts a JSON data set."
 
     def add_arguments(self, parser: ArgumentParser) -> None:
-        sub = parser.add_subparsers(dest="action", required=True,
-                                    title="actions")
+        sub = parser.add_subparsers(dest="action", required=True, title="actions")
         evaluate = sub.add_parser(
             "evaluate",
             help="compute limits, run rules and capability for a JSON data set",
             description='Reads {"chart": ..., "values" or "subgroups": ..., "lsl", "usl", '
-                        '"rules", "limits"} and prints the result as JSON.',
+            '"rules", "limits"} and prints the result as JSON.',
         )
         evaluate.add_argument("data", help="path of a JSON file, or - to read standard input")
         evaluate.add_argument("--indent", type=int, default=2, help="JSON indent (default 2)")

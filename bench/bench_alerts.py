@@ -1,0 +1,147 @@
+"""Benchmark: how fast an out-of-window reading becomes an alert row, under load.
+
+One real Celery worker (solo pool), 20 client threads recording readings through the
+floor service (each on its own lot, because the first bad reading holds a lot). For
+every reading the latency is reading.recorded_at -> alert.created_at (both stamped by
+this machine's clock). Beside it, in the same run and under the same load, each client
+also sends a no-op Celery task whose round trip (send -> the task setting a Redis key)
+is the reference: the alert path's cost is reported as a ratio to it.
+
+Needs DATABASE_URL (PostgreSQL) and REDIS_URL; uses a throwaway test_<name> database
+that it creates and drops.
+
+    DATABASE_URL=postgres://... REDIS_URL=redis://127.0.0.1:6379/5 python bench/bench_alerts.py
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import statistics
+import sys
+import threading
+import time
+import uuid
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+os.environ.setdefault("DJANGO_SETTINGS_MODULE", "shopfloor.settings")
+os.environ.setdefault("DEBUG", "1")
+
+CLIENTS = 20
+READINGS_PER_CLIENT = 3
+WAIT_SECONDS = 120.0
+
+
+def _p95(values: list[float]) -> float:
+    if len(values) < 2:
+        return values[0] if values else float("nan")
+    return statistics.quantiles(values, n=20, method="inclusive")[18]
+
+
+def run() -> dict[str, float]:
+    import django
+
+    django.setup()
+    import redis
+    from django.conf import settings
+    from django.db import connection, connections
+
+    if (
+        settings.CELERY_TASK_ALWAYS_EAGER
+        or "postgresql" not in connection.vendor + settings.DATABASES["default"]["ENGINE"]
+    ):
+        raise SystemExit("bench_alerts needs REDIS_URL and a PostgreSQL DATABASE_URL")
+    original_name = connection.settings_dict["NAME"]
+    connection.creation.create_test_db(verbosity=0, autoclobber=True, keepdb=False)
+    factory = None
+    try:
+        import tempfile
+
+        from shopfloor.quality import tasks
+        from shopfloor.quality.models import Alert
+        from tests import factories
+        from tests.worker import floorkit as kit
+        from tests.worker.procs import WorkerFactory, purge, wait_for
+
+        purge(settings.REDIS_URL)
+        tmp = tempfile.TemporaryDirectory(prefix="sf-bench-")
+        factory = WorkerFactory(settings.REDIS_URL, Path(tmp.name))
+        factory.start()
+        floor = factories.make_floor()
+        run_id = uuid.uuid4().hex[:6]
+        steps = [
+            [
+                kit.start_at(floor, kit.new_lot(floor, code=f"B{run_id}-{c}-{r}"))
+                for r in range(READINGS_PER_CLIENT)
+            ]
+            for c in range(CLIENTS)
+        ]
+        readings: list[int] = []
+        noops: list[tuple[str, float]] = []
+        lock = threading.Lock()
+        errors: list[str] = []
+
+        def client(my_steps: list) -> None:
+            try:
+                for step in my_steps:
+                    r = kit.record(floor, step, "surface_copper", 70.0)
+                    key = f"bench:noop:{uuid.uuid4().hex}"
+                    sent = time.time()
+                    tasks.noop.delay(key)
+                    with lock:
+                        readings.append(r.pk)
+                        noops.append((key, sent))
+            except Exception as exc:  # reported, not hidden
+                errors.append(repr(exc))
+            finally:
+                connections.close_all()
+
+        threads = [threading.Thread(target=client, args=(s,)) for s in steps]
+        for t in threads:
+            t.start()
+        for t in threads:
+            t.join(timeout=WAIT_SECONDS)
+        if errors:
+            raise RuntimeError(f"{len(errors)} client error(s): {errors[:3]}")
+        total = CLIENTS * READINGS_PER_CLIENT
+        if not wait_for(
+            lambda: Alert.objects.filter(reading_id__in=readings).count() == total,
+            WAIT_SECONDS,
+            0.25,
+        ):
+            raise RuntimeError("not every reading became an alert in time")
+        client_redis = redis.Redis.from_url(settings.REDIS_URL)
+        wait_for(lambda: all(client_redis.exists(k) for k, _ in noops), 30, 0.25)
+        alert_lat = [
+            (created - recorded).total_seconds()
+            for created, recorded in Alert.objects.filter(reading_id__in=readings).values_list(
+                "created_at", "reading__recorded_at"
+            )
+        ]
+        noop_lat = [
+            float(client_redis.get(k)) - sent
+            for k, sent in noops
+            if client_redis.get(k) is not None
+        ]
+        client_redis.close()
+        alert_p95, noop_p95 = _p95(alert_lat), _p95(noop_lat)
+        return {
+            "readings": float(total),
+            "clients": float(CLIENTS),
+            "alert_p50_s": statistics.median(alert_lat),
+            "alert_p95_s": alert_p95,
+            "noop_task_p50_s": statistics.median(noop_lat),
+            "noop_task_p95_s": noop_p95,
+            "alert_to_noop_p95_ratio": alert_p95 / noop_p95 if noop_p95 > 0 else float("nan"),
+        }
+    finally:
+        if factory is not None:
+            factory.stop_all()
+        connections.close_all()
+        connection.creation.destroy_test_db(original_name, verbosity=0)
+
+
+if __name__ == "__main__":
+    print(json.dumps(run(), indent=2))

@@ -1,0 +1,170 @@
+"""Engineering pages: part revisions and their routings, preview, draft, release, diff.
+
+Thin views: parse the form, call one routing service, render. Anyone with a role may
+look; drafting and releasing are for process engineers (and admins), and the services
+refuse everyone else with a reason that the 403 page shows.
+"""
+
+from __future__ import annotations
+
+import json
+from typing import Any
+
+from django.contrib.auth.decorators import login_required
+from django.core.exceptions import PermissionDenied
+from django.http import HttpRequest, HttpResponse
+from django.shortcuts import get_object_or_404, redirect, render
+from django.views.decorators.http import require_http_methods, require_POST
+
+from routing import services
+from routing.api import EXAMPLE_SPEC, split_preview_body
+from routing.models import RoutingRevision
+from shopfloor.errors import DomainError
+from shopfloor.floor.permissions import READ_ROLES, roles_of
+from shopfloor.plant.models import PartRevision
+
+CHANGE_ROLES = frozenset({"process_engineer", "admin"})
+
+
+def _require_reader(request: HttpRequest) -> set[str]:
+    roles = roles_of(request.user)
+    if not roles & READ_ROLES:
+        raise PermissionDenied(
+            "The engineering pages are for people with a shop role; ask an "
+            "administrator to add yours."
+        )
+    return roles
+
+
+def _person(request: HttpRequest) -> Any:
+    person = getattr(request.user, "person", None)
+    if person is None:
+        raise PermissionDenied("This account has no badge on file, so it cannot sign.")
+    return person
+
+
+@login_required
+def index(request: HttpRequest) -> HttpResponse:
+    roles = _require_reader(request)
+    part_revisions = (
+        PartRevision.objects.select_related("part__customer")
+        .prefetch_related("routing_revisions")
+        .order_by("part__number", "revision")
+    )
+    return render(
+        request,
+        "engineering/index.html",
+        {
+            "part_revisions": part_revisions,
+            "can_change": bool(roles & CHANGE_ROLES),
+        },
+    )
+
+
+@login_required
+@require_http_methods(["GET", "POST"])
+def preview(request: HttpRequest) -> HttpResponse:
+    _require_reader(request)
+    text = (
+        request.POST.get("spec", "")
+        if request.method == "POST"
+        else json.dumps(EXAMPLE_SPEC, indent=2)
+    )
+    context: dict[str, Any] = {"spec_text": text, "result": None, "error": "", "problems": []}
+    status = 200
+    if request.method == "POST":
+        try:
+            spec, overrides = split_preview_body(json.loads(text, parse_constant=_no_constant))
+            context["result"] = services.preview(spec, overrides)
+        except ValueError as exc:
+            context["error"] = f"The text is not valid JSON: {exc}"
+        except DomainError as exc:
+            context["error"], context["problems"] = exc.detail, _shown(exc.problems)
+        if context["error"] and not request.htmx:
+            status = 400
+    template = "engineering/preview.html#panel" if request.htmx else "engineering/preview.html"
+    return render(request, template, context, status=status)
+
+
+def _shown(problems: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    """Problems with the allowed values as one line of text for the table."""
+    out = []
+    for p in problems:
+        allowed = p.get("allowed")
+        text = ", ".join(map(str, allowed)) if isinstance(allowed, list) else (allowed or "")
+        out.append({**p, "allowed_text": text})
+    return out
+
+
+def _no_constant(name: str) -> Any:
+    raise ValueError(f"{name} is not a number a spec can use")
+
+
+@login_required
+@require_POST
+def create_draft(request: HttpRequest, part_revision_id: int) -> HttpResponse:
+    _require_reader(request)
+    try:
+        revision = services.create_draft(
+            person=_person(request),
+            part_revision_id=part_revision_id,
+            reason=request.POST.get("reason", ""),
+        )
+    except DomainError as exc:
+        if exc.status == 403:
+            raise PermissionDenied(exc.detail) from exc
+        part_revision = get_object_or_404(PartRevision, pk=part_revision_id)
+        return render(
+            request,
+            "engineering/refused.html",
+            {"detail": exc.detail, "problems": exc.problems, "back": part_revision},
+            status=exc.status,
+        )
+    return redirect("routing:revision", pk=revision.pk)
+
+
+@login_required
+def revision(request: HttpRequest, pk: int) -> HttpResponse:
+    roles = _require_reader(request)
+    rev = get_object_or_404(
+        RoutingRevision.objects.select_related(
+            "part_revision__part", "release_signature", "previous", "library_version"
+        ),
+        pk=pk,
+    )
+    return render(
+        request,
+        "engineering/revision.html",
+        {
+            "revision": rev,
+            "steps": rev.steps.select_related("work_center").order_by("seq"),
+            "diff_lines": [line for line in rev.diff.splitlines() if line.strip()],
+            "can_change": bool(roles & CHANGE_ROLES),
+            "error": "",
+        },
+    )
+
+
+@login_required
+@require_POST
+def release(request: HttpRequest, pk: int) -> HttpResponse:
+    roles = _require_reader(request)
+    try:
+        services.release(person=_person(request), revision_id=pk, pin=request.POST.get("pin", ""))
+    except DomainError as exc:
+        if exc.status == 403 and not roles & CHANGE_ROLES:
+            raise PermissionDenied(exc.detail) from exc
+        rev = get_object_or_404(RoutingRevision, pk=pk)
+        return render(
+            request,
+            "engineering/revision.html",
+            {
+                "revision": rev,
+                "steps": rev.steps.select_related("work_center").order_by("seq"),
+                "diff_lines": [line for line in rev.diff.splitlines() if line.strip()],
+                "can_change": bool(roles & CHANGE_ROLES),
+                "error": exc.detail,
+            },
+            status=exc.status,
+        )
+    return redirect("routing:revision", pk=pk)

@@ -1,0 +1,88 @@
+"""The board refreshes in place (htmx poll) when a lot moves; filters keep their values.
+
+Fixtures here follow /work/shared/STACK-NOTES.md (Debian's chromium, headless, no
+download). They are named board_* so they do not clash with a shared browser conftest.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+from pathlib import Path
+
+import pytest
+from django.test import Client
+
+from shopfloor.floor import services as floor_services
+from tests import factories
+
+pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
+ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
+CHROMIUM_ARGS = [
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-dev-shm-usage",
+    "--disable-quic",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+    "--no-first-run",
+]
+
+
+@pytest.fixture
+def board_browser():
+    os.environ.setdefault("DJANGO_ALLOW_ASYNC_UNSAFE", "true")
+    sync_api = pytest.importorskip("playwright.sync_api")
+    exe = shutil.which("chromium")
+    if exe is None:
+        pytest.skip("chromium is not installed (apt-get install -y chromium)")
+    with sync_api.sync_playwright() as p:
+        browser = p.chromium.launch(executable_path=exe, headless=True, args=CHROMIUM_ARGS)
+        yield browser
+        browser.close()
+
+
+def signed_in_page(browser, live_server, user, width=1280, height=800):
+    client = Client()
+    client.force_login(user)
+    context = browser.new_context(viewport={"width": width, "height": height})
+    host = live_server.url.split("//")[1].split(":")[0]
+    context.add_cookies(
+        [
+            {
+                "name": "sessionid",
+                "value": client.cookies["sessionid"].value,
+                "domain": host,
+                "path": "/",
+            }
+        ]
+    )
+    return context.new_page()
+
+
+def test_board_refreshes_in_place_when_lot_moves(board_browser, live_server, floor):
+    lot = floor.lot
+    steps = list(lot.steps.order_by("position"))
+    here = steps[0].work_center.code
+    nxt = next(s for s in steps if s.work_center.code != here)
+    page = signed_in_page(board_browser, live_server, floor.personas["supervisor"].user)
+    page.goto(f"{live_server.url}/board/?customer=TST&sort=lot")
+    page.wait_for_selector(f'#wc-{here} tr[data-lot="{lot.code}"]')
+    page.evaluate("window.__sameDocument = 'yes'")
+    ARTIFACTS.mkdir(exist_ok=True)
+    page.screenshot(path=str(ARTIFACTS / "board-1280x800.png"))
+    # move the lot on through the floor services while the page is open
+    op = floor.personas["operator"]
+    for s in steps[: steps.index(nxt)]:
+        floor_services.start_step(person=op, lot_step_id=s.pk)
+        floor_services.complete_step(person=op, lot_step_id=s.pk, pin=factories.PIN)
+    page.wait_for_selector(f'#wc-{nxt.work_center.code} tr[data-lot="{lot.code}"]', timeout=30_000)
+    assert page.locator(f'#wc-{here} tr[data-lot="{lot.code}"]').count() == 0
+    assert page.evaluate("window.__sameDocument") == "yes"  # swapped in place, no reload
+    assert page.input_value("#f-customer") == "TST"
+    assert page.input_value("#f-sort") == "lot"
+    wall = signed_in_page(board_browser, live_server, floor.personas["supervisor"].user, 1920, 1080)
+    wall.goto(f"{live_server.url}/board/")
+    wall.wait_for_selector(f'tr[data-lot="{lot.code}"]')
+    wall.screenshot(path=str(ARTIFACTS / "board-wall-1920x1080.png"))
