@@ -33,6 +33,7 @@ from shopfloor.floor.permissions import (
     is_instrument,
 )
 from shopfloor.floor.serializers import (
+    MAX_ID,
     CorrectionInputSerializer,
     ErrorSerializer,
     LotStatusSerializer,
@@ -83,6 +84,22 @@ REPLAY_HEADER = OpenApiParameter(
     OpenApiParameter.HEADER,
     response=True,
     description="'true' when this reply is the stored reply of an earlier identical request",
+)
+
+
+#: Path parameters as the URL patterns match them (api_urls: <int:pk>, <str:code>), so the
+#: schema does not promise an API answer for a path the URL resolver never routes here.
+ID_IN_PATH = OpenApiParameter(
+    "pk",
+    {"type": "integer", "minimum": 0, "maximum": MAX_ID},
+    OpenApiParameter.PATH,
+    description="Record id",
+)
+LOT_CODE_IN_PATH = OpenApiParameter(
+    "code",
+    {"type": "string", "pattern": "^[^/]+$", "maxLength": 30},
+    OpenApiParameter.PATH,
+    description="Lot (traveller) code as scanned",
 )
 
 
@@ -235,7 +252,7 @@ class ReadingCorrectView(JsonAPIView):
         summary="Correct a reading (supersede it with a reason)",
         description="The old reading stays in history, marked superseded, with the reason.",
         request=CorrectionInputSerializer,
-        parameters=[IDEMPOTENCY_KEY, REPLAY_HEADER],
+        parameters=[ID_IN_PATH, IDEMPOTENCY_KEY, REPLAY_HEADER],
         responses={201: ReadingSerializer, **WRITE_ERRORS},
     )
     def post(self, request: Request, pk: int) -> Response:
@@ -264,7 +281,7 @@ def _step_schema(summary: str, request_serializer: Any) -> Callable[[Any], Any]:
     return extend_schema(
         summary=summary,
         request=request_serializer,
-        parameters=[IDEMPOTENCY_KEY, REPLAY_HEADER],
+        parameters=[ID_IN_PATH, IDEMPOTENCY_KEY, REPLAY_HEADER],
         responses={200: LotStepSerializer, **WRITE_ERRORS},
     )
 
@@ -334,7 +351,8 @@ class LotStatusView(APIView):
 
     @extend_schema(
         summary="A lot's status, hold flag, current step and every step",
-        responses={200: LotStatusSerializer, **READ_ERRORS},
+        parameters=[LOT_CODE_IN_PATH],
+        responses={200: LotStatusSerializer, 400: error("The lot code is blank"), **READ_ERRORS},
     )
     def get(self, request: Request, code: str) -> Response:
         lot = services.find_lot(code)
@@ -352,7 +370,8 @@ class LotWindowsView(APIView):
 
     @extend_schema(
         summary="The windows of the lot's current step, each with its source",
-        responses={200: StepWindowsSerializer, **READ_ERRORS},
+        parameters=[LOT_CODE_IN_PATH],
+        responses={200: StepWindowsSerializer, 400: error("The lot code is blank"), **READ_ERRORS},
     )
     def get(self, request: Request, code: str) -> Response:
         lot = services.find_lot(code)

@@ -1,13 +1,10 @@
 """The board refreshes in place (htmx poll) when a lot moves; filters keep their values.
 
-Fixtures here follow /work/shared/STACK-NOTES.md (Debian's chromium, headless, no
-download). They are named board_* so they do not clash with a shared browser conftest.
+The browser comes from tests/browser/conftest.py (Debian's chromium, headless).
 """
 
 from __future__ import annotations
 
-import os
-import shutil
 from pathlib import Path
 
 import pytest
@@ -18,29 +15,12 @@ from tests import factories
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
-CHROMIUM_ARGS = [
-    "--no-sandbox",
-    "--disable-gpu",
-    "--disable-dev-shm-usage",
-    "--disable-quic",
-    "--disable-background-networking",
-    "--disable-component-update",
-    "--disable-sync",
-    "--no-first-run",
-]
 
 
 @pytest.fixture
-def board_browser():
-    os.environ.setdefault("DJANGO_ALLOW_ASYNC_UNSAFE", "true")
-    sync_api = pytest.importorskip("playwright.sync_api")
-    exe = shutil.which("chromium")
-    if exe is None:
-        pytest.skip("chromium is not installed (apt-get install -y chromium)")
-    with sync_api.sync_playwright() as p:
-        browser = p.chromium.launch(executable_path=exe, headless=True, args=CHROMIUM_ARGS)
-        yield browser
-        browser.close()
+def board_browser(browser):
+    """pytest-playwright's shared browser (Debian's chromium, see conftest.py)."""
+    return browser
 
 
 def signed_in_page(browser, live_server, user, width=1280, height=800):
