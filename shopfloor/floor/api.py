@@ -90,7 +90,7 @@ REPLAY_HEADER = OpenApiParameter(
 #: Path parameters as the URL patterns match them (api_urls: <int:pk>, <str:code>), so the
 #: schema does not promise an API answer for a path the URL resolver never routes here.
 ID_IN_PATH = OpenApiParameter(
-    "pk",
+    "id",
     {"type": "integer", "minimum": 0, "maximum": MAX_ID},
     OpenApiParameter.PATH,
     description="Record id",

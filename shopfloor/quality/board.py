@@ -45,6 +45,10 @@ SORTS = {
 MAX_DUE_RANGE_DAYS = 400
 ALERT_LIMIT = 200
 MAX_ROWS_PER_CENTER = 400
+# The all-centers overview (the wall screen) shows the first rows of each center: held
+# lots first, then in work, then the head of the queue. Filtering to one work center
+# shows its whole queue (up to MAX_ROWS_PER_CENTER). Counts stay exact either way.
+OVERVIEW_ROWS_PER_CENTER = 15
 
 # Worst first: a lot shows the worst state among the jobs imaged on its panels.
 _DUE_RANK = {schedule.DueState.LATE: 0, schedule.DueState.AT_RISK: 1, schedule.DueState.ON_TIME: 2}
@@ -227,6 +231,7 @@ class BoardColumn:
     queued: list[BoardLot] = field(default_factory=list)
     in_work: list[BoardLot] = field(default_factory=list)
     on_hold: list[BoardLot] = field(default_factory=list)
+    limit: int = MAX_ROWS_PER_CENTER
 
     @property
     def count(self) -> int:
@@ -235,12 +240,12 @@ class BoardColumn:
     @property
     def rows(self) -> list[BoardLot]:
         """Held lots first (they need someone), then the ones in work, then the queue;
-        at most MAX_ROWS_PER_CENTER (a wall screen cannot show more; counts stay exact)."""
-        return (self.on_hold + self.in_work + self.queued)[:MAX_ROWS_PER_CENTER]
+        at most `limit` (a wall screen cannot show more; counts stay exact)."""
+        return (self.on_hold + self.in_work + self.queued)[: self.limit]
 
     @property
     def hidden(self) -> int:
-        return max(self.count - MAX_ROWS_PER_CENTER, 0)
+        return max(self.count - self.limit, 0)
 
     @property
     def warnings(self) -> int:
@@ -458,7 +463,9 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
         bucket = {"on_hold": column.on_hold, "queued": column.queued, "in_work": column.in_work}
         bucket[item.state].append(item)
     key = _sort_key(filters.sort)
+    limit = MAX_ROWS_PER_CENTER if filters.work_center else OVERVIEW_ROWS_PER_CENTER
     for column in by_center.values():
+        column.limit = limit
         column.queued.sort(key=key)
         column.in_work.sort(key=key)
         column.on_hold.sort(key=key)
