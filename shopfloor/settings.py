@@ -52,6 +52,8 @@ INSTALLED_APPS = [
 ]
 
 MIDDLEWARE = [
+    # First, so a database outage met by any later middleware (sessions, auth) is a 503.
+    "shopfloor.middleware.DatabaseUnavailableMiddleware",
     "django.middleware.security.SecurityMiddleware",
     "whitenoise.middleware.WhiteNoiseMiddleware",
     "django.contrib.sessions.middleware.SessionMiddleware",
@@ -62,7 +64,6 @@ MIDDLEWARE = [
     "django.contrib.messages.middleware.MessageMiddleware",
     "django.middleware.clickjacking.XFrameOptionsMiddleware",
     "django_htmx.middleware.HtmxMiddleware",
-    "shopfloor.middleware.DatabaseUnavailableMiddleware",
 ]
 
 ROOT_URLCONF = "shopfloor.urls"

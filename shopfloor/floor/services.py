@@ -50,10 +50,18 @@ def badge_login(badge_number: str, pin: str) -> Person:
     badge_number = (badge_number or "").strip()
     if not badge_number or not pin:
         raise InvalidInput("Scan or type your badge number and enter your PIN.")
+    generic = "Badge number or PIN is not right."
     person = Person.objects.select_related("user").filter(badge_number=badge_number).first()
     if person is None or not person.user.is_active:
-        raise NotAllowed("Badge number or PIN is not right.")
-    verify_pin(person, pin)
+        raise NotAllowed(generic)
+    try:
+        verify_pin(person, pin)
+    except NotAllowed as exc:
+        # Say "locked" (the person must fetch a supervisor) but never reveal whether a
+        # badge number exists by counting down its attempts at the login screen.
+        if "locked" in exc.detail:
+            raise
+        raise NotAllowed(generic) from exc
     return person
 
 

@@ -13,6 +13,7 @@ from django.db import connection
 from django.test.utils import CaptureQueriesContext
 
 from shopfloor.plant.models import WorkCenter
+from shopfloor.quality.board import OVERVIEW_ROWS_PER_CENTER
 from tests.board.kit import bulk_lots
 
 BOARD_QUERIES = 14
@@ -34,9 +35,30 @@ def test_board_query_count_is_fixed(floor, client, size):
     n, body = _count(client)
     assert n == BOARD_QUERIES
     assert n <= 15
-    # every lot is on the board, not just the first page of them
-    assert body.count(b'class="lot state-') == size
-    assert lots[-1].code.encode() in body
+    # every lot is counted; the overview shows the head of each center's queue
+    assert f"{size} lots in process".encode() in body
+    per_center: dict[int, int] = {}
+    for i in range(size - 1):
+        per_center[centers[i % len(centers)].pk] = (
+            per_center.get(centers[i % len(centers)].pk, 0) + 1
+        )
+    own = floor.lot.steps.order_by("position").first().work_center_id
+    per_center[own] = per_center.get(own, 0) + 1
+    rows = body.count(b'class="lot state-')
+    assert rows == sum(min(n, OVERVIEW_ROWS_PER_CENTER) for n in per_center.values())
+    # one work center's own view lists its whole queue, at the same query cost
+    busiest = centers[0]
+    with CaptureQueriesContext(connection) as ctx:
+        response = client.get("/board/", {"work_center": busiest.code})
+    assert len(ctx.captured_queries) == BOARD_QUERIES
+    assert response.content.count(b'class="lot state-') == per_center[busiest.pk]
+    if size > 20:
+        assert (
+            lots[-1].code.encode()
+            in client.get(
+                "/board/", {"work_center": centers[(size - 2) % len(centers)].code}
+            ).content
+        )
 
 
 @pytest.mark.django_db

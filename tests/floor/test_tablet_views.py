@@ -71,11 +71,14 @@ def test_login_page_and_badge_login(client, floor):
     assert r.status_code == 302 and r["Location"] == "/floor/"
 
 
-def test_login_wrong_pin_says_attempts_left(client, floor):
+def test_login_wrong_pin_is_counted_but_does_not_reveal_the_badge(client, floor):
     r = client.post("/floor/login/", {"badge": "1001", "pin": "0000"})
     assert r.status_code == 400
-    assert "Wrong PIN. 4 more wrong attempt(s) will lock this badge." in text(r)
+    # same words as an unknown badge (no badge enumeration at the login screen) ...
+    assert "Badge number or PIN is not right." in text(r)
     assert "_auth_user_id" not in client.session
+    # ... but the failure counts toward the lockout
+    assert Person.objects.get(badge_number="1001").pin_failures == 1
 
 
 def test_login_locked_badge_refused_even_with_right_pin(client, floor):
