@@ -31,8 +31,11 @@ fi
 STAMP="$VENV/.lock-installed"
 if [ ! -f "$STAMP" ] || ! cmp -s .ci/requirements.lock "$STAMP"; then
   echo "setup: installing locked dependencies (.ci/requirements.lock)"
-  "$VENV/bin/python" -m pip install -q --upgrade pip >/dev/null
-  "$VENV/bin/python" -m pip install -q -r .ci/requirements.lock
+  # (this machine's pip config names extra local indexes; their "ignored" notes are noise)
+  "$VENV/bin/python" -m pip install -q --upgrade pip 2>&1 | { grep -v "^WARNING: Location" || true; }
+  "$VENV/bin/python" -m pip install -q -r .ci/requirements.lock 2>&1 | { grep -v "^WARNING: Location" || true; }
+  "$VENV/bin/python" -c "import django, rest_framework, celery, psycopg" || {
+    echo "ERROR: dependency install failed (see above)" >&2; exit 3; }
   cp .ci/requirements.lock "$STAMP"
 fi
 export PATH="$VENV/bin:$PATH"

@@ -17,7 +17,7 @@ import datetime as dt
 from dataclasses import dataclass, field
 from typing import Any
 
-from django.db.models import Prefetch, Q, QuerySet
+from django.db.models import Avg, Count, Max, Min, Prefetch, Q, QuerySet
 
 from shopfloor.audit.models import AuditEntry, Signature
 from shopfloor.errors import InvalidInput, NotFound
@@ -103,13 +103,19 @@ class LotHistory:
     moves: list[AuditEntry]
     splits: list[Lot]
     timeline: list[TimelineEvent] = field(default_factory=list)
+    # step id -> per-quantity aggregates, for steps summarised on the page (see below)
+    summaries: dict[int, list[dict[str, Any]]] = field(default_factory=dict)
 
     @property
     def standards(self) -> list[str]:
         """Every window source the lot's readings were judged against."""
-        return sorted(
-            {str(r.window.get("source")) for r in self.readings if r.window.get("source")}
-        )
+        sources = {str(r.window.get("source")) for r in self.readings if r.window.get("source")}
+        for step_id in self.summaries:
+            step = next((s for s in self.steps if s.pk == step_id), None)
+            for m in step.plan if step else []:
+                if m.get("source"):
+                    sources.add(str(m["source"]))
+        return sorted(sources)
 
 
 def find_lot_for(scope: Scope, code: str) -> Lot:
@@ -130,12 +136,47 @@ def _person(p: Any) -> str:
     return f"{p.printed_name} ({p.badge_number})" if p else ""
 
 
-def lot_history(scope: Scope, code: str) -> LotHistory:
-    """Every record of one lot, read in a fixed number of queries, plus its timeline."""
+def lot_history(scope: Scope, code: str, *, full_readings: bool = True) -> LotHistory:
+    """Every record of one lot, read in a fixed number of queries, plus its timeline.
+
+    With full_readings=False (the HTML page) a step with more than READING_EVENTS_PER_STEP
+    readings loads only its notable readings (out of window, superseded, corrections) and
+    per-quantity aggregates computed by the database; JSON and PDF exports load them all.
+    """
     lot = find_lot_for(scope, code)
     readings_qs = Reading.objects.select_related("operator", "equipment").order_by(
         "recorded_at", "pk"
     )
+    summaries: dict[int, list[dict[str, Any]]] = {}
+    if not full_readings:
+        counts = (
+            Reading.objects.filter(lot_step__lot=lot)
+            .order_by()
+            .values("lot_step_id")
+            .annotate(n=Count("id"))
+        )
+        big = [c["lot_step_id"] for c in counts if c["n"] > READING_EVENTS_PER_STEP]
+        if big:
+            readings_qs = readings_qs.filter(
+                ~Q(lot_step_id__in=big)
+                | Q(in_window=False)
+                | Q(superseded_by__isnull=False)
+                | Q(via="correction")
+            )
+            for row in (
+                Reading.objects.filter(lot_step_id__in=big, superseded_by__isnull=True)
+                .order_by()
+                .values("lot_step_id", "quantity", "unit")
+                .annotate(
+                    n=Count("id"),
+                    lo=Min("value"),
+                    hi=Max("value"),
+                    mean=Avg("value"),
+                    out=Count("id", filter=Q(in_window=False)),
+                    last=Max("captured_at"),
+                )
+            ):
+                summaries.setdefault(row["lot_step_id"], []).append(row)
     steps = list(
         LotStep.objects.filter(lot=lot)
         .select_related("work_center", "equipment", "started_by", "completed_by", "signature")
@@ -180,6 +221,7 @@ def lot_history(scope: Scope, code: str) -> LotHistory:
     history = LotHistory(
         lot, jobs, panels, steps, readings, signatures, holds, alerts, ncrs, moves, splits
     )
+    history.summaries = summaries
     history.timeline = _timeline(history)
     return history
 
@@ -235,23 +277,7 @@ def _timeline(h: LotHistory) -> list[TimelineEvent]:
                     s.queue_warning_released_reason,
                 )
             )
-        for r in s.readings.all():
-            verdict = "in window" if r.in_window else "OUT OF WINDOW"
-            detail = (
-                f"{describe_window(r.window)}; source: {r.window.get('source', 'none')}; {verdict}"
-            )
-            if r.superseded_by_id:
-                detail += f"; SUPERSEDED (reason: {r.correction_reason})"
-            ev.append(
-                TimelineEvent(
-                    r.captured_at,
-                    "reading",
-                    f"{r.quantity} sample {r.sample_index} = {r.value:g} {r.unit} at {s.name}",
-                    detail,
-                    _person(r.operator),
-                    superseded=bool(r.superseded_by_id),
-                )
-            )
+        ev.extend(_reading_events(s, h.summaries.get(s.pk)))
     for sig in h.signatures:
         ev.append(
             TimelineEvent(
@@ -294,6 +320,51 @@ def _timeline(h: LotHistory) -> list[TimelineEvent]:
         )
     ev.sort(key=lambda e: e.at)
     return ev
+
+
+# A step with more readings than this shows, on the page, one summary line per quantity
+# plus every out-of-window, superseded or corrected reading; the CSV export and the JSON
+# history always carry every reading. Keeps a 20,000-reading lot readable and fast.
+READING_EVENTS_PER_STEP = 40
+
+
+def _reading_event(r: Reading, step: LotStep) -> TimelineEvent:
+    verdict = "in window" if r.in_window else "OUT OF WINDOW"
+    detail = f"{describe_window(r.window)}; source: {r.window.get('source', 'none')}; {verdict}"
+    if r.superseded_by_id:
+        detail += f"; SUPERSEDED (reason: {r.correction_reason})"
+    return TimelineEvent(
+        r.captured_at,
+        "reading",
+        f"{r.quantity} sample {r.sample_index} = {r.value:g} {r.unit} at {step.name}",
+        detail,
+        _person(r.operator),
+        superseded=bool(r.superseded_by_id),
+    )
+
+
+def _reading_events(
+    step: LotStep, summary: list[dict[str, Any]] | None = None
+) -> list[TimelineEvent]:
+    """One event per reading, or for a summarised step the notable readings (already the
+    only ones loaded) plus one line per quantity from the database aggregates."""
+    events = [_reading_event(r, step) for r in step.readings.all()]
+    plan = {m["quantity"]: m for m in step.plan}
+    for row in summary or []:
+        window = plan.get(row["quantity"], {"unit": row["unit"]})
+        out = row["out"]
+        events.append(
+            TimelineEvent(
+                row["last"],
+                "reading",
+                f"{row['n']} {row['quantity']} readings at {step.name}: "
+                f"{row['lo']:g} to {row['hi']:g} {row['unit']}, mean {row['mean']:.4g}",
+                f"{describe_window(window)}; source: {window.get('source', 'none')}; "
+                + ("all in window" if not out else f"{out} OUT OF WINDOW (listed)")
+                + "; every reading is in the CSV export",
+            )
+        )
+    return events
 
 
 def _material(m: MaterialLot) -> dict[str, Any]:

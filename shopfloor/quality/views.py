@@ -129,7 +129,7 @@ def overview(request: HttpRequest, scope: Scope) -> HttpResponse:
 @require_GET
 @reader
 def lot_page(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
-    h = history.lot_history(scope, code)
+    h = history.lot_history(scope, code, full_readings=False)
     return render(request, "quality/lot.html", {"h": h, "summary": exports.reading_summary(h)})
 
 

@@ -129,10 +129,11 @@ def routable(params: dict[str, Any]) -> dict[str, Any]:
     return params
 
 
-def valid_body(path: str, world: dict[str, Any], value: Any, unit: str) -> Any:
-    """A body the service accepts for the operation at `path` (value and unit drawn)."""
+def valid_body(path: str, world: dict[str, Any], reading: dict[str, Any]) -> Any:
+    """A body the service accepts for the operation at `path` (reading fields drawn)."""
+    value, unit = reading["value"], reading["unit"]
     if path.endswith("/readings/"):
-        return {"lot": world["lot"], "quantity": "hole_wall_copper", "value": value, "unit": unit}
+        return {"lot": world["lot"], **reading}
     if path.endswith("/correct/"):
         return {"value": value, "unit": unit, "reason": "gauge was not zeroed"}
     if path.endswith("/complete/"):
@@ -146,13 +147,12 @@ def valid_body(path: str, world: dict[str, Any], value: Any, unit: str) -> Any:
     return None
 
 
-def aim(case: Any, world: dict[str, Any], mode: str, idempotency: str | None, value: Any,
-        unit: str) -> Any:
+def aim(case: Any, world: dict[str, Any], mode: str, idempotency: str | None, reading: dict) -> Any:
     """Point a generated case at real records so it gets past the 404s.
 
     mode "fuzz" leaves the generated case alone (ids made routable), "ids" swaps in the
     real lot, step, reading and gauge but keeps the generated body, "valid" sends a body
-    the service accepts (with the drawn value and unit).
+    the service accepts (with the drawn reading fields).
     """
     if idempotency is not None and "/api/v1/lots/" not in case.operation.path:
         case.headers = {**(case.headers or {}), "Idempotency-Key": idempotency}
@@ -166,10 +166,12 @@ def aim(case: Any, world: dict[str, Any], mode: str, idempotency: str | None, va
     if "code" in params:
         params["code"] = world["lot"]
     if "id" in params:
-        params["id"] = world["reading"] if "/readings/" in case.operation.path else step_id
+        newest = Reading.objects.filter(superseded_by=None).order_by("-pk").first()
+        reading_id = newest.pk if newest else world["reading"]
+        params["id"] = reading_id if "/readings/" in case.operation.path else step_id
     case.path_parameters = params
     if mode == "valid" and case.operation.method.upper() == "POST":
-        case.body = valid_body(case.operation.path, world, value, unit)
+        case.body = valid_body(case.operation.path, world, reading)
         return case
     body = case.body
     if isinstance(body, dict):
@@ -224,21 +226,29 @@ def fuzz_operation(
         case=cases,
         mode=st.sampled_from(["fuzz", "ids", "valid"]),
         key=keys,
-        value=st.one_of(
-            st.floats(min_value=0, max_value=80, allow_nan=False),
-            st.integers(min_value=0, max_value=80),
-            st.sampled_from(["21.5", "0.8", " 25 "]),
+        reading=st.fixed_dictionaries(
+            {
+                "quantity": st.sampled_from(["hole_wall_copper", "surface_copper"]),
+                "value": st.one_of(
+                    st.floats(min_value=0, max_value=80, allow_nan=False),
+                    st.integers(min_value=0, max_value=80),
+                    st.sampled_from(["21.5", "0.8", " 25 "]),
+                ),
+                "unit": st.sampled_from(["um", "µm", "mil", "mm"]),
+                "sample_index": st.integers(min_value=1, max_value=5),
+            }
         ),
-        unit=st.sampled_from(["um", "µm", "mil", "mm"]),
     )
-    def run(case: Any, mode: str, key: str | None, value: Any, unit: str) -> None:
+    def run(case: Any, mode: str, key: str | None, reading: dict) -> None:
         if key is not None:
             key = wire_header_value(key)
         # A supervisor would unlock a badge the fuzzer locked with wrong PINs.
         Person.objects.filter(pk=world["supervisor"]).update(pin_failures=0, locked_at=None)
-        case = aim(case, world, mode, key, value, unit)
+        case = aim(case, world, mode, key, reading)
         response = case.call_and_validate(headers=headers, cookies=cookies, checks=CHECKS)
         statuses[response.status_code] += 1
+        if mode == "valid" and response.status_code >= 400:
+            print("DBG", case.operation.label, case.headers, case.body, response.text[:300])
 
     run()
     return statuses
@@ -277,7 +287,9 @@ def test_every_operation_survives_fuzzing_and_conforms(app, world, caller):
 )
 @pytest.mark.django_db
 def test_unroutable_api_path_gets_json_404(client):
-    reply = client.post("/api/v1/readings/not-a-number/correct/", {}, content_type="application/json")
+    reply = client.post(
+        "/api/v1/readings/not-a-number/correct/", {}, content_type="application/json"
+    )
     assert reply.status_code == 404
     assert reply["Content-Type"].startswith("application/json")
     assert reply.json()["error"] == "not_found"

@@ -378,3 +378,26 @@ def test_overview_lists_open_items(rich, floor, client):
     html = _qe(client, floor).get("/quality/").content.decode()
     assert "Job is late now" in html and "No open holds." in html
     assert Equipment.objects.exists()
+
+
+def test_busy_step_is_summarised_on_the_page_but_complete_in_exports(floor, client):
+    """A step with many readings shows one aggregate line per quantity plus every notable
+    reading; the CSV export still carries every reading (nothing is hidden from audit)."""
+    from tests.board.kit import bulk_readings
+
+    step = floor.lot.steps.order_by("position").first()
+    count = history.READING_EVENTS_PER_STEP * 3
+    bulk_readings(step, floor.personas["operator"], count)  # values 25.0 .. 28.0, window 20-30
+    bad = Reading.objects.filter(lot_step=step).order_by("pk").first()
+    Reading.objects.filter(pk=bad.pk).update(value=31.5, in_window=False)
+    page = _qe(client, floor).get(f"/quality/lots/{floor.lot.code}/")
+    text = page.content.decode()
+    assert page.status_code == 200
+    assert f"{count} copper_thickness readings at {step.name}" in text
+    assert "25 to 31.5 um" in text  # min and max come from the database aggregate
+    assert "1 OUT OF WINDOW (listed)" in text
+    assert "= 31.5 um" in text  # the out-of-window reading is listed on its own
+    assert text.count("copper_thickness sample") == 1  # in-window ones are summarised
+    csv_reply = client.get(f"/quality/lots/{floor.lot.code}/readings.csv")
+    rows = list(csv.DictReader(io.StringIO(b"".join(csv_reply.streaming_content).decode())))
+    assert sum(1 for x in rows if x["record"] == "reading") == count
