@@ -17,6 +17,7 @@ import datetime as dt
 import zoneinfo
 from collections import defaultdict
 from dataclasses import dataclass, field
+from types import SimpleNamespace
 from typing import Any
 
 from django.conf import settings
@@ -350,11 +351,22 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
     """Everything the board shows, in a number of queries that does not grow with lots."""
     now = now or timezone.now()
     centers = list(WorkCenter.objects.order_by("code"))
-    steps = list(
-        _filtered(current_steps(scope), filters)
-        .select_related("lot")
+    # Plain rows, not model instances: the board reads thousands of them every poll.
+    steps = [
+        SimpleNamespace(
+            **row,
+            lot=SimpleNamespace(
+                pk=row["lot_id"],
+                code=row["lot__code"],
+                on_hold=row["lot__on_hold"],
+                priority=row["lot__priority"],
+                started_at=row["lot__started_at"],
+                created_at=row["lot__created_at"],
+            ),
+        )
+        for row in _filtered(current_steps(scope), filters)
         .annotate(finish=KeyTextTransform("finish", "lot__routing_revision__build_spec"))
-        .only(
+        .values(
             "id",
             "name",
             "status",
@@ -364,14 +376,16 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
             "queue_warning_released_reason",
             "work_center_id",
             "position",
-            "lot__id",
+            "lot_id",
             "lot__code",
             "lot__on_hold",
             "lot__priority",
             "lot__started_at",
             "lot__created_at",
+            "finish",
+            "remaining",
         )
-    )
+    ]
     lot_ids = [s.lot_id for s in steps]
     wanted = set(lot_ids)
     # Jobs and holds are read for every active lot and matched here: a plain join is
@@ -437,7 +451,7 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
         for job in jobs:
             job.due_state = schedule.due_state(now, _due_end(job.due_date), s.remaining)
         item = BoardLot(
-            step_id=s.pk,
+            step_id=s.id,
             step_name=s.name,
             step_status=s.status,
             lot_id=lot.pk,
