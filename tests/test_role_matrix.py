@@ -1,16 +1,20 @@
-"""ONE table: every API endpoint and page × every kind of caller -> allowed or refused.
+"""ONE table: every API endpoint, page and state-changing POST × every kind of caller ->
+allowed or refused.
 
 "Allowed" means the request got past authentication and authorisation (any reply but
 401, 403, or a redirect to the login page); a 400/404/409 from the use case still counts
-as allowed. The hard rule checked for every row is zero unexpected allows; for the rows
-this module's owners know, unexpected refusals fail too.
+as allowed. Every cell is decided, so both unexpected allows (a security bug) and
+unexpected refusals (a broken page) fail. A row whose URL does not resolve is skipped.
 
-Rows for pages of other areas state only what every page must do (anonymous callers and
-instrument tokens never get in); their owners replace the `None` cells (don't care yet)
-with their decisions. A row whose URL does not resolve yet is skipped, so rows can be
-added before the page exists. Source for the rules: shopfloor/floor/permissions.py and
-the routing services (process engineers release; common practice for controlled
-documents is that only the owning function releases them).
+The decisions: operators work and view at their own work centers; supervisors run the
+floor (any work center, queue order, queue-time warnings, badge unlocks); quality
+engineers disposition NCRs and manage SPC limits; process engineers read (and release
+routings); admins do everything except the quality engineer's e-signed decisions;
+instruments only post readings at their own work center; anonymous callers nothing; an
+operator of another work center may not work a lot at a work center they are not
+assigned to. Sources: shopfloor/floor/permissions.py, shopfloor/quality/access.py and the
+services (common practice for controlled documents and material review: only the owning
+function releases or dispositions).
 """
 
 from __future__ import annotations
@@ -26,9 +30,12 @@ from django.urls import Resolver404, resolve
 from django.utils import timezone
 from rest_framework.test import APIClient
 
-from shopfloor.plant.models import Qualification, Role
+from shopfloor.plant.models import MaterialLot, Panel, Person, Qualification, Role
+from shopfloor.quality import services as quality_services
+from shopfloor.quality.models import Nonconformance, SeriesState
 from tests.api.helpers import advance_to, issue_token
 from tests.factories import PIN, make_person
+from tests.worker import floorkit as kit
 
 pytestmark = pytest.mark.django_db
 
@@ -42,17 +49,21 @@ CALLERS = (
     "anonymous",
     "other_operator",
 )
-A, D, X = True, False, None  # allow, deny, don't care (yet)
+A, D = True, False  # allow, deny
+PEOPLE = (A, A, A, A, A, D, D, A)  # every person with a role; no instruments, no anonymous
+FLOOR_WORK = (A, A, D, D, A, D, D, D)  # work a step at its work center
+SUP_ADMIN = (D, A, D, D, A, D, D, D)  # run the floor: reorder, release, unlock
+QUALITY = (D, D, D, A, D, D, D, D)  # disposition NCRs, set SPC limits
 
 
 @dataclass(frozen=True)
 class Row:
     method: str
     url: Callable[[dict[str, Any]], str]
-    expect: tuple[bool | None, ...]  # in CALLERS order
+    expect: tuple[bool, ...]  # in CALLERS order
     body: Callable[[dict[str, Any]], dict[str, Any]] | None = None
     api: bool = True
-    owned: bool = True  # False: another area's page; only unexpected allows fail
+    owned: bool = True  # every row is decided: unexpected allows and refusals both fail
 
 
 def _reading(ctx):
@@ -141,30 +152,129 @@ ROWS: dict[str, Row] = {
         api=False,
         body=lambda c: {"pin": PIN},
     ),
-    # --- other areas (owners fill in the X cells) -------------- op sup pe qe adm ins ano oth
-    "GET floor work centers": Row(
-        "GET", lambda c: "/floor/", (X, X, X, X, X, D, D, X), api=False, owned=False
-    ),
-    "GET floor lot page": Row(
+    # --- floor tablet pages ------------------------------------- op sup pe qe adm ins ano oth
+    # Every person may open the start page, scan and view a lot's traveller (what the paper
+    # traveller shows); a work center's queue is shown to the people linked to it; working
+    # a step needs the work center (start/complete: qualification there; record/correct/
+    # pause: assignment there; supervisors and admins anywhere).
+    "GET floor work centers": Row("GET", lambda c: "/floor/", PEOPLE, api=False),
+    "GET floor queue": Row(
         "GET",
-        lambda c: f"/floor/lots/{c['lot'].code}/",
-        (X, X, X, X, X, D, D, X),
+        lambda c: f"/floor/centers/{c['step'].work_center.code}/",
+        (A, A, D, D, D, D, D, D),  # admin: not linked to the center; the board shows all
         api=False,
-        owned=False,
     ),
-    "GET board": Row("GET", lambda c: "/board/", (X, X, X, X, X, D, D, X), api=False, owned=False),
-    "GET quality overview": Row(
-        "GET", lambda c: "/quality/", (X, X, X, X, X, D, D, X), api=False, owned=False
+    "GET floor scan": Row("GET", lambda c: f"/floor/scan/?code={c['lot'].code}", PEOPLE, api=False),
+    "GET floor lot page": Row("GET", lambda c: f"/floor/lots/{c['lot'].code}/", PEOPLE, api=False),
+    "GET traveller PDF": Row(
+        "GET", lambda c: f"/floor/lots/{c['lot'].code}/traveller.pdf", PEOPLE, api=False
     ),
-    "GET quality lot": Row(
-        "GET",
-        lambda c: f"/quality/lots/{c['lot'].code}/",
-        (X, X, X, X, X, D, D, X),
+    "POST tablet record reading": Row(
+        "POST",
+        lambda c: f"/floor/steps/{c['step'].pk}/readings/",
+        FLOOR_WORK,
         api=False,
-        owned=False,
+        body=lambda c: {**_reading(c), "value": "22", "sample_index": "1"},
     ),
-    "GET quality SPC": Row(
-        "GET", lambda c: "/quality/spc/", (X, X, X, X, X, D, D, X), api=False, owned=False
+    "POST tablet correct reading": Row(
+        "POST",
+        lambda c: f"/floor/readings/{c['tablet_reading'].pk}/correct/",
+        FLOOR_WORK,
+        api=False,
+        body=lambda c: {"value": "41", "unit": "um", "reason": "re-measured"},
+    ),
+    "POST tablet start": Row(
+        "POST", lambda c: f"/floor/steps/{c['step'].pk}/start/", FLOOR_WORK, api=False
+    ),
+    "POST tablet complete": Row(
+        "POST",
+        lambda c: f"/floor/steps/{c['step'].pk}/complete/",
+        FLOOR_WORK,
+        api=False,
+        body=lambda c: {"pin": PIN, "meaning": "performed_by"},
+    ),
+    "POST tablet pause": Row(
+        "POST",
+        lambda c: f"/floor/steps/{c['step'].pk}/pause/",
+        FLOOR_WORK,
+        api=False,
+        body=lambda c: {"reason": "matrix"},
+    ),
+    "GET locked badges": Row("GET", lambda c: "/floor/people/locked/", SUP_ADMIN, api=False),
+    "POST unlock badge": Row(
+        "POST", lambda c: f"/floor/people/{c['locked'].pk}/unlock/", SUP_ADMIN, api=False
+    ),
+    # --- supervisor board --------------------------------------- op sup pe qe adm ins ano oth
+    # Everyone with a role sees the board (operators: their own work centers' lots);
+    # only supervisors and admins reorder queues or accept a queue-time warning.
+    "GET board": Row("GET", lambda c: "/board/", PEOPLE, api=False),
+    "GET board body": Row("GET", lambda c: "/board/body/", PEOPLE, api=False),
+    "POST queue move": Row(
+        "POST",
+        lambda c: f"/board/queue/{c['step'].work_center_id}/move/",
+        SUP_ADMIN,
+        api=False,
+        body=lambda c: {"lot_step": str(c["step"].pk), "move": "up"},
+    ),
+    "POST queue-time release": Row(
+        "POST",
+        lambda c: f"/board/steps/{c['step'].pk}/release-queue-warning/",
+        SUP_ADMIN,
+        api=False,
+        body=lambda c: {"reason": "matrix check"},
+    ),
+    # --- quality pages ------------------------------------------ op sup pe qe adm ins ano oth
+    # Reads: every role; operators only lots that reached one of their work centers (the
+    # other operator's centers include the lot's first step, so they may read this lot).
+    # Dispositions and SPC limits: quality engineers only. Admins are refused there on
+    # purpose: the e-signature says "Dispositioned by" a quality engineer (material review
+    # is the quality function's decision, common practice), and the services enforce it.
+    "GET quality overview": Row("GET", lambda c: "/quality/", PEOPLE, api=False),
+    "GET quality search": Row(
+        "GET", lambda c: f"/quality/search/?lot={c['lot'].code}", PEOPLE, api=False
+    ),
+    "GET quality lot": Row("GET", lambda c: f"/quality/lots/{c['lot'].code}/", PEOPLE, api=False),
+    "GET quality lot CSV": Row(
+        "GET", lambda c: f"/quality/lots/{c['lot'].code}/readings.csv", PEOPLE, api=False
+    ),
+    "GET quality lot PDF": Row(
+        "GET", lambda c: f"/quality/lots/{c['lot'].code}/record.pdf", PEOPLE, api=False
+    ),
+    "GET quality lot JSON": Row(
+        "GET", lambda c: f"/quality/api/lots/{c['lot'].code}/history.json", PEOPLE, api=False
+    ),
+    "GET quality job": Row("GET", lambda c: f"/quality/jobs/{c['job'].number}/", PEOPLE, api=False),
+    "GET quality panel": Row(
+        "GET", lambda c: f"/quality/panels/{c['panel'].serial}/", PEOPLE, api=False
+    ),
+    "GET quality material": Row(
+        "GET", lambda c: f"/quality/materials/{c['material'].code}/", PEOPLE, api=False
+    ),
+    "GET quality SPC": Row("GET", lambda c: "/quality/spc/", PEOPLE, api=False),
+    "GET quality SPC series": Row(  # a series of another work center is not the operator's
+        "GET", lambda c: f"/quality/spc/{c['series'].key}/", (A, A, A, A, A, D, D, D), api=False
+    ),
+    "POST SPC fix limits": Row(
+        "POST",
+        lambda c: f"/quality/spc/{c['series'].key}/limits/",
+        QUALITY,
+        api=False,
+        body=lambda c: {"action": "fix", "centre": "45", "ucl": "55", "lcl": "35"},
+    ),
+    "POST SPC recompute limits": Row(
+        "POST",
+        lambda c: f"/quality/spc/{c['series'].key}/limits/",
+        QUALITY,
+        api=False,
+        body=lambda c: {"action": "recompute", "start": "2020-01-01", "end": "2020-01-02"},
+    ),
+    "GET NCR page": Row("GET", lambda c: f"/quality/ncrs/{c['ncr'].number}/", PEOPLE, api=False),
+    "POST NCR disposition": Row(
+        "POST",
+        lambda c: f"/quality/ncrs/{c['ncr'].number}/",
+        QUALITY,
+        api=False,
+        body=lambda c: {"disposition": "use_as_is", "note": "matrix check", "pin": PIN},
     ),
 }
 
@@ -187,6 +297,22 @@ def world(floor):
         lot_step_id=step.pk,
         data=services.ReadingInput(quantity="surface_copper", value=40, unit="um"),
     )
+    tablet_reading = services.record_reading(
+        person=personas["operator"],
+        lot_step_id=step.pk,
+        data=services.ReadingInput(quantity="surface_copper", value=41, unit="um", sample_index=2),
+    )
+    material = MaterialLot.objects.create(
+        code="ML-MATRIX-1", kind=MaterialLot.Kind.CHEMISTRY, description="Acid copper bath"
+    )
+    step.material_lots.add(material)
+    # A second lot at the same step with an out-of-window reading: alert, hold, NCR, series.
+    held_lot = kit.new_lot(floor, code="LMATRIX2")
+    held_step = kit.start_at(floor, held_lot)
+    bad = kit.record(floor, held_step, "surface_copper", 70.0)
+    quality_services.handle_event(kit.event_for(bad).pk)
+    locked = make_person(Role.OPERATOR, "1008", "Lee Locked")
+    Person.objects.filter(pk=locked.pk).update(locked_at=timezone.now(), pin_failures=5)
     from tests.factories import SPEC_4L_ENIG
 
     people = {**personas, "admin": admin, "other_operator": other}
@@ -194,10 +320,17 @@ def world(floor):
         "lot": floor.lot,
         "step": step,
         "reading": reading,
+        "tablet_reading": tablet_reading,
         "routing": floor.routing,
         "spec": SPEC_4L_ENIG,
         "people": people,
         "token": issue_token("matrix-gauge", step.work_center.code),
+        "job": floor.job,
+        "panel": Panel.objects.filter(lot=floor.lot).order_by("serial").first(),
+        "material": material,
+        "ncr": Nonconformance.objects.get(lot=held_lot),
+        "series": SeriesState.objects.get(quantity="surface_copper"),
+        "locked": locked,
     }
 
 
@@ -244,6 +377,6 @@ def test_role_matrix(world):
                 unexpected_allows.append(f"{label} as {caller} -> {reply.status_code}")
             if not got and expected is True and row.owned:
                 unexpected_denies.append(f"{label} as {caller} -> {reply.status_code}")
-    assert checked >= 14 * len(CALLERS)
-    assert unexpected_allows == []
-    assert unexpected_denies == []
+    assert checked >= 45 * len(CALLERS)
+    assert unexpected_allows == [], "\n".join(unexpected_allows)
+    assert unexpected_denies == [], "\n".join(unexpected_denies)

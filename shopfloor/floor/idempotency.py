@@ -48,11 +48,11 @@ def run(
     action: Callable[[], tuple[int, dict[str, Any]]],
 ) -> Outcome:
     """Run `action` at most once per (user, key). `action` returns (status, body)."""
-    if not key:
+    if key is None or key == "":
         status, body = action()
         return Outcome(status, body, False)
     key = key.strip()
-    if len(key) > MAX_KEY_LENGTH or not key.isprintable():
+    if not key or len(key) > MAX_KEY_LENGTH or not key.isprintable():
         raise InvalidInput(f"Idempotency-Key must be 1 to {MAX_KEY_LENGTH} printable characters.")
     refusal: DomainError | None = None
     with transaction.atomic():

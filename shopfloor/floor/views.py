@@ -27,6 +27,7 @@ from shopfloor.errors import DomainError, InvalidInput, NotFound
 from shopfloor.floor import forms, idempotency, services, traveller
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Equipment, Lot, Person, WorkCenter
+from shopfloor.quality import access
 from shopfloor.windows import describe_window
 
 OPEN_STATUSES = [LotStep.Status.WAITING, LotStep.Status.IN_PROGRESS, LotStep.Status.PAUSED]
@@ -356,6 +357,13 @@ def _step_or_404(step_id: int) -> LotStep:
     return step
 
 
+def _require_assigned(person: Person, step: LotStep) -> None:
+    """Refuse work on a step at a work center the person is not assigned to, before the
+    use case runs, so the refusal does not depend on the step's state (the API does the
+    same in shopfloor.floor.permissions.check_work_center)."""
+    services.check_assigned(person, step.work_center_id)
+
+
 def _refuse_page(
     request: HttpRequest, person: Person, lot: Lot | None, error: str, status: int
 ) -> HttpResponse:
@@ -378,6 +386,7 @@ def _step_action(
     try:
         step = _step_or_404(step_id)
         lot = step.lot
+        _require_assigned(person, step)
         form = form_class(request.POST)
         if not form.is_valid():
             raise InvalidInput(form.error_text())
@@ -442,8 +451,10 @@ def record_reading(request: HttpRequest, step_id: int) -> HttpResponse:
     person = _person(request)
     try:
         step = _step_or_404(step_id)
+        _require_assigned(person, step)
     except DomainError as exc:
-        return _refuse_page(request, person, None, exc.detail, exc.status)
+        lot = step.lot if exc.status == 403 else None
+        return _refuse_page(request, person, lot, exc.detail, exc.status)
     form = forms.ReadingForm(request.POST)
     quantity = request.POST.get("quantity", "")
     try:
@@ -494,6 +505,10 @@ def correct_reading(request: HttpRequest, reading_id: int) -> HttpResponse:
             request, person, None, f"No reading {reading_id}; reload the lot page.", 404
         )
     step = old.lot_step
+    try:
+        _require_assigned(person, step)
+    except DomainError as exc:
+        return _refuse_page(request, person, step.lot, exc.detail, exc.status)
     form = forms.CorrectionForm(request.POST)
     entered = {
         "value": request.POST.get("value", ""),
@@ -524,3 +539,35 @@ def correct_reading(request: HttpRequest, reading_id: int) -> HttpResponse:
     return _row_response(
         request, _single_row(step, old.quantity, old.sample_index), step.lot, outcome.status
     )
+
+
+# --- locked badges (supervisors and administrators) ---------------------------------
+
+
+def _domain_page(request: HttpRequest, exc: DomainError) -> HttpResponse:
+    template = {403: "403.html", 404: "404.html"}.get(exc.status, "floor/scan.html")
+    return render(request, template, {"reason": exc.detail, "error": exc.detail}, status=exc.status)
+
+
+@login_required
+@require_GET
+def locked_badges(request: HttpRequest) -> HttpResponse:
+    """Badges locked after too many wrong PINs, each with an Unlock button."""
+    try:
+        people = list(access.locked_badges(access.scope_for(request.user)))
+    except DomainError as exc:
+        return _domain_page(request, exc)
+    return render(request, "floor/locked.html", {"people": people})
+
+
+@login_required
+@require_POST
+def unlock_badge(request: HttpRequest, person_id: int) -> HttpResponse:
+    try:
+        scope = access.scope_for(request.user)
+        person = access.access_locked_person(scope, person_id)
+        services.unlock_person(by=scope.person, person_id=person.pk)
+    except DomainError as exc:
+        return _domain_page(request, exc)
+    messages.success(request, f"Badge {person.badge_number} ({person.printed_name}) unlocked.")
+    return redirect("floor:locked_badges")

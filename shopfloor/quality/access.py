@@ -86,3 +86,72 @@ def require_lot_visible(scope: Scope, lot: Lot) -> None:
             f"Lot {lot.code} has not been at any of your work centers. Operators see the lots "
             "at their own work centers; ask a supervisor or quality engineer for this record."
         )
+
+
+def access_ncr(scope: Scope, number: str) -> Any:
+    """The NCR with this number if the reader may see its lot (404 / 403 with a reason)."""
+    from shopfloor.errors import NotFound
+    from shopfloor.quality.models import Nonconformance
+
+    number = (number or "").strip()
+    ncr = (
+        Nonconformance.objects.select_related(
+            "lot",
+            "lot_step__work_center",
+            "alert",
+            "scrap_lot",
+            "disposition_signature__signer",
+        )
+        .filter(number__iexact=number)
+        .first()
+    )
+    if ncr is None:
+        raise NotFound(f"No nonconformance {number!r}. Open NCRs are listed on the quality page.")
+    require_lot_visible(scope, ncr.lot)
+    return ncr
+
+
+def access_series(scope: Scope, key: str) -> Any:
+    """The stored SPC series with this key, if the reader may see its work center."""
+    from shopfloor.errors import NotFound
+    from shopfloor.quality.models import SeriesState
+
+    series = SeriesState.objects.filter(key=key).first()
+    if series is None:
+        raise NotFound(
+            f"SPC series {key!r} is not stored yet (its readings have not been charted by the "
+            "SPC worker), so its limits cannot be set. Pick a stored series from the SPC list."
+        )
+    if not scope.sees_work_center(series.work_center_id):
+        raise NotAllowed("This series belongs to a work center that is not yours.")
+    return series
+
+
+#: Roles that may see and unlock locked badges (the unlock service checks the same).
+UNLOCK_ROLES = frozenset({Role.SUPERVISOR, Role.ADMIN})
+
+
+def require_unlocker(scope: Scope) -> None:
+    """Refuse (403) anyone but a supervisor or administrator, saying whom to ask."""
+    if not (scope.roles & UNLOCK_ROLES or scope.person.user.is_superuser):
+        raise NotAllowed(
+            "Only a supervisor or administrator can see and unlock locked badges. Ask the "
+            "shift supervisor to unlock yours."
+        )
+
+
+def locked_badges(scope: Scope) -> QuerySet[Person]:
+    """Locked badges, for a supervisor or administrator only."""
+    require_unlocker(scope)
+    return Person.objects.filter(locked_at__isnull=False).order_by("locked_at", "badge_number")
+
+
+def access_locked_person(scope: Scope, person_id: int) -> Person:
+    """A badge to unlock (404 when there is no such person), for unlockers only."""
+    from shopfloor.errors import NotFound
+
+    require_unlocker(scope)
+    person = Person.objects.filter(pk=person_id).first()
+    if person is None:
+        raise NotFound(f"No badge with id {person_id}; reload the list of locked badges.")
+    return person

@@ -28,4 +28,6 @@ urlpatterns = [
     path("quality/materials/<str:code>/", views.material_page, name="material"),
     path("quality/spc/", views.spc_list, name="spc"),
     path("quality/spc/<str:key>/", views.spc_page, name="spc_series"),
+    path("quality/spc/<str:key>/limits/", views.spc_limits, name="spc_limits"),
+    path("quality/ncrs/<str:number>/", views.ncr_page, name="ncr"),
 ]

@@ -10,6 +10,12 @@ from collections.abc import Callable
 from functools import wraps
 from typing import Any
 
+import datetime as dt
+import math
+from zoneinfo import ZoneInfo
+
+from django.conf import settings
+from django.contrib import messages
 from django.contrib.auth.views import redirect_to_login
 from django.http import (
     HttpRequest,
@@ -20,10 +26,10 @@ from django.http import (
 from django.shortcuts import redirect, render
 from django.urls import reverse
 from django.utils.http import urlencode
-from django.views.decorators.http import require_GET, require_POST
+from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
 from shopfloor.errors import DomainError, InvalidInput
-from shopfloor.quality import board, charts, exports, history
+from shopfloor.quality import access, board, charts, exports, history, services
 from shopfloor.quality.access import Scope, scope_for
 
 View = Callable[..., HttpResponse]
@@ -200,9 +206,7 @@ def spc_list(request: HttpRequest, scope: Scope) -> HttpResponse:
     return render(request, "quality/spc_list.html", {"series": history.spc_series(scope)})
 
 
-@require_GET
-@reader
-def spc_page(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
+def _spc_context(scope: Scope, key: str) -> dict[str, Any]:
     d = history.spc_detail(scope, key)
     chart_svg = hist_svg = ""
     if d.limits is not None:
@@ -228,6 +232,178 @@ def spc_page(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
                 unit=d.unit,
             )
         )
-    return render(
-        request, "quality/spc_series.html", {"d": d, "chart_svg": chart_svg, "hist_svg": hist_svg}
-    )
+    return {
+        "d": d,
+        "chart_svg": chart_svg,
+        "hist_svg": hist_svg,
+        "may_set_limits": "quality_engineer" in scope.roles,
+        "entered": {},
+    }
+
+
+@require_GET
+@reader
+def spc_page(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
+    return render(request, "quality/spc_series.html", _spc_context(scope, key))
+
+
+def _number(raw: str, label: str) -> float:
+    """A finite number from a form field, or InvalidInput naming the field."""
+    text = (raw or "").strip().replace(",", ".")
+    try:
+        value = float(text)
+    except ValueError:
+        shown = f"{raw!r}" if text else "nothing"
+        raise InvalidInput(
+            f"{label} must be a number (for example 45.2); got {shown}."
+        ) from None
+    if not math.isfinite(value):
+        raise InvalidInput(f"{label} must be a finite number; got {raw!r}.")
+    return value
+
+
+def _site_day(raw: str, label: str, *, end: bool) -> dt.datetime:
+    """A date field as the start (or end) of that day in the site's time zone."""
+    try:
+        day = dt.date.fromisoformat((raw or "").strip())
+    except ValueError:
+        raise InvalidInput(
+            f"{label} must be a date like 2024-03-01; got {raw!r}." if raw else f"Give {label}."
+        ) from None
+    tz = ZoneInfo(getattr(settings, "SITE_TIME_ZONE", "UTC") or "UTC")
+    moment = dt.datetime.combine(day, dt.time.max if end else dt.time.min)
+    return moment.replace(tzinfo=tz)
+
+
+@require_POST
+@reader
+def spc_limits(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
+    """Fix the limits by hand or recompute them from a baseline window (quality engineer)."""
+    action = request.POST.get("action", "")
+    try:
+        series = access.access_series(scope, key)
+        if action == "fix":
+            services.fix_limits(
+                scope.person,
+                series.pk,
+                centre=_number(request.POST.get("centre", ""), "Centre line"),
+                ucl=_number(request.POST.get("ucl", ""), "UCL"),
+                lcl=_number(request.POST.get("lcl", ""), "LCL"),
+            )
+            messages.success(request, "Control limits fixed; the change is in the audit trail.")
+        elif action == "recompute":
+            services.recompute_limits(
+                scope.person,
+                series.pk,
+                _site_day(request.POST.get("start", ""), "the baseline's first day", end=False),
+                _site_day(request.POST.get("end", ""), "the baseline's last day", end=True),
+            )
+            messages.success(
+                request, "Control limits recomputed from the baseline; the change is audited."
+            )
+        else:
+            raise InvalidInput(f"Unknown action {action!r}; use fix or recompute.")
+    except DomainError as exc:
+        if exc.status == 404 or (exc.status == 403 and "quality_engineer" not in scope.roles):
+            return _refusal(request, exc)  # no such series, or the wrong role: say why
+        try:
+            ctx = _spc_context(scope, key)
+        except DomainError:
+            return _refusal(request, exc)
+        ctx.update(
+            limits_error=exc.detail,
+            limits_action=action,
+            entered={k: request.POST.get(k, "") for k in ("centre", "ucl", "lcl", "start", "end")},
+        )
+        return render(request, "quality/spc_series.html", ctx, status=exc.status)
+    return redirect(reverse("quality:spc_series", args=[key]))
+
+
+# --- nonconformances ------------------------------------------------------------------
+
+#: The form's choices: "scrap all" and "scrap some" are both the service's "scrap".
+DISPOSITION_CHOICES = [
+    ("use_as_is", "Use as is"),
+    ("rework", "Rework"),
+    ("scrap_all", "Scrap the whole lot"),
+    ("scrap_some", "Scrap some panels (split them off)"),
+]
+
+
+def _rework_lines(text: str) -> list[dict[str, Any]] | None:
+    """'Name' or 'Name | WORK-CENTER-CODE' per line; None (the default step) when empty."""
+    steps: list[dict[str, Any]] = []
+    for line in (text or "").splitlines():
+        if not line.strip():
+            continue
+        name, _, wc = line.partition("|")
+        step: dict[str, Any] = {"name": name.strip()}
+        if wc.strip():
+            step["work_center"] = wc.strip()
+        steps.append(step)
+    return steps or None
+
+
+def _panel_ids(raw: list[str]) -> list[Any]:
+    # Non-numbers are passed on as they are, so the service names them in its refusal.
+    return [int(v) if v.strip().isdigit() else v for v in raw]
+
+
+def _ncr_context(scope: Scope, number: str) -> dict[str, Any]:
+    ncr = access.access_ncr(scope, number)
+    return {
+        "ncr": ncr,
+        "readings": list(
+            ncr.readings.select_related("operator", "equipment", "lot_step").order_by(
+                "recorded_at", "pk"
+            )
+        ),
+        "holds": list(ncr.holds.order_by("opened_at")),
+        "panels": list(ncr.lot.panels.filter(scrapped=False).order_by("serial")),
+        "rework_steps": list(ncr.rework_steps.select_related("work_center").order_by("position")),
+        "choices": DISPOSITION_CHOICES,
+        "may_disposition": "quality_engineer" in scope.roles,
+        "signer": scope.person.printed_name,
+        "entered": {},
+    }
+
+
+@require_http_methods(["GET", "POST"])
+@reader
+def ncr_page(request: HttpRequest, scope: Scope, number: str) -> HttpResponse:
+    """An NCR with its evidence; for an open one, the disposition form (quality engineer)."""
+    if request.method == "GET":
+        return render(request, "quality/ncr.html", _ncr_context(scope, number))
+    ncr = access.access_ncr(scope, number)
+    choice = request.POST.get("disposition", "")
+    panel_ids = _panel_ids(request.POST.getlist("panels")) if choice == "scrap_some" else None
+    try:
+        services.disposition_ncr(
+            scope.person,
+            ncr.pk,
+            "scrap" if choice in ("scrap_all", "scrap_some") else choice,
+            request.POST.get("note", ""),
+            request.POST.get("pin", ""),
+            scrap_panel_ids=panel_ids,
+            rework_steps=_rework_lines(request.POST.get("rework_steps", ""))
+            if choice == "rework"
+            else None,
+        )
+    except DomainError as exc:
+        if exc.status == 403 and "quality_engineer" not in scope.roles:
+            return _refusal(request, exc)  # wrong role: the 403 page says why
+        ctx = _ncr_context(scope, number)
+        ctx.update(
+            error=exc.detail,
+            problems=exc.problems,
+            entered={
+                "disposition": choice,
+                "note": request.POST.get("note", ""),
+                "rework_steps": request.POST.get("rework_steps", ""),
+                "panels": set(request.POST.getlist("panels")),
+            },
+        )
+        return render(request, "quality/ncr.html", ctx, status=exc.status)
+    messages.success(request, f"{ncr.number} dispositioned and signed; the hold is released.")
+    return redirect(reverse("quality:ncr", args=[ncr.number]))
+

@@ -24,7 +24,6 @@ from routing.builder.library import DEFAULT_LIBRARY, REQUIRED_STEP_CODES
 from routing.models import ProcessLibraryVersion, RoutingRevision, RoutingStep
 from shopfloor.audit.models import AuditEntry, Signature
 from shopfloor.floor import services
-from shopfloor.floor.models import Reading
 from tests.api.helpers import advance_to
 from tests.factories import make_floor
 

@@ -15,16 +15,17 @@ deadline (a shared 2-core machine is slow at times; speed goals live in bench/).
 from __future__ import annotations
 
 import contextlib
+import secrets
 from collections import Counter
 from collections.abc import Iterator
 from typing import Any
 
 import pytest
 import schemathesis
+from django.conf import settings as django_settings
 from django.core.handlers.wsgi import WSGIHandler
 from django.core.signals import request_finished, request_started
 from django.db import close_old_connections
-from django.middleware.csrf import _get_new_csrf_string, _mask_cipher_secret
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from requests.exceptions import InvalidHeader
@@ -39,13 +40,14 @@ from schemathesis.specs.openapi.checks import (
     status_code_conformance,
 )
 
+from shopfloor.audit import services as audit
 from shopfloor.floor import services
 from shopfloor.floor.models import Reading
 from shopfloor.plant.models import Lot, Person
 from tests.api.helpers import advance_to, gauge_at, issue_token
 from tests.factories import PIN, SPEC_4L_ENIG, make_floor
 
-EXAMPLES = 30
+EXAMPLES = 50
 CHECKS = [
     not_a_server_error,
     status_code_conformance,
@@ -89,7 +91,6 @@ def world(transactional_db) -> dict[str, Any]:
     return {
         "floor": floor,
         "lot": floor.lot.code,
-        "step_ids": list(floor.lot.steps.values_list("pk", flat=True)),
         "current_step": step.pk,
         "reading": reading.pk,
         "gauge": gauge.pk,
@@ -102,9 +103,14 @@ def session_credentials(world: dict[str, Any]) -> tuple[dict[str, str], dict[str
     """A supervisor's session cookie plus the CSRF pair SessionAuthentication demands."""
     client = APIClient()
     client.force_login(world["floor"].personas["supervisor"].user)
-    secret = _get_new_csrf_string()
-    cookies = {"sessionid": client.cookies["sessionid"].value, "csrftoken": secret}
-    return {"X-CSRFToken": _mask_cipher_secret(secret)}, cookies
+    token = secrets.token_hex(16)  # 32 alphanumerics: an unmasked CSRF secret
+    cookies = {
+        django_settings.SESSION_COOKIE_NAME: client.cookies[
+            django_settings.SESSION_COOKIE_NAME
+        ].value,
+        django_settings.CSRF_COOKIE_NAME: token,
+    }
+    return {"X-CSRFToken": token}, cookies
 
 
 def token_credentials(world: dict[str, Any]) -> tuple[dict[str, str], dict[str, str]]:
@@ -247,8 +253,6 @@ def fuzz_operation(
         case = aim(case, world, mode, key, reading)
         response = case.call_and_validate(headers=headers, cookies=cookies, checks=CHECKS)
         statuses[response.status_code] += 1
-        if mode == "valid" and response.status_code >= 400:
-            print("DBG", case.operation.label, case.headers, case.body, response.text[:300])
 
     run()
     return statuses
@@ -294,15 +298,11 @@ def test_every_operation_survives_fuzzing_and_conforms(app, world, caller):
         for key, statuses in tested.items():
             if key != ("POST", "/api/v1/readings/"):
                 assert set(statuses) == {403}, (key, statuses)
-    # The fuzzer reached the services: the seeded reading is still there, and the audit
-    # trail did not break (nothing a caller sent was a 500).
-    assert Reading.objects.filter(pk=world["reading"]).exists()
+    # Whatever the fuzzer got recorded, the audit trail is still an unbroken hash chain.
+    chain = audit.verify_chain()
+    assert chain.ok, chain.problem
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="handler404 (shopfloor.views.not_found) renders the HTML page for /api/ paths too",
-)
 @pytest.mark.django_db
 def test_unroutable_api_path_gets_json_404(client):
     reply = client.post(
