@@ -25,6 +25,11 @@ def forbidden(request: HttpRequest, exception: Exception | None = None) -> HttpR
 
 
 def not_found(request: HttpRequest, exception: Exception | None = None) -> HttpResponse:
+    if request.path.startswith("/api/"):
+        return JsonResponse(
+            {"error": "not_found", "detail": f"No API endpoint at {request.path}; see /api/docs/."},
+            status=404,
+        )
     return render(
         request, "404.html", {"reason": "That page or record does not exist."}, status=404
     )

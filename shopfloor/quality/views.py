@@ -254,9 +254,7 @@ def _number(raw: str, label: str) -> float:
         value = float(text)
     except ValueError:
         shown = f"{raw!r}" if text else "nothing"
-        raise InvalidInput(
-            f"{label} must be a number (for example 45.2); got {shown}."
-        ) from None
+        raise InvalidInput(f"{label} must be a number (for example 45.2); got {shown}.") from None
     if not math.isfinite(value):
         raise InvalidInput(f"{label} must be a finite number; got {raw!r}.")
     return value
@@ -406,4 +404,3 @@ def ncr_page(request: HttpRequest, scope: Scope, number: str) -> HttpResponse:
         return render(request, "quality/ncr.html", ctx, status=exc.status)
     messages.success(request, f"{ncr.number} dispositioned and signed; the hold is released.")
     return redirect(reverse("quality:ncr", args=[ncr.number]))
-

@@ -276,7 +276,7 @@ def test_partial_scrap_splits_the_lot_and_both_keep_history(floor, held):
     assert ncr.number in parent
     child = client.get(f"/quality/lots/{split.code}/")
     assert child.status_code == 200
-    assert f"Split from lot <a href=\"/quality/lots/{lot.code}/\"" in child.content.decode()
+    assert f'Split from lot <a href="/quality/lots/{lot.code}/"' in child.content.decode()
     assert AuditEntry.objects.filter(action="lot.split").count() == 1
     html = client.get(_url(ncr)).content.decode()
     assert "(some panels)" in html and f"/quality/lots/{split.code}/" in html
