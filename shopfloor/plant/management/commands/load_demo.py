@@ -92,6 +92,12 @@ class Command(BaseCommand):
                 continue
             self._job(job_data, routings, operator, data["pin"])
             created += 1
+        # Beat runs these every few minutes in production; run them once so the demo's late
+        # and at-risk jobs and any queue-time overruns show up straight away.
+        from shopfloor.quality import services as quality_services
+
+        quality_services.check_due_dates()
+        quality_services.check_queue_times()
         self.stdout.write(
             f"demo shop ready: {Job.objects.count()} jobs, {Lot.objects.count()} lots "
             f"({created} new this run)"
