@@ -107,7 +107,9 @@ def unlock_person(*, by: Person, person_id: int) -> Person:
     if not by.roles() & {"supervisor", "admin"}:
         raise NotAllowed("Only a supervisor or administrator can unlock a badge.")
     with transaction.atomic():
-        person = Person.objects.select_for_update().get(pk=person_id)
+        person = Person.objects.select_for_update().filter(pk=person_id).first()
+        if person is None:
+            raise NotFound(f"No badge record {person_id}.")
         person.locked_at = None
         person.pin_failures = 0
         person.save(update_fields=["locked_at", "pin_failures"])
@@ -250,6 +252,7 @@ def start_step(
 def pause_step(*, person: Person, lot_step_id: int, reason: str = "") -> LotStep:
     with transaction.atomic():
         step, _lot = _lock_step(lot_step_id)
+        check_assigned(person, step.work_center_id)
         if step.status != LotStep.Status.IN_PROGRESS:
             raise Conflict(f"'{step.name}' is not in progress, so it cannot be paused.")
         before = _step_state(step)
@@ -365,8 +368,8 @@ def record_reading(
     """Record one reading on the lot's current step, judge it, and queue the event."""
     with transaction.atomic():
         step, lot = _lock_step(lot_step_id)
-        _require_workable(step, lot)
         check_assigned(person, step.work_center_id)
+        _require_workable(step, lot)
         if step.status != LotStep.Status.IN_PROGRESS:
             raise Conflict(f"Start '{step.name}' before recording readings.")
         window, value, captured = _parse_reading(step, data)
@@ -468,8 +471,8 @@ def correct_reading(
         if old.superseded_by_id is not None:
             raise Conflict("That reading was already corrected; correct the newest one instead.")
         step, lot = _lock_step(old.lot_step_id)
-        _require_workable(step, lot)
         check_assigned(person, step.work_center_id)
+        _require_workable(step, lot)
         data = ReadingInput(
             quantity=old.quantity,
             value=value,

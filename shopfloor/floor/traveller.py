@@ -13,6 +13,7 @@ import io
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
+from zoneinfo import ZoneInfo
 
 import segno
 from django.conf import settings
@@ -120,7 +121,7 @@ def traveller_pdf(lot: Lot) -> bytes:
 
     revision = lot.routing_revision
     part_revision = revision.part_revision
-    tz = timezone.zoneinfo.ZoneInfo(settings.SITE_TIME_ZONE)
+    tz = ZoneInfo(settings.SITE_TIME_ZONE)
     printed = timezone.now().astimezone(tz)
 
     story: list[Any] = []

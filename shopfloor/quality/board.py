@@ -617,11 +617,7 @@ def release_queue_warning(person: Person, lot_step_id: int, reason: str) -> Any:
     reason = (reason or "").strip()
     if len(reason) < 3:
         raise InvalidInput("Releasing a queue-time warning needs a reason (why it may wait).")
-    try:
-        from shopfloor.quality import services as quality_services  # another engineer's
-    except ImportError:
-        quality_services = None
-    release = getattr(quality_services, "release_queue_warning", None)
-    if release is None:
-        raise InvalidInput("Releasing queue-time warnings is not available yet on this site.")
+    from shopfloor.quality import services as quality_services
+
+    release = quality_services.release_queue_warning
     return release(person, lot_step_id, reason)

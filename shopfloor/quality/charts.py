@@ -108,8 +108,9 @@ def control_chart(
                 stroke=colour,
             )
         )
-    for value, label in ((lsl, "LSL"), (usl, "USL")):
-        if value is not None:
+    for spec_value, label in ((lsl, "LSL"), (usl, "USL")):
+        if spec_value is not None:
+            value = spec_value
             fig.shapes.append(
                 Shape("line", (left, y(value), right, y(value)), stroke=SPEC, width=1, dash=True)
             )

@@ -311,8 +311,8 @@ def lot_record_pdf(h: history.LotHistory, *, certificate: bool = False) -> bytes
                 j.part_revision.part.customer.code,
                 j.part_revision.part.number,
                 j.part_revision.revision,
-                j.quantity,
-                images_by_job.get(j.number, 0),
+                str(j.quantity),
+                str(images_by_job.get(j.number, 0)),
                 j.due_date.isoformat(),
                 f"Class {j.ipc_class}",
             ]
@@ -327,7 +327,7 @@ def lot_record_pdf(h: history.LotHistory, *, certificate: bool = False) -> bytes
             p,
         )
     )
-    if lot.split_from_id:
+    if lot.split_from is not None:
         story.append(Paragraph(f"Split from lot {lot.split_from.code}.", p))
     standards = h.standards
     story.append(

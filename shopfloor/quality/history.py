@@ -147,7 +147,7 @@ def lot_history(scope: Scope, code: str, *, full_readings: bool = True) -> LotHi
     readings_qs = Reading.objects.select_related("operator", "equipment").order_by(
         "recorded_at", "pk"
     )
-    summaries: dict[int, list[dict[str, Any]]] = {}
+    summaries: dict[int, list[Any]] = {}
     if not full_readings:
         counts = (
             Reading.objects.filter(lot_step__lot=lot)
@@ -232,7 +232,7 @@ def _timeline(h: LotHistory) -> list[TimelineEvent]:
             h.lot.created_at, "lot", f"Lot {h.lot.code} created", f"{h.lot.panel_count} panel(s)"
         )
     ]
-    if h.lot.split_from_id:
+    if h.lot.split_from is not None:
         ev.append(
             TimelineEvent(h.lot.created_at, "split", f"Split from lot {h.lot.split_from.code}")
         )
@@ -420,7 +420,7 @@ def history_dict(h: LotHistory) -> dict[str, Any]:
                 "ipc_class": rev.ipc_class,
                 "finish": (rev.build_spec or {}).get("finish"),
             },
-            "split_from": lot.split_from.code if lot.split_from_id else None,
+            "split_from": lot.split_from.code if lot.split_from is not None else None,
             "splits": [c.code for c in h.splits],
             "panels": [
                 {

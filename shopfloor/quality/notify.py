@@ -41,10 +41,10 @@ def alert_payload(alert: Alert) -> dict[str, Any]:
         "severity": alert.severity,
         "message": alert.message,
         "rule": alert.rule or None,
-        "lot": alert.lot.code if alert.lot_id else None,
+        "lot": alert.lot.code if alert.lot else None,
         "lot_step": alert.lot_step_id,
-        "job": alert.job.number if alert.job_id else None,
-        "work_center": alert.work_center.code if alert.work_center_id else None,
+        "job": alert.job.number if alert.job else None,
+        "work_center": alert.work_center.code if alert.work_center else None,
         "reading": alert.reading_id,
         "created_at": alert.created_at.isoformat(),
     }
@@ -59,7 +59,7 @@ def signature(body: bytes, secret: str) -> str:
 
 
 def recipients(alert: Alert) -> list[str]:
-    if alert.work_center_id is None:
+    if alert.work_center is None:
         return []
     return alert.work_center.notification_list()
 
@@ -70,12 +70,12 @@ def send_email(alert: Alert) -> int:
     if not to:
         return 0
     subject = f"[{alert.get_severity_display()}] {alert.get_kind_display()}"
-    if alert.lot_id:
+    if alert.lot is not None:
         subject += f" - lot {alert.lot.code}"
     lines = [alert.message, ""]
-    if alert.lot_id:
+    if alert.lot is not None:
         lines.append(f"Lot: {alert.lot.code}")
-    if alert.work_center_id:
+    if alert.work_center is not None:
         lines.append(f"Work center: {alert.work_center.name}")
     lines.append(f"Alert #{alert.pk} raised {alert.created_at:%Y-%m-%d %H:%M} UTC")
     return send_mail(subject[:200], "\n".join(lines), settings.DEFAULT_FROM_EMAIL, to)

@@ -134,6 +134,8 @@ def _dispatch(event: OutboxEvent) -> list[Alert]:
 
 def _handle_reading(event: OutboxEvent) -> list[Alert]:
     reading_id = (event.payload or {}).get("reading")
+    if not isinstance(reading_id, int):
+        return []
     reading = (
         Reading.objects.select_related(
             "lot_step__work_center", "lot_step__equipment", "lot_step__lot", "equipment"

@@ -6,12 +6,11 @@ Every refusal is a DomainError turned into a page (or JSON) with its status and 
 
 from __future__ import annotations
 
+import datetime as dt
+import math
 from collections.abc import Callable
 from functools import wraps
 from typing import Any
-
-import datetime as dt
-import math
 from zoneinfo import ZoneInfo
 
 from django.conf import settings

@@ -190,7 +190,7 @@ def test_bad_choices_are_refused_with_the_reason(floor, held, data, message):
 
 
 def test_use_as_is_signs_releases_and_shows_the_decision(floor, held):
-    step, ncr, _ = held
+    _, ncr, _ = held
     client = _client(floor.personas["quality_engineer"])
     assert _on_floor_held(floor)
     reply = client.post(
