@@ -1,9 +1,13 @@
 """Benchmark: how fast an out-of-window reading becomes an alert row, under load.
 
 One real Celery worker (solo pool), 20 client threads recording readings through the
-floor service (each on its own lot, because the first bad reading holds a lot). For
-every reading the latency is reading.recorded_at -> alert.created_at (both stamped by
-this machine's clock). Beside it, in the same run and under the same load, each client
+floor service like tablets do: mostly in-window readings (each updates its SPC series
+through the same event path) and, as the last reading on each lot, one out of window
+(it holds the lot, so each lot gets one). Each client pauses THINK_SECONDS between
+readings: an operator takes a reading every few seconds, so 0.5 s is already several
+times faster than a real floor. For every out-of-window reading the latency is
+reading.recorded_at -> alert.created_at (both stamped by this machine's clock).
+Beside it, in the same run and under the same load, each client
 also sends a no-op Celery task whose round trip (send -> the task setting a Redis key)
 is the reference: the alert path's cost is reported as a ratio to it.
 
@@ -30,7 +34,9 @@ os.environ.setdefault("DJANGO_SETTINGS_MODULE", "shopfloor.settings")
 os.environ.setdefault("DEBUG", "1")
 
 CLIENTS = 20
-READINGS_PER_CLIENT = 3
+READINGS_PER_CLIENT = 3  # lots per client, each ending in one out-of-window reading
+IN_WINDOW_PER_LOT = 4  # hole-wall copper samples 1-4, in window (SPC path)
+THINK_SECONDS = float(os.environ.get("BENCH_THINK_SECONDS", "0.5"))
 WAIT_SECONDS = 120.0
 
 
@@ -86,6 +92,11 @@ def run() -> dict[str, float]:
         def client(my_steps: list) -> None:
             try:
                 for step in my_steps:
+                    for sample in range(1, IN_WINDOW_PER_LOT + 1):
+                        kit.record(
+                            floor, step, "hole_wall_copper", 24.0 + sample * 0.3, sample=sample
+                        )
+                        time.sleep(THINK_SECONDS)
                     r = kit.record(floor, step, "surface_copper", 70.0)
                     key = f"bench:noop:{uuid.uuid4().hex}"
                     sent = time.time()
@@ -130,6 +141,8 @@ def run() -> dict[str, float]:
         return {
             "readings": float(total),
             "clients": float(CLIENTS),
+            "think_seconds": THINK_SECONDS,
+            "in_window_readings": float(CLIENTS * READINGS_PER_CLIENT * IN_WINDOW_PER_LOT),
             "alert_p50_s": statistics.median(alert_lat),
             "alert_p95_s": alert_p95,
             "noop_task_p50_s": statistics.median(noop_lat),

@@ -109,7 +109,7 @@ SITE_TIME_ZONE = env_str("SITE_TIME_ZONE", "UTC") or "UTC"  # shown to people
 
 STATIC_URL = "/static/"
 STATIC_ROOT = VAR_DIR / "static"
-STATICFILES_DIRS = [BASE_DIR / "static"]
+STATICFILES_DIRS = [BASE_DIR / "shopfloor" / "static"]
 STORAGES = {
     "default": {"BACKEND": "django.core.files.storage.FileSystemStorage"},
     "staticfiles": {

@@ -67,7 +67,7 @@ def test_copper_ounce_factor_against_first_principles():
     computed_um = areal / 8.96 * 1e4
     assert computed_um == pytest.approx(34.06, abs=0.01)
     # The customary factor (1.37 mil, common practice) sits within 2.5 % of the physics,
-    # and below the rounded 35 um of shop talk.
+    # and below the rounded 35 um used in everyday shop speech.
     assert abs(COPPER_OZ_UM - computed_um) / computed_um < 0.025
     assert COPPER_OZ_UM == pytest.approx(1.37 * 25.4, abs=0.02)
     assert COPPER_OZ_UM < 35.0

@@ -1,7 +1,7 @@
 """Playwright fixtures for every browser test (tablet, board, quality pages).
 
 Debian's chromium is used headless (never `playwright install`, which downloads).
-Live-server tests need `@pytest.mark.django_db(transaction=True)`: the browser talks
+Live-server tests need `@pytest.mark.django_db(transaction=True)`: the browser connects
 to a server thread that must see committed rows.
 
 Fixtures:

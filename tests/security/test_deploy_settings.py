@@ -16,6 +16,7 @@ import pytest
 REPO = Path(__file__).resolve().parents[2]
 _OURS = {
     "DEBUG",
+    "DJANGO_ALLOW_ASYNC_UNSAFE",  # test-only (live server); never set in production
     "SECRET_KEY",
     "SECRET_KEY_FILE",
     "ALLOWED_HOSTS",
