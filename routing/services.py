@@ -260,6 +260,8 @@ def move_lot(*, person: Person, lot_id: int, revision_id: int, reason: str) -> L
             raise NotFound("No such lot or routing revision.")
         if not target.is_released:
             raise Conflict("A lot can only move to a released routing revision.")
+        if target.pk == lot.routing_revision_id:
+            raise Conflict(f"Lot {lot.code} already runs on routing r{target.number}.")
         if target.part_revision_id != lot.routing_revision.part_revision_id:
             raise Conflict("That revision belongs to another part revision.")
         if LotStep.objects.filter(lot=lot, status=LotStep.Status.IN_PROGRESS).exists():

@@ -12,4 +12,5 @@ urlpatterns = [
     path("part-revisions/<int:part_revision_id>/draft/", views.create_draft, name="draft"),
     path("revisions/<int:pk>/", views.revision, name="revision"),
     path("revisions/<int:pk>/release/", views.release, name="release"),
+    path("revisions/<int:pk>/move-lot/", views.move_lot, name="move_lot"),
 ]

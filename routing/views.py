@@ -21,7 +21,7 @@ from routing.api import EXAMPLE_SPEC, split_preview_body
 from routing.models import RoutingRevision
 from shopfloor.errors import DomainError
 from shopfloor.floor.permissions import READ_ROLES, roles_of
-from shopfloor.plant.models import PartRevision
+from shopfloor.plant.models import Lot, PartRevision
 
 CHANGE_ROLES = frozenset({"process_engineer", "admin"})
 
@@ -132,6 +132,27 @@ def revision(request: HttpRequest, pk: int) -> HttpResponse:
         ),
         pk=pk,
     )
+    return _revision_page(request, rev, roles)
+
+
+def _movable_lots(rev: RoutingRevision) -> list[Lot]:
+    """Lots of the same part revision still in process on another revision."""
+    if not rev.is_released:
+        return []
+    return list(
+        Lot.objects.filter(
+            routing_revision__part_revision_id=rev.part_revision_id,
+            status__in=[Lot.Status.NOT_STARTED, Lot.Status.IN_PROCESS],
+        )
+        .exclude(routing_revision=rev)
+        .select_related("routing_revision")
+        .order_by("code")
+    )
+
+
+def _revision_page(
+    request: HttpRequest, rev: RoutingRevision, roles: set[str], error: str = "", status: int = 200
+) -> HttpResponse:
     return render(
         request,
         "engineering/revision.html",
@@ -140,9 +161,35 @@ def revision(request: HttpRequest, pk: int) -> HttpResponse:
             "steps": rev.steps.select_related("work_center").order_by("seq"),
             "diff_lines": [line for line in rev.diff.splitlines() if line.strip()],
             "can_change": bool(roles & CHANGE_ROLES),
-            "error": "",
+            "movable_lots": _movable_lots(rev),
+            "error": error,
         },
+        status=status,
     )
+
+
+@login_required
+@require_POST
+def move_lot(request: HttpRequest, pk: int) -> HttpResponse:
+    """Move one lot in process onto this released revision (open steps only)."""
+    roles = _require_reader(request)
+    rev = get_object_or_404(RoutingRevision, pk=pk)
+    try:
+        lot_id = int(request.POST.get("lot", ""))
+    except ValueError:
+        return _revision_page(request, rev, roles, "Choose a lot to move.", 400)
+    try:
+        services.move_lot(
+            person=_person(request),
+            lot_id=lot_id,
+            revision_id=pk,
+            reason=request.POST.get("reason", ""),
+        )
+    except DomainError as exc:
+        if exc.status == 403 and not roles & CHANGE_ROLES:
+            raise PermissionDenied(exc.detail) from exc
+        return _revision_page(request, rev, roles, exc.detail, exc.status)
+    return redirect("routing:revision", pk=pk)
 
 
 @login_required
@@ -155,16 +202,5 @@ def release(request: HttpRequest, pk: int) -> HttpResponse:
         if exc.status == 403 and not roles & CHANGE_ROLES:
             raise PermissionDenied(exc.detail) from exc
         rev = get_object_or_404(RoutingRevision, pk=pk)
-        return render(
-            request,
-            "engineering/revision.html",
-            {
-                "revision": rev,
-                "steps": rev.steps.select_related("work_center").order_by("seq"),
-                "diff_lines": [line for line in rev.diff.splitlines() if line.strip()],
-                "can_change": bool(roles & CHANGE_ROLES),
-                "error": exc.detail,
-            },
-            status=exc.status,
-        )
+        return _revision_page(request, rev, roles, exc.detail, exc.status)
     return redirect("routing:revision", pk=pk)

@@ -152,6 +152,13 @@ ROWS: dict[str, Row] = {
         api=False,
         body=lambda c: {"pin": PIN},
     ),
+    "POST move lot to revision": Row(
+        "POST",
+        lambda c: f"/engineering/revisions/{c['routing'].pk}/move-lot/",
+        (D, D, A, D, A, D, D, D),
+        api=False,
+        body=lambda c: {"lot": c["lot"].pk, "reason": "matrix"},
+    ),
     # --- floor tablet pages ------------------------------------- op sup pe qe adm ins ano oth
     # Every person may open the start page, scan and view a lot's traveller (what the paper
     # traveller shows); a work center's queue is shown to the people linked to it; working
