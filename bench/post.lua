@@ -1,5 +1,5 @@
 -- wrk script: POST JSON bodies, each request a distinct reading (no duplicate samples).
--- usage: wrk ... -s bench/post.lua URL -- MODE TOKEN OFFSET NLOTS
+-- usage: wrk ... -s bench/post.lua URL -- MODE TOKEN OFFSET NLOTS NTHREADS
 --   MODE bare   -> POST /bench/bare/      {"n": n}
 --   MODE ingest -> POST /api/v1/readings/ a hole-wall copper reading on lot BENCH-<k>
 local threads = {}
@@ -16,19 +16,21 @@ function init(args)
   token = args[2] or ""
   offset = tonumber(args[3] or "0")
   nlots = tonumber(args[4] or "1")
+  nthreads = tonumber(args[5] or "1")
   counter = 0
   statuses = {}
 end
 
 request = function()
   counter = counter + 1
-  local n = offset + tid * 100000 + counter
+  -- unique per request across threads: interleave the threads' counters
+  local n = offset + (counter - 1) * nthreads + tid
   if mode == "bare" then
     return wrk.format("POST", "/bench/bare/", {["Content-Type"] = "application/json"},
       string.format('{"n": %d}', n))
   end
   local lot = n % nlots
-  local sample = math.floor(n / nlots) % 32000 + 1
+  local sample = math.floor(n / nlots) % 1000 + 1  -- the API takes samples 1..1000
   local body = string.format(
     '{"lot": "BENCH-%04d", "quantity": "hole_wall_copper", "value": %.2f, "unit": "um", "sample_index": %d}',
     lot, 24.0 + (n % 7) * 0.1, sample)

@@ -34,7 +34,7 @@ PLAN = [
         "min": 20.0,
         "max": None,
         "target": None,
-        "samples": 32000,
+        "samples": 1000,
         "source": "benchmark plan (invented)",
         "attribute": False,
         "deviation": False,

@@ -52,7 +52,9 @@ class ProcessLibraryVersionAdmin(admin.ModelAdmin):
     def save_model(self, request: HttpRequest, obj: Any, form: Any, change: bool) -> None:
         """Save every edit (and every add) as a new version; the edited row stays as it was."""
         with transaction.atomic():
-            latest = ProcessLibraryVersion.objects.select_for_update().aggregate(Max("version"))
+            latest = ProcessLibraryVersion.objects.select_for_update(no_key=True).aggregate(
+                Max("version")
+            )
             data = dict(form.cleaned_data["data"])
             next_version = (latest["version__max"] or 0) + 1
             if isinstance(data.get("version"), int):

@@ -129,7 +129,7 @@ def create_draft(
         _, library = current_library()
         built = _build(part_revision.build_spec, overrides or [], library)
         previous = (
-            RoutingRevision.objects.select_for_update()
+            RoutingRevision.objects.select_for_update(no_key=True)
             .filter(part_revision=part_revision)
             .order_by("-number")
             .first()
@@ -217,7 +217,9 @@ def release(*, person: Person, revision_id: int, pin: str) -> RoutingRevision:
     _require_role(person, "process_engineer", "release routings")
     verify_pin(person, pin)
     with transaction.atomic():
-        revision = RoutingRevision.objects.select_for_update().filter(pk=revision_id).first()
+        revision = (
+            RoutingRevision.objects.select_for_update(no_key=True).filter(pk=revision_id).first()
+        )
         if revision is None:
             raise NotFound(f"No routing revision {revision_id}.")
         if revision.is_released:
@@ -254,7 +256,7 @@ def move_lot(*, person: Person, lot_id: int, revision_id: int, reason: str) -> L
     if not (reason or "").strip():
         raise InvalidInput("Moving a lot to another routing revision needs a reason.")
     with transaction.atomic():
-        lot = Lot.objects.select_for_update().filter(pk=lot_id).first()
+        lot = Lot.objects.select_for_update(no_key=True).filter(pk=lot_id).first()
         target = RoutingRevision.objects.filter(pk=revision_id).first()
         if lot is None or target is None:
             raise NotFound("No such lot or routing revision.")

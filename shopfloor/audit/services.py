@@ -65,7 +65,7 @@ def record(
 ) -> AuditEntry:
     """Append one audit entry inside the caller's transaction."""
     with transaction.atomic():
-        head, _ = AuditHead.objects.select_for_update().get_or_create(pk=1)
+        head, _ = AuditHead.objects.select_for_update(no_key=True).get_or_create(pk=1)
         name = _actor_name(actor)
         entry = AuditEntry(
             seq=head.last_seq + 1,

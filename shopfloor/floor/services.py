@@ -68,7 +68,7 @@ def badge_login(badge_number: str, pin: str) -> Person:
 def verify_pin(person: Person, pin: str) -> None:
     """Check a PIN (login or signature). After PIN_MAX_FAILURES wrong PINs, lock and log."""
     with transaction.atomic():
-        locked = Person.objects.select_for_update().get(pk=person.pk)
+        locked = Person.objects.select_for_update(no_key=True).get(pk=person.pk)
         if locked.is_locked:
             raise NotAllowed(
                 "This badge is locked after too many wrong PINs. A supervisor or administrator "
@@ -107,7 +107,7 @@ def unlock_person(*, by: Person, person_id: int) -> Person:
     if not by.roles() & {"supervisor", "admin"}:
         raise NotAllowed("Only a supervisor or administrator can unlock a badge.")
     with transaction.atomic():
-        person = Person.objects.select_for_update().filter(pk=person_id).first()
+        person = Person.objects.select_for_update(no_key=True).filter(pk=person_id).first()
         if person is None:
             raise NotFound(f"No badge record {person_id}.")
         person.locked_at = None
@@ -170,10 +170,10 @@ def current_step(lot: Lot) -> LotStep | None:
 
 
 def _lock_step(lot_step_id: int) -> tuple[LotStep, Lot]:
-    step = LotStep.objects.select_for_update().filter(pk=lot_step_id).first()
+    step = LotStep.objects.select_for_update(no_key=True).filter(pk=lot_step_id).first()
     if step is None:
         raise NotFound(f"No lot step {lot_step_id}.")
-    lot = Lot.objects.select_for_update().get(pk=step.lot_id)
+    lot = Lot.objects.select_for_update(no_key=True).get(pk=step.lot_id)
     return step, lot
 
 
@@ -465,7 +465,7 @@ def correct_reading(
     if len(reason) < 3:
         raise InvalidInput("A correction needs a reason (what was wrong with the first reading).")
     with transaction.atomic():
-        old = Reading.objects.select_for_update().filter(pk=reading_id).first()
+        old = Reading.objects.select_for_update(no_key=True).filter(pk=reading_id).first()
         if old is None:
             raise NotFound(f"No reading {reading_id}.")
         if old.superseded_by_id is not None:

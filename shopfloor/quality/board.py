@@ -557,7 +557,7 @@ def reorder_queue(
         raise InvalidInput("A lot appears twice in the new order; name each lot once.")
     # Lock the queue's rows so two supervisors reordering at once apply one after the other.
     list(
-        LotStep.objects.select_for_update().filter(
+        LotStep.objects.select_for_update(no_key=True).filter(
             work_center_id=work_center_id, status=LotStep.Status.WAITING
         )
     )

@@ -77,7 +77,7 @@ def _lock_series(reading: Reading) -> SeriesState:
             "baseline_size": DEFAULT_BASELINE,
         },
     )
-    return SeriesState.objects.select_for_update().get(key=key)
+    return SeriesState.objects.select_for_update(no_key=True).get(key=key)
 
 
 def limits_from_dict(data: dict[str, Any]) -> spc.Limits:

@@ -105,7 +105,7 @@ def handle_event(event_id: int) -> EventOutcome:
     try:
         with transaction.atomic():
             event = (
-                OutboxEvent.objects.select_for_update()
+                OutboxEvent.objects.select_for_update(no_key=True)
                 .filter(pk=event_id, processed_at__isnull=True)
                 .first()
             )
@@ -218,7 +218,7 @@ def _hold(lot: Lot, step: LotStep | None, alert: Alert, ncr: Nonconformance, rea
 
 def _out_of_window(event: OutboxEvent, reading: Reading) -> Alert | None:
     step = reading.lot_step
-    lot = Lot.objects.select_for_update().get(pk=step.lot_id)
+    lot = Lot.objects.select_for_update(no_key=True).get(pk=step.lot_id)
     window = reading.window or {}
     detail = (event.payload or {}).get("message") or "outside its window"
     source = window.get("source") or "no source recorded"
@@ -455,7 +455,7 @@ def check_queue_times(now: datetime | None = None) -> dict[str, int]:
 def _check_queue_step(step_id: int, now: datetime) -> str | None:
     with transaction.atomic():
         step = (
-            LotStep.objects.select_for_update()
+            LotStep.objects.select_for_update(no_key=True)
             .select_related("work_center")
             .filter(pk=step_id, status=LotStep.Status.WAITING, started_at__isnull=True)
             .first()
@@ -464,7 +464,7 @@ def _check_queue_step(step_id: int, now: datetime) -> str | None:
             return None
         state = schedule.queue_state(step.arrived_at, now, step.queue_time_limit_minutes)
         if state.exceeded:
-            lot = Lot.objects.select_for_update().get(pk=step.lot_id)
+            lot = Lot.objects.select_for_update(no_key=True).get(pk=step.lot_id)
             message = (
                 f"Lot {lot.code} waited {state.minutes_waited:.0f} min for '{step.name}' at "
                 f"{step.work_center.name}; the queue-time limit is {state.limit_minutes} min. "
@@ -543,7 +543,7 @@ def release_queue_warning(person: Person, lot_step_id: int, reason: str) -> LotS
     if len(reason) > 300:
         raise InvalidInput("The reason may be at most 300 characters.")
     with transaction.atomic():
-        step = LotStep.objects.select_for_update().filter(pk=lot_step_id).first()
+        step = LotStep.objects.select_for_update(no_key=True).filter(pk=lot_step_id).first()
         if step is None:
             raise NotFound(f"No lot step {lot_step_id}.")
         if step.queue_time_limit_minutes is None:
@@ -642,7 +642,7 @@ def _require_quality(person: Person, what: str) -> None:
 
 
 def _get_series_locked(series_id: int) -> SeriesState:
-    found = SeriesState.objects.select_for_update().filter(pk=series_id).first()
+    found = SeriesState.objects.select_for_update(no_key=True).filter(pk=series_id).first()
     if found is None:
         raise NotFound(f"No SPC series {series_id}.")
     return found
@@ -881,7 +881,7 @@ def _insert_rework(
         if end - after <= need:  # no room between: move the later steps along
             shift = 10 * math.ceil((need + 1) / 10)
             for later in (
-                LotStep.objects.select_for_update()
+                LotStep.objects.select_for_update(no_key=True)
                 .filter(lot=lot, position__gt=after)
                 .order_by("-position")
             ):
@@ -924,7 +924,10 @@ def _insert_rework(
 
 
 def _scrap(ncr: Nonconformance, lot: Lot, panel_ids: set[int] | None) -> dict[str, Any]:
-    live = {p.pk: p for p in Panel.objects.select_for_update().filter(lot=lot, scrapped=False)}
+    live = {
+        p.pk: p
+        for p in Panel.objects.select_for_update(no_key=True).filter(lot=lot, scrapped=False)
+    }
     if panel_ids is not None:
         unknown = sorted(panel_ids - set(live))
         if unknown:
@@ -1007,7 +1010,7 @@ def disposition_ncr(
         raise InvalidInput("Enter your PIN to sign the disposition.")
     verify_pin(person, pin)
     with transaction.atomic():
-        ncr = Nonconformance.objects.select_for_update().filter(pk=ncr_id).first()
+        ncr = Nonconformance.objects.select_for_update(no_key=True).filter(pk=ncr_id).first()
         if ncr is None:
             raise NotFound(f"No nonconformance {ncr_id}.")
         if ncr.status != Nonconformance.Status.OPEN:
@@ -1015,9 +1018,11 @@ def disposition_ncr(
                 f"{ncr.number} was already dispositioned ({ncr.get_disposition_display().lower()})."
             )
         held = (
-            LotStep.objects.select_for_update().get(pk=ncr.lot_step_id) if ncr.lot_step_id else None
+            LotStep.objects.select_for_update(no_key=True).get(pk=ncr.lot_step_id)
+            if ncr.lot_step_id
+            else None
         )
-        lot = Lot.objects.select_for_update().get(pk=ncr.lot_id)
+        lot = Lot.objects.select_for_update(no_key=True).get(pk=ncr.lot_id)
         detail: dict[str, Any] = {}
         if disposition == Nonconformance.Disposition.REWORK:
             detail["rework_steps"] = _insert_rework(ncr, lot, held, rework)
@@ -1044,7 +1049,9 @@ def disposition_ncr(
         )
         ncr.disposition_signature = sig
         ncr.save()
-        holds = list(Hold.objects.select_for_update().filter(ncr=ncr, released_at__isnull=True))
+        holds = list(
+            Hold.objects.select_for_update(no_key=True).filter(ncr=ncr, released_at__isnull=True)
+        )
         Hold.objects.filter(pk__in=[h.pk for h in holds]).update(released_at=now)
         Alert.objects.filter(Q(hold__in=holds) | Q(ncr=ncr), closed_at__isnull=True).update(
             closed_at=now
