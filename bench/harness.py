@@ -183,7 +183,8 @@ def ingest(results: dict[str, Any]) -> None:
     offset = 0
     for clients in CLIENTS:
         bare = wrk(port, clients, "bare", "", 0)
-        ing = wrk(port, clients, "ingest", token, offset)
+        phase = offset
+        ing = wrk(port, clients, "ingest", token, phase)
         offset += 120_000
         results[f"bare_rps_{clients}"] = round(bare["rps"], 1)
         results[f"ingest_rps_{clients}"] = round(ing["rps"], 1)
@@ -192,6 +193,15 @@ def ingest(results: dict[str, Any]) -> None:
             results[f"ingest_{p}_ms_{clients}"] = round(ing[f"{p}_ms"], 2)
             results[f"bare_{p}_ms_{clients}"] = round(bare[f"{p}_ms"], 2)
         results[f"ingest_statuses_{clients}"] = ing["statuses"]
+        # every 201 must be a stored reading: count this phase's keys in the database
+        stored = (
+            "from shopfloor.floor.models import IdempotencyRecord as R;"
+            f"print(sum(1 for k in R.objects.filter(key__startswith='bench-')"
+            f".values_list('key', flat=True) if {phase} <= int(k[6:]) < {phase + 120_000}))"
+        )
+        results[f"ingest_stored_{clients}"] = int(
+            run([PY, "manage.py", "shell", "-c", stored]).strip().splitlines()[-1]
+        )
         results[f"ingest_errors_{clients}"] = ing["errors"]
     # wait for the worker to drain the readings' events, then verify the audit chain
     drain = (
