@@ -96,7 +96,10 @@ def wait_http(port: int, timeout: float = 30) -> None:
 
 
 def wrk(port: int, clients: int, mode: str, token: str, offset: int) -> dict[str, Any]:
-    threads = str(min(clients, 2))
+    # Ingest runs on one wrk thread (plenty for ~100 req/s): every request's reading key
+    # then comes from one counter. With two threads, duplicate keys showed up as
+    # idempotent replays and 409s, i.e. the per-thread ids were not reliable.
+    threads = "1" if mode == "ingest" else str(min(clients, 2))
     out = subprocess.run(
         [
             "wrk",
