@@ -1,0 +1,42 @@
+"""The demo loader builds the invented shop through the real services and is safe to rerun."""
+
+from __future__ import annotations
+
+import pytest
+from django.core.management import call_command
+
+from shopfloor.audit.services import verify_chain
+from shopfloor.floor.models import Reading
+from shopfloor.plant.models import Job, Lot, Person
+from shopfloor.quality.models import Alert, Nonconformance
+
+pytestmark = pytest.mark.django_db
+
+
+def _counts() -> dict[str, int]:
+    return {
+        "jobs": Job.objects.count(),
+        "lots": Lot.objects.count(),
+        "people": Person.objects.count(),
+        "readings": Reading.objects.count(),
+        "alerts": Alert.objects.count(),
+        "ncrs": Nonconformance.objects.count(),
+    }
+
+
+def test_demo_loads_twice_without_duplicates(settings, django_capture_on_commit_callbacks):
+    settings.CELERY_TASK_ALWAYS_EAGER = True  # the demo's embedded mode
+    with django_capture_on_commit_callbacks(execute=True):
+        call_command("load_demo")
+    first = _counts()
+    assert first["jobs"] == 12 and first["lots"] == 12
+    # the lots meant to be held were held by real out-of-window readings
+    assert set(Lot.objects.filter(on_hold=True).values_list("code", flat=True)) == {
+        "LOT-24105-1",
+        "LOT-24111-1",
+    }
+    assert first["ncrs"] == 2
+    with django_capture_on_commit_callbacks(execute=True):
+        call_command("load_demo")
+    assert _counts() == first
+    assert verify_chain().ok
