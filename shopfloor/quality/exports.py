@@ -64,45 +64,25 @@ def lot_csv_rows(lot: Lot) -> Iterator[list[Any]]:
         .order_by("position")
     )
     for s in steps.iterator(chunk_size=CHUNK):
-        base = ["step", None, lot.code, s.position, s.code, s.work_center.code]
-        if s.started_at:
-            yield [
-                base[0],
-                s.started_at.isoformat(),
-                *base[2:],
-                "started",
-                "",
-                "",
-                "",
-                "",
-                "",
-                "",
-                "",
-                "",
-                history._person(s.started_by),
-                s.equipment.code if s.equipment else "",
-                "",
-                "",
-            ]
-        if s.completed_at:
-            yield [
-                base[0],
-                s.completed_at.isoformat(),
-                *base[2:],
-                "completed",
-                "",
-                "",
-                "",
-                "",
-                "",
-                "",
-                "",
-                "",
-                history._person(s.completed_by),
-                s.equipment.code if s.equipment else "",
-                "",
-                "",
-            ]
+        for what, at, who in (
+            ("started", s.started_at, s.started_by),
+            ("completed", s.completed_at, s.completed_by),
+        ):
+            if at:
+                yield [
+                    "step",
+                    at.isoformat(),
+                    lot.code,
+                    s.position,
+                    s.code,
+                    s.work_center.code,
+                    what,
+                    *[""] * 8,
+                    history._person(who),
+                    s.equipment.code if s.equipment else "",
+                    "",
+                    "",
+                ]
     readings = (
         Reading.objects.filter(lot_step__lot=lot)
         .select_related("lot_step__work_center", "operator", "equipment")

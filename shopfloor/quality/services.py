@@ -164,13 +164,21 @@ def _lot_job(lot: Lot) -> Job | None:
     return Job.objects.filter(panels__lot=lot).order_by("pk").first()
 
 
-def _create_alert(**fields: Any) -> Alert | None:
-    """Create an alert unless its dedupe key (or event) already has one."""
+def _create_alert(audit_after: dict[str, Any], **fields: Any) -> Alert | None:
+    """Create an alert unless its dedupe key (or event) already has one, and audit it."""
     try:
         with transaction.atomic():
-            return Alert.objects.create(**fields)
+            alert = Alert.objects.create(**fields)
     except IntegrityError:
         return None
+    audit.record(
+        actor=None,
+        action="alert.raised",
+        object_type="alert",
+        object_id=alert.pk,
+        after={"kind": alert.kind, **audit_after},
+    )
+    return alert
 
 
 def _open_ncr(lot: Lot, step: LotStep | None, alert: Alert, description: str) -> Nonconformance:
@@ -227,9 +235,10 @@ def _out_of_window(event: OutboxEvent, reading: Reading) -> Alert | None:
         f"sample {reading.sample_index}: {detail} (window source: {source}). "
         "The lot is on hold until quality dispositions the NCR."
     )
+    severity = severity_for(reading.value, window)
     alert = _create_alert(
         kind=Alert.Kind.OUT_OF_WINDOW,
-        severity=severity_for(reading.value, window),
+        severity=severity,
         event=event,
         dedupe_key=f"reading:{reading.pk}:out_of_window",
         lot=lot,
@@ -238,22 +247,15 @@ def _out_of_window(event: OutboxEvent, reading: Reading) -> Alert | None:
         reading=reading,
         work_center=step.work_center,
         message=message,
-    )
-    if alert is None:
-        return None
-    audit.record(
-        actor=None,
-        action="alert.raised",
-        object_type="alert",
-        object_id=alert.pk,
-        after={
-            "kind": alert.kind,
-            "severity": alert.severity,
+        audit_after={
+            "severity": severity,
             "lot": lot.code,
             "reading": reading.pk,
             "event": event.pk,
         },
     )
+    if alert is None:
+        return None
     ncr = _open_ncr(
         lot,
         step,
@@ -283,15 +285,8 @@ def _drift_alert(reading: Reading, signal: series_core.DriftSignal) -> Alert | N
             f"{signal.description} (rule {signal.rule}), point {signal.index + 1}. "
             "The readings are still in window; no hold. Review the process."
         ),
+        audit_after={"rule": signal.rule, "series": s.key, "reading": reading.pk},
     )
-    if alert is not None:
-        audit.record(
-            actor=None,
-            action="alert.raised",
-            object_type="alert",
-            object_id=alert.pk,
-            after={"kind": alert.kind, "rule": signal.rule, "series": s.key, "reading": reading.pk},
-        )
     return alert
 
 
@@ -479,20 +474,10 @@ def _check_queue_step(step_id: int, now: datetime) -> str | None:
                 job=_lot_job(lot),
                 work_center=step.work_center,
                 message=message,
+                audit_after={"lot": lot.code, "waited_min": round(state.minutes_waited)},
             )
             if alert is None:
                 return None
-            audit.record(
-                actor=None,
-                action="alert.raised",
-                object_type="alert",
-                object_id=alert.pk,
-                after={
-                    "kind": alert.kind,
-                    "lot": lot.code,
-                    "waited_min": round(state.minutes_waited),
-                },
-            )
             ncr = _open_ncr(lot, step, alert, message)
             _hold(lot, step, alert, ncr, "Queue-time limit exceeded")
             _notify_after_commit(alert.pk)
@@ -511,16 +496,10 @@ def _check_queue_step(step_id: int, now: datetime) -> str | None:
                     f"{max(left, 0):.0f} min (queue-time limit {state.limit_minutes} min); "
                     "after that the lot goes on hold."
                 ),
+                audit_after={"lot_step": step.pk},
             )
             if alert is None:
                 return None
-            audit.record(
-                actor=None,
-                action="alert.raised",
-                object_type="alert",
-                object_id=alert.pk,
-                after={"kind": alert.kind, "lot_step": step.pk},
-            )
             _notify_after_commit(alert.pk)
             return "warnings"
     return None
@@ -618,16 +597,10 @@ def check_due_dates(now: datetime | None = None) -> dict[str, int]:
                 dedupe_key=f"job:{job.pk}:{state.value}",
                 job=job,
                 message=message,
+                audit_after={"job": job.number, "remaining_min": remaining},
             )
             if alert is None:
                 continue
-            audit.record(
-                actor=None,
-                action="alert.raised",
-                object_type="alert",
-                object_id=alert.pk,
-                after={"kind": alert.kind, "job": job.number, "remaining_min": remaining},
-            )
             _notify_after_commit(alert.pk)
         counts["late" if late else "at_risk"] += 1
     return counts

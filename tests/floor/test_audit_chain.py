@@ -33,7 +33,8 @@ def test_intact_chain_is_ok(floor, capsys):
     code, out = verify(capsys)
     assert code == 0 and "intact" in out
     first = AuditEntry.objects.order_by("seq").first()
-    # Recompute the first link independently: sha256(64 zeros + canonical JSON).
+    # Recompute the first link independently: sha256(64 zeros + canonical JSON), SHA-256 as
+    # specified in FIPS 180-4 through Python's hashlib.
     expected = hashlib.sha256(
         ("0" * 64 + audit.canonical_json(audit.entry_content(first))).encode()
     ).hexdigest()

@@ -1,5 +1,6 @@
 """The alert webhook is signed with HMAC-SHA256 of the exact body (RFC 2104; the digest
-is checked here with Python's hmac module, independent of the code under test)."""
+is checked here with Python's hmac module, independent of the code under test; HMAC per
+RFC 2104 with SHA-256 per FIPS 180-4)."""
 
 from __future__ import annotations
 

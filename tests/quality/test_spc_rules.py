@@ -2,6 +2,12 @@
 
 Every sequence here is invented. Limits: centre 0, sigma 1, control limits +-3, so the
 values read directly as "sigmas from the centre".
+
+Rule definitions checked here: Western Electric rules 1-4 as in the Western Electric
+Statistical Quality Control Handbook (1956), and Nelson's eight tests as in L. S. Nelson,
+"The Shewhart control chart - tests for special causes", Journal of Quality Technology
+16(4), 1984; both also summarised in the NIST/SEMATECH e-Handbook, section 6.3.2 (all
+from memory).
 """
 
 from __future__ import annotations

@@ -105,6 +105,9 @@ def _index(codes: list[str], base: str) -> list[int]:
 @SETTINGS
 @given(valid_specs())
 def test_routing_invariants(data):
+    # Order of a rigid-board flow (common practice): drill before hole metallisation
+    # before pattern plating before outer etch; solder mask before surface finish; no
+    # inner-layer steps below 4 layers; one press per lamination cycle.
     spec = parse_spec(data)
     r = build_routing(spec)
     codes = [s.code for s in r.steps]

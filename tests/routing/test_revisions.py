@@ -140,6 +140,7 @@ def test_lot_keeps_its_snapshot_and_moves_only_open_steps(floor):
     new = factories.release_routing_from(floor.job.part_revision, engineer, overrides)
     # the lot still runs on the old snapshot
     mask = lot.steps.get(code="mask_develop")
+    # shop practice default: mask registration within 50 um (common practice)
     assert mask.plan[0]["max"] == 50.0
     with pytest.raises(InvalidInput):
         services.move_lot(person=engineer, lot_id=lot.pk, revision_id=new.pk, reason="")
