@@ -13,7 +13,7 @@ from dataclasses import dataclass
 from datetime import UTC, datetime
 from typing import Any
 
-from django.db import transaction
+from django.db import connection, transaction
 from django.utils import timezone
 
 from shopfloor.audit.models import AuditEntry, AuditHead, Signature
@@ -63,28 +63,83 @@ def record(
     before: dict[str, Any] | None = None,
     after: dict[str, Any] | None = None,
 ) -> AuditEntry:
-    """Append one audit entry inside the caller's transaction."""
-    with transaction.atomic():
-        head, _ = AuditHead.objects.select_for_update(no_key=True).get_or_create(pk=1)
-        name = _actor_name(actor)
+    """Append one audit entry inside the caller's transaction.
+
+    Two statements: an UPDATE that takes the next number (and locks the head row until
+    the caller commits), then the INSERT of the entry, which also moves the head's hash.
+    """
+    with transaction.atomic(savepoint=False):
+        seq, prev_hash = _take_next_seq()
         entry = AuditEntry(
-            seq=head.last_seq + 1,
+            seq=seq,
             at=timezone.now(),
             actor=actor if getattr(actor, "pk", None) else None,
-            actor_name=name,
+            actor_name=_actor_name(actor),
             action=action,
             object_type=object_type,
             object_id=str(object_id),
             before=json.loads(canonical_json(before)) if before is not None else None,
             after=json.loads(canonical_json(after)) if after is not None else None,
-            prev_hash=head.last_hash,
+            prev_hash=prev_hash,
         )
         entry.hash = entry_hash(entry.prev_hash, entry_content(entry))
-        entry.save()
-        head.last_seq = entry.seq
-        head.last_hash = entry.hash
-        head.save(update_fields=["last_seq", "last_hash"])
+        _insert_and_move_head(entry)
         return entry
+
+
+def _take_next_seq() -> tuple[int, str]:
+    """Reserve the next sequence number; returns it with the previous entry's hash."""
+    with connection.cursor() as cursor:
+        for _attempt in range(2):
+            cursor.execute(
+                "UPDATE audit_audithead SET last_seq = last_seq + 1 WHERE id = 1 "
+                "RETURNING last_seq, last_hash"
+            )
+            row = cursor.fetchone()
+            if row is not None:
+                return int(row[0]), str(row[1])
+            # First entry ever: create the head, then take the number as usual.
+            cursor.execute(
+                "INSERT INTO audit_audithead (id, last_seq, last_hash) VALUES (1, 0, %s) "
+                "ON CONFLICT (id) DO NOTHING",
+                [GENESIS],
+            )
+    raise RuntimeError("the audit head row could not be created")
+
+
+def _insert_and_move_head(entry: AuditEntry) -> None:
+    if connection.vendor != "postgresql":  # the embedded demo database: two statements
+        entry.save(force_insert=True)
+        AuditHead.objects.filter(pk=1).update(last_hash=entry.hash)
+        return
+    with connection.cursor() as cursor:
+        cursor.execute(
+            "WITH moved AS (UPDATE audit_audithead SET last_hash = %s WHERE id = 1) "
+            "INSERT INTO audit_auditentry (seq, at, actor_id, actor_name, action, object_type, "
+            "object_id, before, after, prev_hash, hash) "
+            "VALUES (%s, %s, %s, %s, %s, %s, %s, %s::jsonb, %s::jsonb, %s, %s) RETURNING id",
+            [
+                entry.hash,
+                entry.seq,
+                entry.at,
+                entry.actor_id,
+                entry.actor_name,
+                entry.action,
+                entry.object_type,
+                entry.object_id,
+                _json_param(entry.before),
+                _json_param(entry.after),
+                entry.prev_hash,
+                entry.hash,
+            ],
+        )
+        entry.pk = cursor.fetchone()[0]
+    entry._state.adding = False
+    entry._state.db = "default"
+
+
+def _json_param(value: Any) -> str | None:
+    return None if value is None else canonical_json(value)
 
 
 def _actor_name(actor: Any) -> str:

@@ -30,6 +30,7 @@ from shopfloor.floor.permissions import (
     access_lot_step,
     access_reading,
     access_step,
+    check_work_center,
     is_instrument,
 )
 from shopfloor.floor.serializers import (
@@ -222,8 +223,11 @@ class ReadingCreateView(JsonAPIView):
     def post(self, request: Request) -> Response:
         data = parse(ReadingInputSerializer, request.data)
         person = services.person_for(request.user)
-        lot = services.find_lot(data["lot"])
-        step = access_lot_step(request, lot, data.get("step"))
+        if data.get("step") is None:
+            step = services.find_current_step(data["lot"])
+            check_work_center(request, step)
+        else:
+            step = access_lot_step(request, services.find_lot(data["lot"]), data["step"])
         reading_input = services.ReadingInput(
             quantity=data["quantity"],
             value=data["value"],

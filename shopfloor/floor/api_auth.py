@@ -32,7 +32,7 @@ class InstrumentTokenAuthentication(authentication.BaseAuthentication):
         from shopfloor.floor.models import InstrumentToken
 
         token = (
-            InstrumentToken.objects.select_related("user", "work_center")
+            InstrumentToken.objects.select_related("user__person", "work_center")
             .filter(key_hash=hash_token(parts[1]), active=True)
             .first()
         )

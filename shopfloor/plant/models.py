@@ -12,6 +12,7 @@ import datetime
 from django.conf import settings
 from django.contrib.auth.hashers import check_password, make_password
 from django.db import models
+from django.db.models.functions import Upper
 from django.utils import timezone
 
 
@@ -253,6 +254,9 @@ class Lot(models.Model):
 
     class Meta:
         ordering = ["priority", "created_at"]
+        # Scans are matched case-insensitively (code__iexact); without this index every
+        # scan would read the whole lot table, which only grows.
+        indexes = [models.Index(Upper("code"), name="plant_lot_code_upper")]
 
     def __str__(self) -> str:
         return self.code
