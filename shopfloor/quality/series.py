@@ -27,6 +27,7 @@ import logging
 from dataclasses import dataclass
 from typing import Any
 
+from django.db import IntegrityError, transaction
 from django.db.models import Q, QuerySet
 from django.utils import timezone
 
@@ -67,17 +68,23 @@ def _lock_series(reading: Reading) -> SeriesState:
     step = reading.lot_step
     equipment = reading.equipment or step.equipment
     key = series_key(reading.quantity, step.work_center.code, equipment.code if equipment else None)
-    SeriesState.objects.get_or_create(
-        key=key,
-        defaults={
-            "quantity": reading.quantity,
-            "work_center_id": step.work_center_id,
-            "equipment": equipment,
-            "chart": chart_for(reading.window or {}),
-            "baseline_size": DEFAULT_BASELINE,
-        },
-    )
-    return SeriesState.objects.select_for_update(no_key=True).get(key=key)
+    locked = SeriesState.objects.select_for_update(no_key=True)
+    series = locked.filter(key=key).first()  # one query once the series exists
+    if series is None:
+        try:
+            with transaction.atomic():
+                SeriesState.objects.create(
+                    key=key,
+                    quantity=reading.quantity,
+                    work_center_id=step.work_center_id,
+                    equipment=equipment,
+                    chart=chart_for(reading.window or {}),
+                    baseline_size=DEFAULT_BASELINE,
+                )
+        except IntegrityError:
+            pass  # a concurrent event created it first; lock that one
+        series = locked.get(key=key)
+    return series
 
 
 def limits_from_dict(data: dict[str, Any]) -> spc.Limits:
@@ -109,6 +116,9 @@ def _stored_rule_state(series: SeriesState) -> tuple[spc.RuleState, dict[str, in
     return state, dict(raw.get("last_fired") or {})
 
 
+_MOVING_FIELDS = ["points", "updated_at"]  # what every new point changes
+
+
 def add_point(reading: Reading) -> list[DriftSignal]:
     """Add one reading to its series (caller holds the transaction); return new drift.
 
@@ -129,13 +139,13 @@ def add_point(reading: Reading) -> list[DriftSignal]:
                 series.limits = limits_to_dict(limits, source=f"baseline of {len(baseline)}")
             except spc.SpcInputError as exc:  # e.g. counts that are not whole numbers
                 log.warning("series %s: baseline not usable: %s", series.key, exc)
-        series.save()
+        series.save(update_fields=[*_MOVING_FIELDS, "baseline", "limits"])
         return signals
 
     limits = limits_from_dict(series.limits)
     if limits.sigma <= 0:
         # A baseline without spread (all equal) cannot be charted; keep counting points.
-        series.save()
+        series.save(update_fields=_MOVING_FIELDS)
         return signals
     state, last_fired = _stored_rule_state(series)
     new_state, fired = spc.step(state, value, limits, series.rules)
@@ -146,7 +156,7 @@ def add_point(reading: Reading) -> list[DriftSignal]:
             continue  # the same run is still going: one alert per run
         signals.append(DriftSignal(series, signal.rule, signal.description, signal.index))
     series.rule_state = {"rules": new_state.to_dict(), "last_fired": last_fired}
-    series.save()
+    series.save(update_fields=[*_MOVING_FIELDS, "rule_state"])
     return signals
 
 
