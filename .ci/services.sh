@@ -33,13 +33,21 @@ ensure_redis() {
 }
 
 ensure_browser() {
-  if command -v chromium >/dev/null 2>&1; then return 0; fi
+  # Debian packages the tests call: chromium (browser tests), pdftotext (PDF contents),
+  # zbarimg (reads the traveller's QR code back).
+  local missing=""
+  command -v chromium >/dev/null 2>&1 || missing="$missing chromium"
+  command -v pdftotext >/dev/null 2>&1 || missing="$missing poppler-utils"
+  command -v zbarimg >/dev/null 2>&1 || missing="$missing zbar-tools"
+  if [ -z "$missing" ]; then return 0; fi
   if [ "$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then
-    echo "services: installing Debian's chromium for the browser tests"
-    apt-get update -qq >/dev/null && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium >/dev/null
+    echo "services: installing Debian packages for the tests:$missing"
+    apt-get update -qq >/dev/null && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq $missing >/dev/null
   fi
-  command -v chromium >/dev/null 2>&1 || {
-    echo "ERROR: the browser tests need Debian's chromium (apt-get install -y chromium)." >&2
-    return 1
-  }
+  for tool in chromium pdftotext zbarimg; do
+    command -v "$tool" >/dev/null 2>&1 || {
+      echo "ERROR: the tests need $tool (apt-get install -y chromium poppler-utils zbar-tools)." >&2
+      return 1
+    }
+  done
 }
