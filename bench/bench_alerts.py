@@ -1,18 +1,24 @@
 """Benchmark: how fast an out-of-window reading becomes an alert row, under load.
 
-One real Celery worker (solo pool), 20 client threads recording readings through the
-floor service like tablets do: mostly in-window readings (each updates its SPC series
-through the same event path) and, as the last reading on each lot, one out of window
-(it holds the lot, so each lot gets one). Each client pauses THINK_SECONDS (3 s) between
-readings, a busy tablet (an operator takes a reading every few seconds); a second pass
-at 0.5 s (keys ending _stress) shows what happens when 20 clients offer more than one
-solo worker sharing 2 cores with PostgreSQL and the clients can absorb: the queue grows
-and both the alert and the no-op round trip wait in it. For every out-of-window
-reading the latency is
-reading.recorded_at -> alert.created_at (both stamped by this machine's clock).
-Beside it, in the same run and under the same load, each client
-also sends a no-op Celery task whose round trip (send -> the task setting a Redis key)
-is the reference: the alert path's cost is reported as a ratio to it.
+One real Celery worker, 20 client threads recording readings through the floor service
+like tablets do: mostly in-window readings (each updates its SPC series through the same
+event path) and, as the last reading on each lot, one out of window (it holds the lot,
+so each lot gets one). Each client pauses THINK_SECONDS (3 s) between readings, a busy
+tablet (an operator takes a reading every few seconds), and starts at its own moment
+within the first pause (operators do not press save in step with each other).
+
+Passes, each on a fresh worker:
+- the worker as deployed (docker-compose.yml: one worker, prefork pool, 2 processes):
+  the headline `alert_p95_s`;
+- the same worker with one process (keys ending _solo);
+- the deployed worker at a 0.5 s pause (keys ending _stress): 20 clients then offer
+  more than the worker, sharing 2 cores with PostgreSQL and the clients, can absorb;
+  the queue grows and both the alert and the no-op round trip wait in it.
+
+For every out-of-window reading the latency is reading.recorded_at -> alert.created_at
+(both stamped by this machine's clock). Beside it, in the same run and under the same
+load, each client also sends a no-op Celery task whose round trip (send -> the task
+setting a Redis key) is the reference: the alert path's cost is reported as a ratio.
 
 Needs DATABASE_URL (PostgreSQL) and REDIS_URL; uses a throwaway test_<name> database
 that it creates and drops.
@@ -24,6 +30,7 @@ from __future__ import annotations
 
 import json
 import os
+import random
 import statistics
 import sys
 import threading
@@ -50,7 +57,7 @@ def _p95(values: list[float]) -> float:
     return statistics.quantiles(values, n=20, method="inclusive")[18]
 
 
-def _measure(think: float) -> dict[str, float]:
+def _measure(think: float, pool: str, concurrency: int) -> dict[str, float]:
     import django
 
     django.setup()
@@ -78,7 +85,7 @@ def _measure(think: float) -> dict[str, float]:
         purge(settings.REDIS_URL)
         tmp = tempfile.TemporaryDirectory(prefix="sf-bench-")
         factory = WorkerFactory(settings.REDIS_URL, Path(tmp.name))
-        factory.start()
+        factory.start(pool=pool, concurrency=concurrency)
         floor = factories.make_floor()
         run_id = uuid.uuid4().hex[:6]
         steps = [
@@ -93,8 +100,9 @@ def _measure(think: float) -> dict[str, float]:
         lock = threading.Lock()
         errors: list[str] = []
 
-        def client(my_steps: list) -> None:
+        def client(my_steps: list, phase: float) -> None:
             try:
+                time.sleep(phase)
                 for step in my_steps:
                     for sample in range(1, IN_WINDOW_PER_LOT + 1):
                         kit.record(
@@ -113,7 +121,13 @@ def _measure(think: float) -> dict[str, float]:
             finally:
                 connections.close_all()
 
-        threads = [threading.Thread(target=client, args=(s,)) for s in steps]
+        # Operators work independently: each client starts at its own moment within
+        # the first pause, so readings arrive spread out instead of in lock-step bursts.
+        phases = random.Random(7).sample(range(1000), CLIENTS)
+        threads = [
+            threading.Thread(target=client, args=(s, think * p / 1000))
+            for s, p in zip(steps, phases, strict=True)
+        ]
         for t in threads:
             t.start()
         for t in threads:
@@ -161,8 +175,13 @@ def _measure(think: float) -> dict[str, float]:
 
 
 def run() -> dict[str, float]:
-    results = _measure(THINK_SECONDS)
-    stress = _measure(STRESS_THINK_SECONDS)
+    # The worker as deployed (docker-compose.yml): one worker, two pool processes.
+    results = _measure(THINK_SECONDS, "prefork", 2)
+    results["worker_processes"] = 2.0
+    # The same worker with a single process, for comparison.
+    solo = _measure(THINK_SECONDS, "solo", 1)
+    results.update({f"{key}_solo": value for key, value in solo.items()})
+    stress = _measure(STRESS_THINK_SECONDS, "prefork", 2)
     results.update({f"{key}_stress": value for key, value in stress.items()})
     return results
 

@@ -238,6 +238,10 @@ def sub_bench(module: str) -> dict[str, Any]:
     return json.loads(match.group(1))
 
 
+def _fmt(value: Any) -> str:
+    return f"{value:.3f}" if isinstance(value, float) else str(value)
+
+
 def write_report(results: dict[str, Any]) -> None:
     (ROOT / "bench" / "results.json").write_text(
         json.dumps(results, indent=2, sort_keys=True) + "\n"
@@ -300,6 +304,24 @@ def write_report(results: dict[str, Any]) -> None:
             f"| {c} | {results.get(f'bare_rps_{c}')} | {results.get(f'ingest_rps_{c}')} | "
             f"{results.get(f'ingest_ratio_{c}')} | {results.get(f'ingest_p50_ms_{c}')} / "
             f"{results.get(f'ingest_p95_ms_{c}')} / {results.get(f'ingest_p99_ms_{c}')} |"
+        )
+    lines += [
+        "",
+        "## Alert latency (reading commit -> alert row; 20 clients, one Celery worker)",
+        "",
+        "| pass | alert p50 / p95 s | no-op task p50 / p95 s |",
+        "|---|---|---|",
+    ]
+    for label, suffix in (
+        ("worker as deployed (2 processes), 3 s pause", ""),
+        ("worker with 1 process, 3 s pause", "_solo"),
+        ("worker as deployed, 0.5 s pause (overload)", "_stress"),
+    ):
+        lines.append(
+            f"| {label} | {_fmt(results.get(f'alert_p50_s{suffix}'))} / "
+            f"{_fmt(results.get(f'alert_p95_s{suffix}'))} | "
+            f"{_fmt(results.get(f'noop_task_p50_s{suffix}'))} / "
+            f"{_fmt(results.get(f'noop_task_p95_s{suffix}'))} |"
         )
     lines += ["", "## All figures", "", "| key | value |", "|---|---|"]
     for key in sorted(results):

@@ -89,7 +89,14 @@ class WorkerFactory:
     tmp: Path
     started: list[WorkerProcess] = field(default_factory=list)
 
-    def start(self, *, redis_url: str | None = None, **env: str) -> WorkerProcess:
+    def start(
+        self,
+        *,
+        redis_url: str | None = None,
+        pool: str = "solo",
+        concurrency: int = 1,
+        **env: str,
+    ) -> WorkerProcess:
         db = settings.DATABASES["default"]
         name = connection.settings_dict["NAME"]  # the pytest test database
         host, port = db.get("HOST") or "127.0.0.1", db.get("PORT") or "5432"
@@ -110,8 +117,8 @@ class WorkerFactory:
                     "-A",
                     "shopfloor",
                     "worker",
-                    "--pool=solo",
-                    "--concurrency=1",
+                    f"--pool={pool}",
+                    f"--concurrency={concurrency}",
                     "-Q",
                     "celery",
                     "--without-heartbeat",
