@@ -3,15 +3,24 @@
 
 Run: DEBUG=1 DATABASE_URL=postgres://postgres@127.0.0.1:5432/sf_board \
      var/venv/bin/python bench/bench_board.py
-Prints one JSON object; run() returns the same dict. Bounded: one request per size.
-Times are wall-clock for a full request through the Django test client (query + render);
-compare sizes within one run rather than across machines (noise is 20-60 %).
+Prints one JSON object; run() returns the same dict. Bounded: after one warm-up request,
+board_ms_<n> is the median of BOARD_REPEATS requests (one request swings by 20-60 % on a
+shared machine); the lot history is one request per size. Times are wall-clock for a full
+request through the Django test client (queries + render); compare sizes within one run
+rather than across machines.
+
+DEBUG=1 is fair here: Django (4.1 on) uses the cached template loader whatever DEBUG is,
+so templates are compiled once either way; what DEBUG adds is the template engine's
+error annotations (no cost while rendering succeeds) and a log of SQL queries, which the
+bench keeps anyway to count them. (DEBUG=0 would also need a SECRET_KEY and turns on the
+HTTPS redirect.)
 """
 
 from __future__ import annotations
 
 import json
 import os
+import statistics
 import sys
 import time
 from pathlib import Path
@@ -21,6 +30,9 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 os.environ.setdefault("DJANGO_SETTINGS_MODULE", "shopfloor.settings")
 os.environ.setdefault("DEBUG", "1")
+
+
+BOARD_REPEATS = 5
 
 
 def _timed_get(client: Any, url: str) -> tuple[float, int]:
@@ -66,9 +78,9 @@ def run() -> dict[str, Any]:
             have = size
             assert Lot.objects.filter(status__in=["not_started", "in_process"]).count() == size
             client.get("/board/")  # warm the template and connection
-            ms, queries = _timed_get(client, "/board/")
-            results[f"board_ms_{size}"] = ms
-            results[f"board_queries_{size}"] = queries
+            runs = [_timed_get(client, "/board/") for _ in range(BOARD_REPEATS)]
+            results[f"board_ms_{size}"] = statistics.median(ms for ms, _ in runs)
+            results[f"board_queries_{size}"] = max(queries for _, queries in runs)
         operator = floor.personas["operator"]
         for n in (200, 2000, 20000):
             lot = bulk_lots(floor.routing, floor.job, 1, centers[:1], prefix=f"H{n}")[0]

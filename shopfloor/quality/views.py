@@ -103,10 +103,13 @@ def _int(value: Any) -> int | None:
 @require_POST
 @reader
 def queue_move(request: HttpRequest, scope: Scope, work_center_id: int) -> HttpResponse:
-    step_id = _int(request.POST.get("lot_step"))
+    """Move one lot in a queue: move=top|up|down with lot_step=<id>, or move=<move>:<id>
+    (the board has one form per work center; each row's buttons carry their lot)."""
+    move, _, step_raw = request.POST.get("move", "").partition(":")
+    step_id = _int(step_raw or request.POST.get("lot_step"))
     if step_id is None:
         return _refusal(request, InvalidInput("Pick a lot to move (lot_step is missing)."))
-    board.move_in_queue(scope.person, work_center_id, step_id, request.POST.get("move", ""))
+    board.move_in_queue(scope.person, work_center_id, step_id, move)
     return redirect(reverse("quality:board") + _back_query(request))
 
 

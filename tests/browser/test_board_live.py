@@ -66,3 +66,25 @@ def test_board_refreshes_in_place_when_lot_moves(board_browser, live_server, flo
     wall.goto(f"{live_server.url}/board/")
     wall.wait_for_selector(f'tr[data-lot="{lot.code}"]')
     wall.screenshot(path=str(ARTIFACTS / "board-wall-1920x1080.png"))
+
+
+def test_top_button_moves_a_lot_through_the_center_form(board_browser, live_server, floor):
+    """Each row's Top/Up/Down buttons submit their work center's one reorder form (the
+    buttons name it with form=...), CSRF token included; the lot then heads the queue."""
+    from shopfloor.audit.models import AuditEntry
+    from shopfloor.plant.models import WorkCenter
+    from tests.board.kit import bulk_lots
+
+    wc = WorkCenter.objects.get(code="drilling")
+    lots = bulk_lots(floor.routing, floor.job, 3, [wc], prefix="BT")
+    page = signed_in_page(board_browser, live_server, floor.personas["supervisor"].user, 1024, 768)
+    page.goto(f"{live_server.url}/board/?work_center=drilling")
+    rows = page.locator("#wc-drilling tr.lot")
+    assert rows.nth(0).get_attribute("data-lot") == lots[0].code
+    rows.nth(2).get_by_role("button", name="Top").click()
+    page.wait_for_url("**/board/?work_center=drilling")
+    page.wait_for_selector(f'#wc-drilling tr.lot[data-lot="{lots[2].code}"]')
+    assert page.locator("#wc-drilling tr.lot").nth(0).get_attribute("data-lot") == lots[2].code
+    assert AuditEntry.objects.filter(action="queue.reordered", object_id=str(wc.pk)).count() == 1
+    ARTIFACTS.mkdir(exist_ok=True)
+    page.screenshot(path=str(ARTIFACTS / "board-reordered-1024x768.png"))
