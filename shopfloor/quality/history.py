@@ -14,6 +14,7 @@ checks that the JSON history carries those fields.
 from __future__ import annotations
 
 import datetime as dt
+import statistics
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -23,6 +24,7 @@ from shopfloor.audit.models import AuditEntry, Signature
 from shopfloor.errors import InvalidInput, NotFound
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Equipment, Job, Lot, MaterialLot, Panel, PanelImage
+from shopfloor.quality import series as series_core
 from shopfloor.quality.access import Scope, require_lot_visible, visible_lots
 from shopfloor.quality.models import Alert, Hold, Nonconformance
 from shopfloor.windows import describe_window
@@ -770,6 +772,21 @@ class SeriesDetail:
     capability: Any
     message: str
     rules: str
+    chart: str = "individuals"
+    subgroup_size: int = 1
+    readings: list[float] = field(default_factory=list)  # every reading (histogram, Cpk)
+
+    @property
+    def chart_label(self) -> str:
+        return CHART_LABELS.get(self.chart, self.chart)
+
+
+CHART_LABELS = {
+    "individuals": "individuals",
+    "xbar_r": "X-bar/R",
+    "xbar_s": "X-bar/S",
+    "c": "c chart",
+}
 
 
 def _series_key(quantity: str, wc: str, eq: str | None) -> str:
@@ -855,13 +872,23 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
         if row.equipment
         else (qs.filter(equipment__isnull=True) if not stored else qs)
     )
+    chart = stored.chart if stored else "individuals"
+    size = stored.subgroup_size if stored and chart in series_core.XBAR_CHARTS else 1
     recent = list(
-        qs.order_by("-captured_at", "-pk").values_list("value", "unit", "window")[:SPC_POINTS]
+        qs.order_by("-captured_at", "-pk").values_list(
+            "value", "unit", "window", "lot_step_id", "sample_index"
+        )[: SPC_POINTS * size]
     )
     recent.reverse()
-    values = [v for v, _, _ in recent]
+    readings = [v for v, *_ in recent]
     unit = recent[-1][1] if recent else ""
     window = dict(recent[-1][2]) if recent else {}
+    groups: list[list[float]] = []
+    if size > 1:
+        groups = series_core.subgroups_of([(st, i, v) for v, _, _, st, i in recent], size)
+        values = [statistics.fmean(g) for g in groups]
+    else:
+        values = readings
     if not stored:
         row.points = len(values)
     rules = stored.rules if stored else "western_electric"
@@ -874,15 +901,23 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
                 stored.limits["lcl"],
                 sigma=stored.limits.get("sigma"),
             )
-        elif len(values) >= spc.MIN_BASELINE_POINTS:
+        elif size > 1 and len(groups) >= spc.MIN_BASELINE_POINTS:
+            limits = spc.compute_limits(chart, groups)  # type: ignore[arg-type]
+        elif size == 1 and len(values) >= spc.MIN_BASELINE_POINTS:
             limits = spc.compute_limits("individuals", values)
         if limits is not None:
             signals = spc.evaluate_rules(values, limits, rules)
         lsl, usl = window.get("min"), window.get("max")
-        if len(values) >= 2 and (lsl is not None or usl is not None):
-            cap = spc.capability(values, lsl=lsl, usl=usl)
+        if len(readings) >= 2 and (lsl is not None or usl is not None):
+            cap = spc.capability(readings, lsl=lsl, usl=usl)
     except (spc.SpcInputError, KeyError, TypeError) as exc:
         message = f"Cannot compute this chart: {exc}"
     if limits is None and not message:
-        message = "Too few readings to compute control limits yet."
-    return SeriesDetail(row, values, unit, window, limits, signals, cap, message, rules)
+        message = (
+            "Too few complete subgroups to compute control limits yet."
+            if size > 1
+            else "Too few readings to compute control limits yet."
+        )
+    return SeriesDetail(
+        row, values, unit, window, limits, signals, cap, message, rules, chart, size, readings
+    )

@@ -156,6 +156,9 @@ class SeriesState(models.Model):
         "plant.Equipment", null=True, blank=True, on_delete=models.PROTECT
     )
     chart = models.CharField(max_length=12, default="individuals")
+    # Readings per subgroup for X-bar charts (the samples one lot takes at the step);
+    # 1 for individuals and c charts.
+    subgroup_size = models.PositiveSmallIntegerField(default=1)
     baseline_size = models.PositiveIntegerField(default=25)
     baseline = models.JSONField(default=list, blank=True)
     limits = models.JSONField(null=True, blank=True)

@@ -11,12 +11,18 @@ Life of a series:
 1. **Baseline.** The first ``baseline_size`` readings (25 by default; in window or not,
    because limits describe what the process does, not what the drawing asks) are only
    collected. When the baseline is full the limits are computed with
-   ``spc.compute_limits``: an individuals/moving-range chart for measured values, a c chart
-   for attribute counts (defects found per check). Subgrouped X-bar/R charts are not
-   formed here; every reading is charted as an individual (documented limitation).
-2. **Monitoring.** Every further reading is stepped through the rules; a rule that
-   fires yields a :class:`DriftSignal`. Consecutive firings of one rule (the same run)
-   are reported once, at the point where the run first fires.
+   ``spc.compute_limits``: an individuals/moving-range chart for a quantity measured once
+   per lot, X-bar/R (2 to 10 samples per lot) or X-bar/S (11 to 25) for a quantity the
+   step samples several times per lot, and a c chart for attribute counts (defects found
+   per check). A subgroup is the samples of one lot at that step (a rational subgroup:
+   made together, under the same conditions); it is charted when its last sample
+   arrives, and a correction replaces its sample's value while the subgroup is open.
+   An X-bar series' baseline counts subgroups, not readings.
+2. **Monitoring.** Every further point (a reading, or a subgroup's mean) is stepped
+   through the rules; a rule that fires yields a :class:`DriftSignal`. An X-bar series
+   also checks each subgroup's range (or standard deviation) against the R (S) chart's
+   upper limit. Consecutive firings of one rule (the same run) are reported once, at the
+   point where the run first fires.
 3. **Engineer's control.** A quality engineer may fix limits by hand or recompute them
    from a chosen time window (see ``services.fix_limits`` / ``services.recompute_limits``).
 """
@@ -24,6 +30,8 @@ Life of a series:
 from __future__ import annotations
 
 import logging
+import statistics
+from collections.abc import Iterable
 from dataclasses import dataclass
 from typing import Any
 
@@ -59,9 +67,29 @@ def series_key(quantity: str, work_center_code: str, equipment_code: str | None)
     return f"{quantity}|{work_center_code}|{equipment_code or '-'}"[:160]
 
 
-def chart_for(window: dict[str, Any]) -> str:
-    """Attribute checks count defects, so they go on a c chart; the rest are individuals."""
-    return "c" if window.get("attribute") else "individuals"
+XBAR_CHARTS = ("xbar_r", "xbar_s")
+MAX_SUBGROUP = 25  # the constants tables (and spc.chart_constants) stop at n = 25
+# Common practice (e.g. Montgomery, Introduction to Statistical Quality Control): the
+# range is an efficient spread estimate for small subgroups; above about ten samples the
+# standard deviation is used instead.
+LARGEST_R_SUBGROUP = 10
+# Lots measured at the same time at one work center each keep an open subgroup; beyond
+# this many, the oldest unfinished one is dropped (a lot that left mid-sampling).
+MAX_OPEN_SUBGROUPS = 50
+
+
+def chart_for(window: dict[str, Any]) -> tuple[str, int]:
+    """The chart and subgroup size for readings judged against this window.
+
+    Attribute checks count defects: c chart. A measured quantity the step samples n times
+    per lot (2 <= n <= 25): X-bar/R up to 10, X-bar/S above. Otherwise individuals.
+    """
+    if window.get("attribute"):
+        return "c", 1
+    n = window.get("samples")
+    if isinstance(n, int) and not isinstance(n, bool) and 2 <= n <= MAX_SUBGROUP:
+        return ("xbar_r" if n <= LARGEST_R_SUBGROUP else "xbar_s"), n
+    return "individuals", 1
 
 
 def _lock_series(reading: Reading) -> SeriesState:
@@ -71,6 +99,7 @@ def _lock_series(reading: Reading) -> SeriesState:
     locked = SeriesState.objects.select_for_update(no_key=True)
     series = locked.filter(key=key).first()  # one query once the series exists
     if series is None:
+        chart, subgroup_size = chart_for(reading.window or {})
         try:
             with transaction.atomic():
                 SeriesState.objects.create(
@@ -78,7 +107,8 @@ def _lock_series(reading: Reading) -> SeriesState:
                     quantity=reading.quantity,
                     work_center_id=step.work_center_id,
                     equipment=equipment,
-                    chart=chart_for(reading.window or {}),
+                    chart=chart,
+                    subgroup_size=subgroup_size,
                     baseline_size=DEFAULT_BASELINE,
                 )
         except IntegrityError:
@@ -88,12 +118,18 @@ def _lock_series(reading: Reading) -> SeriesState:
 
 
 def limits_from_dict(data: dict[str, Any]) -> spc.Limits:
+    spread = data.get("range")
     return spc.Limits(
         centre=float(data["centre"]),
         ucl=float(data["ucl"]),
         lcl=float(data["lcl"]),
         sigma=float(data["sigma"]),
         within_sigma=data.get("within_sigma"),
+        range=(
+            spc.Limits(float(spread["centre"]), float(spread["ucl"]), float(spread["lcl"]), 0.0)
+            if spread
+            else None
+        ),
     )
 
 
@@ -104,9 +140,22 @@ def limits_to_dict(limits: spc.Limits, *, source: str) -> dict[str, Any]:
         "lcl": limits.lcl,
         "sigma": limits.sigma,
         "within_sigma": limits.within_sigma,
+        "range": limits.range.to_dict() if limits.range is not None else None,
         "source": source,
         "set_at": timezone.now().isoformat(),
     }
+
+
+def subgroups_of(samples: Iterable[tuple[int, int, float]], size: int) -> list[list[float]]:
+    """Complete subgroups from (lot_step_id, sample_index, value), oldest first.
+
+    One subgroup per lot step with at least `size` distinct samples (the first `size` by
+    sample number); a later value of the same sample (a correction) replaces the earlier.
+    """
+    groups: dict[int, dict[int, float]] = {}
+    for lot_step_id, sample_index, value in samples:
+        groups.setdefault(lot_step_id, {})[sample_index] = float(value)
+    return [[g[k] for k in sorted(g)][:size] for g in groups.values() if len(g) >= size]
 
 
 def _stored_rule_state(series: SeriesState) -> tuple[spc.RuleState, dict[str, int]]:
@@ -126,6 +175,8 @@ def add_point(reading: Reading) -> list[DriftSignal]:
     loses a point.
     """
     series = _lock_series(reading)
+    if series.chart in XBAR_CHARTS:
+        return _add_to_subgroup(series, reading)
     value = float(reading.value)
     series.points += 1
     series.updated_at = timezone.now()
@@ -157,6 +208,84 @@ def add_point(reading: Reading) -> list[DriftSignal]:
         signals.append(DriftSignal(series, signal.rule, signal.description, signal.index))
     series.rule_state = {"rules": new_state.to_dict(), "last_fired": last_fired}
     series.save(update_fields=[*_MOVING_FIELDS, "rule_state"])
+    return signals
+
+
+def _add_to_subgroup(series: SeriesState, reading: Reading) -> list[DriftSignal]:
+    """X-bar series: collect the lot's samples; chart the subgroup once it is complete."""
+    series.points += 1
+    series.updated_at = timezone.now()
+    raw = dict(series.rule_state or {})
+    # [[lot_step_id, {sample_index: value}], ...] oldest first (a list: jsonb objects do
+    # not keep key order)
+    open_groups: list[list[Any]] = [list(g) for g in raw.get("open") or []]
+    entry = next((g for g in open_groups if g[0] == reading.lot_step_id), None)
+    if entry is None:
+        entry = [reading.lot_step_id, {}]
+        open_groups.append(entry)
+    entry[1][str(reading.sample_index)] = float(reading.value)
+    n = max(int(series.subgroup_size), 2)
+    signals: list[DriftSignal] = []
+    if len(entry[1]) >= n:
+        open_groups.remove(entry)
+        values = [entry[1][k] for k in sorted(entry[1], key=int)][:n]
+        signals = _chart_subgroup(series, raw, values)
+    if len(open_groups) > MAX_OPEN_SUBGROUPS:
+        dropped = open_groups.pop(0)
+        log.warning("series %s: dropped the unfinished subgroup of step %s", series.key, dropped[0])
+    raw["open"] = open_groups
+    series.rule_state = raw
+    series.save(update_fields=[*_MOVING_FIELDS, "baseline", "limits", "rule_state"])
+    return signals
+
+
+def _chart_subgroup(
+    series: SeriesState, raw: dict[str, Any], values: list[float]
+) -> list[DriftSignal]:
+    if series.limits is None:
+        baseline = [*list(series.baseline or []), values]
+        series.baseline = baseline
+        if len(baseline) >= series.baseline_size:
+            try:
+                limits = spc.compute_limits(series.chart, baseline)  # type: ignore[arg-type]
+                series.limits = limits_to_dict(
+                    limits, source=f"baseline of {len(baseline)} subgroups of {len(values)}"
+                )
+            except spc.SpcInputError as exc:
+                log.warning("series %s: baseline not usable: %s", series.key, exc)
+        return []
+    limits = limits_from_dict(series.limits)
+    if limits.sigma <= 0:
+        return []
+    state = spc.RuleState.from_dict(raw["rules"]) if raw.get("rules") else spc.RuleState()
+    last_fired = dict(raw.get("last_fired") or {})
+    new_state, fired = spc.step(state, statistics.fmean(values), limits, series.rules)
+    if limits.range is not None:
+        spread, name = (
+            (max(values) - min(values), "R")
+            if series.chart == "xbar_r"
+            else (statistics.stdev(values), "S")
+        )
+        if spread > limits.range.ucl:
+            fired.append(
+                spc.Signal(
+                    state.index,
+                    f"{name}_chart_ucl",
+                    f"Subgroup {'range' if name == 'R' else 'standard deviation'} "
+                    f"{spread:.4g} above the {name} chart's upper limit "
+                    f"{limits.range.ucl:.4g}",
+                )
+            )
+    signals: list[DriftSignal] = []
+    for signal in fired:
+        previous = last_fired.get(signal.rule)
+        last_fired[signal.rule] = signal.index
+        if previous is not None and previous == signal.index - 1:
+            continue  # the same run is still going: one alert per run
+        description = f"{signal.description} (subgroup mean of {len(values)} samples)"
+        signals.append(DriftSignal(series, signal.rule, description, signal.index))
+    raw["rules"] = new_state.to_dict()
+    raw["last_fired"] = last_fired
     return signals
 
 

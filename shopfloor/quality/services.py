@@ -659,27 +659,33 @@ def recompute_limits(person: Person, series_id: int, start: datetime, end: datet
         raise InvalidInput("The baseline window must start before it ends.")
     with transaction.atomic():
         s = _get_series_locked(series_id)
-        values = [
-            r.value
-            for r in series_core.series_queryset(s)
+        rows = list(
+            series_core.series_queryset(s)
             .filter(recorded_at__gte=start, recorded_at__lte=end)
-            .order_by("recorded_at", "pk")[: series_core.MAX_BASELINE]
-        ]
-        if len(values) < spc.MIN_BASELINE_POINTS:
+            .order_by("recorded_at", "pk")
+            .values_list("lot_step_id", "sample_index", "value")[: series_core.MAX_BASELINE]
+        )
+        data: list[Any]
+        if s.chart in series_core.XBAR_CHARTS:
+            data = series_core.subgroups_of(rows, s.subgroup_size)
+            what = f"complete subgroup(s) of {s.subgroup_size}"
+        else:
+            data = [value for _, _, value in rows]
+            what = "reading(s)"
+        if len(data) < spc.MIN_BASELINE_POINTS:
             raise InvalidInput(
                 f"The window {start:%Y-%m-%d %H:%M} to {end:%Y-%m-%d %H:%M} holds "
-                f"{len(values)} reading(s) of {s.key}; at least "
+                f"{len(data)} {what} of {s.key}; at least "
                 f"{spc.MIN_BASELINE_POINTS} are needed (25 or more is common practice)."
             )
         try:
-            limits = spc.compute_limits(s.chart, values)  # type: ignore[arg-type]
+            limits = spc.compute_limits(s.chart, data)  # type: ignore[arg-type]
         except spc.SpcInputError as exc:
             raise InvalidInput(f"Limits cannot be computed from that window: {exc}.") from exc
         before = s.limits
         s.limits = series_core.limits_to_dict(
             limits,
-            source=f"recomputed from {len(values)} readings "
-            f"{start.isoformat()} to {end.isoformat()}",
+            source=f"recomputed from {len(data)} {what} {start.isoformat()} to {end.isoformat()}",
         )
         s.limits_fixed = True
         s.updated_at = timezone.now()
@@ -721,7 +727,7 @@ def series_capability(series_id: int) -> dict[str, Any]:
         "capability": None,
         "reason": "",
     }
-    if s.chart != "individuals":
+    if s.chart == "c":
         result["reason"] = "capability applies to measured values, not attribute counts"
     elif len(values) < 2:
         result["reason"] = f"{len(values)} reading(s); at least 2 are needed"

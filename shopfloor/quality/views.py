@@ -219,14 +219,15 @@ def _spc_context(scope: Scope, key: str) -> dict[str, Any]:
                 d.limits.ucl,
                 d.limits.lcl,
                 [(s.index, s.rule) for s in d.signals],
-                title=f"{d.row.quantity} at {d.row.work_center} (individuals)",
+                title=f"{d.row.quantity} at {d.row.work_center} ({d.chart_label}"
+                + (f", subgroup means of {d.subgroup_size})" if d.subgroup_size > 1 else ")"),
                 unit=d.unit,
             )
         )
-    if d.values:
+    if d.readings:
         hist_svg = charts.to_svg(
             charts.capability_histogram(
-                d.values,
+                d.readings,
                 d.window.get("min"),
                 d.window.get("max"),
                 target=d.window.get("target"),

@@ -80,7 +80,13 @@ def test_in_window_reading_no_alert_but_series_point(floor):
     assert Lot.objects.get(pk=floor.lot.pk).on_hold is False
     series = SeriesState.objects.get()
     assert series.key == f"surface_copper|{step.work_center.code}|-"
-    assert series.points == 1 and series.baseline == [41.5]
+    # The step samples surface copper several times per lot, so the series is an X-bar
+    # chart and this first sample waits in the lot's open subgroup.
+    samples = next(w for w in step.plan if w["quantity"] == "surface_copper")["samples"]
+    assert series.chart == ("xbar_r" if samples <= 10 else "xbar_s")
+    assert series.subgroup_size == samples
+    assert series.points == 1 and series.baseline == []
+    assert series.rule_state["open"] == [[step.pk, {"1": 41.5}]]
 
 
 def test_two_bad_samples_share_one_ncr(floor):

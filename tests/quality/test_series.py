@@ -11,6 +11,7 @@ Cp = (USL-LSL)/6 sigma, Cpk = min(USL-mean, mean-LSL)/3 sigma, sigma = MR-bar/1.
 from __future__ import annotations
 
 import datetime as dt
+from urllib.parse import quote
 
 import pytest
 from django.db import connection
@@ -19,6 +20,7 @@ from django.utils import timezone
 
 from shopfloor.errors import InvalidInput, NotAllowed
 from shopfloor.floor.models import Reading
+from shopfloor.plant.models import Lot
 from shopfloor.quality import services
 from shopfloor.quality.models import Alert, OutboxEvent, SeriesState
 from tests.worker import floorkit as kit
@@ -36,11 +38,12 @@ WINDOW = {
 }
 
 
-def _feed(floor, step, value, *, window=WINDOW, when=None):
+def _feed(floor, step, value, *, window=WINDOW, when=None, sample=1):
     """A reading straight into the database plus its event, then the handler."""
     lo, hi = window["min"], window["max"]
     reading = Reading.objects.create(
         lot_step=step,
+        sample_index=sample,
         quantity=window["quantity"],
         entered_value=str(value),
         entered_unit="um",
@@ -178,3 +181,132 @@ def test_series_keyed_per_equipment(floor, step):
     keys = set(SeriesState.objects.values_list("key", flat=True))
     wc = step.work_center.code
     assert keys == {f"hole_wall_copper|{wc}|-", f"hole_wall_copper|{wc}|EQ-12"}
+
+
+# --- X-bar charts: the samples one lot takes at a step form a subgroup ----------------
+#
+# Constants for n = 5 from the usual control-chart tables (ASTM E2587, Table 1;
+# Montgomery, Introduction to Statistical Quality Control, Appendix VI; from memory):
+# A2 = 0.577, D3 = 0, D4 = 2.114. The live series must give X-bar limits
+# grand mean +- A2 * R-bar and an R chart UCL of D4 * R-bar.
+
+WINDOW5 = {**WINDOW, "samples": 5}
+GROUPS = [
+    [50.1, 49.6, 50.4, 49.9, 50.0],
+    [49.8, 50.3, 50.2, 49.7, 50.0],
+    [50.5, 49.9, 49.8, 50.1, 50.2],
+    [49.7, 50.0, 50.3, 50.1, 49.6],
+    [50.2, 50.4, 49.9, 49.8, 50.1],
+]
+
+
+def _lot_steps(floor, count, prefix="XB"):
+    return [kit.start_at(floor, kit.new_lot(floor, code=f"{prefix}-{k}")) for k in range(count)]
+
+
+def _feed_group(floor, step, values):
+    for sample, value in enumerate(values, start=1):
+        _feed(floor, step, value, window=WINDOW5, sample=sample)
+
+
+def _xbar_baselined(floor):
+    steps = _lot_steps(floor, len(GROUPS))
+    # two lots measured at the same time: their samples interleave at the work center
+    _feed(floor, steps[0], GROUPS[0][0], window=WINDOW5, sample=1)
+    SeriesState.objects.update(baseline_size=len(GROUPS))
+    _feed(floor, steps[1], GROUPS[1][0], window=WINDOW5, sample=1)
+    for i in range(1, 5):
+        _feed(floor, steps[0], GROUPS[0][i], window=WINDOW5, sample=i + 1)
+        _feed(floor, steps[1], GROUPS[1][i], window=WINDOW5, sample=i + 1)
+    for step, values in zip(steps[2:], GROUPS[2:], strict=True):
+        _feed_group(floor, step, values)
+    return _series()
+
+
+def test_chart_for_picks_the_chart_from_the_sampling_plan():
+    from shopfloor.quality.series import chart_for
+
+    # common practice: R for small subgroups, S above about ten samples
+    assert chart_for(WINDOW) == ("individuals", 1)
+    assert chart_for({**WINDOW, "samples": 1}) == ("individuals", 1)
+    assert chart_for(WINDOW5) == ("xbar_r", 5)
+    assert chart_for({**WINDOW, "samples": 10}) == ("xbar_r", 10)
+    assert chart_for({**WINDOW, "samples": 12}) == ("xbar_s", 12)
+    assert chart_for({**WINDOW, "samples": 40}) == ("individuals", 1)  # beyond the tables
+    assert chart_for({**WINDOW, "attribute": True, "samples": 5}) == ("c", 1)
+
+
+def test_xbar_r_baseline_limits_use_tabled_constants(floor):
+    series = _xbar_baselined(floor)
+    assert series.chart == "xbar_r" and series.subgroup_size == 5
+    assert series.baseline == GROUPS  # interleaved samples sorted into their own lots
+    grand = sum(sum(g) for g in GROUPS) / 25
+    r_bar = sum(max(g) - min(g) for g in GROUPS) / 5
+    limits = series.limits
+    assert limits["centre"] == pytest.approx(grand, abs=1e-9)
+    assert limits["ucl"] == pytest.approx(grand + 0.577 * r_bar, abs=1e-3)
+    assert limits["lcl"] == pytest.approx(grand - 0.577 * r_bar, abs=1e-3)
+    assert limits["range"]["centre"] == pytest.approx(r_bar)
+    assert limits["range"]["ucl"] == pytest.approx(2.114 * r_bar, abs=1e-3)
+    assert limits["range"]["lcl"] == 0.0
+    assert series.rule_state["open"] == []
+    assert Alert.objects.count() == 0
+
+
+def test_xbar_subgroup_is_judged_when_its_last_sample_arrives(floor):
+    series = _xbar_baselined(floor)
+    ucl = series.limits["ucl"]
+    (step,) = _lot_steps(floor, 1, prefix="NEW")
+    high = round(ucl + 0.4, 2)  # every sample in the 45-58 window, the mean above UCL
+    for sample in range(1, 5):
+        _feed(floor, step, high, window=WINDOW5, sample=sample)
+        assert Alert.objects.count() == 0, f"judged after only {sample} of 5 samples"
+    _feed(floor, step, high, window=WINDOW5, sample=5)
+    alert = Alert.objects.get()
+    assert alert.kind == "drift" and alert.rule == "western_electric_1"
+    assert "subgroup mean of 5 samples" in alert.message
+    assert alert.lot_step_id == step.pk
+    assert not Lot.objects.get(pk=step.lot_id).on_hold  # drift warns, never holds
+
+
+def test_xbar_wide_subgroup_breaks_the_r_chart_limit(floor):
+    series = _xbar_baselined(floor)
+    centre, r_ucl = series.limits["centre"], series.limits["range"]["ucl"]
+    (step,) = _lot_steps(floor, 1, prefix="NEW")
+    half = r_ucl / 2 + 0.2  # range just over the R chart's UCL, mean on the centre line
+    _feed_group(floor, step, [centre - half, centre + half, centre, centre, centre])
+    alert = Alert.objects.get()
+    assert alert.rule == "R_chart_ucl" and "range" in alert.message
+
+
+def test_xbar_correction_replaces_its_sample_in_the_open_subgroup(floor):
+    series = _xbar_baselined(floor)
+    (step,) = _lot_steps(floor, 1, prefix="NEW")
+    _feed(floor, step, 57.0, window=WINDOW5, sample=1)  # mistyped, then corrected
+    _feed(floor, step, 50.0, window=WINDOW5, sample=1)
+    for sample in range(2, 6):
+        _feed(floor, step, 50.0, window=WINDOW5, sample=sample)
+    assert Alert.objects.count() == 0
+    assert _series().rule_state["rules"]["index"] == 1  # one subgroup charted
+    assert series.points + 6 == _series().points
+
+
+def test_xbar_recompute_uses_complete_subgroups(floor):
+    qe = floor.personas["quality_engineer"]
+    start = timezone.now() - dt.timedelta(minutes=5)
+    series = _xbar_baselined(floor)
+    services.fix_limits(qe, series.pk, 50.0, 60.0, 40.0)
+    services.recompute_limits(qe, series.pk, start, timezone.now())
+    recomputed = _series().limits
+    r_bar = sum(max(g) - min(g) for g in GROUPS) / 5
+    assert recomputed["range"]["centre"] == pytest.approx(r_bar)
+    assert "5 complete subgroup(s) of 5" in recomputed["source"]
+
+
+def test_xbar_series_page_plots_subgroup_means(floor, client):
+    series = _xbar_baselined(floor)
+    client.force_login(floor.personas["quality_engineer"].user)
+    page = client.get(f"/quality/spc/{quote(series.key, safe='')}/")
+    assert page.status_code == 200, page.content[:300]
+    text = page.content.decode()
+    assert "X-bar/R chart" in text and "5 subgroup(s) of 5 samples" in text
