@@ -305,6 +305,18 @@ def write_report(results: dict[str, Any]) -> None:
             f"{results.get(f'ingest_ratio_{c}')} | {results.get(f'ingest_p50_ms_{c}')} / "
             f"{results.get(f'ingest_p95_ms_{c}')} / {results.get(f'ingest_p99_ms_{c}')} |"
         )
+    cores = os.cpu_count() or 1
+    bare32, ing32 = results.get("bare_rps_32"), results.get("ingest_rps_32")
+    if bare32 and ing32:
+        lines += [
+            "",
+            f"Machine time per request at 32 clients ({cores} cores busy): bare "
+            f"{1000 * cores / bare32:.1f} ms, reading {1000 * cores / ing32:.1f} ms. A reading",
+            "pays for its request (token, lot and step look-ups, row locks, idempotency, the",
+            "hash-chained audit append, the outbox event and its publish) and for its event on",
+            "the worker (SPC series update), all on the same cores; 60 % of the bare endpoint",
+            f"would leave {1000 * cores / (0.6 * bare32):.1f} ms for all of that.",
+        ]
     lines += [
         "",
         "## Alert latency (reading commit -> alert row; 20 clients, one Celery worker)",
