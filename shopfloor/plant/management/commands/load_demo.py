@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import datetime as dt
 import json
+import zlib
 from pathlib import Path
 from typing import Any
 
@@ -41,10 +42,16 @@ from shopfloor.plant.models import (
 DEFAULT_FILE = Path(settings.BASE_DIR) / "fixtures" / "demo_shop.json"
 
 
-def in_window_value(window: dict[str, Any], sample: int) -> float:
-    """A plausible conforming value: centred in two-sided windows, a margin above a minimum."""
+def in_window_value(window: dict[str, Any], sample: int, lot_code: str = "") -> float:
+    """A plausible conforming value: centred in two-sided windows, a margin above a minimum.
+
+    Samples of one lot spread a little (up to 3 % of the window) and each lot sits a
+    little off the centre (up to 2 %), so the demo's SPC charts look like a process, not
+    a flat line; deterministic, so loading twice gives the same values.
+    """
     lo, hi, target = window.get("min"), window.get("max"), window.get("target")
-    wobble = ((sample * 37) % 7 - 3) / 100.0  # small spread so SPC charts are not flat
+    lot_shift = (zlib.crc32(lot_code.encode()) % 5 - 2) / 100.0
+    wobble = ((sample * 37) % 7 - 3) / 100.0 + lot_shift
     if window.get("attribute"):
         return 0
     if target is not None:
@@ -251,7 +258,7 @@ class Command(BaseCommand):
                         lot_step_id=step.pk,
                         data=floor.ReadingInput(
                             quantity=window["quantity"],
-                            value=in_window_value(window, sample),
+                            value=in_window_value(window, sample, lot.code),
                             unit=window["unit"],
                             sample_index=sample,
                             position=f"coupon {sample}",
