@@ -909,7 +909,9 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
             signals = spc.evaluate_rules(values, limits, rules)
         lsl, usl = window.get("min"), window.get("max")
         if len(readings) >= 2 and (lsl is not None or usl is not None):
-            cap = spc.capability(readings, lsl=lsl, usl=usl)
+            # subgrouped data: short-term sigma from within the subgroups (R-bar/d2, S-bar/c4)
+            within = spc.within_sigma(chart, groups) if len(groups) >= 2 else None  # type: ignore[arg-type]
+            cap = spc.capability(readings, lsl=lsl, usl=usl, within=within)
     except (spc.SpcInputError, KeyError, TypeError) as exc:
         message = f"Cannot compute this chart: {exc}"
     if limits is None and not message:

@@ -734,8 +734,15 @@ def series_capability(series_id: int) -> dict[str, Any]:
     elif lsl is None and usl is None:
         result["reason"] = "the window has no specification limits"
     else:
+        within = None
+        if s.chart in series_core.XBAR_CHARTS:
+            groups = series_core.subgroups_of(
+                ((r.lot_step_id, r.sample_index, r.value) for r in readings), s.subgroup_size
+            )
+            if len(groups) >= 2:  # short-term sigma from within the lots' subgroups
+                within = spc.within_sigma(s.chart, groups)  # type: ignore[arg-type]
         try:
-            cap = spc.capability(values, lsl=lsl, usl=usl)
+            cap = spc.capability(values, lsl=lsl, usl=usl, within=within)
         except spc.SpcInputError as exc:
             result["reason"] = str(exc)
         else:

@@ -310,3 +310,13 @@ def test_xbar_series_page_plots_subgroup_means(floor, client):
     assert page.status_code == 200, page.content[:300]
     text = page.content.decode()
     assert "X-bar/R chart" in text and "5 subgroup(s) of 5 samples" in text
+
+
+def test_xbar_capability_uses_within_subgroup_sigma(floor):
+    # Cp = (USL - LSL) / (6 sigma_within), sigma_within = R-bar / d2 with d2(5) = 2.326
+    # (ASTM E2587 Table 1 / Montgomery Appendix VI, from memory).
+    series = _xbar_baselined(floor)
+    r_bar = sum(max(g) - min(g) for g in GROUPS) / 5
+    cap = services.series_capability(series.pk)["capability"]
+    assert cap["within_sigma"] == pytest.approx(r_bar / 2.326, rel=1e-3)
+    assert cap["cp"] == pytest.approx((58 - 45) / (6 * r_bar / 2.326), rel=1e-3)
