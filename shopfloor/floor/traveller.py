@@ -62,7 +62,11 @@ def traveller_data(lot: Lot) -> TravellerData:
         .distinct()
         .order_by("number")
     )
-    steps = list(LotStep.objects.filter(lot=lot).select_related("work_center").order_by("position"))
+    steps = list(
+        LotStep.objects.filter(lot=lot)
+        .select_related("work_center", "added_by_ncr")
+        .order_by("position")
+    )
     return TravellerData(lot=lot, jobs=jobs, steps=steps)
 
 

@@ -60,3 +60,7 @@ def test_quality_engineer_dispositions_rework_and_hold_banner_goes(persona_page,
     shoot(tablet, "ncr-tablet-released")
     rework = LotStep.objects.get(lot=floor.lot, is_rework=True)
     assert rework.name == "Strip copper and replate" and rework.position > step.position
+    # the route marks the added step, with the NCR it came from
+    route_rework = tablet.locator(".route-step:has(.rework-tag)")
+    assert route_rework.count() == 1
+    assert f"REWORK for {ncr.number}" in route_rework.inner_text()

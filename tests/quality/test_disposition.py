@@ -72,6 +72,27 @@ def test_rework_inserts_step_after_held_step(floor):
     assert floor_services.current_step(floor.lot).pk == rework.pk
 
 
+def test_operator_sees_the_rework_step_marked_with_its_ncr(floor, client):
+    step, ncr = _held(floor)
+    services.disposition_ncr(
+        floor.personas["quality_engineer"], ncr.pk, "rework", "Strip copper and replate", PIN
+    )
+    for n in range(2, 6):
+        kit.record(floor, step, "surface_copper", 41.0, sample=n)
+    for n in range(1, 6):
+        kit.record(floor, step, "hole_wall_copper", 25.0, sample=n)
+    floor_services.complete_step(person=floor.personas["operator"], lot_step_id=step.pk, pin=PIN)
+    client.force_login(floor.personas["operator"].user)
+    page = client.get(f"/floor/lots/{floor.lot.code}/").content.decode()
+    ncr.refresh_from_db()
+    now_card = page.split('id="current-step"')[1].split("</section>")[0]
+    assert "Strip and replate" in now_card and "REWORK" in now_card
+    assert ncr.number in now_card and "Strip copper and replate" in now_card
+    route = page.split('class="route"')[1]
+    assert f"REWORK for {ncr.number}" in route
+    assert route.count("REWORK") == 1  # only the added step is marked
+
+
 def test_rework_with_more_steps_than_gap_moves_later_steps(floor):
     step, ncr = _held(floor)
     later_before = list(
