@@ -32,7 +32,7 @@ from __future__ import annotations
 import logging
 import statistics
 from collections.abc import Iterable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 from django.db import IntegrityError, transaction
@@ -182,14 +182,7 @@ def add_point(reading: Reading) -> list[DriftSignal]:
     series.updated_at = timezone.now()
     signals: list[DriftSignal] = []
     if series.limits is None:
-        baseline = [*list(series.baseline or []), value]
-        series.baseline = baseline
-        if len(baseline) >= series.baseline_size:
-            try:
-                limits = spc.compute_limits(series.chart, baseline)  # type: ignore[arg-type]
-                series.limits = limits_to_dict(limits, source=f"baseline of {len(baseline)}")
-            except spc.SpcInputError as exc:  # e.g. counts that are not whole numbers
-                log.warning("series %s: baseline not usable: %s", series.key, exc)
+        _grow_baseline(series, value, "")
         series.save(update_fields=[*_MOVING_FIELDS, "baseline", "limits"])
         return signals
 
@@ -200,12 +193,7 @@ def add_point(reading: Reading) -> list[DriftSignal]:
         return signals
     state, last_fired = _stored_rule_state(series)
     new_state, fired = spc.step(state, value, limits, series.rules)
-    for signal in fired:
-        previous = last_fired.get(signal.rule)
-        last_fired[signal.rule] = signal.index
-        if previous is not None and previous == signal.index - 1:
-            continue  # the same run is still going: one alert per run
-        signals.append(DriftSignal(series, signal.rule, signal.description, signal.index))
+    signals = _new_signals(series, fired, last_fired)
     series.rule_state = {"rules": new_state.to_dict(), "last_fired": last_fired}
     series.save(update_fields=[*_MOVING_FIELDS, "rule_state"])
     return signals
@@ -243,16 +231,7 @@ def _chart_subgroup(
     series: SeriesState, raw: dict[str, Any], values: list[float]
 ) -> list[DriftSignal]:
     if series.limits is None:
-        baseline = [*list(series.baseline or []), values]
-        series.baseline = baseline
-        if len(baseline) >= series.baseline_size:
-            try:
-                limits = spc.compute_limits(series.chart, baseline)  # type: ignore[arg-type]
-                series.limits = limits_to_dict(
-                    limits, source=f"baseline of {len(baseline)} subgroups of {len(values)}"
-                )
-            except spc.SpcInputError as exc:
-                log.warning("series %s: baseline not usable: %s", series.key, exc)
+        _grow_baseline(series, values, f" subgroups of {len(values)}")
         return []
     limits = limits_from_dict(series.limits)
     if limits.sigma <= 0:
@@ -260,6 +239,10 @@ def _chart_subgroup(
     state = spc.RuleState.from_dict(raw["rules"]) if raw.get("rules") else spc.RuleState()
     last_fired = dict(raw.get("last_fired") or {})
     new_state, fired = spc.step(state, statistics.fmean(values), limits, series.rules)
+    fired = [
+        replace(f, description=f"{f.description} (subgroup mean of {len(values)} samples)")
+        for f in fired
+    ]
     if limits.range is not None:
         spread, name = (
             (max(values) - min(values), "R")
@@ -276,16 +259,37 @@ def _chart_subgroup(
                     f"{limits.range.ucl:.4g}",
                 )
             )
+    signals = _new_signals(series, fired, last_fired)
+    raw["rules"] = new_state.to_dict()
+    raw["last_fired"] = last_fired
+    return signals
+
+
+def _grow_baseline(series: SeriesState, point: Any, unit_words: str) -> None:
+    """Collect one baseline point (a value or a subgroup); set the limits once full."""
+    baseline = [*list(series.baseline or []), point]
+    series.baseline = baseline
+    if len(baseline) >= series.baseline_size:
+        try:
+            limits = spc.compute_limits(series.chart, baseline)  # type: ignore[arg-type]
+            series.limits = limits_to_dict(
+                limits, source=f"baseline of {len(baseline)}{unit_words}"
+            )
+        except spc.SpcInputError as exc:  # e.g. counts that are not whole numbers
+            log.warning("series %s: baseline not usable: %s", series.key, exc)
+
+
+def _new_signals(
+    series: SeriesState, fired: list[spc.Signal], last_fired: dict[str, int]
+) -> list[DriftSignal]:
+    """The rules that start a new run (updates `last_fired`): one alert per run."""
     signals: list[DriftSignal] = []
     for signal in fired:
         previous = last_fired.get(signal.rule)
         last_fired[signal.rule] = signal.index
         if previous is not None and previous == signal.index - 1:
-            continue  # the same run is still going: one alert per run
-        description = f"{signal.description} (subgroup mean of {len(values)} samples)"
-        signals.append(DriftSignal(series, signal.rule, description, signal.index))
-    raw["rules"] = new_state.to_dict()
-    raw["last_fired"] = last_fired
+            continue  # the same run is still going
+        signals.append(DriftSignal(series, signal.rule, signal.description, signal.index))
     return signals
 
 

@@ -277,6 +277,7 @@ def test_xbar_wide_subgroup_breaks_the_r_chart_limit(floor):
     _feed_group(floor, step, [centre - half, centre + half, centre, centre, centre])
     alert = Alert.objects.get()
     assert alert.rule == "R_chart_ucl" and "range" in alert.message
+    assert "subgroup mean" not in alert.message  # the R chart judges the spread, not the mean
 
 
 def test_xbar_correction_replaces_its_sample_in_the_open_subgroup(floor):
