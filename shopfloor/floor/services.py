@@ -178,7 +178,7 @@ def find_current_step(code: str) -> LotStep:
         LotStep.objects.filter(lot__code__iexact=code)
         .exclude(status__in=[LotStep.Status.DONE, LotStep.Status.SKIPPED])
         .order_by("position")
-        .select_related("lot__routing_revision", "work_center")
+        .select_related("lot", "work_center")
         .first()
         if code
         else None
