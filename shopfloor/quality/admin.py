@@ -37,6 +37,14 @@ class HoldAdmin(ReadOnlyAdmin):
 
 @admin.register(SeriesState)
 class SeriesStateAdmin(admin.ModelAdmin):
-    list_display = ["key", "quantity", "work_center", "equipment", "points", "limits_fixed"]
+    list_display = [
+        "key",
+        "chart",
+        "subgroup_size",
+        "work_center",
+        "equipment",
+        "points",
+        "limits_fixed",
+    ]
     list_filter = ["work_center", "limits_fixed"]
     search_fields = ["key", "quantity"]
