@@ -648,6 +648,38 @@ def fix_limits(
         return s
 
 
+RULESET_NAMES = {"western_electric": "Western Electric", "nelson": "Nelson"}
+
+
+def set_series_rules(person: Person, series_id: int, rules: str) -> SeriesState:
+    """Choose which run rules judge a series from its next point on (audited).
+
+    The rule state keeps the same history for every rule set, so a change takes effect at
+    once; alerts already raised stay as they are.
+    """
+    _require_quality(person, "choose the run rules")
+    if rules not in spc.RULESETS:
+        allowed = ", ".join(f"{key} ({name})" for key, name in RULESET_NAMES.items())
+        raise InvalidInput(f"Unknown rule set {rules!r}; allowed: {allowed}.")
+    with transaction.atomic():
+        s = _get_series_locked(series_id)
+        before = s.rules
+        if before == rules:
+            return s
+        s.rules = rules
+        s.updated_at = timezone.now()
+        s.save(update_fields=["rules", "updated_at"])
+        audit.record(
+            actor=person.user,
+            action="spc.rules_changed",
+            object_type="spc_series",
+            object_id=s.pk,
+            before={"rules": before},
+            after={"rules": rules},
+        )
+        return s
+
+
 def recompute_limits(person: Person, series_id: int, start: datetime, end: datetime) -> SeriesState:
     """Recompute a series' limits from the readings recorded in [start, end]."""
     _require_quality(person, "recompute control limits")

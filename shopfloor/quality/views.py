@@ -240,6 +240,8 @@ def _spc_context(scope: Scope, key: str) -> dict[str, Any]:
         "chart_svg": chart_svg,
         "hist_svg": hist_svg,
         "may_set_limits": "quality_engineer" in scope.roles,
+        "rule_sets": list(services.RULESET_NAMES.items()),
+        "rules_name": services.RULESET_NAMES.get(d.rules, d.rules),
         "entered": {},
     }
 
@@ -279,7 +281,8 @@ def _site_day(raw: str, label: str, *, end: bool) -> dt.datetime:
 @require_POST
 @reader
 def spc_limits(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
-    """Fix the limits by hand or recompute them from a baseline window (quality engineer)."""
+    """Fix the limits by hand, recompute them from a baseline window, or choose the run
+    rules (quality engineer)."""
     action = request.POST.get("action", "")
     try:
         series = access.access_series(scope, key)
@@ -302,8 +305,11 @@ def spc_limits(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
             messages.success(
                 request, "Control limits recomputed from the baseline; the change is audited."
             )
+        elif action == "rules":
+            services.set_series_rules(scope.person, series.pk, request.POST.get("rules", ""))
+            messages.success(request, "Run rules changed; the change is in the audit trail.")
         else:
-            raise InvalidInput(f"Unknown action {action!r}; use fix or recompute.")
+            raise InvalidInput(f"Unknown action {action!r}; use fix, recompute or rules.")
     except DomainError as exc:
         if exc.status == 404 or (exc.status == 403 and "quality_engineer" not in scope.roles):
             return _refusal(request, exc)  # no such series, or the wrong role: say why

@@ -454,7 +454,32 @@ def test_limits_of_unknown_series_or_action(floor, series):
     reply = client.post("/quality/spc/nope|x|-/limits/", {"action": "fix"})
     assert reply.status_code == 404 and "not stored yet" in reply.content.decode()
     reply = client.post(_limits_url(series), {"action": "delete"})
-    assert reply.status_code == 400 and "use fix or recompute" in reply.content.decode()
+    assert reply.status_code == 400 and "use fix, recompute or rules" in reply.content.decode()
+
+
+def test_quality_engineer_chooses_the_run_rules(floor, series):
+    from shopfloor.audit.models import AuditEntry
+
+    client = _client(floor.personas["quality_engineer"])
+    page = client.get(f"/quality/spc/{series.key}/").content.decode()
+    assert 'id="rules-form"' in page and "run rules: Western Electric" in page
+    reply = client.post(_limits_url(series), {"action": "rules", "rules": "nelson"})
+    assert reply.status_code == 302
+    series.refresh_from_db()
+    assert series.rules == "nelson"
+    entry = AuditEntry.objects.get(action="spc.rules_changed")
+    assert entry.before == {"rules": "western_electric"} and entry.after == {"rules": "nelson"}
+    assert "run rules: Nelson" in client.get(f"/quality/spc/{series.key}/").content.decode()
+
+    reply = client.post(_limits_url(series), {"action": "rules", "rules": "shewhart_9"})
+    assert reply.status_code == 400
+    assert "allowed: western_electric (Western Electric), nelson (Nelson)" in reply.content.decode()
+    series.refresh_from_db()
+    assert series.rules == "nelson"  # nothing saved
+
+    sup = _client(floor.personas["supervisor"])
+    reply = sup.post(_limits_url(series), {"action": "rules", "rules": "western_electric"})
+    assert reply.status_code == 403
 
 
 # --- locked badges ----------------------------------------------------------------------

@@ -108,6 +108,17 @@ def test_run_of_eight_reported_once(floor, step):
     assert drift.count() == 1  # the 8th point starts the run; 9th-11th continue it
 
 
+def test_nelson_rules_once_chosen(floor, step):
+    # Nelson (1984), rule 2: nine points in a row on one side of the centre line (from
+    # memory); Western Electric's run rule (8 in a row) is then no longer reported.
+    _baselined(floor, step)
+    services.set_series_rules(floor.personas["quality_engineer"], _series().pk, "nelson")
+    for n in range(9):
+        _feed(floor, step, 51.5)  # just above the centre line 50.81, inside 1 sigma
+        fired = set(Alert.objects.values_list("rule", flat=True))
+        assert fired == (set() if n < 8 else {"nelson_2"}), f"after {n + 1} points: {fired}"
+
+
 def test_cost_per_point_does_not_grow(floor, step):
     _baselined(floor, step)
     counts = []
