@@ -55,6 +55,18 @@ class _Echo:
         return value
 
 
+def _csv_row(record: str, at: Any, lot: Lot, **columns: Any) -> list[Any]:
+    """One CSV row: the named CSV_HEADER columns filled, every other one empty."""
+    unknown = set(columns) - _CSV_COLUMNS
+    if unknown:
+        raise KeyError(f"not CSV columns: {sorted(unknown)}")
+    values = {"record": record, "at": at.isoformat(), "lot": lot.code, **columns}
+    return [values.get(name, "") for name in CSV_HEADER]
+
+
+_CSV_COLUMNS = frozenset(CSV_HEADER)
+
+
 def lot_csv_rows(lot: Lot) -> Iterator[list[Any]]:
     """Every step event and every reading (superseded ones included) as CSV rows."""
     yield CSV_HEADER
@@ -69,20 +81,17 @@ def lot_csv_rows(lot: Lot) -> Iterator[list[Any]]:
             ("completed", s.completed_at, s.completed_by),
         ):
             if at:
-                yield [
+                yield _csv_row(
                     "step",
-                    at.isoformat(),
-                    lot.code,
-                    s.position,
-                    s.code,
-                    s.work_center.code,
-                    what,
-                    *[""] * 8,
-                    history._person(who),
-                    s.equipment.code if s.equipment else "",
-                    "",
-                    "",
-                ]
+                    at,
+                    lot,
+                    step_position=s.position,
+                    step=s.code,
+                    work_center=s.work_center.code,
+                    what=what,
+                    who=history._person(who),
+                    equipment=s.equipment.code if s.equipment else "",
+                )
     readings = (
         Reading.objects.filter(lot_step__lot=lot)
         .select_related("lot_step__work_center", "operator", "equipment")
@@ -90,95 +99,36 @@ def lot_csv_rows(lot: Lot) -> Iterator[list[Any]]:
     )
     for r in readings.iterator(chunk_size=CHUNK):
         w = r.window or {}
-        yield [
+        yield _csv_row(
             "reading",
-            r.captured_at.isoformat(),
-            lot.code,
-            r.lot_step.position,
-            r.lot_step.code,
-            r.lot_step.work_center.code,
-            "reading",
-            r.quantity,
-            r.value,
-            r.unit,
-            r.sample_index,
-            w.get("min"),
-            w.get("max"),
-            w.get("source", ""),
-            "yes" if r.in_window else "no",
-            history._person(r.operator),
-            r.equipment.code if r.equipment else "",
-            r.superseded_by_id or "",
-            r.correction_reason,
-        ]
+            r.captured_at,
+            lot,
+            step_position=r.lot_step.position,
+            step=r.lot_step.code,
+            work_center=r.lot_step.work_center.code,
+            what="reading",
+            quantity=r.quantity,
+            value=r.value,
+            unit=r.unit,
+            sample=r.sample_index,
+            window_min=w.get("min"),
+            window_max=w.get("max"),
+            window_source=w.get("source", ""),
+            in_window="yes" if r.in_window else "no",
+            who=history._person(r.operator),
+            equipment=r.equipment.code if r.equipment else "",
+            superseded_by=r.superseded_by_id or "",
+            note=r.correction_reason,
+        )
     for h in Hold.objects.filter(lot=lot).order_by("opened_at").iterator(chunk_size=CHUNK):
-        yield [
-            "hold",
-            h.opened_at.isoformat(),
-            lot.code,
-            "",
-            "",
-            "",
-            "hold opened",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            h.reason,
-        ]
+        yield _csv_row("hold", h.opened_at, lot, what="hold opened", note=h.reason)
     for a in Alert.objects.filter(lot=lot).order_by("created_at").iterator(chunk_size=CHUNK):
-        yield [
-            "alert",
-            a.created_at.isoformat(),
-            lot.code,
-            "",
-            "",
-            "",
-            a.kind,
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            a.message,
-        ]
+        yield _csv_row("alert", a.created_at, lot, what=a.kind, note=a.message)
     for n in (
         Nonconformance.objects.filter(lot=lot).order_by("opened_at").iterator(chunk_size=CHUNK)
     ):
-        yield [
-            "ncr",
-            n.opened_at.isoformat(),
-            lot.code,
-            "",
-            "",
-            "",
-            n.number,
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            "",
-            f"{n.description} | disposition: {n.disposition or 'open'} {n.disposition_note}",
-        ]
+        note = f"{n.description} | disposition: {n.disposition or 'open'} {n.disposition_note}"
+        yield _csv_row("ncr", n.opened_at, lot, what=n.number, note=note)
 
 
 def stream_lot_csv(lot: Lot) -> Iterator[str]:

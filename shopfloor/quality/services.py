@@ -632,20 +632,28 @@ def fix_limits(
         raise InvalidInput(f"Control limits not accepted: {exc}.") from exc
     with transaction.atomic():
         s = _get_series_locked(series_id)
-        before = s.limits
-        s.limits = series_core.limits_to_dict(limits, source=f"fixed by {person.printed_name}")
-        s.limits_fixed = True
-        s.updated_at = timezone.now()
-        s.save(update_fields=["limits", "limits_fixed", "updated_at"])
-        audit.record(
-            actor=person.user,
-            action="spc.limits_fixed",
-            object_type="spc_series",
-            object_id=s.pk,
-            before=before,
-            after=s.limits,
-        )
-        return s
+        source = f"fixed by {person.printed_name}"
+        return _store_limits(person, s, limits, source, "spc.limits_fixed")
+
+
+def _store_limits(
+    person: Person, s: SeriesState, limits: spc.Limits, source: str, action: str
+) -> SeriesState:
+    """Keep limits an engineer set (the baseline no longer moves them), with an audit entry."""
+    before = s.limits
+    s.limits = series_core.limits_to_dict(limits, source=source)
+    s.limits_fixed = True
+    s.updated_at = timezone.now()
+    s.save(update_fields=["limits", "limits_fixed", "updated_at"])
+    audit.record(
+        actor=person.user,
+        action=action,
+        object_type="spc_series",
+        object_id=s.pk,
+        before=before,
+        after=s.limits,
+    )
+    return s
 
 
 RULESET_NAMES = {"western_electric": "Western Electric", "nelson": "Nelson"}
@@ -714,23 +722,8 @@ def recompute_limits(person: Person, series_id: int, start: datetime, end: datet
             limits = spc.compute_limits(s.chart, data)  # type: ignore[arg-type]
         except spc.SpcInputError as exc:
             raise InvalidInput(f"Limits cannot be computed from that window: {exc}.") from exc
-        before = s.limits
-        s.limits = series_core.limits_to_dict(
-            limits,
-            source=f"recomputed from {len(data)} {what} {start.isoformat()} to {end.isoformat()}",
-        )
-        s.limits_fixed = True
-        s.updated_at = timezone.now()
-        s.save(update_fields=["limits", "limits_fixed", "updated_at"])
-        audit.record(
-            actor=person.user,
-            action="spc.limits_recomputed",
-            object_type="spc_series",
-            object_id=s.pk,
-            before=before,
-            after=s.limits,
-        )
-        return s
+        source = f"recomputed from {len(data)} {what} {start.isoformat()} to {end.isoformat()}"
+        return _store_limits(person, s, limits, source, "spc.limits_recomputed")
 
 
 def series_capability(series_id: int) -> dict[str, Any]:
