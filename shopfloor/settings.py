@@ -11,6 +11,7 @@ import logging
 from pathlib import Path
 
 from django.core.exceptions import ImproperlyConfigured
+from django.utils.csp import CSP
 
 from shopfloor.env import database_from_url, env_bool, env_int, env_list, env_str
 
@@ -43,6 +44,7 @@ INSTALLED_APPS = [
     "django.contrib.staticfiles",
     "rest_framework",
     "drf_spectacular",
+    "drf_spectacular_sidecar",  # Swagger UI served from our own static files (CSP: 'self')
     "django_htmx",
     "shopfloor.audit",
     "shopfloor.plant",
@@ -55,6 +57,7 @@ MIDDLEWARE = [
     # First, so a database outage met by any later middleware (sessions, auth) is a 503.
     "shopfloor.middleware.DatabaseUnavailableMiddleware",
     "django.middleware.security.SecurityMiddleware",
+    "django.middleware.csp.ContentSecurityPolicyMiddleware",
     "whitenoise.middleware.WhiteNoiseMiddleware",
     "django.contrib.sessions.middleware.SessionMiddleware",
     "django.middleware.common.CommonMiddleware",
@@ -77,6 +80,7 @@ TEMPLATES = [
         "OPTIONS": {
             "context_processors": [
                 "django.template.context_processors.request",
+                "django.template.context_processors.csp",
                 "django.contrib.auth.context_processors.auth",
                 "django.contrib.messages.context_processors.messages",
                 "shopfloor.context.site",
@@ -135,6 +139,24 @@ if not DEBUG:
     SECURE_CONTENT_TYPE_NOSNIFF = True
 X_FRAME_OPTIONS = "DENY"
 
+# Content-Security-Policy (Django's built-in middleware), on every response in every mode:
+# scripts and styles only from our own static files, or inline with this response's nonce
+# ({{ csp_nonce }} in templates); no inline event handlers, no eval, no plug-ins, no
+# framing, forms post only to us. Images: ours plus data: URIs (inline SVG charts and QR
+# codes need neither). DEVELOPERS.md "Templates under the CSP" says how to write pages.
+SECURE_CSP = {
+    "default-src": [CSP.SELF],
+    "script-src": [CSP.SELF, CSP.NONCE],
+    "style-src": [CSP.SELF, CSP.NONCE],
+    "img-src": [CSP.SELF, "data:"],
+    "font-src": [CSP.SELF],
+    "connect-src": [CSP.SELF],
+    "object-src": [CSP.NONE],
+    "base-uri": [CSP.NONE],
+    "frame-ancestors": [CSP.NONE],
+    "form-action": [CSP.SELF],
+}
+
 REST_FRAMEWORK = {
     "DEFAULT_AUTHENTICATION_CLASSES": [
         "shopfloor.floor.api_auth.InstrumentTokenAuthentication",
@@ -151,6 +173,10 @@ SPECTACULAR_SETTINGS = {
     "DESCRIPTION": "Routing preview, lot status, readings and step sign-off for PCB fabrication.",
     "VERSION": "1",
     "SERVE_INCLUDE_SCHEMA": False,
+    # Self-hosted Swagger UI (no CDN), so the CSP can stay at 'self'.
+    "SWAGGER_UI_DIST": "SIDECAR",
+    "SWAGGER_UI_FAVICON_HREF": "SIDECAR",
+    "REDOC_DIST": "SIDECAR",
     "COMPONENT_SPLIT_REQUEST": True,
 }
 

@@ -4,7 +4,7 @@ quality pages under /board/ and /quality/, the API under /api/v1/."""
 from django.conf import settings
 from django.contrib import admin
 from django.urls import include, path
-from drf_spectacular.views import SpectacularAPIView, SpectacularSwaggerView
+from drf_spectacular.views import SpectacularAPIView, SpectacularSwaggerSplitView
 
 from shopfloor import views
 
@@ -17,7 +17,7 @@ urlpatterns = [
     path("", include("shopfloor.quality.urls")),
     path("api/v1/", include("shopfloor.api_urls")),
     path("api/schema/", SpectacularAPIView.as_view(), name="schema"),
-    path("api/docs/", SpectacularSwaggerView.as_view(url_name="schema"), name="api-docs"),
+    path("api/docs/", SpectacularSwaggerSplitView.as_view(url_name="schema"), name="api-docs"),
 ]
 
 if settings.BENCH_ENDPOINTS:

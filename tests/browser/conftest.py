@@ -9,6 +9,12 @@ Fixtures:
   login_as(page, person, pin=PIN)   badge + PIN login through the real form
   persona_page(name)  a new tablet-size page already logged in as that persona
   shoot(page, name)   full-page screenshot to test-artifacts/<name>.png (git-ignored)
+
+Every browser context a test opens (pytest-playwright's `page`/`context`, `persona_page`,
+or `browser.new_context()` / `browser.new_page()` in the test itself) is watched: a
+Content-Security-Policy violation reported on the console or a page error fails the test
+(`fail_on_csp_violation`, autouse). A page that needs an inline script or style gets a
+nonce (DEVELOPERS.md "Templates under the CSP"), never a weaker policy.
 """
 
 from __future__ import annotations
@@ -51,6 +57,53 @@ def browser_type_launch_args(browser_type_launch_args):
 @pytest.fixture(scope="session")
 def browser_context_args(browser_context_args):
     return {**browser_context_args, "viewport": TABLET, "locale": "en-GB"}
+
+
+#: Chromium's console text for a blocked script, style, image, frame or form target.
+CSP_MARKERS = ("Content Security Policy", "Content-Security-Policy")
+
+
+def csp_problem(text: str) -> bool:
+    return any(marker in text for marker in CSP_MARKERS)
+
+
+@pytest.fixture(autouse=True)
+def fail_on_csp_violation(browser, monkeypatch):
+    """Fail the test on any CSP violation in any context it opens (console listener)."""
+    violations: list[str] = []
+
+    def watch(context):
+        def on_console(message) -> None:
+            if csp_problem(message.text):
+                violations.append(f"{message.type}: {message.text} ({message.location})")
+
+        context.on("console", on_console)
+        context.on(
+            "weberror",
+            lambda error: (
+                violations.append(f"page error: {error.error}")
+                if csp_problem(str(error.error))
+                else None
+            ),
+        )
+        return context
+
+    original_context = browser.new_context
+    original_page = browser.new_page
+
+    def new_context(*args, **kwargs):
+        return watch(original_context(*args, **kwargs))
+
+    def new_page(*args, **kwargs):
+        page = original_page(*args, **kwargs)
+        watch(page.context)
+        return page
+
+    monkeypatch.setattr(browser, "new_context", new_context)
+    monkeypatch.setattr(browser, "new_page", new_page)
+    yield violations
+    if violations:
+        pytest.fail("Content-Security-Policy violations:\n" + "\n".join(violations))
 
 
 @pytest.fixture
