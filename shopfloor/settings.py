@@ -51,6 +51,7 @@ INSTALLED_APPS = [
     "routing",
     "shopfloor.floor",
     "shopfloor.quality",
+    "shopfloor.chemistry",
 ]
 
 MIDDLEWARE = [

@@ -313,3 +313,157 @@ def format_value(quantity: str, value: float) -> str:
     if not symbol:
         return number
     return f"{number} {symbol}"
+
+
+# ---------------------------------------------------------------------------
+# Bath analyses (plating, etch, ENIG): concentrations and bath properties
+# ---------------------------------------------------------------------------
+#
+# Why a second table: a bath parameter is not a board quantity. Its canonical unit depends
+# on what the parameter measures (a dissolved salt in g/L, a liquid additive in mL/L, an
+# impurity in mg/L), and labs, supplier sheets and older shops write the same thing as
+# g/L, oz/gal or % v/v. Every analysis goes through `bath_to_canonical`, so an addition
+# calculation never mixes a value in oz/gal with a target in g/L.
+
+#: What a bath parameter measures -> its canonical unit (as stored and shown).
+BATH_MEASURES: Final[dict[str, str]] = {
+    "mass_concentration": "g/L",
+    "volume_concentration": "mL/L",
+    "specific_gravity": "SG",
+    "ph": "pH",
+    "temperature": "°C",
+    "normality": "N",
+    "turnovers": "MTO",
+}
+
+# Accepted spellings -> pint expression, per measure. pint's "ounce" is the avoirdupois
+# ounce and its "gallon" the US liquid gallon (both by definition, NIST SP 811 appendix B).
+_MASS_CONC_UNITS: Final[dict[str, str]] = {
+    "g/l": "gram / liter",
+    "mg/l": "milligram / liter",
+    "ppm": "milligram / liter",  # in a dilute water-based bath, 1 ppm (mass) ≈ 1 mg/L
+    "kg/m3": "kilogram / meter ** 3",
+    "oz/gal": "ounce / gallon",
+    "troy oz/gal": "troy_ounce / gallon",
+    "ozt/gal": "troy_ounce / gallon",
+    "g/ml": "gram / milliliter",
+    "% w/v": "10 * gram / liter",  # 1 % w/v = 1 g per 100 mL = 10 g/L
+}
+_VOLUME_CONC_UNITS: Final[dict[str, str]] = {
+    "ml/l": "milliliter / liter",
+    "% v/v": "10 * milliliter / liter",  # 1 % v/v = 1 mL per 100 mL = 10 mL/L
+    "%v/v": "10 * milliliter / liter",
+    "% vol": "10 * milliliter / liter",
+    "l/l": "liter / liter",
+    "fl oz/gal": "fluid_ounce / gallon",
+}
+_TEMPERATURE_UNITS: Final[dict[str, str]] = {
+    "°c": "degree_Celsius",
+    "c": "degree_Celsius",
+    "degc": "degree_Celsius",
+    "°f": "degree_Fahrenheit",
+    "f": "degree_Fahrenheit",
+    "degf": "degree_Fahrenheit",
+}
+_PLAIN_UNITS: Final[dict[str, frozenset[str]]] = {
+    "specific_gravity": frozenset({"sg", "", "g/cm3", "kg/l"}),
+    "ph": frozenset({"ph", ""}),
+    "normality": frozenset({"n", "eq/l"}),
+    "turnovers": frozenset({"mto", "turnovers", ""}),
+}
+# Plausibility ceilings in the canonical unit: above them the value is a typing or unit
+# mistake (no water-based bath holds more than 2 kg/L of anything; pH runs 0..14).
+_BATH_CEILING: Final[dict[str, float]] = {
+    "mass_concentration": 2000.0,
+    "volume_concentration": 1000.0,
+    "specific_gravity": 3.0,
+    "ph": 14.0,
+    "temperature": 150.0,
+    "normality": 30.0,
+    "turnovers": 50.0,
+}
+
+
+def bath_measures() -> list[str]:
+    """Every bath measure identifier, sorted."""
+    return sorted(BATH_MEASURES)
+
+
+def _bath_measure(measure: str) -> str:
+    if measure not in BATH_MEASURES:
+        raise UnknownQuantity(
+            f"unknown bath measure {measure!r}; allowed: {', '.join(bath_measures())}"
+        )
+    return BATH_MEASURES[measure]
+
+
+def bath_allowed_units(measure: str) -> list[str]:
+    """Unit spellings accepted for a bath measure, canonical first (for forms and errors)."""
+    canonical = _bath_measure(measure)
+    if measure == "mass_concentration":
+        return ["g/L", "mg/L", "ppm", "kg/m3", "oz/gal", "troy oz/gal", "g/mL", "% w/v"]
+    if measure == "volume_concentration":
+        return ["mL/L", "% v/v", "L/L", "fl oz/gal"]
+    if measure == "temperature":
+        return ["°C", "°F"]
+    return [canonical]
+
+
+def _normalise_unit(unit: str) -> str:
+    return " ".join(unit.strip().lower().replace("µ", "u").split())
+
+
+def bath_to_canonical(measure: str, value: float | str, unit: str) -> float:
+    """One bath analysis value in its measure's canonical unit (g/L, mL/L, SG, pH, °C ...).
+
+    Raises a `UnitError` subclass that names the measure, what was wrong and what is allowed.
+    """
+    canonical = _bath_measure(measure)
+    number = _number(measure, value)
+    if not isinstance(unit, str):
+        raise UnknownUnit(f"{measure}: unit must be text; allowed: {bath_allowed_units(measure)}")
+    key = _normalise_unit(unit)
+    allowed = ", ".join(repr(u) for u in bath_allowed_units(measure))
+    table = {
+        "mass_concentration": _MASS_CONC_UNITS,
+        "volume_concentration": _VOLUME_CONC_UNITS,
+        "temperature": _TEMPERATURE_UNITS,
+    }.get(measure)
+    if table is not None:
+        expression = table.get(key)
+        if expression is None:
+            raise UnknownUnit(f"{measure}: unit {unit!r} is not accepted; allowed: {allowed}")
+        target = {
+            "mass_concentration": "gram / liter",
+            "volume_concentration": "milliliter / liter",
+            "temperature": "degree_Celsius",
+        }[measure]
+        if measure == "temperature":
+            converted = float(UREG.Quantity(number, expression).to(target).magnitude)
+        else:
+            converted = float((number * UREG(expression)).to(target).magnitude)
+    else:
+        if key not in _PLAIN_UNITS[measure] and key != canonical.lower():
+            raise UnknownUnit(f"{measure}: unit {unit!r} is not accepted; allowed: {allowed}")
+        converted = number
+    if measure != "temperature" and converted < 0:
+        raise NegativeValue(f"{measure}: {number:g} {unit} is negative; it cannot be below zero")
+    ceiling = _BATH_CEILING[measure]
+    if converted > ceiling:
+        raise ImplausibleValue(
+            f"{measure}: {number:g} {unit} is {converted:g} {canonical}, above the plausible "
+            f"maximum of {ceiling:g} {canonical}; check the value and its unit"
+        )
+    return converted
+
+
+def bath_from_canonical(measure: str, value: float, unit: str) -> float:
+    """A canonical bath value expressed in another accepted unit (for display)."""
+    one = bath_to_canonical(measure, 1.0, unit) if measure != "temperature" else None
+    if one is None:
+        return float(
+            UREG.Quantity(value, "degree_Celsius")
+            .to(_TEMPERATURE_UNITS[_normalise_unit(unit)])
+            .magnitude
+        )
+    return value / one

@@ -1,0 +1,1 @@
+"""Baths behind the wet steps: tanks, analysis plans, analyses, additions and exposed lots."""
