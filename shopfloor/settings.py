@@ -203,10 +203,20 @@ CELERY_DB_REUSE_MAX = 200
 OUTBOX_REPUBLISH_AFTER_SECONDS = env_int("OUTBOX_REPUBLISH_AFTER_SECONDS", 120, minimum=5)
 BENCH_ENDPOINTS = env_bool("BENCH_ENDPOINTS", False)  # bench/run only
 OUTBOX_RELAY_SECONDS = env_int("OUTBOX_RELAY_SECONDS", 15, minimum=1)
+# The sealing task chains new audit entries this often; `audit verify` reports entries
+# left unsealed for longer than the bound (a stopped beat or a transaction left open).
+AUDIT_SEAL_SECONDS = env_int("AUDIT_SEAL_SECONDS", 2, minimum=1)
+AUDIT_SEAL_MAX_DELAY_SECONDS = env_int("AUDIT_SEAL_MAX_DELAY_SECONDS", 600, minimum=1)
 CELERY_BEAT_SCHEDULE = {
     "relay-outbox": {
         "task": "shopfloor.quality.tasks.relay_outbox",
         "schedule": float(OUTBOX_RELAY_SECONDS),
+    },
+    "seal-audit": {
+        "task": "shopfloor.quality.tasks.seal_audit",
+        "schedule": float(AUDIT_SEAL_SECONDS),
+        # A pass queued while no worker ran is pointless later: the next one does it all.
+        "options": {"expires": float(AUDIT_SEAL_SECONDS * 5)},
     },
     "check-queue-times": {"task": "shopfloor.quality.tasks.check_queue_times", "schedule": 60.0},
     "check-due-dates": {"task": "shopfloor.quality.tasks.check_due_dates", "schedule": 900.0},

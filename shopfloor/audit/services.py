@@ -1,29 +1,80 @@
-"""Append to the audit trail, verify it, and make e-signatures.
+"""Append to the audit trail, seal it into one chain, verify it, and make e-signatures.
 
-The hash of entry n is sha256(prev_hash || canonical JSON of its content); the first
-entry's prev_hash is 64 zeros. Appends lock the single AuditHead row, so concurrent
-transactions chain in commit order and never fork the chain.
+Writing: `record()` is one INSERT in the caller's transaction and takes no lock that
+another writer needs. The entry's content is written as canonical JSON text (`body`):
+sorted keys, no spaces, ASCII with \\u escapes, floats as Python's shortest round-trip
+repr (so -0.0 stays "-0.0" and 1e-07 stays "1e-07"). The hash covers exactly those
+stored bytes, so no database type conversion (jsonb turns -0.0 into 0 and 1.10 into 1.1)
+can change what is verified.
+
+Sealing: `seal()` (the `seal_audit` beat task, `manage.py audit seal`) is the only code
+that locks the AuditHead row. It takes the unsealed entries it can see, in id order,
+gives each the next `seq` and `hash = sha256(prev_hash || sealed text)`, where the sealed
+text is the body with `"seq":n` added as its last key (the canonical JSON of the whole
+entry; the first entry's prev_hash is 64 zeros), and closes the pass with a checkpoint:
+the RFC 6962 Merkle tree hash of the pass's entry hashes, chained to the previous
+checkpoint. An entry committed while a pass runs is invisible to it and is sealed by the
+next pass, so no entry is ever skipped and none is sealed twice (the head lock).
+
+Verifying: `verify_chain()` streams the sealed entries and the checkpoints over
+server-side cursors (memory does not grow with the trail), reports every break (missing,
+edited, relinked or reordered entries, columns that disagree with the hashed body,
+rewritten or missing checkpoints) with the first one named, and counts entries left
+unsealed longer than `AUDIT_SEAL_MAX_DELAY_SECONDS`.
 """
 
 from __future__ import annotations
 
 import hashlib
 import json
-from dataclasses import dataclass
-from datetime import UTC, datetime
+import logging
+import math
+from collections import Counter
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+from datetime import UTC, datetime, timedelta
 from typing import Any
 
+from django.conf import settings
 from django.db import connection, transaction
 from django.utils import timezone
 
-from shopfloor.audit.models import AuditEntry, AuditHead, Signature
+from shopfloor.audit.models import AuditCheckpoint, AuditEntry, AuditHead, Signature
+
+log = logging.getLogger("shopfloor.audit")
 
 GENESIS = "0" * 64
+SEAL_BATCH = 5000  # entries per sealing pass (one checkpoint each)
+MAX_REPORTED = 50  # problems listed in detail; all are counted
+
+
+# --- canonical form -------------------------------------------------------------------
 
 
 def canonical_json(value: Any) -> str:
-    """Stable JSON: sorted keys, no spaces, datetimes as ISO strings in UTC."""
-    return json.dumps(value, sort_keys=True, separators=(",", ":"), default=_json_default)
+    """Stable JSON: sorted keys, no spaces, ASCII, datetimes as ISO strings in UTC.
+
+    A float that is not finite (which JSON cannot carry) is written as its name in a
+    string, so an odd value can never make an audit append fail.
+    """
+    return json.dumps(
+        _finite(value),
+        sort_keys=True,
+        separators=(",", ":"),
+        ensure_ascii=True,
+        allow_nan=False,
+        default=_json_default,
+    )
+
+
+def _finite(value: Any) -> Any:
+    if isinstance(value, float) and not math.isfinite(value):
+        return repr(value)
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_finite(v) for v in value]
+    return value
 
 
 def _json_default(value: Any) -> Any:
@@ -36,9 +87,30 @@ def sha256_hex(text: str) -> str:
     return hashlib.sha256(text.encode()).hexdigest()
 
 
+def sealed_text(body: str, seq: int) -> str:
+    """The canonical JSON of the whole entry: its body with "seq" as the last key.
+
+    Every content key sorts before "seq", so this equals canonical_json of the content
+    with seq added, built from the stored bytes without parsing them.
+    """
+    if not (body.startswith("{") and body.endswith("}")) or body == "{}":
+        return body + f"|seq={seq}"  # not an object: hash it as it is, it will not verify
+    return f'{body[:-1]},"seq":{int(seq)}}}'
+
+
+def chain_hash(prev_hash: str, body: str, seq: int) -> str:
+    return sha256_hex(prev_hash + sealed_text(body, seq))
+
+
 def entry_content(entry: AuditEntry) -> dict[str, Any]:
+    """The entry's hashed content (parsed from its stored body) with its place in the chain."""
+    content: dict[str, Any] = json.loads(entry.body) if entry.body else _content_from_columns(entry)
+    content["seq"] = entry.seq
+    return content
+
+
+def _content_from_columns(entry: AuditEntry) -> dict[str, Any]:
     return {
-        "seq": entry.seq,
         "at": entry.at.astimezone(UTC).isoformat(),
         "actor_id": entry.actor_id,
         "actor_name": entry.actor_name,
@@ -54,6 +126,9 @@ def entry_hash(prev_hash: str, content: dict[str, Any]) -> str:
     return sha256_hex(prev_hash + canonical_json(content))
 
 
+# --- writing --------------------------------------------------------------------------
+
+
 def record(
     *,
     actor: Any,
@@ -63,79 +138,66 @@ def record(
     before: dict[str, Any] | None = None,
     after: dict[str, Any] | None = None,
 ) -> AuditEntry:
-    """Append one audit entry inside the caller's transaction.
+    """Append one audit entry inside the caller's transaction: one INSERT, no shared lock.
 
-    Two statements: an UPDATE that takes the next number (and locks the head row until
-    the caller commits), then the INSERT of the entry, which also moves the head's hash.
+    The entry is sealed into the chain shortly after commit by the sealing task (at once
+    after commit in the embedded mode, where no beat runs).
     """
-    with transaction.atomic(savepoint=False):
-        seq, prev_hash = _take_next_seq()
-        entry = AuditEntry(
-            seq=seq,
-            at=timezone.now(),
-            actor=actor if getattr(actor, "pk", None) else None,
-            actor_name=_actor_name(actor),
-            action=action,
-            object_type=object_type,
-            object_id=str(object_id),
-            before=json.loads(canonical_json(before)) if before is not None else None,
-            after=json.loads(canonical_json(after)) if after is not None else None,
-            prev_hash=prev_hash,
-        )
-        entry.hash = entry_hash(entry.prev_hash, entry_content(entry))
-        _insert_and_move_head(entry)
-        return entry
-
-
-def _take_next_seq() -> tuple[int, str]:
-    """Reserve the next sequence number; returns it with the previous entry's hash."""
-    with connection.cursor() as cursor:
-        for _attempt in range(2):
+    now = timezone.now()
+    actor_id = actor.pk if getattr(actor, "pk", None) else None
+    body = canonical_json(
+        {
+            "at": now,
+            "actor_id": actor_id,
+            "actor_name": _actor_name(actor),
+            "action": action,
+            "object_type": object_type,
+            "object_id": str(object_id),
+            "before": before,
+            "after": after,
+        }
+    )
+    content = json.loads(body)
+    entry = AuditEntry(
+        at=now,
+        actor_id=actor_id,
+        actor_name=content["actor_name"],
+        action=action,
+        object_type=object_type,
+        object_id=content["object_id"],
+        before=content["before"],
+        after=content["after"],
+        body=body,
+    )
+    if connection.vendor == "postgresql":
+        with connection.cursor() as cursor:
             cursor.execute(
-                "UPDATE audit_audithead SET last_seq = last_seq + 1 WHERE id = 1 "
-                "RETURNING last_seq, last_hash"
+                "INSERT INTO audit_auditentry (at, actor_id, actor_name, action, object_type, "
+                "object_id, before, after, body) "
+                "VALUES (%s, %s, %s, %s, %s, %s, %s::jsonb, %s::jsonb, %s) RETURNING id",
+                [
+                    now,
+                    actor_id,
+                    entry.actor_name,
+                    action,
+                    object_type,
+                    entry.object_id,
+                    _json_param(content["before"]),
+                    _json_param(content["after"]),
+                    body,
+                ],
             )
             row = cursor.fetchone()
-            if row is not None:
-                return int(row[0]), str(row[1])
-            # First entry ever: create the head, then take the number as usual.
-            cursor.execute(
-                "INSERT INTO audit_audithead (id, last_seq, last_hash) VALUES (1, 0, %s) "
-                "ON CONFLICT (id) DO NOTHING",
-                [GENESIS],
-            )
-    raise RuntimeError("the audit head row could not be created")
-
-
-def _insert_and_move_head(entry: AuditEntry) -> None:
-    if connection.vendor != "postgresql":  # the embedded demo database: two statements
+            assert row is not None
+            entry.pk = row[0]
+        entry._state.adding = False
+        entry._state.db = "default"
+    else:
         entry.save(force_insert=True)
-        AuditHead.objects.filter(pk=1).update(last_hash=entry.hash)
-        return
-    with connection.cursor() as cursor:
-        cursor.execute(
-            "WITH moved AS (UPDATE audit_audithead SET last_hash = %s WHERE id = 1) "
-            "INSERT INTO audit_auditentry (seq, at, actor_id, actor_name, action, object_type, "
-            "object_id, before, after, prev_hash, hash) "
-            "VALUES (%s, %s, %s, %s, %s, %s, %s, %s::jsonb, %s::jsonb, %s, %s) RETURNING id",
-            [
-                entry.hash,
-                entry.seq,
-                entry.at,
-                entry.actor_id,
-                entry.actor_name,
-                entry.action,
-                entry.object_type,
-                entry.object_id,
-                _json_param(entry.before),
-                _json_param(entry.after),
-                entry.prev_hash,
-                entry.hash,
-            ],
-        )
-        entry.pk = cursor.fetchone()[0]
-    entry._state.adding = False
-    entry._state.db = "default"
+    if connection.vendor != "postgresql" or settings.CELERY_TASK_ALWAYS_EAGER:
+        # No beat runs in the embedded mode: seal right after this commit instead.
+        transaction.on_commit(seal)
+    return entry
 
 
 def _json_param(value: Any) -> str | None:
@@ -151,50 +213,468 @@ def _actor_name(actor: Any) -> str:
     return str(getattr(actor, "username", actor))
 
 
+# --- sealing --------------------------------------------------------------------------
+
+
+def merkle_leaf(entry_hash_hex: str) -> bytes:
+    """RFC 6962 section 2.1: a leaf hash is SHA-256(0x00 || leaf data)."""
+    return hashlib.sha256(b"\x00" + bytes.fromhex(entry_hash_hex)).digest()
+
+
+def _merkle_node(left: bytes, right: bytes) -> bytes:
+    """RFC 6962 section 2.1: an interior node is SHA-256(0x01 || left || right)."""
+    return hashlib.sha256(b"\x01" + left + right).digest()
+
+
+class MerkleBuilder:
+    """RFC 6962 Merkle tree hash of a stream of leaves in O(log n) memory.
+
+    The tree splits at the largest power of two below n, so complete subtrees on the
+    left can be merged as soon as two of equal size meet; what is left at the end is
+    folded from the right.
+    """
+
+    def __init__(self) -> None:
+        self._stack: list[tuple[int, bytes]] = []
+        self.count = 0
+
+    def add(self, entry_hash_hex: str) -> None:
+        size, node = 1, merkle_leaf(entry_hash_hex)
+        while self._stack and self._stack[-1][0] == size:
+            left_size, left = self._stack.pop()
+            size, node = left_size + size, _merkle_node(left, node)
+        self._stack.append((size, node))
+        self.count += 1
+
+    def root(self) -> str:
+        if not self._stack:
+            return hashlib.sha256(b"").hexdigest()  # RFC 6962: the hash of an empty tree
+        node = self._stack[-1][1]
+        for _size, left in reversed(self._stack[:-1]):
+            node = _merkle_node(left, node)
+        return node.hex()
+
+
+def checkpoint_hash(
+    *,
+    number: int,
+    first_seq: int,
+    last_seq: int,
+    last_entry_hash: str,
+    merkle_root: str,
+    prev_hash: str,
+) -> str:
+    text = canonical_json(
+        {
+            "number": number,
+            "first_seq": first_seq,
+            "last_seq": last_seq,
+            "last_entry_hash": last_entry_hash,
+            "merkle_root": merkle_root,
+        }
+    )
+    return sha256_hex(prev_hash + text)
+
+
 @dataclass(frozen=True)
+class SealReport:
+    sealed: int
+    checkpoints: int
+    last_seq: int
+    last_checkpoint_hash: str | None
+
+
+def seal(*, batch: int = SEAL_BATCH, max_passes: int = 100) -> SealReport:
+    """Chain every entry that is committed and not sealed yet (bounded passes)."""
+    sealed = passes = 0
+    last_seq, last_cp = 0, None
+    for _ in range(max_passes):
+        count, last_seq, cp_hash = _seal_pass(batch)
+        if count == 0:
+            break
+        sealed += count
+        passes += 1
+        last_cp = cp_hash
+        if count < batch:
+            break
+    if passes:
+        log.info(
+            "audit sealed %s entries through #%s; latest checkpoint %s", sealed, last_seq, last_cp
+        )
+    return SealReport(sealed, passes, last_seq, last_cp)
+
+
+def _lock_head() -> AuditHead:
+    AuditHead.objects.get_or_create(pk=1, defaults={"last_seq": 0, "last_hash": GENESIS})
+    return AuditHead.objects.select_for_update().get(pk=1)
+
+
+def _seal_pass(batch: int) -> tuple[int, int, str | None]:
+    with transaction.atomic():
+        head = _lock_head()
+        rows = list(
+            AuditEntry.objects.filter(seq__isnull=True)
+            .order_by("id")
+            .values_list("id", "body")[:batch]
+        )
+        if not rows:
+            return 0, head.last_seq, None
+        seq, prev = head.last_seq, head.last_hash
+        first_seq = seq + 1
+        tree = MerkleBuilder()
+        updates: list[tuple[int, int, str, str]] = []
+        for entry_id, body in rows:
+            seq += 1
+            digest = chain_hash(prev, body, seq)
+            updates.append((entry_id, seq, prev, digest))
+            tree.add(digest)
+            prev = digest
+        _write_seals(updates)
+        last_cp = AuditCheckpoint.objects.order_by("-number").values_list("number", "hash").first()
+        number = (last_cp[0] + 1) if last_cp else 1
+        fields: dict[str, Any] = {
+            "number": number,
+            "first_seq": first_seq,
+            "last_seq": seq,
+            "last_entry_hash": prev,
+            "merkle_root": tree.root(),
+            "prev_hash": last_cp[1] if last_cp else GENESIS,
+        }
+        cp = AuditCheckpoint.objects.create(**fields, hash=checkpoint_hash(**fields))
+        head.last_seq, head.last_hash = seq, prev
+        head.save(update_fields=["last_seq", "last_hash"])
+        return len(rows), seq, cp.hash
+
+
+def _write_seals(updates: list[tuple[int, int, str, str]]) -> None:
+    if connection.vendor == "postgresql":
+        with connection.cursor() as cursor:
+            cursor.execute(
+                "UPDATE audit_auditentry e SET seq = v.seq, prev_hash = v.prev, hash = v.hash "
+                "FROM unnest(%s::bigint[], %s::bigint[], %s::text[], %s::text[]) "
+                "AS v(id, seq, prev, hash) WHERE e.id = v.id AND e.seq IS NULL",
+                [
+                    [u[0] for u in updates],
+                    [u[1] for u in updates],
+                    [u[2] for u in updates],
+                    [u[3] for u in updates],
+                ],
+            )
+        return
+    for entry_id, seq, prev, digest in updates:
+        AuditEntry.objects.filter(pk=entry_id, seq__isnull=True).update(
+            seq=seq, prev_hash=prev, hash=digest
+        )
+
+
+# --- verifying ------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Problem:
+    seq: int | None
+    kind: str
+    message: str
+
+
+@dataclass
 class ChainReport:
+    """What `verify_chain` found; `problems` lists the first MAX_REPORTED, `counts` all."""
+
     ok: bool
     checked: int
     first_broken_seq: int | None
     problem: str
+    problems: list[Problem] = field(default_factory=list)
+    counts: dict[str, int] = field(default_factory=dict)
+    checkpoints_checked: int = 0
+    last_checkpoint: tuple[int, str] | None = None
+    unsealed: int = 0
+    unsealed_overdue: int = 0
+
+    def summary(self) -> str:
+        if self.ok:
+            text = f"{self.checked} entries and {self.checkpoints_checked} checkpoints intact"
+        else:
+            kinds = ", ".join(f"{n} {kind}" for kind, n in sorted(self.counts.items()))
+            text = f"{sum(self.counts.values())} problems ({kinds})"
+        if self.unsealed:
+            text += f"; {self.unsealed} entries waiting to be sealed"
+        return text
 
 
-def verify_chain() -> ChainReport:
-    """Walk the whole trail in order; name the first entry whose hash or link is wrong."""
+class _Findings:
+    def __init__(self) -> None:
+        self.problems: list[Problem] = []
+        self.counts: Counter[str] = Counter()
+        self.first_seq: int | None = None
+        self.first_message = ""
+
+    def add(self, seq: int | None, kind: str, message: str) -> None:
+        self.counts[kind] += 1
+        if not self.first_message:
+            self.first_seq, self.first_message = seq, message
+        if len(self.problems) < MAX_REPORTED:
+            self.problems.append(Problem(seq, kind, message))
+
+
+_ENTRY_FIELDS = (
+    "seq",
+    "prev_hash",
+    "hash",
+    "body",
+    "at",
+    "actor_id",
+    "actor_name",
+    "action",
+    "object_type",
+    "object_id",
+    "before",
+    "after",
+)
+
+
+def _stream(queryset: Any, chunk: int = 2000) -> Iterator[Any]:
+    """Rows over a server-side cursor on PostgreSQL (Django's iterator), in chunks."""
+    return queryset.iterator(chunk_size=chunk)
+
+
+def json_same(a: Any, b: Any) -> bool:
+    """Equal as JSON values: numbers by value (jsonb's -0 and 1.10 are 0 and 1.1), but
+    never a boolean for a number or a string for either."""
+    if isinstance(a, bool) or isinstance(b, bool):
+        return type(a) is type(b) and a == b
+    if isinstance(a, int | float) and isinstance(b, int | float):
+        return float(a) == float(b)
+    if isinstance(a, dict) and isinstance(b, dict):
+        return a.keys() == b.keys() and all(json_same(a[k], b[k]) for k in a)
+    if isinstance(a, list) and isinstance(b, list):
+        return len(a) == len(b) and all(json_same(x, y) for x, y in zip(a, b, strict=True))
+    return type(a) is type(b) and a == b
+
+
+def _columns_disagree(row: tuple[Any, ...]) -> list[str]:
+    _seq, _p, _h, body, at, actor_id, actor_name, action, otype, oid, before, after = row
+    try:
+        content = json.loads(body)
+    except ValueError:
+        return ["body"]
+    if not isinstance(content, dict):
+        return ["body"]
+    wrong = []
+    if at is None or at.astimezone(UTC).isoformat() != content.get("at"):
+        wrong.append("at")
+    for name, value in (
+        ("actor_id", actor_id),
+        ("actor_name", actor_name),
+        ("action", action),
+        ("object_type", otype),
+        ("object_id", oid),
+    ):
+        if not json_same(value, content.get(name)):
+            wrong.append(name)
+    for name, value in (("before", before), ("after", after)):
+        if not json_same(value, content.get(name)):
+            wrong.append(name)
+    return wrong
+
+
+def verify_chain(
+    *, now: datetime | None = None, max_unsealed_age: timedelta | None = None
+) -> ChainReport:
+    """Walk the whole sealed trail and its checkpoints in order; report every break.
+
+    Runs in one REPEATABLE READ snapshot (when called outside a transaction), so a
+    sealing pass that commits meanwhile cannot make the head look ahead of the entries.
+    """
+    if connection.in_atomic_block or connection.vendor != "postgresql":
+        return _verify(now, max_unsealed_age)
+    with transaction.atomic():
+        with connection.cursor() as cursor:
+            cursor.execute("SET TRANSACTION ISOLATION LEVEL REPEATABLE READ READ ONLY")
+        return _verify(now, max_unsealed_age)
+
+
+def _verify(now: datetime | None, max_unsealed_age: timedelta | None) -> ChainReport:
+    found = _Findings()
     prev_hash = GENESIS
-    expected_seq = 1
+    expected = 1
     checked = 0
-    for entry in AuditEntry.objects.order_by("seq").iterator(chunk_size=2000):
-        if entry.seq != expected_seq:
-            return ChainReport(
-                False,
-                checked,
-                expected_seq,
-                f"entry #{expected_seq} is missing (next stored entry is #{entry.seq})",
+    entries = _stream(
+        AuditEntry.objects.filter(seq__isnull=False).order_by("seq").values_list(*_ENTRY_FIELDS)
+    )
+    checkpoints = _stream(
+        AuditCheckpoint.objects.order_by("number").values_list(
+            "number", "first_seq", "last_seq", "last_entry_hash", "merkle_root", "prev_hash", "hash"
+        ),
+        chunk=500,
+    )
+    cps = _CheckpointWalk(checkpoints, found)
+    for row in entries:
+        seq, stored_prev, stored_hash, body = row[0], row[1], row[2], row[3]
+        if seq > expected:
+            gap = f"#{expected}" if seq == expected + 1 else f"#{expected} to #{seq - 1}"
+            found.add(
+                expected,
+                "missing",
+                f"entry {gap} is missing (the next stored entry is #{seq})",
             )
-        if entry.prev_hash != prev_hash:
-            return ChainReport(
-                False,
-                checked,
-                entry.seq,
-                f"entry #{entry.seq} does not link to the entry before it",
+        elif stored_prev != prev_hash:
+            found.add(
+                seq,
+                "relinked",
+                f"entry #{seq} does not link to the entry before it (edited, reordered or "
+                "inserted)",
             )
-        if entry_hash(prev_hash, entry_content(entry)) != entry.hash:
-            return ChainReport(
-                False, checked, entry.seq, f"entry #{entry.seq} content was changed after writing"
-            )
-        prev_hash = entry.hash
-        expected_seq += 1
+        if chain_hash(stored_prev or "", body, seq) != stored_hash:
+            found.add(seq, "edited", f"entry #{seq} content was changed after writing")
+        else:
+            wrong = _columns_disagree(row)
+            if wrong:
+                found.add(
+                    seq,
+                    "edited",
+                    f"entry #{seq} content was changed after writing (columns "
+                    f"{', '.join(wrong)} disagree with the sealed content)",
+                )
+        cps.entry(seq, stored_hash or "")
+        prev_hash = stored_hash or ""
+        expected = seq + 1
         checked += 1
-    head = AuditHead.objects.filter(pk=1).first()
-    if head and head.last_seq != checked:
-        return ChainReport(
-            False,
-            checked,
-            checked + 1,
-            f"entries after #{checked} were removed (the trail recorded #{head.last_seq})",
+    last_seq = expected - 1
+    head = AuditHead.objects.filter(pk=1).values_list("last_seq", flat=True).first()
+    recorded = max(head or 0, cps.last_seq_covered)
+    if recorded > last_seq:
+        gap = f"#{last_seq + 1}" if recorded == last_seq + 1 else f"#{last_seq + 1} to #{recorded}"
+        found.add(
+            last_seq + 1,
+            "missing",
+            f"entry {gap} is missing: entries after #{last_seq} were removed (the trail "
+            f"recorded #{recorded})",
         )
-    return ChainReport(True, checked, None, "intact")
+    cps.finish()
+    unsealed, overdue = _unsealed(now, max_unsealed_age)
+    if overdue:
+        found.add(
+            None,
+            "unsealed",
+            f"{overdue} entries are older than the sealing bound and still not sealed (is the "
+            "sealing task running? an open transaction holds them back)",
+        )
+    return ChainReport(
+        ok=not found.counts,
+        checked=checked,
+        first_broken_seq=found.first_seq,
+        problem=found.first_message or "intact",
+        problems=found.problems,
+        counts=dict(found.counts),
+        checkpoints_checked=cps.checked,
+        last_checkpoint=cps.last,
+        unsealed=unsealed,
+        unsealed_overdue=overdue,
+    )
+
+
+def _unsealed(now: datetime | None, bound: timedelta | None) -> tuple[int, int]:
+    now = now or timezone.now()
+    if bound is None:
+        bound = timedelta(seconds=settings.AUDIT_SEAL_MAX_DELAY_SECONDS)
+    waiting = AuditEntry.objects.filter(seq__isnull=True)
+    return waiting.count(), waiting.filter(at__lt=now - bound).count()
+
+
+class _CheckpointWalk:
+    """Checks the checkpoint chain alongside the entry stream, one checkpoint at a time."""
+
+    def __init__(self, rows: Iterator[Any], found: _Findings) -> None:
+        self.rows = rows
+        self.found = found
+        self.checked = 0
+        self.last: tuple[int, str] | None = None
+        self.last_seq_covered = 0
+        self.prev_hash = GENESIS
+        self.expected_number = 1
+        self.expected_first = 1
+        self.current: tuple[Any, ...] | None = None
+        self.tree = MerkleBuilder()
+        self.uncovered = 0
+        self.first_uncovered: int | None = None
+        self._next()
+
+    def _next(self) -> None:
+        self.current = next(self.rows, None)
+        self.tree = MerkleBuilder()
+        if self.current is None:
+            return
+        number, first, last, last_entry, root, prev, digest = self.current
+        self.checked += 1
+        self.last = (number, digest)
+        self.last_seq_covered = max(self.last_seq_covered, last)
+        name = f"checkpoint {number}"
+        if number != self.expected_number:
+            self.found.add(
+                first,
+                "checkpoint",
+                f"checkpoint {self.expected_number} is missing ({name} follows)",
+            )
+        if prev != self.prev_hash:
+            self.found.add(first, "checkpoint", f"{name} does not link to the checkpoint before it")
+        fields = {
+            "number": number,
+            "first_seq": first,
+            "last_seq": last,
+            "last_entry_hash": last_entry,
+            "merkle_root": root,
+            "prev_hash": prev,
+        }
+        if checkpoint_hash(**fields) != digest:
+            self.found.add(first, "checkpoint", f"{name} was rewritten (its hash does not match)")
+        if first != self.expected_first:
+            self.found.add(
+                first,
+                "checkpoint",
+                f"{name} covers #{first}-#{last} but should start at #{self.expected_first}",
+            )
+        self.prev_hash = digest
+        self.expected_number = number + 1
+        self.expected_first = last + 1
+
+    def entry(self, seq: int, digest: str) -> None:
+        while self.current is not None and seq > self.current[2]:
+            self._close()
+        if self.current is None:
+            self.uncovered += 1
+            self.first_uncovered = self.first_uncovered or seq
+            return
+        if seq >= self.current[1]:
+            self.tree.add(digest)
+            if seq == self.current[2]:
+                self._close(last_digest=digest)
+
+    def _close(self, last_digest: str | None = None) -> None:
+        assert self.current is not None
+        number, first, last, last_entry, root, _prev, _digest = self.current
+        if self.tree.count != last - first + 1:
+            pass  # entries of this range are missing, and reported as such
+        elif self.tree.root() != root or last_digest != last_entry:
+            self.found.add(
+                first,
+                "checkpoint",
+                f"checkpoint {number} does not match entries #{first}-#{last} (the entries or "
+                "the checkpoint were rewritten)",
+            )
+        self._next()
+
+    def finish(self) -> None:
+        while self.current is not None:
+            self._close()
+        if self.uncovered:
+            self.found.add(
+                self.first_uncovered,
+                "checkpoint",
+                f"{self.uncovered} sealed entries from #{self.first_uncovered} on are covered by "
+                "no checkpoint (a checkpoint was deleted)",
+            )
 
 
 def record_hash(record_type: str, record_id: object, content: dict[str, Any]) -> str:

@@ -47,6 +47,14 @@ def relay_outbox() -> dict[str, int]:
 
 
 @shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
+def seal_audit() -> int:
+    """Chain the audit entries committed since the last pass (one sealer at a time)."""
+    from shopfloor.audit import services as audit
+
+    return audit.seal().sealed
+
+
+@shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
 def check_queue_times() -> dict[str, int]:
     return services.check_queue_times()
 
