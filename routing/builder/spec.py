@@ -24,6 +24,7 @@ __all__ = [
     "BuildSpec",
     "LaminationPlan",
     "Legend",
+    "Outline",
     "ShopCapability",
     "SolderMask",
     "SpecError",
@@ -71,6 +72,7 @@ OPTIONAL_KEYS: Final = (
     "legend",
     "vias",
     "stackup",
+    "outline",
 )
 
 #: Summed stack-up thickness may differ from the stated board thickness by this much.
@@ -180,6 +182,14 @@ class StackupLayer:
 
 
 @dataclass(frozen=True)
+class Outline:
+    """The board's outline size (its profile's bounding box), for panelisation."""
+
+    width_mm: float
+    height_mm: float
+
+
+@dataclass(frozen=True)
 class SubAssembly:
     """Layers lo..hi laminated (or a single core) and drilled before the next press."""
 
@@ -231,6 +241,7 @@ class BuildSpec:
         default_factory=lambda: LaminationPlan(cycles=0, sub_assemblies=(), final_vias=())
     )
     microvia_aspect_ratio: float | None = None
+    outline: Outline | None = None
 
     @property
     def aspect_ratio(self) -> float:
@@ -426,6 +437,9 @@ def parse_spec(data: object, capability: ShopCapability | None = None) -> BuildS
     stackup = (
         _parse_stackup(c, d["stackup"]) if "stackup" in d and d["stackup"] is not None else None
     )
+    outline = (
+        _parse_outline(c, d["outline"]) if "outline" in d and d["outline"] is not None else None
+    )
 
     if layers is not None and stackup is not None:
         _check_stackup(c, stackup, layers, thickness, outer_cu)
@@ -482,7 +496,23 @@ def parse_spec(data: object, capability: ShopCapability | None = None) -> BuildS
         warnings=tuple(c.warnings),
         lamination=plan,
         microvia_aspect_ratio=microvia_ar,
+        outline=outline,
     )
+
+
+def _parse_outline(c: _Collector, raw: Any) -> Outline | None:
+    """Optional outline size (a design import fills it from the file's board profile)."""
+    if not isinstance(raw, Mapping):
+        c.add("outline", raw, "must be an object", "{'width_mm': ..., 'height_mm': ...}")
+        return None
+    c.keys("outline", raw, ("width_mm", "height_mm"), ())
+    sizes = [
+        c.number(f"outline.{k}", raw[k], low=0, high=2000.0, unit="mm") if k in raw else None
+        for k in ("width_mm", "height_mm")
+    ]
+    if sizes[0] is None or sizes[1] is None:
+        return None
+    return Outline(width_mm=sizes[0], height_mm=sizes[1])
 
 
 def _parse_mask(c: _Collector, raw: Any) -> SolderMask | None:
@@ -899,6 +929,16 @@ def spec_json_schema() -> dict[str, Any]:
                         "kind": {"type": "string", "enum": list(VIA_KINDS)},
                         "drill": {"type": "string", "enum": list(DRILLS)},
                     },
+                },
+            },
+            "outline": {
+                "type": "object",
+                "additionalProperties": False,
+                "required": ["width_mm", "height_mm"],
+                "description": "Optional board outline size (profile bounding box), mm.",
+                "properties": {
+                    "width_mm": {"type": "number", "exclusiveMinimum": 0, "maximum": 2000},
+                    "height_mm": {"type": "number", "exclusiveMinimum": 0, "maximum": 2000},
                 },
             },
             "stackup": {
