@@ -5,14 +5,21 @@ from __future__ import annotations
 from typing import Any
 
 from drf_spectacular.utils import OpenApiExample, extend_schema
+from rest_framework.parsers import MultiPartParser
 from rest_framework.request import Request
 from rest_framework.response import Response
+from rest_framework.views import APIView
 
 from routing import services
-from routing.serializers import PreviewRequestSerializer, PreviewSerializer
+from routing.serializers import (
+    DesignImportRequestSerializer,
+    DesignImportSerializer,
+    PreviewRequestSerializer,
+    PreviewSerializer,
+)
 from shopfloor.errors import InvalidInput
 from shopfloor.floor.api import READ_ERRORS, JsonAPIView, error
-from shopfloor.floor.permissions import CanRead
+from shopfloor.floor.permissions import CanRead, _RolePermission
 
 EXAMPLE_SPEC = {
     "layers": 4,
@@ -85,3 +92,53 @@ class PreviewView(JsonAPIView):
     def post(self, request: Request) -> Response:
         spec, overrides = split_preview_body(request.data)
         return Response(services.preview(spec, overrides))
+
+
+class CanImportDesigns(_RolePermission):
+    """Design import is process engineering's tool (it reads up to 150 MB per request)."""
+
+    roles = frozenset({"process_engineer", "admin"})
+    what = "import design files"
+
+
+class ImportDesignView(APIView):
+    """Read an uploaded IPC-2581 file into a draft build spec; nothing is saved."""
+
+    permission_classes = [CanImportDesigns]
+    parser_classes = [MultiPartParser]
+
+    @extend_schema(
+        operation_id="routing_import_design",
+        summary="Import an IPC-2581 design file (revision B, B1 or C) as a draft build spec",
+        description=(
+            "Send the file as multipart field `file`. The reply is the draft build spec "
+            "(only what the file states), the fields still to fill in (finish, class, mask "
+            "colour, profile, electrical test, and anything the file leaves out), warnings, "
+            "and where it came from (revision, units, exporter, thickness basis, microvia "
+            "rule). Nothing is saved. A file that is not IPC-2581, an unsupported revision, "
+            "broken XML or one declaring a DTD gets 400 naming what was found."
+        ),
+        request=DesignImportRequestSerializer,
+        responses={
+            200: DesignImportSerializer,
+            400: error("Not an IPC-2581 file, unsupported revision, broken XML, DTD, no file"),
+            **READ_ERRORS,
+            415: error("Send the file as multipart/form-data"),
+        },
+    )
+    def post(self, request: Request) -> Response:
+        upload = request.FILES.get("file")
+        if upload is None:
+            raise InvalidInput(
+                "Send the design file as multipart form field 'file'.",
+                problems=[
+                    {
+                        "field": "file",
+                        "value": None,
+                        "problem": "missing",
+                        "allowed": "an IPC-2581 XML file, revision B, B1 or C",
+                    }
+                ],
+            )
+        result = services.import_design(upload, name=upload.name or "", size=upload.size)
+        return Response(result.as_dict())

@@ -76,3 +76,31 @@ class PreviewSerializer(serializers.Serializer):
     warnings = serializers.ListField(child=serializers.CharField())
     lamination_cycles = serializers.IntegerField(required=False)
     aspect_ratio = serializers.FloatField(required=False)
+
+
+class DesignImportRequestSerializer(serializers.Serializer):
+    file = serializers.FileField(help_text="The IPC-2581 XML file (revision B, B1 or C)")
+
+
+class DesignImportSourceSerializer(serializers.Serializer):
+    revision = serializers.CharField()
+    units = serializers.CharField()
+    exporter = serializers.CharField(allow_null=True)
+    stackup = serializers.CharField(required=False, help_text="The stackup the spec was read from")
+    thickness_basis = serializers.CharField(
+        required=False, help_text="'over mask' or 'over metal' (or as the file states it)"
+    )
+    stated_thickness_mm = serializers.FloatField(required=False)
+    microvia_rule = serializers.CharField(required=False)
+    board_step = serializers.CharField(required=False)
+    panel = serializers.DictField(required=False)
+    from_file = serializers.ListField(child=serializers.CharField())
+
+
+class DesignImportSerializer(serializers.Serializer):
+    """The draft spec holds only what the file states; `to_fill` names the rest."""
+
+    spec = serializers.DictField(help_text="Build spec keys stated by the file")
+    to_fill = serializers.ListField(child=serializers.CharField())
+    warnings = serializers.ListField(child=serializers.CharField())
+    source = DesignImportSourceSerializer()

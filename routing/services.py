@@ -6,14 +6,14 @@ output, enforces who may release, and keeps released revisions immutable.
 
 from __future__ import annotations
 
-from typing import Any
+from typing import IO, Any
 
 from django.db import transaction
 from django.utils import timezone
 
 from routing.builder import build as builder
+from routing.builder import design_import, render
 from routing.builder import overrides as overrides_core
-from routing.builder import render
 from routing.builder import spec as spec_core
 from routing.builder.library import ProcessLibrary
 from routing.models import ProcessLibraryVersion, RoutingRevision, RoutingStep
@@ -88,6 +88,36 @@ def _override(raw: Any) -> overrides_core.Override:
         reason=str(raw.get("reason") or ""),
         approved_by=raw.get("approved_by"),
     )
+
+
+#: Largest design file accepted (the import streams, so this bounds upload time, not memory).
+MAX_DESIGN_FILE_BYTES = 150 * 1024 * 1024
+
+
+def import_design(
+    source: str | IO[bytes], *, name: str = "", size: int | None = None
+) -> design_import.ImportResult:
+    """Read an IPC-2581 file into a draft build spec, with what to fill in; nothing is saved.
+
+    A file that is not IPC-2581 (or an unsupported revision, a DTD, broken XML) is an
+    InvalidInput naming what was found and what is allowed.
+    """
+    label = name or "the file"
+    allowed = "an IPC-2581 XML file, revision " + ", ".join(design_import.SUPPORTED_REVISIONS)
+    if size is not None and size > MAX_DESIGN_FILE_BYTES:
+        raise InvalidInput(
+            f"{label} is {size / 1e6:.0f} MB; design files up to "
+            f"{MAX_DESIGN_FILE_BYTES / 1e6:.0f} MB are imported.",
+            problems=[{"field": "file", "value": name, "problem": "too large", "allowed": allowed}],
+        )
+    try:
+        design = design_import.read_design(source)
+    except design_import.DesignFileError as exc:
+        raise InvalidInput(
+            f"{label} cannot be imported: {exc}.",
+            problems=[{"field": "file", "value": name, "problem": str(exc), "allowed": allowed}],
+        ) from exc
+    return design_import.import_design(design)
 
 
 def _require_role(person: Person, role: str, what: str) -> None:

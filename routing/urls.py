@@ -9,6 +9,7 @@ app_name = "routing"
 urlpatterns = [
     path("", views.index, name="index"),
     path("preview/", views.preview, name="preview"),
+    path("import-design/", views.import_design, name="import_design"),
     path("part-revisions/<int:part_revision_id>/draft/", views.create_draft, name="draft"),
     path("revisions/<int:pk>/", views.revision, name="revision"),
     path("revisions/<int:pk>/release/", views.release, name="release"),

@@ -14,10 +14,12 @@ from django.contrib.auth.decorators import login_required
 from django.core.exceptions import PermissionDenied
 from django.http import HttpRequest, HttpResponse
 from django.shortcuts import get_object_or_404, redirect, render
+from django.utils.safestring import mark_safe
 from django.views.decorators.http import require_http_methods, require_POST
 
 from routing import services
 from routing.api import EXAMPLE_SPEC, split_preview_body
+from routing.builder.design_import import ImportResult, cross_section_svg
 from routing.models import RoutingRevision
 from shopfloor.errors import DomainError
 from shopfloor.floor.permissions import READ_ROLES, roles_of
@@ -84,6 +86,80 @@ def preview(request: HttpRequest) -> HttpResponse:
             status = 400
     template = "engineering/preview.html#panel" if request.htmx else "engineering/preview.html"
     return render(request, template, context, status=status)
+
+
+@login_required
+@require_http_methods(["GET", "POST"])
+def import_design(request: HttpRequest) -> HttpResponse:
+    """Upload an IPC-2581 file; show its draft spec in the preview page to fill in."""
+    roles = _require_reader(request)
+    if not roles & CHANGE_ROLES:
+        raise PermissionDenied("Only process engineers import design files.")
+    if request.method == "GET":
+        return render(request, "engineering/import_design.html", {})
+    upload = request.FILES.get("file")
+    if upload is None:
+        return render(
+            request,
+            "engineering/import_design.html",
+            {"error": "Choose an IPC-2581 file (.xml, revision B, B1 or C) to import."},
+            status=400,
+        )
+    name = upload.name or "the file"
+    try:
+        result = services.import_design(upload, name=name, size=upload.size)
+    except DomainError as exc:
+        return render(
+            request,
+            "engineering/import_design.html",
+            {"error": exc.detail, "file_name": name},
+            status=exc.status,
+        )
+    context: dict[str, Any] = {
+        "spec_text": json.dumps(result.draft(), indent=2),
+        "result": None,
+        "error": "",
+        "problems": [],
+        "design_import": _import_shown(result, name),
+    }
+    return render(request, "engineering/preview.html", context)
+
+
+def _import_shown(result: ImportResult, name: str) -> dict[str, Any]:
+    """What the import panel shows: each field marked as from the file or to fill in."""
+    draft = result.draft()
+    fields = []
+    for key, value in draft.items():
+        if key == "stackup":
+            value = f"{len(value)} rows (see the cross-section)"
+        if isinstance(value, dict):
+            for sub, sub_value in value.items():
+                path = f"{key}.{sub}"
+                fields.append(_field(path, sub_value, result))
+            continue
+        fields.append(_field(key, value, result))
+    return {
+        "name": name,
+        "source": result.source,
+        "to_fill": result.to_fill,
+        "warnings": result.warnings,
+        "fields": fields,
+        "vias": result.vias,
+        "svg": mark_safe(cross_section_svg(result, f"Stack-up of {name}")),  # noqa: S308 - every text in it is escaped by the builder
+    }
+
+
+def _field(path: str, value: Any, result: ImportResult) -> dict[str, Any]:
+    if path in result.to_fill:
+        origin = "to_fill"
+    elif path in result.from_file or path.split(".")[0] in result.from_file:
+        origin = "file"
+    else:
+        origin = "default"
+    shown = value if isinstance(value, str) else json.dumps(value)
+    if path == "vias":
+        shown = ", ".join(f"L{v['from']}-L{v['to']} {v['kind']} {v['drill']}" for v in value)
+    return {"path": path, "value": shown, "origin": origin}
 
 
 def _shown(problems: list[dict[str, Any]]) -> list[dict[str, Any]]:

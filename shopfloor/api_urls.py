@@ -7,6 +7,11 @@ from shopfloor.floor import api as floor_api
 
 urlpatterns = [
     path("routing/preview/", routing_api.PreviewView.as_view(), name="api-routing-preview"),
+    path(
+        "routing/import-design/",
+        routing_api.ImportDesignView.as_view(),
+        name="api-routing-import-design",
+    ),
     path("readings/", floor_api.ReadingCreateView.as_view(), name="api-readings"),
     path(
         "readings/<int:pk>/correct/",

@@ -8,12 +8,13 @@ the file does not state ("to fill in") and warns about what looks wrong; `svg` d
 the stack-up as a cross-section.
 """
 
-from .mapping import ImportResult, import_design, missing_fields
+from .mapping import TO_FILL_MARK, ImportResult, import_design, missing_fields
 from .reader import SUPPORTED_REVISIONS, Design, DesignFileError, read_design
 from .svg import cross_section_svg
 
 __all__ = [
     "SUPPORTED_REVISIONS",
+    "TO_FILL_MARK",
     "Design",
     "DesignFileError",
     "ImportResult",

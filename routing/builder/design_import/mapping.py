@@ -43,6 +43,7 @@ from .reader import Design, HoleStats, Stackup, StackupLayer, Step
 __all__ = [
     "MICROVIA_MAX_DEPTH_MM",
     "MICROVIA_RULE",
+    "TO_FILL_MARK",
     "ImportResult",
     "Row",
     "ViaSpan",
@@ -96,6 +97,28 @@ FINISH_TYPES: Final[dict[str, str]] = {
     "NONE": "none",
 }
 
+#: What a to-fill field holds in the draft a person edits: the validator refuses it (with
+#: the allowed values beside it), so the draft cannot be drafted or released until filled.
+TO_FILL_MARK: Final = "(to fill in)"
+#: Key order of the draft a person edits (the README's order).
+DRAFT_ORDER: Final = (
+    "layers",
+    "ipc_class",
+    "board_thickness_mm",
+    "outer_copper_base_um",
+    "inner_copper_um",
+    "finish",
+    "hard_gold_fingers",
+    "solder_mask",
+    "legend",
+    "profile",
+    "electrical_test",
+    "min_hole_mm",
+    "outline",
+    "vias",
+    "stackup",
+)
+
 ALWAYS_TO_FILL: Final = ("finish", "ipc_class", "solder_mask.colour", "profile", "electrical_test")
 
 _PREPREG_WORDS = re.compile(r"PREPREG|BOND\s*PLY|(^|[^A-Z])PP([^A-Z]|$)")
@@ -144,6 +167,23 @@ class ImportResult:
     rows: list[Row] = field(default_factory=list)
     vias: list[ViaSpan] = field(default_factory=list)
     other_stackups: list[str] = field(default_factory=list)
+
+    def draft(self) -> dict[str, Any]:
+        """The spec with every to-fill field present as TO_FILL_MARK, in the README order.
+
+        This is what the engineer edits: each mark must be replaced before the validator
+        accepts the spec, so nothing unfilled can become a routing.
+        """
+        spec: dict[str, Any] = {k: v for k, v in self.spec.items()}
+        for path in self.to_fill:
+            head, _, tail = path.partition(".")
+            if tail:
+                spec[head] = {**spec.get(head, {}), tail: TO_FILL_MARK}
+            else:
+                spec[head] = TO_FILL_MARK
+        ordered: dict[str, Any] = {k: spec[k] for k in DRAFT_ORDER if k in spec}
+        ordered.update({k: v for k, v in spec.items() if k not in ordered})
+        return ordered
 
     def as_dict(self) -> dict[str, Any]:
         return {

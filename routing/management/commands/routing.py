@@ -1,7 +1,8 @@
 """`manage.py routing preview SPEC.json`: the routing a build spec would get, nothing saved.
+`manage.py routing import-design FILE.xml`: the draft build spec an IPC-2581 file gives.
 
-Exit codes: 0 preview printed; 2 the spec (or the file) has problems, listed on stderr
-(as JSON with --format json), never a traceback.
+Exit codes: 0 preview (or import) printed; 2 the spec or the file has problems, listed on
+stderr (as JSON with --format json), never a traceback.
 """
 
 from __future__ import annotations
@@ -41,8 +42,23 @@ class Command(BaseCommand):
             help="json: the preview contract; text: a table for people",
         )
 
+        design = sub.add_parser(
+            "import-design",
+            help="Read an IPC-2581 design file (revision B, B1 or C) into a draft build spec",
+        )
+        design.add_argument("file", help="Path to the IPC-2581 XML file")
+        design.add_argument(
+            "--format",
+            choices=["json", "text"],
+            default="text",
+            help='json: {"spec", "to_fill", "warnings", "source"}; text: a summary for people',
+        )
+
     def handle(self, *args: Any, **options: Any) -> None:
         fmt = options["format"]
+        if options["action"] == "import-design":
+            self._import_design(options["file"], fmt)
+            return
         try:
             spec, overrides = self._read(options["spec"])
             try:
@@ -56,6 +72,22 @@ class Command(BaseCommand):
             self.stdout.write(json.dumps(contract, indent=2, sort_keys=False))
         else:
             self.stdout.write(_text(spec, overrides), ending="")
+
+    def _import_design(self, where: str, fmt: str) -> None:
+        """Print the draft spec of a design file; nothing is saved."""
+        try:
+            with open(where, "rb") as handle:
+                result = services.import_design(handle, name=where)
+        except OSError as exc:
+            self._fail(BadInput(f"Cannot read {where}: {exc.strerror or exc}"), fmt)
+            return
+        except DomainError as exc:
+            self._fail(BadInput(exc.detail, exc.problems), fmt)
+            return
+        if fmt == "json":
+            self.stdout.write(json.dumps(result.as_dict(), indent=2))
+        else:
+            self.stdout.write(_import_text(result), ending="")
 
     def _read(self, where: str) -> tuple[Any, list[dict[str, Any]]]:
         try:
@@ -91,6 +123,47 @@ class Command(BaseCommand):
                     line += f"; allowed: {shown}"
                 self.stderr.write(line)
         sys.exit(EXIT_BAD_INPUT)
+
+
+def _import_text(result: Any) -> str:
+    """A design import for people: the spec, what came from the file, what to fill in."""
+    src = result.source
+    exporter = src.get("exporter") or "not stated"
+    lines = [
+        f"IPC-2581 revision {src['revision']}, units {src['units']}, exporter: {exporter}",
+        "",
+        "Build spec (from the file):",
+    ]
+    for key, value in result.spec.items():
+        if key == "stackup":
+            continue
+        lines.append(f"  {key}: {json.dumps(value)}")
+    basis = src.get("thickness_basis")
+    if basis:
+        lines.append(f"  board thickness is measured {basis}")
+    if "stackup" in result.spec:
+        lines.append("Stack-up, top to bottom:")
+        for row in result.spec["stackup"]:
+            material = f" ({row['material']})" if row.get("material") else ""
+            lines.append(f"  {row['kind']:<8} {row['thickness_um']:>8g} um{material}")
+    if result.vias:
+        lines.append("Vias:")
+        for v in result.vias:
+            lines.append(
+                f"  L{v.from_layer}-L{v.to_layer} {v.kind} {v.drill}: {v.holes} holes, "
+                f"smallest {v.min_hole_mm} mm; {v.reason} [{v.source}]"
+            )
+        lines.append(f"  microvia rule: {src.get('microvia_rule', '')}")
+    panel = src.get("panel")
+    if panel:
+        lines.append(
+            f"Panel {panel['step']}: {panel['width_mm']} x {panel['height_mm']} mm, "
+            f"{panel['boards']} boards"
+        )
+    lines.append("To fill in: " + (", ".join(result.to_fill) or "nothing"))
+    for w in result.warnings:
+        lines.append(f"Warning: {w}")
+    return "\n".join(lines) + "\n"
 
 
 def _refuse_constant(name: str) -> Any:
