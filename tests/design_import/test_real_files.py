@@ -84,7 +84,8 @@ def test_tc9_six_layer_rev_c_millimetres(shared_files):
     assert spec["solder_mask"] == {"sides": "both"}
     # Step test9 Profile: x -15.8750..48.2600, y -15.2407..48.2600.
     assert spec["outline"] == {"width_mm": 64.13, "height_mm": 63.5}
-    assert r.to_fill == ["finish", "ipc_class", "solder_mask.colour", "profile", "electrical_test"]
+    # README order; nothing in the file states finish, class, mask colour, profile, e-test.
+    assert r.to_fill == ["ipc_class", "finish", "solder_mask.colour", "profile", "electrical_test"]
     built = parse_spec(_filled(spec))
     assert built.lamination.cycles == 1
 

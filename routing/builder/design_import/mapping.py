@@ -539,7 +539,7 @@ def import_design(design: Design) -> ImportResult:
     source["from_file"] = list(from_file)
     return ImportResult(
         spec=spec,
-        to_fill=_unique(to_fill),
+        to_fill=sorted(_unique(to_fill), key=lambda f: DRAFT_ORDER.index(f.split(".")[0])),
         warnings=warnings,
         source=source,
         from_file=from_file,

@@ -354,6 +354,9 @@ class _Reader:
 
     def spec_start(self, el: etree._Element, tag: str, parent: str) -> None:
         assert self.spec is not None
+        if tag == "ColorTerm":
+            self.spec.colour = (el.get("name") or "").strip()
+            return
         if parent == "Spec":
             self.spec_child = (tag, (el.get("type") or "").upper())
             if tag == "Impedance":
@@ -369,8 +372,6 @@ class _Reader:
                 self.spec.impedance_ohm = self.number(el, "value")
         elif tag == "Finish" and kind == "SurfaceFinish":
             self.spec.finish = (el.get("type") or "").strip()
-        elif tag == "ColorTerm":
-            self.spec.colour = (el.get("name") or "").strip()
 
     def step_start(self, el: etree._Element, tag: str, parent: str) -> None:
         step = self.step
