@@ -54,6 +54,7 @@ PEOPLE = (A, A, A, A, A, D, D, A)  # every person with a role; no instruments, n
 FLOOR_WORK = (A, A, D, D, A, D, D, D)  # work a step at its work center
 SUP_ADMIN = (D, A, D, D, A, D, D, D)  # run the floor: reorder, release, unlock
 QUALITY = (D, D, D, A, D, D, D, D)  # disposition NCRs, set SPC limits
+ENGINEERING = (D, D, A, D, A, D, D, D)  # import design files (process engineering's tool)
 
 
 @dataclass(frozen=True)
@@ -90,6 +91,12 @@ ROWS: dict[str, Row] = {
         lambda c: "/api/v1/routing/preview/",
         (A, A, A, A, A, D, D, A),
         body=lambda c: c["spec"],
+    ),
+    "POST routing import design": Row(
+        "POST",
+        lambda c: "/api/v1/routing/import-design/",
+        ENGINEERING,
+        body=lambda c: {},
     ),
     "POST reading": Row(
         "POST", lambda c: "/api/v1/readings/", (A, A, D, D, A, A, D, D), body=_reading
@@ -131,6 +138,12 @@ ROWS: dict[str, Row] = {
         (A, A, A, A, A, D, D, A),
         api=False,
         body=lambda c: {"spec": "{}"},
+    ),
+    "GET engineering import design": Row(
+        "GET", lambda c: "/engineering/import-design/", ENGINEERING, api=False
+    ),
+    "POST engineering import design": Row(
+        "POST", lambda c: "/engineering/import-design/", ENGINEERING, api=False, body=lambda c: {}
     ),
     "GET routing revision": Row(
         "GET",
