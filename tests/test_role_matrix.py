@@ -25,12 +25,13 @@ from dataclasses import dataclass
 from typing import Any
 
 import pytest
+from django.contrib.auth.models import User
 from django.test import Client
 from django.urls import Resolver404, resolve
 from django.utils import timezone
 from rest_framework.test import APIClient
 
-from shopfloor.plant.models import MaterialLot, Panel, Person, Qualification, Role
+from shopfloor.plant.models import MaterialLot, Panel, Person, Qualification, Role, WorkCenter
 from shopfloor.quality import services as quality_services
 from shopfloor.quality.models import Nonconformance, SeriesState
 from tests.api.helpers import advance_to, issue_token
@@ -48,8 +49,15 @@ CALLERS = (
     "instrument",
     "anonymous",
     "other_operator",
+    "superuser",
+    "far_operator",
 )
 A, D = True, False  # allow, deny
+# The last two columns are derived, not written in each row: a superuser outside the admin
+# group is an administrator (one rule, shopfloor.access.is_admin), so it gets the admin
+# column; an operator of a work center the lot never reached gets the other operator's
+# column, except on rows that read this lot (Row.reads_lot), which it may not read.
+DERIVED = ("superuser", "far_operator")
 PEOPLE = (A, A, A, A, A, D, D, A)  # every person with a role; no instruments, no anonymous
 FLOOR_WORK = (A, A, D, D, A, D, D, D)  # work a step at its work center
 SUP_ADMIN = (D, A, D, D, A, D, D, D)  # run the floor: reorder, release, unlock
@@ -65,6 +73,12 @@ class Row:
     body: Callable[[dict[str, Any]], dict[str, Any]] | None = None
     api: bool = True
     owned: bool = True  # every row is decided: unexpected allows and refusals both fail
+    reads_lot: bool = False  # shows the matrix lot (or its NCR/series): out of a far scope
+
+    def expected(self) -> tuple[bool, ...]:
+        by_caller = dict(zip(CALLERS[: -len(DERIVED)], self.expect, strict=True))
+        far = False if self.reads_lot else by_caller["other_operator"]
+        return (*self.expect, by_caller["admin"], far)
 
 
 def _reading(ctx):
@@ -81,10 +95,16 @@ def _reading(ctx):
 ROWS: dict[str, Row] = {
     # --- API ---------------------------------------------------- op sup pe qe adm ins ano oth
     "GET lot status": Row(
-        "GET", lambda c: f"/api/v1/lots/{c['lot'].code}/", (A, A, A, A, A, D, D, A)
+        "GET",
+        lambda c: f"/api/v1/lots/{c['lot'].code}/",
+        (A, A, A, A, A, D, D, A),
+        reads_lot=True,
     ),
     "GET lot windows": Row(
-        "GET", lambda c: f"/api/v1/lots/{c['lot'].code}/windows/", (A, A, A, A, A, D, D, A)
+        "GET",
+        lambda c: f"/api/v1/lots/{c['lot'].code}/windows/",
+        (A, A, A, A, A, D, D, A),
+        reads_lot=True,
     ),
     "POST routing preview": Row(
         "POST",
@@ -185,9 +205,15 @@ ROWS: dict[str, Row] = {
         api=False,
     ),
     "GET floor scan": Row("GET", lambda c: f"/floor/scan/?code={c['lot'].code}", PEOPLE, api=False),
-    "GET floor lot page": Row("GET", lambda c: f"/floor/lots/{c['lot'].code}/", PEOPLE, api=False),
+    "GET floor lot page": Row(
+        "GET", lambda c: f"/floor/lots/{c['lot'].code}/", PEOPLE, api=False, reads_lot=True
+    ),
     "GET traveller PDF": Row(
-        "GET", lambda c: f"/floor/lots/{c['lot'].code}/traveller.pdf", PEOPLE, api=False
+        "GET",
+        lambda c: f"/floor/lots/{c['lot'].code}/traveller.pdf",
+        PEOPLE,
+        api=False,
+        reads_lot=True,
     ),
     "POST tablet record reading": Row(
         "POST",
@@ -253,26 +279,50 @@ ROWS: dict[str, Row] = {
     "GET quality search": Row(
         "GET", lambda c: f"/quality/search/?lot={c['lot'].code}", PEOPLE, api=False
     ),
-    "GET quality lot": Row("GET", lambda c: f"/quality/lots/{c['lot'].code}/", PEOPLE, api=False),
+    "GET quality lot": Row(
+        "GET", lambda c: f"/quality/lots/{c['lot'].code}/", PEOPLE, api=False, reads_lot=True
+    ),
     "GET quality lot CSV": Row(
-        "GET", lambda c: f"/quality/lots/{c['lot'].code}/readings.csv", PEOPLE, api=False
+        "GET",
+        lambda c: f"/quality/lots/{c['lot'].code}/readings.csv",
+        PEOPLE,
+        api=False,
+        reads_lot=True,
     ),
     "GET quality lot PDF": Row(
-        "GET", lambda c: f"/quality/lots/{c['lot'].code}/record.pdf", PEOPLE, api=False
+        "GET",
+        lambda c: f"/quality/lots/{c['lot'].code}/record.pdf",
+        PEOPLE,
+        api=False,
+        reads_lot=True,
     ),
     "GET quality lot JSON": Row(
-        "GET", lambda c: f"/quality/api/lots/{c['lot'].code}/history.json", PEOPLE, api=False
+        "GET",
+        lambda c: f"/quality/api/lots/{c['lot'].code}/history.json",
+        PEOPLE,
+        api=False,
+        reads_lot=True,
     ),
-    "GET quality job": Row("GET", lambda c: f"/quality/jobs/{c['job'].number}/", PEOPLE, api=False),
+    "GET quality job": Row(
+        "GET", lambda c: f"/quality/jobs/{c['job'].number}/", PEOPLE, api=False, reads_lot=True
+    ),
     "GET quality panel": Row(
-        "GET", lambda c: f"/quality/panels/{c['panel'].serial}/", PEOPLE, api=False
+        "GET",
+        lambda c: f"/quality/panels/{c['panel'].serial}/",
+        PEOPLE,
+        api=False,
+        reads_lot=True,
     ),
     "GET quality material": Row(
         "GET", lambda c: f"/quality/materials/{c['material'].code}/", PEOPLE, api=False
     ),
     "GET quality SPC": Row("GET", lambda c: "/quality/spc/", PEOPLE, api=False),
     "GET quality SPC series": Row(  # a series of another work center is not the operator's
-        "GET", lambda c: f"/quality/spc/{c['series'].key}/", (A, A, A, A, A, D, D, D), api=False
+        "GET",
+        lambda c: f"/quality/spc/{c['series'].key}/",
+        (A, A, A, A, A, D, D, D),
+        api=False,
+        reads_lot=True,
     ),
     "POST SPC fix limits": Row(
         "POST",
@@ -288,7 +338,9 @@ ROWS: dict[str, Row] = {
         api=False,
         body=lambda c: {"action": "recompute", "start": "2020-01-01", "end": "2020-01-02"},
     ),
-    "GET NCR page": Row("GET", lambda c: f"/quality/ncrs/{c['ncr'].number}/", PEOPLE, api=False),
+    "GET NCR page": Row(
+        "GET", lambda c: f"/quality/ncrs/{c['ncr'].number}/", PEOPLE, api=False, reads_lot=True
+    ),
     "POST NCR disposition": Row(
         "POST",
         lambda c: f"/quality/ncrs/{c['ncr'].number}/",
@@ -335,7 +387,24 @@ def world(floor):
     Person.objects.filter(pk=locked.pk).update(locked_at=timezone.now(), pin_failures=5)
     from tests.factories import SPEC_4L_ENIG
 
-    people = {**personas, "admin": admin, "other_operator": other}
+    # A superuser outside every group (the one "is admin" rule must treat it as admin), and
+    # an operator of a work center this routing never visits (reads none of its lots).
+    root = make_person(None, "1009", "Rory Root")
+    User.objects.filter(pk=root.user_id).update(is_superuser=True, is_staff=True)
+    root.user.refresh_from_db()
+    for wc in floor.work_centers.values():
+        Qualification.objects.create(
+            person=root, work_center=wc, valid_until=timezone.localdate() + dt.timedelta(days=30)
+        )
+    far_center = WorkCenter.objects.create(code="WC-FAR", name="Far away bench")
+    far = make_person(Role.OPERATOR, "1010", "Fen Faraway", work_centers=[far_center])
+    people = {
+        **personas,
+        "admin": admin,
+        "other_operator": other,
+        "superuser": root,
+        "far_operator": far,
+    }
     return {
         "lot": floor.lot,
         "step": step,
@@ -381,7 +450,7 @@ def test_role_matrix(world):
             resolve(url.split("?")[0])
         except Resolver404:
             continue  # page not built yet
-        for caller, expected in zip(CALLERS, row.expect, strict=True):
+        for caller, expected in zip(CALLERS, row.expected(), strict=True):
             client = _client(caller, world, row.api)
             body = row.body(world) if row.body else None
             if row.method == "GET":

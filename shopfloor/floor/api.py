@@ -21,6 +21,7 @@ from rest_framework.request import Request
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
+from shopfloor.access import require_lot_readable
 from shopfloor.errors import InvalidInput
 from shopfloor.floor import idempotency, services
 from shopfloor.floor.permissions import (
@@ -360,6 +361,7 @@ class LotStatusView(APIView):
     )
     def get(self, request: Request, code: str) -> Response:
         lot = services.find_lot(code)
+        require_lot_readable(request.user, lot)  # the one read-scope rule (shopfloor.access)
         steps = list(
             lot.steps.select_related("work_center", "started_by", "completed_by").order_by(
                 "position"
@@ -379,6 +381,7 @@ class LotWindowsView(APIView):
     )
     def get(self, request: Request, code: str) -> Response:
         lot = services.find_lot(code)
+        require_lot_readable(request.user, lot)  # the one read-scope rule (shopfloor.access)
         step = services.current_step(lot)
         windows = [window_dict(m) for m in (step.plan if step else [])]
         return Response(

@@ -1,6 +1,8 @@
 """Who may call which API endpoint, in one place (the role matrix test reads the same rules).
 
-Roles are Django groups (shopfloor.plant.models.Role); a superuser counts as admin.
+Roles are Django groups (shopfloor.plant.models.Role); a superuser counts as admin (the
+one rule, `shopfloor.access.roles_of`). Which lots a caller may *read* is decided by
+`shopfloor.access` too (`require_lot_readable`), for the API exactly as for the pages.
 Instrument tokens (request.auth is an InstrumentToken) may only post readings, and only
 at their own work center. Data-dependent checks (the lot step's work center) are the
 `check_*` helpers below, called by the API views before the one service call.
@@ -13,25 +15,20 @@ from typing import Any
 from rest_framework.permissions import BasePermission
 from rest_framework.request import Request
 
+from shopfloor.access import READ_ROLES as _READ_ROLES
+from shopfloor.access import roles_of
 from shopfloor.errors import NotAllowed
 from shopfloor.floor.models import InstrumentToken, LotStep
 
 #: Roles that work lots on the floor (start, pause, complete, record readings).
 FLOOR_ROLES = frozenset({"operator", "supervisor", "admin"})
-#: Roles that may read lot status, windows and routing previews.
-READ_ROLES = frozenset({"operator", "supervisor", "process_engineer", "quality_engineer", "admin"})
+#: Roles that may read lot status, windows and routing previews (lots: within their scope).
+READ_ROLES: frozenset[str] = _READ_ROLES
 #: Operators are limited to the work centers on their badge; these roles are not.
 ANY_WORK_CENTER_ROLES = frozenset({"supervisor", "admin"})
 
 
-def roles_of(user: Any) -> set[str]:
-    """The role names of a user (superusers count as admin)."""
-    if user is None or not getattr(user, "is_authenticated", False):
-        return set()
-    names = set(user.groups.values_list("name", flat=True))
-    if getattr(user, "is_superuser", False):
-        names.add("admin")
-    return names
+__all__ = ["READ_ROLES", "roles_of"]
 
 
 def is_instrument(request: Request) -> bool:

@@ -141,7 +141,7 @@ ANYWHERE_ROLES = ("supervisor", "admin")  # may record and sign at any work cent
 def check_assigned(person: Person, work_center_id: int) -> None:
     """Readings are taken by people assigned to the work center (supervisors anywhere)."""
     if person.user.is_superuser:
-        return
+        return  # an administrator (shopfloor.access.is_admin); the group is in ANYWHERE_ROLES
     # One query: assigned to the work center, or holding a role that works anywhere.
     allowed = (
         Person.objects.filter(pk=person.pk)

@@ -22,6 +22,7 @@ from django.shortcuts import redirect, render
 from django.urls import reverse
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
+from shopfloor import access as read_scope
 from shopfloor import units
 from shopfloor.errors import DomainError, InvalidInput, NotFound
 from shopfloor.floor import forms, idempotency, services, traveller
@@ -308,6 +309,15 @@ def _missing_lot(request: HttpRequest, code: str) -> HttpResponse:
     )
 
 
+def _require_readable(request: HttpRequest, lot: Lot) -> None:
+    """The one read-scope rule (shopfloor.access): operators read only the lots that have
+    been at their work centers; the 403 page says why."""
+    try:
+        read_scope.require_lot_readable(request.user, lot)
+    except DomainError as exc:
+        raise PermissionDenied(exc.detail) from exc
+
+
 @login_required
 @require_GET
 def lot_page(request: HttpRequest, code: str) -> HttpResponse:
@@ -315,6 +325,7 @@ def lot_page(request: HttpRequest, code: str) -> HttpResponse:
     lot = _lot_or_none(code)
     if lot is None:
         return _missing_lot(request, code)
+    _require_readable(request, lot)
     return render(request, "floor/lot.html", _lot_context(lot, person))
 
 
@@ -325,6 +336,7 @@ def traveller_pdf(request: HttpRequest, code: str) -> HttpResponse:
     lot = _lot_or_none(code)
     if lot is None:
         return _missing_lot(request, code)
+    _require_readable(request, lot)
     response = HttpResponse(traveller.traveller_pdf(lot), content_type="application/pdf")
     response["Content-Disposition"] = f'inline; filename="traveller-{lot.code}.pdf"'
     return response
@@ -367,7 +379,8 @@ def _require_assigned(person: Person, step: LotStep) -> None:
 def _refuse_page(
     request: HttpRequest, person: Person, lot: Lot | None, error: str, status: int
 ) -> HttpResponse:
-    if lot is None:
+    if lot is None or not read_scope.lot_visible(read_scope.scope_for(person.user), lot):
+        # Never show a lot's traveller to someone outside its read scope, even in a refusal.
         return render(request, "floor/scan.html", {"error": error}, status=status)
     context = _lot_context(lot, person)
     context["error"] = error
@@ -566,7 +579,7 @@ def unlock_badge(request: HttpRequest, person_id: int) -> HttpResponse:
     try:
         scope = access.scope_for(request.user)
         person = access.access_locked_person(scope, person_id)
-        services.unlock_person(by=scope.person, person_id=person.pk)
+        services.unlock_person(by=scope.actor, person_id=person.pk)
     except DomainError as exc:
         return _domain_page(request, exc)
     messages.success(request, f"Badge {person.badge_number} ({person.printed_name}) unlocked.")

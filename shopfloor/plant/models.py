@@ -177,7 +177,10 @@ class Person(models.Model):
         return self.locked_at is not None
 
     def roles(self) -> set[str]:
-        return set(self.user.groups.values_list("name", flat=True))
+        """Role names; a superuser counts as admin (the one rule, shopfloor.access)."""
+        from shopfloor.access import roles_of
+
+        return set(roles_of(self.user))
 
 
 class Qualification(models.Model):

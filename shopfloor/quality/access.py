@@ -1,91 +1,46 @@
-"""Who may read what on the board and the quality pages (one place for read scoping).
+"""Record look-ups for the board and quality pages, each through the one read-scope rule.
 
-Quality engineers, supervisors, process engineers and administrators read everything.
-Operators read the lots that are at, or have been at, one of their own work centers
-(Person.work_centers): a step there has arrived. Anyone else is refused with a reason,
-so a person who lands on a quality page without a role learns whom to ask.
+The rules themselves (who is an administrator, which lots a role reads) live in
+`shopfloor.access`; this module finds an NCR, a series or a locked badge and asks those
+rules before handing it to a view. The names re-exported below keep older imports working.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from typing import Any
 
-from django.db.models import Exists, OuterRef, QuerySet
+from django.db.models import QuerySet
 
-from shopfloor.errors import NotAllowed
-from shopfloor.floor.models import LotStep
-from shopfloor.plant.models import Lot, Person, Role
-
-FULL_READ_ROLES = frozenset(
-    {Role.SUPERVISOR, Role.QUALITY_ENGINEER, Role.PROCESS_ENGINEER, Role.ADMIN}
+from shopfloor.access import (
+    FULL_READ_ROLES,
+    REORDER_ROLES,
+    UNLOCK_ROLES,
+    Scope,
+    is_admin,
+    lot_visible,
+    require_lot_visible,
+    scope_for,
+    visible_lots,
 )
-REORDER_ROLES = frozenset({Role.SUPERVISOR, Role.ADMIN})
+from shopfloor.errors import NotAllowed
+from shopfloor.plant.models import Person
 
-
-@dataclass(frozen=True)
-class Scope:
-    """What one reader may see: everything, or the lots at a set of work centers."""
-
-    person: Person
-    roles: frozenset[str]
-    sees_all: bool
-    work_center_ids: frozenset[int]
-
-    def sees_work_center(self, work_center_id: int | None) -> bool:
-        return self.sees_all or (work_center_id in self.work_center_ids)
-
-    @property
-    def may_reorder(self) -> bool:
-        return bool(self.roles & REORDER_ROLES)
-
-
-def scope_for(user: Any) -> Scope:
-    """The read scope of a signed-in user; NotAllowed (403) with the reason otherwise."""
-    if user is None or not getattr(user, "is_authenticated", False):
-        raise NotAllowed("Sign in with your badge to see the board and quality records.")
-    try:
-        person = user.person  # cached on the user, so templates reuse it without a query
-    except Person.DoesNotExist:
-        person = None
-    if person is None:
-        raise NotAllowed(
-            "This account has no badge on file, so it cannot see shop-floor records. "
-            "Ask an administrator to add your badge and role."
-        )
-    roles = frozenset(user.groups.values_list("name", flat=True))
-    if roles & FULL_READ_ROLES:
-        return Scope(person, roles, True, frozenset())
-    if Role.OPERATOR in roles:
-        centers = frozenset(person.work_centers.values_list("pk", flat=True))
-        return Scope(person, roles, False, centers)
-    raise NotAllowed(
-        "Your account has no shop-floor role (operator, supervisor, process engineer, quality "
-        "engineer or administrator), so lot records are not shown. Ask an administrator to "
-        "give you a role."
-    )
-
-
-def visible_lots(scope: Scope, lots: QuerySet[Lot] | None = None) -> QuerySet[Lot]:
-    """Lots the reader may see: all of them, or those that reached one of their centers."""
-    qs = lots if lots is not None else Lot.objects.all()
-    if scope.sees_all:
-        return qs
-    reached = LotStep.objects.filter(
-        lot=OuterRef("pk"), work_center_id__in=scope.work_center_ids, arrived_at__isnull=False
-    )
-    return qs.filter(Exists(reached))
-
-
-def require_lot_visible(scope: Scope, lot: Lot) -> None:
-    """Refuse (403) a lot outside an operator's work centers, saying why."""
-    if scope.sees_all:
-        return
-    if not visible_lots(scope, Lot.objects.filter(pk=lot.pk)).exists():
-        raise NotAllowed(
-            f"Lot {lot.code} has not been at any of your work centers. Operators see the lots "
-            "at their own work centers; ask a supervisor or quality engineer for this record."
-        )
+__all__ = [
+    "FULL_READ_ROLES",
+    "REORDER_ROLES",
+    "UNLOCK_ROLES",
+    "Scope",
+    "access_locked_person",
+    "access_ncr",
+    "access_series",
+    "is_admin",
+    "locked_badges",
+    "lot_visible",
+    "require_lot_visible",
+    "require_unlocker",
+    "scope_for",
+    "visible_lots",
+]
 
 
 def access_ncr(scope: Scope, number: str) -> Any:
@@ -127,13 +82,9 @@ def access_series(scope: Scope, key: str) -> Any:
     return series
 
 
-#: Roles that may see and unlock locked badges (the unlock service checks the same).
-UNLOCK_ROLES = frozenset({Role.SUPERVISOR, Role.ADMIN})
-
-
 def require_unlocker(scope: Scope) -> None:
     """Refuse (403) anyone but a supervisor or administrator, saying whom to ask."""
-    if not (scope.roles & UNLOCK_ROLES or scope.person.user.is_superuser):
+    if not scope.roles & UNLOCK_ROLES:
         raise NotAllowed(
             "Only a supervisor or administrator can see and unlock locked badges. Ask the "
             "shift supervisor to unlock yours."

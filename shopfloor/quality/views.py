@@ -109,14 +109,14 @@ def queue_move(request: HttpRequest, scope: Scope, work_center_id: int) -> HttpR
     step_id = _int(step_raw or request.POST.get("lot_step"))
     if step_id is None:
         return _refusal(request, InvalidInput("Pick a lot to move (lot_step is missing)."))
-    board.move_in_queue(scope.person, work_center_id, step_id, move)
+    board.move_in_queue(scope.actor, work_center_id, step_id, move)
     return redirect(reverse("quality:board") + _back_query(request))
 
 
 @require_POST
 @reader
 def queue_release(request: HttpRequest, scope: Scope, lot_step_id: int) -> HttpResponse:
-    board.release_queue_warning(scope.person, lot_step_id, request.POST.get("reason", ""))
+    board.release_queue_warning(scope.actor, lot_step_id, request.POST.get("reason", ""))
     return redirect(reverse("quality:board") + _back_query(request))
 
 
@@ -239,7 +239,7 @@ def _spc_context(scope: Scope, key: str) -> dict[str, Any]:
         "d": d,
         "chart_svg": chart_svg,
         "hist_svg": hist_svg,
-        "may_set_limits": "quality_engineer" in scope.roles,
+        "may_set_limits": "quality_engineer" in scope.roles and scope.person is not None,
         "rule_sets": list(services.RULESET_NAMES.items()),
         "rules_name": services.RULESET_NAMES.get(d.rules, d.rules),
         "entered": {},
@@ -288,7 +288,7 @@ def spc_limits(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
         series = access.access_series(scope, key)
         if action == "fix":
             services.fix_limits(
-                scope.person,
+                scope.actor,
                 series.pk,
                 centre=_number(request.POST.get("centre", ""), "Centre line"),
                 ucl=_number(request.POST.get("ucl", ""), "UCL"),
@@ -297,7 +297,7 @@ def spc_limits(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
             messages.success(request, "Control limits fixed; the change is in the audit trail.")
         elif action == "recompute":
             services.recompute_limits(
-                scope.person,
+                scope.actor,
                 series.pk,
                 _site_day(request.POST.get("start", ""), "the baseline's first day", end=False),
                 _site_day(request.POST.get("end", ""), "the baseline's last day", end=True),
@@ -306,7 +306,7 @@ def spc_limits(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
                 request, "Control limits recomputed from the baseline; the change is audited."
             )
         elif action == "rules":
-            services.set_series_rules(scope.person, series.pk, request.POST.get("rules", ""))
+            services.set_series_rules(scope.actor, series.pk, request.POST.get("rules", ""))
             messages.success(request, "Run rules changed; the change is in the audit trail.")
         else:
             raise InvalidInput(f"Unknown action {action!r}; use fix, recompute or rules.")
@@ -370,7 +370,7 @@ def _ncr_context(scope: Scope, number: str) -> dict[str, Any]:
         "rework_steps": list(ncr.rework_steps.select_related("work_center").order_by("position")),
         "choices": DISPOSITION_CHOICES,
         "may_disposition": "quality_engineer" in scope.roles,
-        "signer": scope.person.printed_name,
+        "signer": scope.person.printed_name if scope.person else "",
         "entered": {},
     }
 
@@ -386,7 +386,7 @@ def ncr_page(request: HttpRequest, scope: Scope, number: str) -> HttpResponse:
     panel_ids = _panel_ids(request.POST.getlist("panels")) if choice == "scrap_some" else None
     try:
         services.disposition_ncr(
-            scope.person,
+            scope.actor,
             ncr.pk,
             "scrap" if choice in ("scrap_all", "scrap_some") else choice,
             request.POST.get("note", ""),
