@@ -59,6 +59,8 @@ MIDDLEWARE = [
     "shopfloor.middleware.DatabaseUnavailableMiddleware",
     "django.middleware.security.SecurityMiddleware",
     "django.middleware.csp.ContentSecurityPolicyMiddleware",
+    # /healthz answers here: before host validation (CommonMiddleware), sessions and auth.
+    "shopfloor.health.HealthCheckMiddleware",
     "whitenoise.middleware.WhiteNoiseMiddleware",
     "django.contrib.sessions.middleware.SessionMiddleware",
     "django.middleware.common.CommonMiddleware",
@@ -132,6 +134,8 @@ PIN_MAX_FAILURES = env_int("PIN_MAX_FAILURES", 5, minimum=1)
 SECURE_PROXY_SSL_HEADER = ("HTTP_X_FORWARDED_PROTO", "https")
 if not DEBUG:
     SECURE_SSL_REDIRECT = env_bool("SECURE_SSL_REDIRECT", True)
+    # The container healthcheck calls http://127.0.0.1:8000/healthz inside the network.
+    SECURE_REDIRECT_EXEMPT = [r"^healthz$"]
     SESSION_COOKIE_SECURE = True
     CSRF_COOKIE_SECURE = True
     SECURE_HSTS_SECONDS = env_int("SECURE_HSTS_SECONDS", 31536000)
@@ -169,11 +173,17 @@ REST_FRAMEWORK = {
     "DEFAULT_PAGINATION_CLASS": "rest_framework.pagination.LimitOffsetPagination",
     "PAGE_SIZE": 100,
 }
+API_DOCS_PUBLIC = env_bool("API_DOCS_PUBLIC", DEBUG)
 SPECTACULAR_SETTINGS = {
     "TITLE": "Shop-floor traveller API",
     "DESCRIPTION": "Routing preview, lot status, readings and step sign-off for PCB fabrication.",
     "VERSION": "1",
     "SERVE_INCLUDE_SCHEMA": False,
+    # The API description is for signed-in people and token holders unless opened on
+    # purpose (API_DOCS_PUBLIC; open by default only in development).
+    "SERVE_PERMISSIONS": ["rest_framework.permissions.AllowAny"]
+    if API_DOCS_PUBLIC
+    else ["rest_framework.permissions.IsAuthenticated"],
     # Self-hosted Swagger UI (no CDN), so the CSP can stay at 'self'.
     "SWAGGER_UI_DIST": "SIDECAR",
     "SWAGGER_UI_FAVICON_HREF": "SIDECAR",

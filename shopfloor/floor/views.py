@@ -60,7 +60,10 @@ def login_view(request: HttpRequest) -> HttpResponse:
     )
 
 
+@require_POST
 def logout_view(request: HttpRequest) -> HttpResponse:
+    """POST with the CSRF token only: a GET from another site (an image tag) must not end
+    a tablet's session."""
     logout(request)
     return redirect("floor:login")
 
