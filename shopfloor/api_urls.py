@@ -4,6 +4,7 @@ from django.urls import path
 
 from routing import api as routing_api
 from shopfloor.floor import api as floor_api
+from shopfloor.orders import api as orders_api
 
 urlpatterns = [
     path("routing/preview/", routing_api.PreviewView.as_view(), name="api-routing-preview"),
@@ -23,6 +24,10 @@ urlpatterns = [
     path(
         "steps/<int:pk>/complete/", floor_api.StepCompleteView.as_view(), name="api-step-complete"
     ),
+    path("jobs/", orders_api.JobListView.as_view(), name="api-jobs"),
+    path("jobs/<str:number>/", orders_api.JobDetailView.as_view(), name="api-job"),
+    path("jobs/<str:number>/release/", orders_api.JobReleaseView.as_view(), name="api-job-release"),
+    path("jobs/<str:number>/make-up/", orders_api.JobMakeupView.as_view(), name="api-job-makeup"),
     path("lots/<str:code>/", floor_api.LotStatusView.as_view(), name="api-lot"),
     path("lots/<str:code>/windows/", floor_api.LotWindowsView.as_view(), name="api-lot-windows"),
 ]

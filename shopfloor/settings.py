@@ -52,6 +52,7 @@ INSTALLED_APPS = [
     "shopfloor.floor",
     "shopfloor.quality",
     "shopfloor.chemistry",
+    "shopfloor.orders",
 ]
 
 MIDDLEWARE = [

@@ -14,6 +14,7 @@ urlpatterns = [
     path("admin/", admin.site.urls),
     path("floor/", include("shopfloor.floor.urls")),
     path("engineering/", include("routing.urls")),
+    path("jobs/", include("shopfloor.orders.urls")),
     path("", include("shopfloor.quality.urls")),
     path("api/v1/", include("shopfloor.api_urls")),
     path("api/schema/", SpectacularAPIView.as_view(), name="schema"),

@@ -9,12 +9,13 @@ unexpected refusals (a broken page) fail. A row whose URL does not resolve is sk
 The decisions: operators work and view at their own work centers; supervisors run the
 floor (any work center, queue order, queue-time warnings, badge unlocks); quality
 engineers disposition NCRs and manage SPC limits; process engineers read (and release
-routings); admins do everything except the quality engineer's e-signed decisions;
-instruments only post readings at their own work center; anonymous callers nothing; an
-operator of another work center may not work a lot at a work center they are not
-assigned to. Sources: shopfloor/floor/permissions.py, shopfloor/quality/access.py and the
-services (common practice for controlled documents and material review: only the owning
-function releases or dispositions).
+routings); planners read, and enter, release and make up jobs; admins do everything
+except the quality engineer's e-signed decisions; instruments only post readings at
+their own work center; anonymous callers nothing; an operator of another work center may
+not work a lot at a work center they are not assigned to. Sources:
+shopfloor/floor/permissions.py, shopfloor/quality/access.py and the services (common
+practice for controlled documents and material review: only the owning function releases
+or dispositions).
 """
 
 from __future__ import annotations
@@ -49,6 +50,7 @@ CALLERS = (
     "instrument",
     "anonymous",
     "other_operator",
+    "planner",
     "superuser",
     "far_operator",
 )
@@ -63,22 +65,29 @@ FLOOR_WORK = (A, A, D, D, A, D, D, D)  # work a step at its work center
 SUP_ADMIN = (D, A, D, D, A, D, D, D)  # run the floor: reorder, release, unlock
 QUALITY = (D, D, D, A, D, D, D, D)  # disposition NCRs, set SPC limits
 ENGINEERING = (D, D, A, D, A, D, D, D)  # import design files (process engineering's tool)
+PLANNER = (D, D, D, D, A, D, D, D, A)  # enter and release jobs (planner column last)
+READERS = (A, A, A, A, A, D, D, A, A)  # every person with a role, planner included
 
 
 @dataclass(frozen=True)
 class Row:
     method: str
     url: Callable[[dict[str, Any]], str]
-    expect: tuple[bool, ...]  # in CALLERS order
+    # In CALLERS order. A row of 8 leaves out the planner, who then gets what a process
+    # engineer and a quality engineer both get: every read, none of their decisions.
+    expect: tuple[bool, ...]
     body: Callable[[dict[str, Any]], dict[str, Any]] | None = None
     api: bool = True
     owned: bool = True  # every row is decided: unexpected allows and refusals both fail
     reads_lot: bool = False  # shows the matrix lot (or its NCR/series): out of a far scope
 
     def expected(self) -> tuple[bool, ...]:
-        by_caller = dict(zip(CALLERS[: -len(DERIVED)], self.expect, strict=True))
+        written = self.expect
+        if len(written) == len(CALLERS) - len(DERIVED) - 1:
+            written = (*written, written[2] and written[3])  # the planner's derived cell
+        by_caller = dict(zip(CALLERS[: -len(DERIVED)], written, strict=True))
         far = False if self.reads_lot else by_caller["other_operator"]
-        return (*self.expect, by_caller["admin"], far)
+        return (*written, by_caller["admin"], far)
 
 
 def _reading(ctx):
@@ -338,6 +347,44 @@ ROWS: dict[str, Row] = {
         api=False,
         body=lambda c: {"action": "recompute", "start": "2020-01-01", "end": "2020-01-02"},
     ),
+    # --- jobs (planner) ------------------------------------------ op sup pe qe adm ins ano oth pla
+    "GET jobs API": Row("GET", lambda c: "/api/v1/jobs/?status=released", READERS),
+    "GET job API": Row("GET", lambda c: f"/api/v1/jobs/{c['job'].number}/", READERS),
+    "POST job entry API": Row(
+        "POST", lambda c: "/api/v1/jobs/", PLANNER, body=lambda c: c["entry"]
+    ),
+    "POST job release API": Row(
+        "POST",
+        lambda c: f"/api/v1/jobs/{c['job'].number}/release/",
+        PLANNER,
+        body=lambda c: {"boards_per_panel": 4},
+    ),
+    "POST job make-up API": Row(
+        "POST", lambda c: f"/api/v1/jobs/{c['job'].number}/make-up/", PLANNER, body=lambda c: {}
+    ),
+    "GET jobs page": Row("GET", lambda c: "/jobs/", READERS, api=False),
+    "GET job entry page": Row("GET", lambda c: "/jobs/new/", PLANNER, api=False),
+    "POST job entry page": Row(
+        "POST", lambda c: "/jobs/new/", PLANNER, api=False, body=lambda c: c["entry"]
+    ),
+    "GET job page": Row("GET", lambda c: f"/jobs/{c['job'].number}/", READERS, api=False),
+    "POST job release page": Row(
+        "POST",
+        lambda c: f"/jobs/{c['job'].number}/release/",
+        PLANNER,
+        api=False,
+        body=lambda c: {"boards_per_panel": "4"},
+    ),
+    "POST job make-up page": Row(
+        "POST", lambda c: f"/jobs/{c['job'].number}/make-up/", PLANNER, api=False
+    ),
+    "GET lot label": Row(
+        "GET",
+        lambda c: f"/jobs/lots/{c['lot'].code}/label.pdf",
+        READERS,
+        api=False,
+        reads_lot=True,
+    ),
     "GET NCR page": Row(
         "GET", lambda c: f"/quality/ncrs/{c['ncr'].number}/", PEOPLE, api=False, reads_lot=True
     ),
@@ -420,6 +467,14 @@ def world(floor):
         "ncr": Nonconformance.objects.get(lot=held_lot),
         "series": SeriesState.objects.get(quantity="surface_copper"),
         "locked": locked,
+        "entry": {
+            "customer": floor.job.part_revision.part.customer.code,
+            "part_number": floor.job.part_revision.part.number,
+            "part_revision": floor.job.part_revision.revision,
+            "quantity": 10,
+            "due_date": (timezone.localdate() + dt.timedelta(days=30)).isoformat(),
+            "ipc_class": 2,
+        },
     }
 
 

@@ -24,6 +24,8 @@ from shopfloor.floor.models import InstrumentToken, LotStep
 FLOOR_ROLES = frozenset({"operator", "supervisor", "admin"})
 #: Roles that may read lot status, windows and routing previews (lots: within their scope).
 READ_ROLES: frozenset[str] = _READ_ROLES
+#: Roles that enter jobs and release them to the floor.
+PLAN_ROLES = frozenset({"planner", "admin"})
 #: Operators are limited to the work centers on their badge; these roles are not.
 ANY_WORK_CENTER_ROLES = frozenset({"supervisor", "admin"})
 
@@ -57,6 +59,13 @@ class CanRead(_RolePermission):
 
     roles = READ_ROLES
     what = "read lots and preview routings"
+
+
+class CanPlan(_RolePermission):
+    """Enter jobs and release them to the floor: planners (and administrators)."""
+
+    roles = PLAN_ROLES
+    what = "enter and release jobs"
 
 
 class CanWorkSteps(_RolePermission):

@@ -92,10 +92,14 @@ def _safe(text: str, font: str) -> str:
     return escape(text)
 
 
-def traveller_pdf(lot: Lot) -> bytes:
-    """Render the traveller as an A4 PDF (reportlab platypus)."""
+#: Paper sizes a traveller prints on (the layout is 178 mm wide, which fits both).
+PAPER_SIZES = ("a4", "letter")
+
+
+def traveller_pdf(lot: Lot, paper: str = "a4") -> bytes:
+    """Render the traveller as a PDF on A4 or US Letter (reportlab platypus)."""
     from reportlab.lib import colors
-    from reportlab.lib.pagesizes import A4
+    from reportlab.lib.pagesizes import A4, LETTER
     from reportlab.lib.styles import ParagraphStyle
     from reportlab.lib.units import mm
     from reportlab.platypus import (
@@ -229,7 +233,7 @@ def traveller_pdf(lot: Lot) -> bytes:
     out = io.BytesIO()
     doc = SimpleDocTemplate(
         out,
-        pagesize=A4,
+        pagesize=LETTER if paper == "letter" else A4,
         leftMargin=15 * mm,
         rightMargin=15 * mm,
         topMargin=12 * mm,

@@ -27,6 +27,7 @@ from shopfloor import units
 from shopfloor.errors import DomainError, InvalidInput, NotFound
 from shopfloor.floor import forms, idempotency, services, traveller
 from shopfloor.floor.models import LotStep, Reading
+from shopfloor.orders.services import lots_for_scan
 from shopfloor.plant.models import Equipment, Lot, Person, WorkCenter
 from shopfloor.quality import access
 from shopfloor.windows import describe_window
@@ -151,13 +152,15 @@ def scan(request: HttpRequest) -> HttpResponse:
     code = request.GET.get("code", "")
     try:
         if not form.is_valid():
-            raise InvalidInput("Scan or type a lot code (up to 60 characters).")
-        lot = services.find_lot(form.cleaned_data["code"])
+            raise InvalidInput("Scan or type a lot code, panel serial or job number.")
+        lots = lots_for_scan(form.cleaned_data["code"])
     except DomainError as exc:
         return render(
             request, "floor/scan.html", {"error": exc.detail, "code": code}, status=exc.status
         )
-    return redirect("floor:lot", code=lot.code)
+    if len(lots) > 1:  # a job number with several lots on the floor: let the person pick
+        return render(request, "floor/scan.html", {"choices": lots, "code": code})
+    return redirect("floor:lot", code=lots[0].code)
 
 
 # --- the lot page ---------------------------------------------------------------------
@@ -340,7 +343,10 @@ def traveller_pdf(request: HttpRequest, code: str) -> HttpResponse:
     if lot is None:
         return _missing_lot(request, code)
     _require_readable(request, lot)
-    response = HttpResponse(traveller.traveller_pdf(lot), content_type="application/pdf")
+    paper = request.GET.get("paper", "a4").lower()
+    if paper not in traveller.PAPER_SIZES:
+        paper = "a4"
+    response = HttpResponse(traveller.traveller_pdf(lot, paper), content_type="application/pdf")
     response["Content-Disposition"] = f'inline; filename="traveller-{lot.code}.pdf"'
     return response
 

@@ -23,6 +23,7 @@ class Role(models.TextChoices):
     SUPERVISOR = "supervisor", "Supervisor"
     PROCESS_ENGINEER = "process_engineer", "Process engineer"
     QUALITY_ENGINEER = "quality_engineer", "Quality engineer"
+    PLANNER = "planner", "Planner"
     ADMIN = "admin", "Administrator"
 
 

@@ -221,6 +221,9 @@ class Command(BaseCommand):
         self, j: dict[str, Any], routings: dict[str, RoutingRevision], operator: Person, pin: str
     ) -> None:
         routing = routings[j["part"]]
+        if j.get("entered_only") or j.get("release_boards_per_panel"):
+            self._planned_job(j, routing)
+            return
         with transaction.atomic():
             job = Job.objects.create(
                 number=j["number"],
@@ -275,6 +278,31 @@ class Command(BaseCommand):
                 step = floor.current_step(lot)
             if step is not None:
                 self._hold(lot, step, operator)
+
+    def _planned_job(self, j: dict[str, Any], routing: RoutingRevision) -> None:
+        """A job entered (and perhaps released) by the planner through the planner's
+        services, as a person would on the job pages."""
+        from shopfloor.orders import services as orders
+
+        planner = Person.objects.filter(user__groups__name=Role.PLANNER).order_by("pk").first()
+        part_revision = routing.part_revision
+        job = orders.enter_job(
+            person=planner,
+            data=orders.JobInput(
+                number=j["number"],
+                customer=part_revision.part.customer.code,
+                part_number=part_revision.part.number,
+                part_revision=part_revision.revision,
+                quantity=j["quantity"],
+                due_date=timezone.localdate() + dt.timedelta(days=j["due_days"]),
+                ipc_class=routing.ipc_class,
+                customer_spec_notes=j.get("note", ""),
+            ),
+        )
+        if j.get("release_boards_per_panel"):
+            orders.release_job(
+                person=planner, number=job.number, boards_per_panel=j["release_boards_per_panel"]
+            )
 
     def _hold(self, lot: Lot, step: LotStep, operator: Person) -> None:
         floor.start_step(person=operator, lot_step_id=step.pk)
