@@ -994,6 +994,6 @@ def lots_for_scan(code: str) -> list[Lot]:
             return open_lots or lots
         raise NotFound(f"Job {job.number} is not released to the floor yet, so it has no lots.")
     raise NotFound(
-        f"Nothing matches {code!r}: no lot code, panel serial or job number. Check the label "
-        "and scan again."
+        f"No lot with code {code!r}, and no panel serial or job number like it either. "
+        "Check the label and scan again."
     )
