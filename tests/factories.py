@@ -141,7 +141,7 @@ def make_floor() -> Floor:
         "process_engineer": make_person(Role.PROCESS_ENGINEER, "1003", "Pat Engineer"),
         "quality_engineer": make_person(Role.QUALITY_ENGINEER, "1004", "Quinn Quality"),
         "outsider": make_person(None, "1005", "Otto Outsider"),
-        "planner": make_person(Role.PLANNER, "1009", "Pia Planner"),
+        "planner": make_person(Role.PLANNER, "1019", "Pia Planner"),
     }
     part_revision = make_part_revision()
     routing = release_routing(part_revision, personas["process_engineer"])
