@@ -194,19 +194,83 @@ def _local(tag: object) -> str:
     return tag.rsplit("}", 1)[-1]
 
 
+def _parent_name(el: etree._Element, up: int = 1) -> str:
+    node: etree._Element | None = el
+    for _ in range(up):
+        node = node.getparent() if node is not None else None
+    return _local(node.tag) if node is not None else ""
+
+
+#: Elements the reader looks at. lxml matches these in C, so the bulk of a file (trace
+#: and pad geometry, components, nets) never reaches Python.
+READ_TAGS: Final = frozenset(
+    {
+        "IPC-2581",
+        "FunctionMode",
+        "SoftwarePackage",
+        "CadHeader",
+        "Spec",
+        "Impedance",
+        "Property",
+        "Finish",
+        "ColorTerm",
+        "Layer",
+        "Span",
+        "Stackup",
+        "StackupGroup",
+        "StackupLayer",
+        "SpecRef",
+        "Step",
+        "PolyBegin",
+        "PolyStepSegment",
+        "PolyStepCurve",
+        "StepRepeat",
+        "StackupZone",
+        "LayerHole",
+        "LayerFeature",
+        "Hole",
+        "Set",
+    }
+)
+#: Large containers read for nothing but freed when they close, so memory stays flat.
+FREE_TAGS: Final = frozenset(
+    {
+        "EntryStandard",
+        "EntryUser",
+        "EntryLineDesc",
+        "EntryFillDesc",
+        "EntryColor",
+        "EntryFont",
+        "BomItem",
+        "Avl",
+        "Package",
+        "Component",
+        "PhyNet",
+        "LogicalNet",
+        "PadStack",
+        "PadStackDef",
+        "NonstandardAttribute",
+        "HistoryRecord",
+        "LogisticHeader",
+        "Content",
+        "Bom",
+    }
+)
+_FILTER: Final = tuple(f"{{*}}{t}" for t in sorted(READ_TAGS | FREE_TAGS)) + tuple(
+    sorted(READ_TAGS | FREE_TAGS)
+)
+
+
 class _Reader:
-    """One pass over the events; `path` is the stack of open element names."""
+    """One pass over the filtered events; state says which Spec, Stackup, Step is open."""
 
     def __init__(self) -> None:
-        self.design: Design | None = None
         self.revision = ""
         self.units = ""
         self.factor: float | None = None
         self.exporter: str | None = None
         self.function_mode = ""
-        self.path: list[str] = []
         self.spec: Spec | None = None
-        self.spec_child: tuple[str, str] = ("", "")
         self.stackup: Stackup | None = None
         self.group: StackupGroup | None = None
         self.slayer: StackupLayer | None = None
@@ -287,8 +351,19 @@ class _Reader:
         self.revision = revision.upper()
 
     def start(self, el: etree._Element, tag: str) -> None:
-        parent = self.path[-2] if len(self.path) >= 2 else ""
-        if tag == "FunctionMode":
+        if self.feature_layer:
+            # Inside a LayerFeature only holes matter (sets are counted when they close).
+            if tag == "Hole" and self.step is not None:
+                hole = self.hole_of(el)
+                if hole is not None:
+                    stats = self.step.drill_holes.setdefault(self.feature_layer, HoleStats())
+                    stats.add(*hole)
+            return
+        if tag in FREE_TAGS:
+            return
+        if self.spec is not None:
+            self.spec_start(el, tag)
+        elif tag == "FunctionMode":
             self.function_mode = el.get("mode") or ""
         elif tag == "SoftwarePackage" and self.exporter is None:
             parts = [el.get("vendor"), el.get("name"), el.get("revision")]
@@ -304,20 +379,24 @@ class _Reader:
                 )
             self.units = units
             self.factor = UNIT_TO_MM[units]
-        elif tag == "Spec" and parent == "CadHeader":
-            self.spec = Spec(name=el.get("name") or "")
-        elif self.spec is not None:
-            self.spec_start(el, tag, parent)
-        elif tag == "Layer" and parent == "CadData":
-            self.layer = Layer(
-                name=el.get("name") or "",
-                function=(el.get("layerFunction") or "").strip().upper(),
-                side=(el.get("side") or "").strip().upper(),
-                line=el.sourceline,
-            )
-        elif tag == "Span" and parent == "Layer" and self.layer is not None:
-            self.layer.span = (el.get("fromLayer") or "", el.get("toLayer") or "")
-        elif tag == "Stackup" and parent == "CadData":
+        elif tag == "Spec":
+            if _parent_name(el) == "CadHeader":
+                self.spec = Spec(name=el.get("name") or "")
+        elif tag == "Layer":
+            if _parent_name(el) == "CadData":
+                self.layer = Layer(
+                    name=el.get("name") or "",
+                    function=(el.get("layerFunction") or "").strip().upper(),
+                    side=(el.get("side") or "").strip().upper(),
+                    line=el.sourceline,
+                )
+        elif tag == "Span":
+            parent = _parent_name(el)
+            if parent == "Layer" and self.layer is not None:
+                self.layer.span = (el.get("fromLayer") or "", el.get("toLayer") or "")
+            elif parent == "LayerHole":
+                self.hole_span = (el.get("fromLayer") or "", el.get("toLayer") or "")
+        elif tag == "Stackup":
             self.stackup = Stackup(
                 name=el.get("name") or "",
                 overall_mm=self.length(el, "overallThickness"),
@@ -346,66 +425,61 @@ class _Reader:
             ref = el.get("id")
             if ref:
                 self.slayer.spec_refs.append(ref)
-        elif tag == "Step" and parent == "CadData":
-            self.step = Step(name=el.get("name") or "")
-            self.steps.append(self.step)
+        elif tag == "Step":
+            if _parent_name(el) == "CadData":
+                self.step = Step(name=el.get("name") or "")
+                self.steps.append(self.step)
         elif self.step is not None:
-            self.step_start(el, tag, parent)
+            self.step_start(el, tag)
 
-    def spec_start(self, el: etree._Element, tag: str, parent: str) -> None:
-        assert self.spec is not None
+    def spec_start(self, el: etree._Element, tag: str) -> None:
+        spec = self.spec
+        assert spec is not None
         if tag == "ColorTerm":
-            self.spec.colour = (el.get("name") or "").strip()
-            return
-        if parent == "Spec":
-            self.spec_child = (tag, (el.get("type") or "").upper())
-            if tag == "Impedance":
-                self.spec.impedance_ohm = self.number(el, "value")
-            return
-        kind, kind_type = self.spec_child
-        if tag == "Property":
-            if kind == "General" and kind_type == "MATERIAL" and not self.spec.material:
-                self.spec.material = (el.get("text") or "").strip()
+            spec.colour = (el.get("name") or "").strip()
+        elif tag == "Impedance":
+            spec.impedance_ohm = self.number(el, "value")
+        elif tag == "Finish":
+            if _parent_name(el) == "SurfaceFinish":
+                spec.finish = (el.get("type") or "").strip()
+        elif tag == "Property":
+            parent = el.getparent()
+            kind = _local(parent.tag) if parent is not None else ""
+            kind_type = ((parent.get("type") if parent is not None else "") or "").upper()
+            if kind == "General" and kind_type == "MATERIAL" and not spec.material:
+                spec.material = (el.get("text") or "").strip()
             elif kind == "Conductor" and kind_type == "WEIGHT":
-                self.spec.copper_weight_oz = self.number(el, "value")
-            elif kind == "Impedance" and self.spec.impedance_ohm is None:
-                self.spec.impedance_ohm = self.number(el, "value")
-        elif tag == "Finish" and kind == "SurfaceFinish":
-            self.spec.finish = (el.get("type") or "").strip()
+                spec.copper_weight_oz = self.number(el, "value")
+            elif kind == "Impedance" and spec.impedance_ohm is None:
+                spec.impedance_ohm = self.number(el, "value")
 
-    def step_start(self, el: etree._Element, tag: str, parent: str) -> None:
+    def step_start(self, el: etree._Element, tag: str) -> None:
         step = self.step
         assert step is not None
-        in_step_profile = len(self.path) >= 3 and self.path[-3:-1] == ["Profile", "Polygon"]
-        if in_step_profile and self.path[-4:-3] == ["Step"] and tag.startswith("Poly"):
-            x, y = self.length(el, "x"), self.length(el, "y")
-            if x is not None and y is not None:
-                if step.bbox is None:
-                    step.bbox = (x, y, x, y)
-                else:
-                    x0, y0, x1, y1 = step.bbox
-                    step.bbox = (min(x0, x), min(y0, y), max(x1, x), max(y1, y))
+        if tag.startswith("Poly"):
+            if (
+                _parent_name(el) == "Polygon"
+                and _parent_name(el, 2) == "Profile"
+                and _parent_name(el, 3) == "Step"
+            ):
+                x, y = self.length(el, "x"), self.length(el, "y")
+                if x is not None and y is not None:
+                    if step.bbox is None:
+                        step.bbox = (x, y, x, y)
+                    else:
+                        x0, y0, x1, y1 = step.bbox
+                        step.bbox = (min(x0, x), min(y0, y), max(x1, x), max(y1, y))
         elif tag == "StepRepeat":
             nx = int(self.number(el, "nx") or 1)
             ny = int(self.number(el, "ny") or 1)
             step.repeats.append((el.get("stepRef") or "", max(nx, 1) * max(ny, 1)))
         elif tag == "StackupZone":
             step.zones.append((el.get("name") or "", el.get("stackupRef") or ""))
-        elif tag == "LayerHole" and parent == "PadStack":
+        elif tag == "LayerHole":
             self.hole = self.hole_of(el)
             self.hole_span = ("", "")
-        elif tag == "Span" and parent == "LayerHole":
-            self.hole_span = (el.get("fromLayer") or "", el.get("toLayer") or "")
         elif tag == "LayerFeature":
             self.feature_layer = el.get("layerRef") or ""
-        elif self.feature_layer:
-            if tag == "Hole":
-                hole = self.hole_of(el)
-                if hole is not None:
-                    stats = step.drill_holes.setdefault(self.feature_layer, HoleStats())
-                    stats.add(*hole)
-            if tag not in ("Set", "ColorRef", "Features"):
-                step.features[self.feature_layer] = step.features.get(self.feature_layer, 0) + 1
 
     def hole_of(self, el: etree._Element) -> tuple[float, bool] | None:
         diameter = self.length(el, "diameter")
@@ -414,14 +488,20 @@ class _Reader:
         status = (el.get("platingStatus") or "").strip().upper()
         return (diameter, status not in NON_PLATED)
 
-    def end(self, tag: str) -> None:
-        if tag == "Spec" and self.spec is not None and len(self.path) >= 2:
-            if self.path[-2] == "CadHeader":
-                self.specs[self.spec.name] = self.spec
-                self.spec = None
-        elif self.spec is not None and len(self.path) >= 2 and self.path[-2] == "Spec":
-            self.spec_child = ("", "")
-        elif tag == "Layer" and self.layer is not None and self.path[-2:-1] == ["CadData"]:
+    def end(self, el: etree._Element, tag: str) -> None:
+        if self.feature_layer:
+            if tag == "Set" and self.step is not None:
+                # A set that draws something (not just a colour reference) uses the layer.
+                if any(_local(child.tag) != "ColorRef" for child in el):
+                    features = self.step.features
+                    features[self.feature_layer] = features.get(self.feature_layer, 0) + 1
+            elif tag == "LayerFeature":
+                self.feature_layer = ""
+            return
+        if tag == "Spec" and self.spec is not None and _parent_name(el) == "CadHeader":
+            self.specs[self.spec.name] = self.spec
+            self.spec = None
+        elif tag == "Layer" and self.layer is not None and _parent_name(el) == "CadData":
             self.layers.setdefault(self.layer.name, self.layer)
             self.layer = None
         elif tag == "Stackup" and self.stackup is not None:
@@ -435,24 +515,84 @@ class _Reader:
             stats = self.step.padstack_holes.setdefault(self.hole_span, HoleStats())
             stats.add(*self.hole)
             self.hole = None
-        elif tag == "LayerFeature":
-            self.feature_layer = ""
-        elif tag == "Step" and self.path[-2:-1] == ["CadData"]:
+        elif tag == "Step" and _parent_name(el) == "CadData":
             self.step = None
 
 
+#: The root element must appear within this many bytes (a prolog is a few lines).
+ROOT_WITHIN_BYTES: Final = 4 * 1024 * 1024
+
+
+def _syntax_message(exc: etree.XMLSyntaxError) -> str:
+    message = str(exc.msg or exc).strip()
+    if "entit" in message.lower():
+        return (
+            f"entity expansion refused ({message}); IPC-2581 files carry no DTD and no "
+            "entities, and a DTD is refused"
+        )
+    return message
+
+
+def _check_root(source: str | IO[bytes], reader: _Reader) -> None:
+    """Read up to the root element only: refuse non-XML, a DTD, another format or revision.
+
+    The main pass filters events by tag in C, so it would never report a foreign root;
+    checking it first also means a large file of another kind is refused after one chunk.
+    """
+    handle: IO[bytes] = open(source, "rb") if isinstance(source, str) else source  # noqa: SIM115
+    position = 0 if isinstance(source, str) else handle.tell()
+    parser = etree.XMLPullParser(
+        events=("start",),
+        resolve_entities=False,
+        no_network=True,
+        load_dtd=False,
+        huge_tree=False,
+    )
+    read = 0
+    try:
+        while True:
+            chunk = handle.read(65536)
+            if not chunk:
+                parser.close()
+                raise DesignFileError(
+                    "the file is empty; an IPC-2581 file starts with <IPC-2581 revision=...>"
+                )
+            parser.feed(chunk)
+            for _, el in parser.read_events():
+                reader.root(el)
+                return
+            read += len(chunk)
+            if read > ROOT_WITHIN_BYTES:
+                raise DesignFileError(
+                    "no root element in the first 4 MB: this is not an IPC-2581 file"
+                )
+    except etree.XMLSyntaxError as exc:
+        message = _syntax_message(exc) or "no XML element found"
+        raise DesignFileError(
+            f"this is not an XML file an IPC-2581 import can read: {message}"
+        ) from None
+    except OSError as exc:
+        raise DesignFileError(f"cannot read the file: {exc}") from None
+    finally:
+        if isinstance(source, str):
+            handle.close()
+        else:
+            handle.seek(position)
+
+
 def read_design(source: str | IO[bytes]) -> Design:
-    """Read an IPC-2581 file (a path or a binary file object).
+    """Read an IPC-2581 file (a path or a seekable binary file object).
 
     Raises `DesignFileError` naming what was found when the file is not XML, not
     IPC-2581, of an unsupported revision, declares a DTD, or states no units.
     """
     reader = _Reader()
-    seen_root = False
+    _check_root(source, reader)
     try:
         events = etree.iterparse(
             source,
             events=("start", "end"),
+            tag=_FILTER,
             resolve_entities=False,
             no_network=True,
             load_dtd=False,
@@ -464,34 +604,20 @@ def read_design(source: str | IO[bytes]) -> Design:
         for event, el in events:
             tag = _local(el.tag)
             if event == "start":
-                if not seen_root:
-                    reader.root(el)
-                    seen_root = True
-                reader.path.append(tag)
                 reader.start(el, tag)
                 continue
-            reader.end(tag)
-            reader.path.pop()
-            # Free what is read: this element's children and its finished siblings.
-            el.clear(keep_tail=False)
-            parent = el.getparent()
-            if parent is not None:
-                while el.getprevious() is not None:
-                    del parent[0]
+            reader.end(el, tag)
+            if tag == "Set" or tag in FREE_TAGS or tag in _CLEAR_ON_END:
+                # Free what is read: this element's children and its finished siblings.
+                el.clear(keep_tail=False)
+                parent = el.getparent()
+                if parent is not None:
+                    while el.getprevious() is not None:
+                        del parent[0]
     except etree.XMLSyntaxError as exc:
-        message = str(exc.msg or exc).strip()
-        lowered = message.lower()
-        if "entity" in lowered and ("amplification" in lowered or "loop" in lowered):
-            message += " (entity expansion refused)"
-        if not seen_root:
-            raise DesignFileError(
-                f"this is not an XML file an IPC-2581 import can read: {message}"
-            ) from None
-        raise DesignFileError(f"the XML is broken: {message}") from None
+        raise DesignFileError(f"the XML is broken: {_syntax_message(exc)}") from None
     except OSError as exc:
         raise DesignFileError(f"cannot read the file: {exc}") from None
-    if not seen_root:
-        raise DesignFileError("the file is empty; an IPC-2581 file starts with <IPC-2581>")
     if not reader.units:
         raise DesignFileError(
             "the file has no Ecad CadHeader with units, so it carries no board data "
@@ -507,3 +633,9 @@ def read_design(source: str | IO[bytes]) -> Design:
         specs=reader.specs,
         steps=reader.steps,
     )
+
+
+#: Read elements that are also freed when they close (their content is read by then).
+_CLEAR_ON_END: Final = frozenset(
+    {"Spec", "Layer", "StackupLayer", "LayerFeature", "LayerHole", "Hole", "StepRepeat"}
+)
