@@ -539,7 +539,7 @@ def _check_root(source: str | IO[bytes], reader: _Reader) -> None:
     The main pass filters events by tag in C, so it would never report a foreign root;
     checking it first also means a large file of another kind is refused after one chunk.
     """
-    handle: IO[bytes] = open(source, "rb") if isinstance(source, str) else source  # noqa: SIM115
+    handle: IO[bytes] = open(source, "rb") if isinstance(source, str) else source
     position = 0 if isinstance(source, str) else handle.tell()
     parser = etree.XMLPullParser(
         events=("start",),
@@ -554,6 +554,9 @@ def _check_root(source: str | IO[bytes], reader: _Reader) -> None:
             chunk = handle.read(65536)
             if not chunk:
                 parser.close()
+                for _, el in parser.read_events():
+                    reader.root(el)
+                    return
                 raise DesignFileError(
                     "the file is empty; an IPC-2581 file starts with <IPC-2581 revision=...>"
                 )
