@@ -5,6 +5,7 @@ from django.urls import path
 from routing import api as routing_api
 from shopfloor.floor import api as floor_api
 from shopfloor.orders import api as orders_api
+from shopfloor.planning import api as planning_api
 
 urlpatterns = [
     path("routing/preview/", routing_api.PreviewView.as_view(), name="api-routing-preview"),
@@ -30,4 +31,5 @@ urlpatterns = [
     path("jobs/<str:number>/make-up/", orders_api.JobMakeupView.as_view(), name="api-job-makeup"),
     path("lots/<str:code>/", floor_api.LotStatusView.as_view(), name="api-lot"),
     path("lots/<str:code>/windows/", floor_api.LotWindowsView.as_view(), name="api-lot-windows"),
+    path("planning/quote/", planning_api.QuoteView.as_view(), name="api-planning-quote"),
 ]

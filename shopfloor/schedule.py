@@ -1,8 +1,10 @@
 """Due-date and queue-time arithmetic (pure; no Django imports).
 
 Remaining work is the sum of the standard minutes of the steps not yet done. A job is
-late when its due time has passed; at risk when the remaining standard time, stretched
-by a planning factor for queueing between steps, no longer fits in the time left.
+late when its due time has passed; at risk when its forecast P90 finish is after the due
+time (`forecast_due_state`) or, while no forecast exists, when the remaining standard
+time stretched by a planning factor for queueing between steps no longer fits in the
+time left (`due_state`, the fallback).
 """
 
 from __future__ import annotations
@@ -30,6 +32,15 @@ def due_state(
         return DueState.LATE
     needed = timedelta(minutes=remaining_minutes * flow_factor)
     return DueState.AT_RISK if now + needed > due else DueState.ON_TIME
+
+
+def forecast_due_state(now: datetime, due: datetime, p90: datetime) -> DueState:
+    """Due-date state from a finish forecast: at risk when the 90th-percentile finish
+    (nine in ten simulated futures finish by then) is after the due time. Replaces the
+    flow factor wherever a forecast exists (shopfloor/core/planning)."""
+    if now >= due:
+        return DueState.LATE
+    return DueState.AT_RISK if p90 > due else DueState.ON_TIME
 
 
 @dataclass(frozen=True)

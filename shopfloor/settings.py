@@ -51,6 +51,7 @@ INSTALLED_APPS = [
     "routing",
     "shopfloor.floor",
     "shopfloor.quality",
+    "shopfloor.planning",
     "shopfloor.chemistry",
     "shopfloor.orders",
 ]
@@ -218,6 +219,14 @@ OUTBOX_RELAY_SECONDS = env_int("OUTBOX_RELAY_SECONDS", 15, minimum=1)
 # left unsealed for longer than the bound (a stopped beat or a transaction left open).
 AUDIT_SEAL_SECONDS = env_int("AUDIT_SEAL_SECONDS", 2, minimum=1)
 AUDIT_SEAL_MAX_DELAY_SECONDS = env_int("AUDIT_SEAL_MAX_DELAY_SECONDS", 600, minimum=1)
+# Finish forecasts (shopfloor/planning): how often beat re-runs the floor simulation, its
+# Monte Carlo replications, how many processes share them, and how old a forecast may be
+# before the board falls back to the flow-factor rule.
+FORECAST_EVERY_SECONDS = env_int("FORECAST_EVERY_SECONDS", 300, minimum=30)
+FORECAST_REPLICATIONS = env_int("FORECAST_REPLICATIONS", 100, minimum=10)
+FORECAST_PROCESSES = env_int("FORECAST_PROCESSES", 2, minimum=1)
+FORECAST_STALE_MINUTES = env_int("FORECAST_STALE_MINUTES", 60, minimum=5)
+
 CELERY_BEAT_SCHEDULE = {
     "relay-outbox": {
         "task": "shopfloor.quality.tasks.relay_outbox",
@@ -231,6 +240,10 @@ CELERY_BEAT_SCHEDULE = {
     },
     "check-queue-times": {"task": "shopfloor.quality.tasks.check_queue_times", "schedule": 60.0},
     "check-due-dates": {"task": "shopfloor.quality.tasks.check_due_dates", "schedule": 900.0},
+    "forecast-finishes": {
+        "task": "shopfloor.planning.tasks.run_forecast",
+        "schedule": float(FORECAST_EVERY_SECONDS),
+    },
 }
 
 # Mail (Django 6.1 MAILERS); alerts go to each work center's notification list.

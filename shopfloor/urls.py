@@ -16,6 +16,7 @@ urlpatterns = [
     path("engineering/", include("routing.urls")),
     path("jobs/", include("shopfloor.orders.urls")),
     path("", include("shopfloor.quality.urls")),
+    path("planning/", include("shopfloor.planning.urls")),
     path("api/v1/", include("shopfloor.api_urls")),
     path("api/schema/", SpectacularAPIView.as_view(), name="schema"),
     path("api/docs/", SpectacularSwaggerSplitView.as_view(url_name="schema"), name="api-docs"),

@@ -67,6 +67,7 @@ QUALITY = (D, D, D, A, D, D, D, D)  # disposition NCRs, set SPC limits
 ENGINEERING = (D, D, A, D, A, D, D, D)  # import design files (process engineering's tool)
 PLANNER = (D, D, D, D, A, D, D, D, A)  # enter and release jobs (planner column last)
 READERS = (A, A, A, A, A, D, D, A, A)  # every person with a role, planner included
+PLAN = (D, A, A, D, A, D, D, D, A)  # quote ship dates, ask for a forecast run
 
 
 @dataclass(frozen=True)
@@ -126,6 +127,23 @@ ROWS: dict[str, Row] = {
         lambda c: "/api/v1/routing/import-design/",
         ENGINEERING,
         body=lambda c: {},
+    ),
+    "POST planning quote": Row(
+        "POST",
+        lambda c: "/api/v1/planning/quote/",
+        PLAN,
+        body=lambda c: {"spec": c["spec"], "quantity": 10},
+    ),
+    "GET quote page": Row("GET", lambda c: "/planning/quote/", PLAN, api=False),
+    "POST quote page": Row(
+        "POST",
+        lambda c: "/planning/quote/",
+        PLAN,
+        api=False,
+        body=lambda c: {"spec": "{}", "quantity": "10"},
+    ),
+    "POST forecast now": Row(
+        "POST", lambda c: "/planning/forecast/run/", PLAN, api=False, body=lambda c: {}
     ),
     "POST reading": Row(
         "POST", lambda c: "/api/v1/readings/", (A, A, D, D, A, A, D, D), body=_reading

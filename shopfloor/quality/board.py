@@ -52,6 +52,8 @@ from shopfloor import schedule
 from shopfloor.audit import services as audit
 from shopfloor.errors import InvalidInput, NotAllowed, NotFound
 from shopfloor.floor.models import LotStep
+from shopfloor.planning.models import JobForecast, LotForecast
+from shopfloor.planning.services import fresh_runs
 from shopfloor.plant.models import Customer, IpcClass, Lot, PanelImage, Person, WorkCenter
 from shopfloor.quality.access import Scope
 from shopfloor.quality.models import Alert, Hold
@@ -202,6 +204,9 @@ class JobOnLot:
     ipc_class: int
     due_at: dt.datetime  # the end of the due date in the site's time zone
     url: str = ""
+    # The newest fresh finish forecast (shopfloor/planning), None while there is none.
+    p50: dt.datetime | None = None
+    p90: dt.datetime | None = None
     detail: str = field(init=False)
 
     def __post_init__(self) -> None:
@@ -251,6 +256,9 @@ class BoardLot:
     # when sorting by due date), so the lots behind "... and N more" have none.
     jobs: list[JobOnLot] | None = None
     alerts: list[Alert] = field(default_factory=list)
+    # The lot's own forecast finish, read with its jobs (None: no fresh forecast).
+    p50: dt.datetime | None = None
+    p90: dt.datetime | None = None
 
     @property
     def job_list(self) -> list[JobOnLot]:
@@ -332,13 +340,26 @@ class BoardLot:
 
     @cached_property
     def due_state(self) -> schedule.DueState:
-        """The worst state among the jobs on the lot's panels."""
+        """The worst state among the jobs on the lot's panels: from a job's forecast P90
+        where one exists, else from the flow-factor rule (the fallback)."""
         if not self.job_list:
             return schedule.DueState.ON_TIME
         return min(
-            (schedule.due_state(self.now, j.due_at, self.remaining_minutes) for j in self.job_list),
+            (
+                schedule.forecast_due_state(self.now, j.due_at, j.p90)
+                if j.p90 is not None
+                else schedule.due_state(self.now, j.due_at, self.remaining_minutes)
+                for j in self.job_list
+            ),
             key=_DUE_RANK.__getitem__,
         )
+
+    @property
+    def forecast_text(self) -> str:
+        """'P50 Thu 14:05 · P90 Fri 09:40' in the site's time zone, '' without a forecast."""
+        if self.p50 is None or self.p90 is None:
+            return ""
+        return f"P50 {_when(self.p50, self.now)} · P90 {_when(self.p90, self.now)}"
 
     @property
     def due_word(self) -> str:
@@ -352,6 +373,8 @@ class BoardLot:
     def due_detail(self) -> str:
         if self.earliest_due is None:
             return ""
+        if any(j.p90 is not None for j in self.job_list):
+            return f"due {self.earliest_due.isoformat()} · forecast"
         return f"{self.earliest_due.isoformat()} · {self.remaining_minutes} std min left"
 
     @property
@@ -426,6 +449,22 @@ class Board:
     ipc_classes: list[tuple[int, str]]
     now: dt.datetime
     lot_count: int
+    # When the finish forecast the rows use was made; None: due-date risk comes from the
+    # flow-factor fallback (no fresh forecast yet).
+    forecast_at: dt.datetime | None = None
+
+
+def _when(moment: dt.datetime, now: dt.datetime) -> str:
+    """A forecast moment for a wall screen: '14:05' today, 'Thu 14:05' within a week,
+    '2030-01-31' further out (site time zone)."""
+    tz = zoneinfo.ZoneInfo(settings.SITE_TIME_ZONE)
+    local, today = moment.astimezone(tz), now.astimezone(tz).date()
+    days = (local.date() - today).days
+    if days == 0:
+        return local.strftime("%H:%M")
+    if 0 < days < 7:
+        return local.strftime("%a %H:%M")
+    return local.date().isoformat()
 
 
 def duration_text(minutes: float) -> str:
@@ -559,7 +598,9 @@ def _sort_key(sort: str) -> Any:
     return lambda b: b.queue_key
 
 
-def _read_jobs(lots: list[BoardLot], links: BoardLinks, *, every_active_lot: bool) -> None:
+def _read_jobs(
+    lots: list[BoardLot], links: BoardLinks, now: dt.datetime, *, every_active_lot: bool
+) -> dt.datetime | None:
     """Set `jobs` on each of `lots`: the jobs imaged on its panels, by number, one
     JobOnLot per job. One query: with `every_active_lot` (the due-date sort needs every
     lot's jobs) it reads all active lots' and matches them here, a plain join being
@@ -572,8 +613,21 @@ def _read_jobs(lots: list[BoardLot], links: BoardLinks, *, every_active_lot: boo
         images = PanelImage.objects.filter(panel__lot__status__in=ACTIVE_LOT)
     else:
         images = PanelImage.objects.filter(panel__lot_id__in=list(by_id))
+    # The forecasts ride along in the same query: the newest fresh run is one uncorrelated
+    # subquery (PostgreSQL evaluates it once), each job's and lot's row an index look-up.
+    fresh = fresh_runs(now)
+    run = Subquery(fresh.values("pk")[:1])
+    job_fc = JobForecast.objects.filter(run_id=run, job_id=OuterRef("job_id"))
+    lot_fc = LotForecast.objects.filter(run_id=run, lot_id=OuterRef("panel__lot_id"))
     rows = (
         images.order_by()
+        .annotate(
+            job_p50=Subquery(job_fc.values("p50")[:1]),
+            job_p90=Subquery(job_fc.values("p90")[:1]),
+            lot_p50=Subquery(lot_fc.values("p50")[:1]),
+            lot_p90=Subquery(lot_fc.values("p90")[:1]),
+            run_at=Subquery(fresh.values("finished_at")[:1]),
+        )
         .values_list(
             "panel__lot_id",
             "job_id",
@@ -582,11 +636,31 @@ def _read_jobs(lots: list[BoardLot], links: BoardLinks, *, every_active_lot: boo
             "job__ipc_class",
             "job__part_revision__part__number",
             "job__part_revision__part__customer__code",
+            "job_p50",
+            "job_p90",
+            "lot_p50",
+            "lot_p90",
+            "run_at",
         )
         .distinct()
     )
     jobs: dict[int, JobOnLot] = {}
-    for lot_id, job_id, number, due_date, ipc_class, part_number, customer_code in rows:
+    forecast_at = None
+    for (
+        lot_id,
+        job_id,
+        number,
+        due_date,
+        ipc_class,
+        part_number,
+        customer_code,
+        job_p50,
+        job_p90,
+        lot_p50,
+        lot_p90,
+        run_at,
+    ) in rows:
+        forecast_at = forecast_at or run_at
         on_lot = by_id.get(lot_id)
         if on_lot is None:
             continue
@@ -601,11 +675,15 @@ def _read_jobs(lots: list[BoardLot], links: BoardLinks, *, every_active_lot: boo
                 ipc_class=ipc_class,
                 due_at=_due_end(due_date),
                 url=links.job(number),
+                p50=job_p50,
+                p90=job_p90,
             )
         on_lot.job_list.append(job)
+        on_lot.p50, on_lot.p90 = lot_p50, lot_p90
     for lot in lots:
         if len(lot.job_list) > 1:
             lot.job_list.sort(key=lambda j: j.number)
+    return forecast_at
 
 
 def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = None) -> Board:
@@ -705,8 +783,9 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
         else:
             column.in_work.append(item)
     by_due = filters.sort == "due"
+    forecast_at = None
     if by_due:
-        _read_jobs(lots, links, every_active_lot=True)
+        forecast_at = _read_jobs(lots, links, now, every_active_lot=True)
     key = _sort_key(filters.sort)
     limit = MAX_ROWS_PER_CENTER if filters.work_center else OVERVIEW_ROWS_PER_CENTER
     for column in by_center.values():
@@ -721,7 +800,8 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
         and (not filters.work_center or c.code == filters.work_center)
     ]
     if not by_due:
-        _read_jobs([lot for c in columns for lot in c.rows], links, every_active_lot=False)
+        shown = [lot for c in columns for lot in c.rows]
+        forecast_at = _read_jobs(shown, links, now, every_active_lot=False)
     finishes = sorted({f for f in finish_of.values() if f})
     return Board(
         columns=columns,
@@ -734,6 +814,7 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
         ipc_classes=[(c.value, c.label) for c in IpcClass],
         now=now,
         lot_count=len(steps),
+        forecast_at=forecast_at,
     )
 
 

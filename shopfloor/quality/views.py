@@ -28,6 +28,8 @@ from django.utils.http import urlencode
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
 from shopfloor.errors import DomainError, InvalidInput
+from shopfloor.planning import services as planning
+from shopfloor.planning.services import PLANNING_ROLES
 from shopfloor.quality import access, board, charts, exports, history, services
 from shopfloor.quality.access import Scope, scope_for
 
@@ -73,6 +75,7 @@ def _board_context(request: HttpRequest, scope: Scope) -> dict[str, Any]:
         "query": query,
         "error": error,
         "scope": scope,
+        "may_plan": bool(scope.roles & PLANNING_ROLES),
         "sorts": board.SORTS,
         "raw": request.GET,
     }
@@ -138,7 +141,15 @@ def overview(request: HttpRequest, scope: Scope) -> HttpResponse:
 @reader
 def lot_page(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
     h = history.lot_history(scope, code, full_readings=False)
-    return render(request, "quality/lot.html", {"h": h, "summary": exports.reading_summary(h)})
+    return render(
+        request,
+        "quality/lot.html",
+        {
+            "h": h,
+            "summary": exports.reading_summary(h),
+            "forecast": planning.lot_projection(h.lot),
+        },
+    )
 
 
 @require_GET
@@ -172,7 +183,10 @@ def lot_pdf(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
 @require_GET
 @reader
 def job_page(request: HttpRequest, scope: Scope, number: str) -> HttpResponse:
-    return render(request, "quality/job.html", {"g": history.job_genealogy(scope, number)})
+    g = history.job_genealogy(scope, number)
+    return render(
+        request, "quality/job.html", {"g": g, "forecast": planning.job_projection(g.job)}
+    )
 
 
 @require_GET

@@ -62,6 +62,8 @@ def _row(lot: BoardLot, may_reorder: bool, form_id: str, back: str, csrf: str) -
     due = f"<strong>{_e(lot.due_word)}</strong>"
     if lot.job_list:
         due += f'<div class="muted">{_e(lot.due_detail)}</div>'
+    if lot.forecast_text:
+        due += f'<div class="forecast">{_e(lot.forecast_text)}</div>'
     order = ""
     if may_reorder:
         buttons = ""

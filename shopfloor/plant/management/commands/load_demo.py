@@ -101,8 +101,13 @@ class Command(BaseCommand):
             created += 1
         # Beat runs these every few minutes in production; run them once so the demo's late
         # and at-risk jobs and any queue-time overruns show up straight away.
+        # Capacities and a first finish forecast (beat re-runs it every few minutes), so
+        # the board shows P50 / P90 and forecast-based due-date risk on first start.
+        from shopfloor.planning import services as planning_services
         from shopfloor.quality import services as quality_services
 
+        planning_services.ensure_demo_capacity()
+        planning_services.run_forecast("demo")
         quality_services.check_due_dates()
         quality_services.check_queue_times()
         self.stdout.write(
