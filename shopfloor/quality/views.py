@@ -184,9 +184,7 @@ def lot_pdf(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
 @reader
 def job_page(request: HttpRequest, scope: Scope, number: str) -> HttpResponse:
     g = history.job_genealogy(scope, number)
-    return render(
-        request, "quality/job.html", {"g": g, "forecast": planning.job_projection(g.job)}
-    )
+    return render(request, "quality/job.html", {"g": g, "forecast": planning.job_projection(g.job)})
 
 
 @require_GET
