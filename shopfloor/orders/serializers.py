@@ -76,7 +76,17 @@ class JobSerializer(serializers.Serializer):
     lots = LotLineSerializer(many=True)
     routing_revision = serializers.IntegerField(allow_null=True)
     projected_finish = serializers.DateTimeField(
-        allow_null=True, help_text="Filled by the forecast when known; null until then"
+        allow_null=True,
+        help_text="P50 of the newest finish forecast (half of the simulated futures finish "
+        "the job by then); null while no fresh forecast knows the job",
+    )
+    projected_finish_p90 = serializers.DateTimeField(
+        allow_null=True, help_text="P90 of the same forecast (nine in ten finish by then)"
+    )
+    forecast_due_state = serializers.ChoiceField(
+        choices=["on_time", "at_risk", "late"],
+        allow_null=True,
+        help_text="From P90 against the end of the due date; null without a forecast",
     )
     customer_spec_notes = serializers.CharField()
     customer_overrides = serializers.ListField(child=serializers.DictField())
@@ -108,6 +118,8 @@ def job_dict(summary: services.JobSummary) -> dict[str, Any]:
         ],
         "routing_revision": job.routing_revision_id,
         "projected_finish": summary.projected_finish,
+        "projected_finish_p90": summary.projected_finish_p90,
+        "forecast_due_state": summary.forecast_due_state,
         "customer_spec_notes": job.customer_spec_notes,
         "customer_overrides": job.customer_overrides or [],
     }

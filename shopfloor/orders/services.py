@@ -437,9 +437,12 @@ class JobSummary:
     status: str
     quantities: Quantities
     lots: list[LotLine]
-    #: When the job is expected to finish. The forecasting work (issue 17) fills this
-    #: from its lot forecasts; until then it is None ("not known yet").
+    #: When the job is expected to finish: the P50 and P90 of the newest fresh finish
+    #: forecast (shopfloor/planning), its due-date state from P90; None while no fresh
+    #: forecast knows the job ("not known yet").
     projected_finish: dt.datetime | None = None
+    projected_finish_p90: dt.datetime | None = None
+    forecast_due_state: str | None = None
 
     @property
     def status_label(self) -> str:
@@ -462,9 +465,11 @@ def boards_scrapped_on_live_panels(job_ids: Iterable[int]) -> dict[int, int]:
     return {}
 
 
-def projected_finish(job: Job) -> dt.datetime | None:
-    """The job's projected finish when a forecast knows it (issue 17 fills this)."""
-    return None
+def projected_finishes(job_ids: list[int]) -> dict[int, Any]:
+    """The jobs' finish forecasts (shopfloor/planning), by job id, in one query."""
+    from shopfloor.planning.services import job_projections
+
+    return job_projections(job_ids)
 
 
 def summaries(jobs: Iterable[Job]) -> list[JobSummary]:
@@ -500,6 +505,7 @@ def summaries(jobs: Iterable[Job]) -> list[JobSummary]:
     crossed = boards_scrapped_on_live_panels(ids)
     out: list[JobSummary] = []
     current = _current_steps(list(lots))
+    forecasts = projected_finishes(ids)
     for job in jobs:
         q = quantities[job.pk]
         q.shipped = shipped.get(job.pk, 0)
@@ -526,7 +532,9 @@ def summaries(jobs: Iterable[Job]) -> list[JobSummary]:
                 status=_status(q, [lots[i] for i in per_job_lots[job.pk]]),
                 quantities=q,
                 lots=lines,
-                projected_finish=projected_finish(job),
+                projected_finish=forecasts[job.pk].p50 if job.pk in forecasts else None,
+                projected_finish_p90=forecasts[job.pk].p90 if job.pk in forecasts else None,
+                forecast_due_state=forecasts[job.pk].state if job.pk in forecasts else None,
             )
         )
     return out

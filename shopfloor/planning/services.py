@@ -410,6 +410,22 @@ def job_projection(job: Job, now: dt.datetime | None = None) -> Projection | Non
     return Projection(row[0], row[1], row[2], due=job.due_date, state=state.value)
 
 
+def job_projections(job_ids: list[int], now: dt.datetime | None = None) -> dict[int, Projection]:
+    """The newest fresh forecast of many jobs, by job id, in one query (the jobs list
+    and API)."""
+    now = now or timezone.now()
+    rows = JobForecast.objects.filter(job_id__in=job_ids, run__in=fresh_runs(now)[:1]).values_list(
+        "job_id", "p50", "p90", "run__finished_at", "job__due_date"
+    )
+    out: dict[int, Projection] = {}
+    for job_id, p50, p90, run_at, due in rows:
+        if run_at is None:
+            continue
+        state = schedule.forecast_due_state(now, due_end(due), p90)
+        out[job_id] = Projection(p50, p90, run_at, due=due, state=state.value)
+    return out
+
+
 # --- quoting a new order ------------------------------------------------------------------
 
 QUOTE_CODE = "QUOTE"

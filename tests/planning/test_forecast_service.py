@@ -253,3 +253,18 @@ def test_validate_command_prints_exactly_the_four_keys(capsys):
     # Erlang C, c = 2, a = 1.2: C = 0.45, Wq = 0.45 / 0.8 = 0.5625, W = 1.5625
     assert out["mean_time_in_system"] == pytest.approx(1.5625, rel=0.1)
     assert out["utilisation"] == pytest.approx(0.6, abs=0.03)
+
+
+def test_jobs_api_and_job_page_carry_the_forecast(floor, client):
+    api = _api(floor.personas["supervisor"])
+    before = api.get(f"/api/v1/jobs/{floor.job.number}/").json()
+    assert before["projected_finish"] is None and before["forecast_due_state"] is None
+    run = _run()
+    fc = JobForecast.objects.get(run=run, job=floor.job)
+    read = api.get(f"/api/v1/jobs/{floor.job.number}/").json()
+    assert dt.datetime.fromisoformat(read["projected_finish"]) == fc.p50
+    assert dt.datetime.fromisoformat(read["projected_finish_p90"]) == fc.p90
+    assert read["forecast_due_state"] == "on_time"
+    client.force_login(floor.personas["supervisor"].user)
+    page = client.get(f"/jobs/{floor.job.number}/").content.decode()
+    assert "P50 " in page and "P90 " in page
