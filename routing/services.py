@@ -26,6 +26,49 @@ def spec_problems(exc: spec_core.SpecInvalid) -> list[dict[str, Any]]:
     return [e.as_dict() for e in exc.errors]
 
 
+def validate_spec(spec: Any) -> dict[str, Any]:
+    """THE spec validator of the form, the API, the command and the admin: the spec in
+    its stored form (enum values in their stored spelling, thicknesses in um), or
+    InvalidInput listing every problem. Nothing invalid is saved anywhere."""
+    try:
+        return spec_core.normalise_spec(spec)
+    except spec_core.SpecInvalid as exc:
+        raise InvalidInput(
+            f"The build spec has {len(exc.errors)} problem(s); nothing was saved.",
+            problems=spec_problems(exc),
+        ) from exc
+
+
+def set_spec(*, person: Person, part_revision_id: int, spec: Any) -> PartRevision:
+    """Store an authored build spec on a part revision (process engineers).
+
+    Routing revisions keep the spec they were built from, so changing the part
+    revision's spec changes nothing on the floor until a new revision is released.
+    """
+    _require_role(person, "process_engineer", "author build specs")
+    stored = validate_spec(spec)
+    with transaction.atomic():
+        part_revision = (
+            PartRevision.objects.select_for_update(no_key=True).filter(pk=part_revision_id).first()
+        )
+        if part_revision is None:
+            raise NotFound(f"No part revision {part_revision_id}.")
+        before = part_revision.build_spec
+        if before == stored:
+            return part_revision
+        part_revision.build_spec = stored
+        part_revision.save(update_fields=["build_spec"])
+        audit.record(
+            actor=person.user,
+            action="part_revision.spec_set",
+            object_type="part_revision",
+            object_id=part_revision.pk,
+            before={"build_spec": before},
+            after={"build_spec": stored},
+        )
+        return part_revision
+
+
 def current_library() -> tuple[ProcessLibraryVersion | None, ProcessLibrary]:
     version = ProcessLibraryVersion.objects.order_by("-version").first()
     if version is None:
@@ -254,6 +297,23 @@ def release(*, person: Person, revision_id: int, pin: str) -> RoutingRevision:
             raise NotFound(f"No routing revision {revision_id}.")
         if revision.is_released:
             raise Conflict(f"Routing revision r{revision.number} is already released.")
+        latest = (
+            RoutingRevision.objects.filter(
+                part_revision_id=revision.part_revision_id,
+                status=RoutingRevision.Status.RELEASED,
+            )
+            .order_by("-number")
+            .first()
+        )
+        if latest is not None and (latest.built, latest.overrides) == (
+            revision.built,
+            revision.overrides,
+        ):
+            raise Conflict(
+                f"Routing revision r{revision.number} has no differences from released "
+                f"r{latest.number}, so there is nothing to release. Change the build spec or "
+                "the overrides and draft again."
+            )
         sig = audit.sign(
             person=person,
             meaning="released_by",

@@ -19,6 +19,7 @@ from django.views.decorators.http import require_http_methods, require_POST
 
 from routing import services
 from routing.api import EXAMPLE_SPEC, split_preview_body
+from routing.builder import render as routing_render
 from routing.builder.design_import import ImportResult, cross_section_svg
 from routing.models import RoutingRevision
 from shopfloor.errors import DomainError
@@ -235,7 +236,9 @@ def _revision_page(
         {
             "revision": rev,
             "steps": rev.steps.select_related("work_center").order_by("seq"),
-            "diff_lines": [line for line in rev.diff.splitlines() if line.strip()],
+            "diff_rows": routing_render.diff_table(rev.previous.built, rev.built)
+            if rev.previous
+            else [],
             "can_change": bool(roles & CHANGE_ROLES),
             "movable_lots": _movable_lots(rev),
             "error": error,

@@ -18,11 +18,11 @@ practice); final inspection; pack.
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
-from .library import ProcessLibrary, StepDefinition
+from .library import DEFAULT_PLATING_ALLOWANCE_MM, ProcessLibrary, StepDefinition
 from .spec import BuildSpec, SubAssembly, Via
 from .windows import Window, window_rule
 
@@ -162,7 +162,7 @@ def _cycle_steps(spec: BuildSpec) -> list[_Planned]:
         if final or mech:
             params: dict[str, Any] = {"stacks": stack_labels, "vias": mech}
             if final:
-                params["min_hole_mm"] = spec.min_hole_mm
+                params["finished_hole_mm"] = spec.min_hole_mm
             out.append(_Planned("drill_mechanical", cycle, params))
         if laser:
             out.append(_Planned("drill_laser", cycle, {"stacks": stack_labels, "vias": laser}))
@@ -179,13 +179,15 @@ def _plan(spec: BuildSpec) -> list[_Planned]:
     steps = [_Planned("engineering_review"), _Planned("phototool_prep")]
     if spec.layers == 1:
         steps += [
-            _Planned("drill_mechanical", params={"min_hole_mm": spec.min_hole_mm, "plated": False}),
+            _Planned(
+                "drill_mechanical", params={"finished_hole_mm": spec.min_hole_mm, "plated": False}
+            ),
             _Planned("deburr"),
         ]
         steps += [_Planned(b) for b in _OUTER_PRINT_ETCH]
     elif spec.layers == 2:
         steps += [
-            _Planned("drill_mechanical", params={"min_hole_mm": spec.min_hole_mm}),
+            _Planned("drill_mechanical", params={"finished_hole_mm": spec.min_hole_mm}),
             _Planned("desmear"),
             _Planned("hole_metallisation"),
         ]
@@ -270,6 +272,26 @@ def _windows(
     return tuple(out)
 
 
+def drill_size(params: Mapping[str, Any]) -> dict[str, Any]:
+    """The drill to load for the smallest hole: its finished size plus the plating
+    allowance of the library's drill step (none for unplated holes).
+
+    The drill step used to be handed the finished hole size, which would leave a plated
+    hole undersize by twice the wall copper. The allowance comes from the process
+    library (`plating_allowance_mm`, shop practice; DEFAULT_PLATING_ALLOWANCE_MM when a
+    stored library predates it).
+    """
+    finished = float(params["finished_hole_mm"])
+    plated = params.get("plated", True) is not False
+    allowance = params.get("plating_allowance_mm", DEFAULT_PLATING_ALLOWANCE_MM)
+    if not plated:
+        allowance = 0.0
+    return {
+        "plating_allowance_mm": allowance,
+        "drill_diameter_mm": round(finished + float(allowance), 3),
+    }
+
+
 def build_routing(
     spec: BuildSpec,
     library: ProcessLibrary | None = None,
@@ -291,6 +313,8 @@ def build_routing(
         d = lib.steps[p.base]
         params = dict(d.parameters)
         params.update(p.params)
+        if "finished_hole_mm" in params:
+            params.update(drill_size(params))
         if d.queue_time_limit_minutes is not None and d.queue_time_until:
             params["queue_time_until"] = _resolve_until(d.queue_time_until, planned, codes, i)
         steps.append(

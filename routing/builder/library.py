@@ -111,6 +111,13 @@ def _step(
     }
 
 
+#: Plated holes are drilled this much over their finished size, to leave room for the
+#: hole-wall copper (about 25 um a side) and the surface finish. Shop practice, from
+#: memory: 0.1 mm (4 mil) is the usual allowance for plated through-holes, some shops use
+#: up to 0.15 mm; a site edits `plating_allowance_mm` of the drill step in the process
+#: library (admin) to its own practice.
+DEFAULT_PLATING_ALLOWANCE_MM: Final = 0.1
+
 _ETCH_PARAMS: Final = {
     "conveyor_speed_m_per_min": 1.8,
     "temperature_c": 50,
@@ -229,7 +236,11 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             "drilling",
             "Drill to the drill file; check the first hole sizes and positions.",
             90,
-            {"entry": "aluminium", "backup": "phenolic"},
+            {
+                "entry": "aluminium",
+                "backup": "phenolic",
+                "plating_allowance_mm": DEFAULT_PLATING_ALLOWANCE_MM,
+            },
         ),
         "drill_laser": _step(
             "Laser drilling",

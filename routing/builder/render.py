@@ -186,3 +186,143 @@ def _diff_measurements(seq: int, code: str, old: dict[str, Any], new: dict[str, 
 
 def _dict_limits(m: dict[str, Any]) -> str:
     return f"min {_fmt(m.get('min'))} max {_fmt(m.get('max'))} {m.get('unit', '')}".rstrip()
+
+
+_SUFFIX_UNITS = (
+    ("_mm", "mm"),
+    ("_um", "µm"),
+    ("_c", "°C"),
+    ("_minutes", "min"),
+    ("_m_per_min", "m/min"),
+    ("_pct", "%"),
+)
+
+
+def _with_unit(key: str, value: Any) -> str:
+    if value is None:
+        return "—"
+    text = _show(value)
+    for suffix, unit in _SUFFIX_UNITS:
+        if key.endswith(suffix) and isinstance(value, int | float) and not isinstance(value, bool):
+            return f"{text} {unit}"
+    return text
+
+
+def diff_table(old: dict[str, Any], new: dict[str, Any]) -> list[dict[str, str]]:
+    """The differences between two routings as rows for a table a person reads.
+
+    Each row: `change` (step added / step removed / parameter changed / window changed /
+    ...), `step` (seq, code and name), `what` (the field, parameter or measured quantity)
+    and `old` / `new` with units. Steps are matched by code, so a renumbering alone is
+    not a change (as in `diff_routings`).
+    """
+    rows: list[dict[str, str]] = []
+
+    def row(change: str, step: dict[str, Any] | None, what: str, a: str, b: str) -> None:
+        label = f"{step['seq']}. {step['name']} ({step['code']})" if step else "whole routing"
+        rows.append({"change": change, "step": label, "what": what, "old": a, "new": b})
+
+    old_steps = {s["code"]: s for s in old.get("steps", [])}
+    new_steps = {s["code"]: s for s in new.get("steps", [])}
+    for s in new.get("steps", []):
+        before = old_steps.get(s["code"])
+        if before is None:
+            row(
+                "step added",
+                s,
+                s["work_center"],
+                "—",
+                f"{len(s.get('measurements', []))} window(s)",
+            )
+            continue
+        for f in _STEP_FIELDS:
+            if f == "parameters":
+                a, b = before.get(f) or {}, s.get(f) or {}
+                for key in sorted(set(a) | set(b)):
+                    if a.get(key) != b.get(key):
+                        change = (
+                            "parameter added"
+                            if key not in a
+                            else "parameter removed"
+                            if key not in b
+                            else "parameter changed"
+                        )
+                        row(
+                            change,
+                            s,
+                            key.replace("_", " "),
+                            _with_unit(key, a.get(key)),
+                            _with_unit(key, b.get(key)),
+                        )
+            elif before.get(f) != s.get(f):
+                row("step changed", s, f.replace("_", " "), _show(before.get(f)), _show(s.get(f)))
+        rows += _window_rows(s, before)
+    for s in old.get("steps", []):
+        if s["code"] not in new_steps:
+            row(
+                "step removed",
+                s,
+                s["work_center"],
+                f"{len(s.get('measurements', []))} window(s)",
+                "—",
+            )
+    for key in ("lamination_cycles", "aspect_ratio"):
+        if old.get(key) != new.get(key):
+            row(
+                "routing changed",
+                None,
+                key.replace("_", " "),
+                _show(old.get(key)),
+                _show(new.get(key)),
+            )
+    old_w, new_w = list(old.get("warnings", [])), list(new.get("warnings", []))
+    for w in new_w:
+        if w not in old_w:
+            row("warning added", None, "warning", "—", w)
+    for w in old_w:
+        if w not in new_w:
+            row("warning removed", None, "warning", w, "—")
+    return rows
+
+
+def _window_rows(new: dict[str, Any], old: dict[str, Any]) -> list[dict[str, str]]:
+    rows: list[dict[str, str]] = []
+    label = f"{new['seq']}. {new['name']} ({new['code']})"
+    before = {m["quantity"]: m for m in old.get("measurements", [])}
+    after = {m["quantity"]: m for m in new.get("measurements", [])}
+
+    def limits(m: dict[str, Any]) -> str:
+        unit = m.get("unit", "")
+        parts = [
+            f"{k} {_fmt(m[k])} {unit}".strip()
+            for k in ("min", "max", "target")
+            if m.get(k) is not None
+        ]
+        return ", ".join(parts) or "no limits"
+
+    for q, m in after.items():
+        if q not in before:
+            rows.append(
+                {"change": "window added", "step": label, "what": q, "old": "—", "new": limits(m)}
+            )
+            continue
+        for f in _WINDOW_FIELDS:
+            a, b = before[q].get(f), m.get(f)
+            if a == b:
+                continue
+            unit = f" {m.get('unit', '')}" if f in ("min", "max", "target") else ""
+            rows.append(
+                {
+                    "change": "window changed",
+                    "step": label,
+                    "what": f"{q} {f}",
+                    "old": "—" if a is None else f"{_show(a)}{unit}",
+                    "new": "—" if b is None else f"{_show(b)}{unit}",
+                }
+            )
+    for q, m in before.items():
+        if q not in after:
+            rows.append(
+                {"change": "window removed", "step": label, "what": q, "old": limits(m), "new": "—"}
+            )
+    return rows

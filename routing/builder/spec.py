@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import itertools
 import math
+import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any, Final
@@ -32,6 +33,8 @@ __all__ = [
     "StackupLayer",
     "SubAssembly",
     "Via",
+    "canonical_choice",
+    "normalise_spec",
     "parse_spec",
     "plan_lamination",
     "spec_json_schema",
@@ -128,6 +131,34 @@ def _json_safe(value: Any) -> Any:
     if isinstance(value, Mapping):
         return {str(k): _json_safe(v) for k, v in value.items()}
     return repr(value)
+
+
+def canonical_choice(value: str) -> str:
+    """The stored spelling of an enumerated value: lower case, underscores."""
+    return "_".join(value.strip().lower().replace("-", " ").split())
+
+
+_THICKNESS_ALLOWED: Final = {
+    True: "a number in um, or text such as '1 oz', '0.5oz', '35 um', '1.4 mil'",
+    False: "a number in um, or text such as '100 um', '4 mil', '0.1 mm'",
+}
+_NUMBER_AND_UNIT: Final = re.compile(r"^\s*([0-9]+(?:\.[0-9]*)?|\.[0-9]+)\s*(\S*)\s*$")
+
+
+def _thickness_text(text: str, copper: bool) -> float | str:
+    """Text like "1 oz" as um, or the reason it is not a thickness."""
+    from shopfloor import units
+
+    match = _NUMBER_AND_UNIT.match(text)
+    if match is None:
+        return "not a thickness: give a number and a unit"
+    number, unit = float(match.group(1)), match.group(2) or "um"
+    if not copper and unit.lower().startswith("oz"):
+        return "copper weight (oz) is only for copper; give a length"
+    try:
+        return units.to_canonical("surface_copper", number, unit)
+    except units.UnitError as exc:
+        return str(exc).replace("surface_copper: ", "")
 
 
 class SpecInvalid(ValueError):
@@ -326,13 +357,30 @@ class _Collector:
         return int(value)
 
     def choice(self, field_: str, value: Any, allowed: tuple[str, ...]) -> str | None:
+        """One of `allowed`, in any case and with spaces or hyphens for underscores
+        ("ENIG", "Flying probe", "route-and-v-score"): people type what the drawing says."""
         if not isinstance(value, str):
             self.add(field_, value, "must be text", list(allowed))
             return None
-        if value not in allowed:
+        canonical = canonical_choice(value)
+        if canonical not in allowed:
             self.add(field_, value, "not one of the allowed values", list(allowed))
             return None
-        return value
+        return canonical
+
+    def thickness(self, field_: str, value: Any, *, high: float, copper: bool) -> float | None:
+        """A thickness in um, or text with a unit: "35 um", "1.4 mil", "1 oz", "0.5oz".
+
+        The conversion is shopfloor.units (the one conversion module; 1 oz/ft² of copper
+        = 34.79 um, common practice); copper weight is accepted only for copper.
+        """
+        if isinstance(value, str):
+            converted = _thickness_text(value, copper)
+            if isinstance(converted, str):
+                self.add(field_, value, converted, _THICKNESS_ALLOWED[copper])
+                return None
+            value = converted
+        return self.number(field_, value, low=0, high=high, unit="um")
 
 
 # --------------------------------------------------------------------------- parse
@@ -392,13 +440,13 @@ def parse_spec(data: object, capability: ShopCapability | None = None) -> BuildS
         else None
     )
     outer_cu = (
-        c.number("outer_copper_base_um", d["outer_copper_base_um"], low=0, high=420.0, unit="um")
+        c.thickness("outer_copper_base_um", d["outer_copper_base_um"], high=420.0, copper=True)
         if "outer_copper_base_um" in d
         else None
     )
     inner_cu: float | None = None
     if "inner_copper_um" in d and not (d["inner_copper_um"] is None and (layers or 0) < 4):
-        inner_cu = c.number("inner_copper_um", d["inner_copper_um"], low=0, high=420.0, unit="um")
+        inner_cu = c.thickness("inner_copper_um", d["inner_copper_um"], high=420.0, copper=True)
     elif layers is not None and layers >= 4:
         c.add(
             "inner_copper_um",
@@ -500,6 +548,55 @@ def parse_spec(data: object, capability: ShopCapability | None = None) -> BuildS
     )
 
 
+def normalise_spec(data: object, capability: ShopCapability | None = None) -> dict[str, Any]:
+    """The spec as it is stored: validated by `parse_spec` (SpecInvalid otherwise), with
+    enumerated values in their stored spelling ("ENIG" -> "enig") and thicknesses typed
+    with a unit converted to um ("1 oz" -> 34.79). The keys given stay the keys stored;
+    a spec already in stored form comes back equal, so normalising twice changes nothing.
+    """
+    spec = parse_spec(data, capability)
+    assert isinstance(data, Mapping)
+    out: dict[str, Any] = dict(data)
+    out["layers"] = spec.layers
+    out["ipc_class"] = spec.ipc_class
+    out["finish"] = spec.finish
+    out["profile"] = spec.profile
+    out["electrical_test"] = spec.electrical_test
+    out["outer_copper_base_um"] = _number_as_given(
+        data["outer_copper_base_um"], spec.outer_copper_base_um
+    )
+    if data.get("inner_copper_um") is not None and spec.inner_copper_um is not None:
+        out["inner_copper_um"] = _number_as_given(data["inner_copper_um"], spec.inner_copper_um)
+    if "solder_mask" in data:
+        out["solder_mask"] = {"sides": spec.solder_mask.sides, "colour": spec.solder_mask.colour}
+    if "legend" in data:
+        out["legend"] = {"sides": spec.legend.sides}
+    if "vias" in data:
+        out["vias"] = [
+            {"from": v.from_layer, "to": v.to_layer, "kind": v.kind, "drill": v.drill}
+            for v in spec.vias
+        ]
+    if data.get("stackup") is not None and spec.stackup is not None:
+        rows = []
+        for raw, layer in zip(data["stackup"], spec.stackup, strict=True):
+            row: dict[str, Any] = {
+                "kind": layer.kind,
+                "thickness_um": _number_as_given(raw["thickness_um"], layer.thickness_um),
+            }
+            if "material" in raw:
+                row["material"] = layer.material
+            rows.append(row)
+        out["stackup"] = rows
+    return out
+
+
+def _number_as_given(raw: Any, parsed: float) -> Any:
+    """Keep a number as typed (35 stays 35); text with a unit becomes um, rounded to 0.01."""
+    if isinstance(raw, int | float) and not isinstance(raw, bool):
+        return raw
+    return round(parsed, 2)
+
+
 def _parse_outline(c: _Collector, raw: Any) -> Outline | None:
     """Optional outline size (a design import fills it from the file's board profile)."""
     if not isinstance(raw, Mapping):
@@ -521,6 +618,18 @@ def _parse_mask(c: _Collector, raw: Any) -> SolderMask | None:
         return None
     c.keys("solder_mask", raw, (), ("sides", "colour"))
     sides = c.choice("solder_mask.sides", raw.get("sides", "both"), SIDES)
+    if sides == "none":
+        # No mask: the colour may be left out or be "none"; anything else is a mistake.
+        given = raw.get("colour", "none")
+        if given is None or (isinstance(given, str) and canonical_choice(given) == "none"):
+            return SolderMask(sides="none", colour="none")
+        c.add(
+            "solder_mask.colour",
+            given,
+            "a board without solder mask has no mask colour",
+            "leave it out, or 'none'",
+        )
+        return None
     colour = c.choice("solder_mask.colour", raw.get("colour", "green"), MASK_COLOURS)
     if sides is None or colour is None:
         return None
@@ -711,7 +820,12 @@ def _parse_stackup(c: _Collector, raw: Any) -> tuple[StackupLayer, ...] | None:
         c.keys(where, item, ("kind", "thickness_um"), ("material",))
         kind = c.choice(f"{where}.kind", item["kind"], STACKUP_KINDS) if "kind" in item else None
         t = (
-            c.number(f"{where}.thickness_um", item["thickness_um"], low=0, high=5000.0, unit="um")
+            c.thickness(
+                f"{where}.thickness_um",
+                item["thickness_um"],
+                high=5000.0,
+                copper=kind == "copper",
+            )
             if "thickness_um" in item
             else None
         )

@@ -12,7 +12,14 @@ class PlanningSettingsAdmin(admin.ModelAdmin):
     list_display = ["__str__", "scrap_allowance_pct", "max_panels_per_lot", "job_number_prefix"]
 
     def has_add_permission(self, request):  # type: ignore[no-untyped-def]
-        return not PlanningSettings.objects.exists()
+        return False  # one row, made on first use: edit it, never add a second
+
+    def has_delete_permission(self, request, obj=None):  # type: ignore[no-untyped-def]
+        return False
+
+    def changelist_view(self, request, extra_context=None):  # type: ignore[no-untyped-def]
+        PlanningSettings.current()  # so the one row is always there to edit
+        return super().changelist_view(request, extra_context)
 
 
 @admin.register(PartPlanning)

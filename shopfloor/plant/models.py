@@ -8,6 +8,7 @@ badge number and a separately hashed PIN used as the second signing component.
 from __future__ import annotations
 
 import datetime
+from typing import Any
 
 from django.conf import settings
 from django.contrib.auth.hashers import check_password, make_password
@@ -76,6 +77,43 @@ class PartRevision(models.Model):
 
     def __str__(self) -> str:
         return f"{self.part.number} rev {self.revision}"
+
+    def save(self, *args: Any, **kwargs: Any) -> None:
+        """Every save stores the spec in its validated, stored form; an invalid spec is
+        refused here too (SpecInvalid), so no path can store one."""
+        from routing.builder.spec import normalise_spec
+
+        if self.build_spec:
+            self.build_spec = normalise_spec(self.build_spec)
+        super().save(*args, **kwargs)
+
+    @property
+    def has_spec(self) -> bool:
+        """A part revision entered with a job starts with {}: no spec authored yet."""
+        return bool(self.build_spec)
+
+    def clean(self) -> None:
+        """The admin's check: the same validator as the form, the API and the command."""
+        from django.core.exceptions import ValidationError
+
+        from routing.builder.spec import SpecInvalid, normalise_spec
+
+        super().clean()
+        if not self.build_spec:
+            return
+        try:
+            self.build_spec = normalise_spec(self.build_spec)
+        except SpecInvalid as exc:
+            raise ValidationError(
+                {
+                    "build_spec": [
+                        f"{e.field}: {e.problem} (given {e.value!r}"
+                        + (f"; allowed: {e.allowed}" if e.allowed else "")
+                        + ")"
+                        for e in exc.errors
+                    ]
+                }
+            ) from exc
 
 
 class WorkCenter(models.Model):

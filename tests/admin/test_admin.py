@@ -31,6 +31,8 @@ pytestmark = pytest.mark.django_db
 
 #: Models whose rows only services create (no add page on purpose).
 NO_ADD = {
+    "orders.panellayout",
+    "orders.planningsettings",
     "routing.routingrevision",
     "routing.routingstep",
     "floor.lotstep",
