@@ -46,6 +46,7 @@ NO_ADD = {
     "quality.nonconformance",
     "quality.hold",
     "plant.lot",
+    "planning.forecastrun",  # written by the forecast task only
 }
 
 
