@@ -21,6 +21,7 @@ from django.utils import timezone
 
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Job, Lot
+from shopfloor.safe_output import pdf_paragraph
 from shopfloor.windows import describe_window
 
 _DEJAVU = Path("/usr/share/fonts/truetype/dejavu")
@@ -84,14 +85,6 @@ def _fonts() -> tuple[str, str]:
     return "Helvetica", "Helvetica-Bold"
 
 
-def _safe(text: str, font: str) -> str:
-    from xml.sax.saxutils import escape
-
-    if font == "Helvetica":
-        text = text.replace("≥", ">=").replace("≤", "<=")
-    return escape(text)
-
-
 #: Paper sizes a traveller prints on (the layout is 178 mm wide, which fits both).
 PAPER_SIZES = ("a4", "letter")
 
@@ -105,7 +98,6 @@ def traveller_pdf(lot: Lot, paper: str = "a4") -> bytes:
     from reportlab.platypus import (
         Image,
         KeepTogether,
-        Paragraph,
         SimpleDocTemplate,
         Spacer,
         Table,
@@ -124,8 +116,9 @@ def traveller_pdf(lot: Lot, paper: str = "a4") -> bytes:
     )
     caution = ParagraphStyle("caution", parent=small, textColor=colors.HexColor("#7a3b00"))
 
-    def p(text: str, style: ParagraphStyle = body) -> Paragraph:
-        return Paragraph(_safe(text, font), style)
+    def p(text: str, style: ParagraphStyle = body) -> Any:
+        # Escaped: lot codes, names, notes and instructions print as typed, never as markup.
+        return pdf_paragraph(text, style, ascii_symbols=font == "Helvetica")
 
     revision = lot.routing_revision
     part_revision = revision.part_revision

@@ -12,7 +12,6 @@ board.
 
 from __future__ import annotations
 
-import csv
 import io
 import statistics
 from collections.abc import Iterator
@@ -22,6 +21,7 @@ from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Lot
 from shopfloor.quality import charts, history
 from shopfloor.quality.models import Alert, Hold, Nonconformance
+from shopfloor.safe_output import csv_writer, pdf_paragraph
 from shopfloor.windows import describe_window
 
 CHUNK = 2000
@@ -132,7 +132,8 @@ def lot_csv_rows(lot: Lot) -> Iterator[list[Any]]:
 
 
 def stream_lot_csv(lot: Lot) -> Iterator[str]:
-    writer = csv.writer(_Echo())
+    # Formula-looking text (a reason starting with "=") is defused: shopfloor.safe_output.
+    writer = csv_writer(_Echo())
     for row in lot_csv_rows(lot):
         yield writer.writerow(row)
 
@@ -190,7 +191,11 @@ def lot_record_pdf(h: history.LotHistory, *, certificate: bool = False) -> bytes
     from reportlab.lib.pagesizes import A4
     from reportlab.lib.styles import getSampleStyleSheet
     from reportlab.lib.units import mm
-    from reportlab.platypus import Paragraph, SimpleDocTemplate, Spacer, Table, TableStyle
+    from reportlab.platypus import SimpleDocTemplate, Spacer, Table, TableStyle
+
+    # Every paragraph escapes its text (shopfloor.safe_output): codes, notes and names
+    # print as typed and can never embed a file or break the document.
+    Paragraph = pdf_paragraph
 
     styles = getSampleStyleSheet()
     buf = io.BytesIO()
