@@ -132,6 +132,14 @@ STORAGES = {
 SESSION_IDLE_TIMEOUT_SECONDS = env_int("SESSION_IDLE_TIMEOUT_SECONDS", 15 * 60, minimum=60)
 SESSION_COOKIE_AGE = 12 * 3600
 PIN_MAX_FAILURES = env_int("PIN_MAX_FAILURES", 5, minimum=1)
+# Sign-in throttling (shopfloor.throttle; counts kept in the database for every process).
+LOGIN_THROTTLE_WINDOW_SECONDS = env_int("LOGIN_THROTTLE_WINDOW_SECONDS", 15 * 60, minimum=10)
+LOGIN_BLOCK_SECONDS = env_int("LOGIN_BLOCK_SECONDS", 15 * 60, minimum=10)
+LOGIN_FAILURES_PER_IP = env_int("LOGIN_FAILURES_PER_IP", 20, minimum=1)
+LOGIN_FAILURES_PER_BADGE = env_int("LOGIN_FAILURES_PER_BADGE", PIN_MAX_FAILURES, minimum=1)
+ADMIN_LOGIN_MAX_FAILURES = env_int("ADMIN_LOGIN_MAX_FAILURES", 5, minimum=1)
+# Behind a proxy: the request header (WSGI name, e.g. HTTP_X_REAL_IP) with the client address.
+CLIENT_IP_HEADER = env_str("CLIENT_IP_HEADER", "") or ""
 
 SECURE_PROXY_SSL_HEADER = ("HTTP_X_FORWARDED_PROTO", "https")
 if not DEBUG:

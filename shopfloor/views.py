@@ -5,6 +5,7 @@ from __future__ import annotations
 from django.http import HttpRequest, HttpResponse, JsonResponse
 from django.shortcuts import redirect, render
 
+from shopfloor import throttle
 from shopfloor.health import health_response
 
 
@@ -33,3 +34,29 @@ def not_found(request: HttpRequest, exception: Exception | None = None) -> HttpR
     return render(
         request, "404.html", {"reason": "That page or record does not exist."}, status=404
     )
+
+
+def admin_login(request: HttpRequest) -> HttpResponse:
+    """The admin site's login behind the same throttle and lockout as the badge login.
+
+    Failures count per client address and per user name as typed; at
+    ADMIN_LOGIN_MAX_FAILURES the name is locked for LOGIN_BLOCK_SECONDS (even the right
+    password is refused, 429 with Retry-After), logged and audited (shopfloor.throttle).
+    """
+    from django.contrib import admin
+
+    if request.method != "POST":
+        return admin.site.login(request)
+    keys = throttle.admin_keys(throttle.client_ip(request), request.POST.get("username", ""))
+    try:
+        throttle.check(keys)
+    except throttle.Throttled as exc:
+        response = render(request, "admin_locked.html", {"reason": exc.detail}, status=exc.status)
+        response["Retry-After"] = str(exc.retry_after)
+        return response
+    response = admin.site.login(request)
+    if request.user.is_authenticated and request.user.is_staff:
+        throttle.clear(keys)
+    else:
+        throttle.record_failure(keys, what="admin sign-in")
+    return response

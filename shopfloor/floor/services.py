@@ -9,17 +9,19 @@ from __future__ import annotations
 
 import logging
 import math
+import secrets
 from dataclasses import dataclass
 from datetime import datetime, timedelta
 from typing import Any
 
 from django.conf import settings
+from django.contrib.auth.hashers import check_password, make_password
 from django.contrib.auth.models import AbstractBaseUser
 from django.db import transaction
 from django.db.models import Exists, OuterRef, Q
 from django.utils import timezone
 
-from shopfloor import units
+from shopfloor import throttle, units
 from shopfloor.audit import services as audit
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
 from shopfloor.floor.models import LotStep, Reading
@@ -46,24 +48,54 @@ def person_for(user: AbstractBaseUser | Any) -> Person:
     return person
 
 
-def badge_login(badge_number: str, pin: str) -> Person:
-    """Find the person for a badge scan and PIN; count wrong PINs and lock at the limit."""
+#: The one answer to every failed badge sign-in: an unknown badge, a wrong PIN and a locked
+#: badge look the same, so the page cannot be used to find real badge numbers (OWASP
+#: Authentication Cheat Sheet, "authentication and error messages").
+LOGIN_REFUSED = (
+    "Badge number or PIN is not right. After several wrong PINs a badge is locked; a "
+    "supervisor can unlock it."
+)
+_dummy_pin_hash: list[str] = []
+
+
+def _dummy_hash() -> str:
+    """A PIN hash made once per process, checked for unknown badges so that they cost the
+    same hashing work as real ones (no timing difference to enumerate badges by)."""
+    if not _dummy_pin_hash:
+        _dummy_pin_hash.append(make_password(secrets.token_hex(8), hasher="pin_pbkdf2_sha256"))
+    return _dummy_pin_hash[0]
+
+
+def badge_login(badge_number: str, pin: str, *, client_ip: str = "unknown") -> Person:
+    """Find the person for a badge scan and PIN; count wrong PINs and lock at the limit.
+
+    Throttled per client address and per badge number as typed (shopfloor.throttle, 429
+    with Retry-After). Unknown badges hash a dummy PIN and count against the throttle just
+    like real ones, and every failure gets the same LOGIN_REFUSED message.
+    """
     badge_number = (badge_number or "").strip()
     if not badge_number or not pin:
         raise InvalidInput("Scan or type your badge number and enter your PIN.")
-    generic = "Badge number or PIN is not right."
+    if not (badge_number + pin).isprintable():
+        raise InvalidInput(
+            "The badge number or PIN holds a control character; scan the badge again and "
+            "type the PIN with the digit keys."
+        )
+    keys = throttle.badge_keys(client_ip, badge_number)
+    throttle.check(keys)
     person = Person.objects.select_related("user").filter(badge_number=badge_number).first()
     if person is None or not person.user.is_active:
-        raise NotAllowed(generic)
-    try:
-        verify_pin(person, pin)
-    except NotAllowed as exc:
-        # Say "locked" (the person must fetch a supervisor) but never reveal whether a
-        # badge number exists by counting down its attempts at the login screen.
-        if "locked" in exc.detail:
-            raise
-        raise NotAllowed(generic) from exc
-    return person
+        check_password(pin, _dummy_hash())  # same work as a real badge; result unused
+    else:
+        try:
+            verify_pin(person, pin)
+        except NotAllowed:
+            pass
+        else:
+            throttle.clear(keys)
+            return person
+    throttle.record_failure(keys, actor=None, what="badge sign-in")
+    raise NotAllowed(LOGIN_REFUSED)
 
 
 def verify_pin(person: Person, pin: str) -> None:
@@ -71,6 +103,7 @@ def verify_pin(person: Person, pin: str) -> None:
     with transaction.atomic():
         locked = Person.objects.select_for_update(no_key=True).get(pk=person.pk)
         if locked.is_locked:
+            locked.pin_matches(pin)  # the same hashing work as an unlocked badge (timing)
             raise NotAllowed(
                 "This badge is locked after too many wrong PINs. A supervisor or administrator "
                 "must unlock it."

@@ -23,7 +23,7 @@ from django.urls import reverse
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
 from shopfloor import access as read_scope
-from shopfloor import units
+from shopfloor import throttle, units
 from shopfloor.errors import DomainError, InvalidInput, NotFound
 from shopfloor.floor import forms, idempotency, services, traveller
 from shopfloor.floor.models import LotStep, Reading
@@ -41,13 +41,19 @@ OPEN_STATUSES = [LotStep.Status.WAITING, LotStep.Status.IN_PROGRESS, LotStep.Sta
 @require_http_methods(["GET", "POST"])
 def login_view(request: HttpRequest) -> HttpResponse:
     error = ""
+    status = 200
+    retry_after = 0
     if request.method == "POST":
         try:
             person = services.badge_login(
-                request.POST.get("badge", ""), request.POST.get("pin", "")
+                request.POST.get("badge", ""),
+                request.POST.get("pin", ""),
+                client_ip=throttle.client_ip(request),
             )
+        except throttle.Throttled as exc:
+            error, status, retry_after = exc.detail, exc.status, exc.retry_after
         except DomainError as exc:
-            error = exc.detail
+            error, status = exc.detail, 400
         else:
             login(request, person.user, backend="django.contrib.auth.backends.ModelBackend")
             target = request.GET.get("next") or ""
@@ -56,9 +62,10 @@ def login_view(request: HttpRequest) -> HttpResponse:
                 target = reverse("floor:work_centers")
             return redirect(target)
     idle = request.GET.get("idle") == "1"
-    return render(
-        request, "floor/login.html", {"error": error, "idle": idle}, status=400 if error else 200
-    )
+    response = render(request, "floor/login.html", {"error": error, "idle": idle}, status=status)
+    if retry_after:
+        response["Retry-After"] = str(retry_after)
+    return response
 
 
 @require_POST

@@ -331,3 +331,17 @@ class PanelImage(models.Model):
 
     def __str__(self) -> str:
         return f"{self.panel_id}: {self.count} x job {self.job_id}"
+
+
+class LoginThrottle(models.Model):
+    """Failed sign-ins counted per key ("ip:<address>", "badge:<number>",
+    "admin:<username>") over a window, in the database so every gunicorn process sees the
+    same count (shopfloor.throttle). A key over its limit is refused until blocked_until."""
+
+    key = models.CharField(max_length=200, unique=True)
+    failures = models.PositiveIntegerField(default=0)
+    window_started_at = models.DateTimeField()
+    blocked_until = models.DateTimeField(null=True, blank=True)
+
+    def __str__(self) -> str:
+        return f"{self.key}: {self.failures}"

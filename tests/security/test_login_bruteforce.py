@@ -9,13 +9,16 @@ settings.PIN_MAX_FAILURES.
 
 from __future__ import annotations
 
+import datetime as dt
 import html
 import logging
 import re
 
 import pytest
+import time_machine
 from django.conf import settings
 from django.test import Client
+from django.utils import timezone
 
 from shopfloor.audit.models import AuditEntry
 from tests.factories import PIN
@@ -59,7 +62,14 @@ def test_badge_locks_after_the_limit_and_the_right_pin_is_refused(personas, capl
     assert operator.badge_number in locked_logs[0].getMessage()
     assert PIN not in locked_logs[0].getMessage() and WRONG not in locked_logs[0].getMessage()
 
+    # The badge is now also throttled (429); once the block has passed, the right PIN is
+    # still refused (locked until a supervisor unlocks it), with the one login message.
     status, message = _attempt(client, operator.badge_number, PIN)
+    assert status == 429
+    with time_machine.travel(
+        timezone.now() + dt.timedelta(seconds=settings.LOGIN_BLOCK_SECONDS + 1), tick=False
+    ):
+        status, message = _attempt(Client(), operator.badge_number, PIN)
     assert status == 400
     assert "locked" in message.lower(), message
     assert not _logged_in(client)
@@ -87,8 +97,9 @@ def test_unknown_badge_and_wrong_pin_give_the_same_answer(personas):
 
 def test_many_tries_on_an_unknown_badge_lock_nothing_and_audit_nothing(personas):
     client = Client()
-    for _ in range(settings.PIN_MAX_FAILURES + 1):
+    for _ in range(settings.PIN_MAX_FAILURES):
         status, _ = _attempt(client, "77777", WRONG)
         assert status == 400
+    assert _attempt(client, "77777", WRONG)[0] == 429  # throttled like a real badge
     assert not AuditEntry.objects.filter(action="person.locked").exists()
     assert not any(p.is_locked for p in type(personas["operator"]).objects.all())
