@@ -70,14 +70,19 @@ class PdfMarkup(str):
     __slots__ = ()
 
 
+def pdf_plain(value: Any, *, ascii_symbols: bool = False) -> str:
+    """Text for a canvas drawString (never parsed as markup): control characters dropped."""
+    text = _CONTROL.sub("", "" if value is None else str(value))
+    if ascii_symbols:  # the core Helvetica font has no glyphs for these
+        text = text.replace("≥", ">=").replace("≤", "<=")
+    return text
+
+
 def pdf_text(value: Any, *, ascii_symbols: bool = False) -> str:
     """Any value as paragraph text that prints exactly as typed (no markup, no controls)."""
     if isinstance(value, PdfMarkup):
         return str(value)
-    text = _CONTROL.sub("", "" if value is None else str(value))
-    if ascii_symbols:  # the core Helvetica font has no glyphs for these
-        text = text.replace("≥", ">=").replace("≤", "<=")
-    return escape(text)
+    return escape(pdf_plain(value, ascii_symbols=ascii_symbols))
 
 
 def pdf_markup(template: str, *values: Any, ascii_symbols: bool = False) -> PdfMarkup:

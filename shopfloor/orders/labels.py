@@ -11,8 +11,9 @@ from __future__ import annotations
 import io
 from typing import Any
 
-from shopfloor.floor.traveller import _fonts, _safe, qr_png
+from shopfloor.floor.traveller import _fonts, qr_png
 from shopfloor.plant.models import Job, Lot
+from shopfloor.safe_output import pdf_plain
 
 LABEL_SIZES = ("label", "a4", "letter")
 
@@ -95,6 +96,5 @@ def lot_label_pdf(lot: Lot, paper: str = "label") -> bytes:
 
 
 def _plain(text: str, font: str) -> Any:
-    from html import unescape
-
-    return unescape(_safe(text, font))
+    # drawString prints text as it is (no markup); control characters are dropped.
+    return pdf_plain(text, ascii_symbols=font == "Helvetica")

@@ -146,18 +146,17 @@ def _pdf_text(pdf: bytes) -> str:
 
 @pytest.mark.django_db
 @pytest.mark.parametrize(
-    "what", ["record.pdf", "record.pdf?kind=certificate", "traveller"], ids=str
+    "what", ["record.pdf", "record.pdf?kind=certificate", "traveller", "label"], ids=str
 )
 def test_pdfs_print_markup_as_typed(hostile, what):
     lot, client = hostile
     from urllib.parse import quote
 
     code = quote(lot.code)
-    url = (
-        f"/floor/lots/{code}/traveller.pdf"
-        if what == "traveller"
-        else f"/quality/lots/{code}/{what}"
-    )
+    url = {
+        "traveller": f"/floor/lots/{code}/traveller.pdf",
+        "label": f"/jobs/lots/{code}/label.pdf",
+    }.get(what, f"/quality/lots/{code}/{what}")
     if what == "traveller":
         client.force_login(Person.objects.get(badge_number=hostile_badge(lot)).user)
     reply = client.get(url)
@@ -165,7 +164,9 @@ def test_pdfs_print_markup_as_typed(hostile, what):
     pdf = reply.content
     text = _pdf_text(pdf)
     assert "L<i>=1" in text  # the lot code as typed
-    if what != "traveller":
+    if what == "label":
+        assert "@PN<i>" in text and "=CUST<i>" in text
+    elif what != "traveller":
         assert "<img src=" in text  # the note printed, not obeyed
         # No raster image at all: the only pictures in the record are vector charts.
         assert b"/Subtype /Image" not in pdf
