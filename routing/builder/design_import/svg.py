@@ -28,17 +28,17 @@ FILL: Final[dict[str, str]] = {
     "coating": "#c9a227",
 }
 VIA_FILL: Final[dict[str, str]] = {"mechanical": "#3b3b3b", "laser": "#d35400"}
-WIDTH: Final = 820
-STACK_X: Final = 60
-STACK_W: Final = 330
-LABEL_X: Final = 430
+WIDTH: Final = 780
+STACK_X: Final = 40
+STACK_W: Final = 260
+LABEL_X: Final = 330
 LINE: Final = 17
 TOP: Final = 40
 STACK_H: Final = 420
 
 
 def _fmt(um: float) -> str:
-    return f"{um / 1000:.3f} mm" if um >= 1000 else f"{um:g} um"
+    return f"{um / 1000:.3f} mm" if um >= 1000 else f"{um:g} µm"
 
 
 def cross_section_svg(result: ImportResult, title: str = "Stack-up cross-section") -> str:
@@ -98,7 +98,7 @@ def cross_section_svg(result: ImportResult, title: str = "Stack-up cross-section
         parts.append(
             f'<text x="{LABEL_X}" y="{ly:.2f}" fill="#222"><tspan font-weight="bold">'
             f"{escape(name + kind)}</tspan> {escape(_fmt(r.thickness_um or 0))}"
-            f'{escape(material[:34])} <tspan fill="#666">({escape(r.name[:28])})</tspan>'
+            f'{escape(material[:30])} <tspan fill="#666">({escape(r.name[:26])})</tspan>'
             "</text>"
         )
 
@@ -128,7 +128,7 @@ def cross_section_svg(result: ImportResult, title: str = "Stack-up cross-section
     parts.append(
         f'<rect x="{STACK_X}" y="{sy:.2f}" width="4" height="{bar_um * scale:.2f}" fill="#222"/>'
         f'<text x="{STACK_X + 10}" y="{sy + bar_um * scale / 2 + 4:.2f}" fill="#222">'
-        f"{bar_um:g} um</text>"
+        f"{bar_um:g} µm</text>"
     )
     legend_x = STACK_X + 90
     for label, fill in (("mechanical drill", VIA_FILL["mechanical"]), ("laser", VIA_FILL["laser"])):
