@@ -15,6 +15,7 @@ urlpatterns = [
         name="api-routing-import-design",
     ),
     path("readings/", floor_api.ReadingCreateView.as_view(), name="api-readings"),
+    path("readings/batch/", floor_api.ReadingBatchView.as_view(), name="api-readings-batch"),
     path(
         "readings/<int:pk>/correct/",
         floor_api.ReadingCorrectView.as_view(),

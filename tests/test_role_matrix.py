@@ -148,6 +148,15 @@ ROWS: dict[str, Row] = {
     "POST reading": Row(
         "POST", lambda c: "/api/v1/readings/", (A, A, D, D, A, A, D, D), body=_reading
     ),
+    # The batch endpoint lets every floor role and instrument in; the work-center rule is
+    # applied per item (the other operator's items come back refused, status 200), which
+    # tests/api/test_readings_batch.py checks item by item.
+    "POST readings batch": Row(
+        "POST",
+        lambda c: "/api/v1/readings/batch/",
+        (A, A, D, D, A, A, D, A),
+        body=lambda c: {"items": [{**_reading(c), "sample_key": "matrix-1"}]},
+    ),
     "POST reading correction": Row(
         "POST",
         lambda c: f"/api/v1/readings/{c['reading'].pk}/correct/",

@@ -143,6 +143,51 @@ def record(
     The entry is sealed into the chain shortly after commit by the sealing task (at once
     after commit in the embedded mode, where no beat runs).
     """
+    entry = _new_entry(actor, action, object_type, object_id, before, after)
+    if connection.vendor == "postgresql":
+        entry.pk = _insert_rows([entry])[0]
+        entry._state.adding = False
+        entry._state.db = "default"
+    else:
+        entry.save(force_insert=True)
+    _seal_after_commit_if_embedded()
+    return entry
+
+
+@dataclass(frozen=True)
+class Change:
+    """One entry for `record_many`: the same fields `record` takes."""
+
+    action: str
+    object_type: str
+    object_id: object
+    before: dict[str, Any] | None = None
+    after: dict[str, Any] | None = None
+
+
+def record_many(actor: Any, changes: list[Change]) -> list[int]:
+    """Append several entries by one actor in a single INSERT (batch posts); their ids."""
+    if not changes:
+        return []
+    entries = [
+        _new_entry(actor, c.action, c.object_type, c.object_id, c.before, c.after) for c in changes
+    ]
+    if connection.vendor == "postgresql":
+        ids = _insert_rows(entries)
+    else:
+        ids = [e.pk for e in AuditEntry.objects.bulk_create(entries)]
+    _seal_after_commit_if_embedded()
+    return ids
+
+
+def _new_entry(
+    actor: Any,
+    action: str,
+    object_type: str,
+    object_id: object,
+    before: dict[str, Any] | None,
+    after: dict[str, Any] | None,
+) -> AuditEntry:
     now = timezone.now()
     actor_id = actor.pk if getattr(actor, "pk", None) else None
     body = canonical_json(
@@ -158,7 +203,7 @@ def record(
         }
     )
     content = json.loads(body)
-    entry = AuditEntry(
+    return AuditEntry(
         at=now,
         actor_id=actor_id,
         actor_name=content["actor_name"],
@@ -169,35 +214,44 @@ def record(
         after=content["after"],
         body=body,
     )
-    if connection.vendor == "postgresql":
-        with connection.cursor() as cursor:
-            cursor.execute(
-                "INSERT INTO audit_auditentry (at, actor_id, actor_name, action, object_type, "
-                "object_id, before, after, body) "
-                "VALUES (%s, %s, %s, %s, %s, %s, %s::jsonb, %s::jsonb, %s) RETURNING id",
-                [
-                    now,
-                    actor_id,
-                    entry.actor_name,
-                    action,
-                    object_type,
-                    entry.object_id,
-                    _json_param(content["before"]),
-                    _json_param(content["after"]),
-                    body,
-                ],
-            )
-            row = cursor.fetchone()
-            assert row is not None
-            entry.pk = row[0]
-        entry._state.adding = False
-        entry._state.db = "default"
-    else:
-        entry.save(force_insert=True)
+
+
+def _insert_rows(entries: list[AuditEntry]) -> list[int]:
+    """One INSERT for all entries (arrays unnested in order); the jsonb copies are parsed
+    from the same canonical text as the body."""
+    columns: list[list[Any]] = [[] for _ in range(9)]
+    for e in entries:
+        values = (
+            e.at,
+            e.actor_id,
+            e.actor_name,
+            e.action,
+            e.object_type,
+            e.object_id,
+            _json_param(e.before),
+            _json_param(e.after),
+            e.body,
+        )
+        for column, value in zip(columns, values, strict=True):
+            column.append(value)
+    with connection.cursor() as cursor:
+        cursor.execute(
+            "INSERT INTO audit_auditentry (at, actor_id, actor_name, action, object_type, "
+            "object_id, before, after, body) "
+            "SELECT at, actor_id, actor_name, action, object_type, object_id, "
+            "before::jsonb, after::jsonb, body FROM unnest(%s::timestamptz[], %s::bigint[], "
+            "%s::text[], %s::text[], %s::text[], %s::text[], %s::text[], %s::text[], %s::text[]) "
+            "WITH ORDINALITY AS v(at, actor_id, actor_name, action, object_type, object_id, "
+            "before, after, body, n) ORDER BY n RETURNING id",
+            columns,
+        )
+        return [r[0] for r in cursor.fetchall()]
+
+
+def _seal_after_commit_if_embedded() -> None:
     if connection.vendor != "postgresql" or settings.CELERY_TASK_ALWAYS_EAGER:
         # No beat runs in the embedded mode: seal right after this commit instead.
         transaction.on_commit(seal)
-    return entry
 
 
 def _json_param(value: Any) -> str | None:

@@ -23,7 +23,7 @@ from rest_framework.views import APIView
 
 from shopfloor.access import require_lot_readable
 from shopfloor.errors import InvalidInput
-from shopfloor.floor import idempotency, services
+from shopfloor.floor import batch, idempotency, services
 from shopfloor.floor.permissions import (
     CanPostReadings,
     CanRead,
@@ -36,6 +36,9 @@ from shopfloor.floor.permissions import (
 )
 from shopfloor.floor.serializers import (
     MAX_ID,
+    BatchInputSerializer,
+    BatchItemSerializer,
+    BatchResultSerializer,
     CorrectionInputSerializer,
     ErrorSerializer,
     LotStatusSerializer,
@@ -198,6 +201,27 @@ def idempotent(request: Request, action: Callable[[], tuple[int, Any]]) -> Respo
     return response
 
 
+def idempotent_batch(request: Request, action: Callable[[], tuple[int, Any]]) -> Response:
+    """Like `idempotent`, but the action runs its own transactions (one per lot step)."""
+
+    def stored_action() -> tuple[int, dict[str, Any]]:
+        status, body = action()
+        return status, _json_safe(body)
+
+    outcome = idempotency.run_in_steps(
+        user=request.user,
+        key=request.headers.get("Idempotency-Key"),
+        request_fingerprint=idempotency.fingerprint(
+            request.method or "POST", request.path, request.data
+        ),
+        action=stored_action,
+    )
+    response = Response(outcome.body, status=outcome.status)
+    if outcome.replayed:
+        response["Idempotent-Replay"] = "true"
+    return response
+
+
 class JsonAPIView(APIView):
     parser_classes = [JSONParser]
 
@@ -247,6 +271,77 @@ class ReadingCreateView(JsonAPIView):
             return 201, ReadingSerializer(reading).data
 
         return idempotent(request, action)
+
+
+class ReadingBatchView(JsonAPIView):
+    permission_classes = [CanPostReadings]
+
+    @extend_schema(
+        operation_id="readings_batch",
+        summary="Record up to 1,000 readings (a sample set, or a gauge's file of results)",
+        description=(
+            "Each item is a reading as for POST /api/v1/readings/ plus `sample_key`, the "
+            "instrument's own key for the measurement. Items are grouped by lot step and "
+            "each lot step is recorded in its own transaction, so a refused item or lot "
+            "never blocks another lot step. The reply lists every item as created, "
+            "duplicate (the key was seen on that lot step before: the stored reading is "
+            "returned) or refused (with the reason). The whole request is idempotent with "
+            "Idempotency-Key."
+        ),
+        request=BatchInputSerializer,
+        parameters=[IDEMPOTENCY_KEY, REPLAY_HEADER],
+        responses={200: BatchResultSerializer, **WRITE_ERRORS},
+    )
+    def post(self, request: Request) -> Response:
+        raw = parse(BatchInputSerializer, request.data)["items"]
+        person = services.person_for(request.user)
+        items: list[batch.BatchItem] = []
+        invalid: list[batch.ItemResult] = []
+        for index, entry in enumerate(raw):
+            serializer = BatchItemSerializer(data=entry)
+            key = entry.get("sample_key") if isinstance(entry, dict) else None
+            key_text = key.strip()[:100] if isinstance(key, str) else ""
+            if not serializer.is_valid():
+                problems = problems_from(serializer.errors, entry)
+                invalid.append(
+                    batch.refused(
+                        index,
+                        key_text,
+                        f"The item has {len(problems)} problem(s); it was not recorded.",
+                        problems,
+                    )
+                )
+                continue
+            data = serializer.validated_data
+            items.append(
+                batch.BatchItem(
+                    index=index,
+                    lot=data["lot"],
+                    step=data.get("step"),
+                    sample_key=data["sample_key"],
+                    reading=services.ReadingInput(
+                        quantity=data["quantity"],
+                        value=data["value"],
+                        unit=data["unit"],
+                        sample_index=data["sample_index"],
+                        position=data.get("position") or "",
+                        equipment_id=data.get("equipment"),
+                        captured_at=data.get("captured_at"),
+                    ),
+                )
+            )
+        via = "instrument" if is_instrument(request) else "api"
+
+        def action() -> tuple[int, Any]:
+            results = batch.record_batch(
+                person=person,
+                items=items,
+                via=via,
+                check_access=lambda step: check_work_center(request, step),
+            )
+            return 200, batch.summary(sorted(results + invalid, key=lambda r: r.index))
+
+        return idempotent_batch(request, action)
 
 
 class ReadingCorrectView(JsonAPIView):

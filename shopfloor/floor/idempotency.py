@@ -90,3 +90,60 @@ def run(
     if refusal is not None:
         raise refusal
     return Outcome(status, body, False)
+
+
+def run_in_steps(
+    *,
+    user: Any,
+    key: str | None,
+    request_fingerprint: str,
+    action: Callable[[], tuple[int, dict[str, Any]]],
+) -> Outcome:
+    """`run` for an action that commits in several transactions (a batch post).
+
+    The reply cannot be stored in the same transaction as every change, so a repeat is
+    kept out by a session-level advisory lock while the action runs (a concurrent repeat
+    gets 409), and the reply is stored after it. If the process dies in between, a retry
+    runs the action again: each item's sample key then makes it a duplicate, never a
+    second reading.
+    """
+    if key is None or key == "":
+        status, body = action()
+        return Outcome(status, body, False)
+    key = key.strip()
+    if not key or len(key) > MAX_KEY_LENGTH or not key.isprintable():
+        raise InvalidInput(f"Idempotency-Key must be 1 to {MAX_KEY_LENGTH} printable characters.")
+    lock = _lock_id(user.pk, key)
+    locked = False
+    if connection.vendor == "postgresql":
+        with connection.cursor() as cursor:
+            cursor.execute("SELECT pg_try_advisory_lock(%s)", [lock])
+            locked = bool(cursor.fetchone()[0])
+        if not locked:
+            raise Conflict(
+                "The same request is still being processed; wait a moment and retry with the "
+                "same Idempotency-Key."
+            )
+    try:
+        stored = IdempotencyRecord.objects.filter(user=user, key=key).first()
+        if stored is not None:
+            if stored.fingerprint != request_fingerprint:
+                raise IdempotencyMismatch(
+                    "This Idempotency-Key was already used for a different request. Use a new "
+                    "key for a new batch."
+                )
+            return Outcome(stored.status_code or 200, stored.body or {}, True)
+        status, body = action()
+        IdempotencyRecord.objects.create(
+            user=user,
+            key=key,
+            fingerprint=request_fingerprint,
+            completed=True,
+            status_code=status,
+            body=body,
+        )
+        return Outcome(status, body, False)
+    finally:
+        if locked:
+            with connection.cursor() as cursor:
+                cursor.execute("SELECT pg_advisory_unlock(%s)", [lock])

@@ -106,10 +106,24 @@ class Reading(models.Model):
     )
     correction_reason = models.CharField(max_length=300, blank=True)
     via = models.CharField(max_length=20, default="tablet")
+    sample_key = models.CharField(
+        max_length=100,
+        blank=True,
+        default="",
+        help_text="The instrument's own key for this measurement (batch posts): a repeat "
+        "with the same key on the same lot step returns this reading",
+    )
 
     class Meta:
         ordering = ["lot_step", "quantity", "sample_index", "recorded_at"]
         indexes = [models.Index(fields=["quantity", "recorded_at"])]
+        constraints = [
+            models.UniqueConstraint(
+                fields=["lot_step", "sample_key"],
+                condition=~models.Q(sample_key=""),
+                name="reading_sample_key_unique",
+            )
+        ]
 
     def __str__(self) -> str:
         return f"{self.quantity}={self.value:g} {self.unit}"

@@ -103,6 +103,50 @@ class ReadingInputSerializer(serializers.Serializer):
     captured_at = AwareDateTimeField(required=False, allow_null=True)
 
 
+class BatchItemSerializer(ReadingInputSerializer):
+    sample_key = serializers.CharField(
+        max_length=100,
+        help_text="The instrument's own unique key for this measurement; a repeat with the "
+        "same key on the same lot step returns the stored reading as a duplicate",
+    )
+
+    def validate_sample_key(self, value: str) -> str:
+        value = value.strip()
+        if not value or not value.isprintable():
+            raise serializers.ValidationError("Give 1 to 100 printable characters.")
+        return value
+
+
+class BatchInputSerializer(serializers.Serializer):
+    """Only the envelope is checked here; each item is checked on its own, so one bad
+    item is refused in the reply instead of failing the whole batch."""
+
+    items = serializers.ListField(
+        child=serializers.JSONField(),
+        min_length=1,
+        max_length=1000,
+        help_text="1 to 1,000 readings, each shaped like BatchItem",
+    )
+
+
+class BatchItemResultSerializer(serializers.Serializer):
+    index = serializers.IntegerField(help_text="Position of the item in the request, from 0")
+    sample_key = serializers.CharField(allow_blank=True)
+    status = serializers.ChoiceField(choices=["created", "duplicate", "refused"])
+    reading = serializers.DictField(
+        required=False, help_text="The stored reading (created or duplicate)"
+    )
+    reason = serializers.CharField(required=False, help_text="Why the item was refused")
+    problems = serializers.ListField(child=serializers.DictField(), required=False)
+
+
+class BatchResultSerializer(serializers.Serializer):
+    created = serializers.IntegerField()
+    duplicate = serializers.IntegerField()
+    refused = serializers.IntegerField()
+    items = BatchItemResultSerializer(many=True)
+
+
 class CorrectionInputSerializer(serializers.Serializer):
     value = NumberOrTextField()
     unit = serializers.CharField(max_length=20, allow_blank=True)

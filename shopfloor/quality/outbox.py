@@ -44,3 +44,35 @@ def publish(event_id: int, *, republish: bool = False) -> bool:
 def enqueue(event: OutboxEvent) -> None:
     event_id = event.pk
     transaction.on_commit(lambda: publish(event_id))
+
+
+BATCH_SIZE = 200  # in-window events handed to the worker per task
+
+
+def enqueue_many(*, urgent: list[int], batched: list[int]) -> None:
+    """After commit: out-of-window events one task each (their alerts must not wait);
+    in-window events in tasks of BATCH_SIZE, which the worker processes together."""
+
+    def send() -> None:
+        for event_id in urgent:
+            publish(event_id)
+        for start in range(0, len(batched), BATCH_SIZE):
+            publish_batch(batched[start : start + BATCH_SIZE])
+
+    if urgent or batched:
+        transaction.on_commit(send)
+
+
+def publish_batch(event_ids: list[int]) -> bool:
+    """Send in-window events to the worker as one task; True when the broker took it."""
+    from shopfloor.quality import tasks
+
+    try:
+        tasks.process_events.apply_async(args=[event_ids], retry_policy=RETRY_POLICY)
+    except Exception as exc:  # broker unreachable: the relay will retry
+        log.warning("outbox events %s.. left for the relay: %s", event_ids[:3], exc)
+        return False
+    OutboxEvent.objects.filter(pk__in=event_ids, published_at__isnull=True).update(
+        published_at=timezone.now()
+    )
+    return True

@@ -41,6 +41,19 @@ def process_event(event_id: int) -> None:
         time.sleep(float(pause))
 
 
+@shared_task(
+    acks_late=True,
+    autoretry_for=_DB_ERRORS,
+    max_retries=5,
+    retry_backoff=True,
+    retry_backoff_max=60,
+    retry_jitter=True,
+)
+def process_events(event_ids: list[int]) -> dict[str, int]:
+    """In-window events of a batch post, processed together (one transaction)."""
+    return services.handle_events(event_ids)
+
+
 @shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
 def relay_outbox() -> dict[str, int]:
     return services.relay_outbox()
