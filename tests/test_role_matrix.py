@@ -258,6 +258,14 @@ ROWS: dict[str, Row] = {
         api=False,
         body=lambda c: {**_reading(c), "value": "22", "sample_index": "1"},
     ),
+    # A gauge file: floor roles open the page; the work-center rule applies per line
+    # (tests/floor/test_upload.py), so the other center's operator gets the page too.
+    "GET gauge file upload": Row(
+        "GET", lambda c: "/floor/readings/upload/", (A, A, D, D, A, D, D, A), api=False
+    ),
+    "POST gauge file upload": Row(
+        "POST", lambda c: "/floor/readings/upload/", (A, A, D, D, A, D, D, A), api=False
+    ),
     "POST tablet correct reading": Row(
         "POST",
         lambda c: f"/floor/readings/{c['tablet_reading'].pk}/correct/",

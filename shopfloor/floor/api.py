@@ -37,7 +37,6 @@ from shopfloor.floor.permissions import (
 from shopfloor.floor.serializers import (
     MAX_ID,
     BatchInputSerializer,
-    BatchItemSerializer,
     BatchResultSerializer,
     CorrectionInputSerializer,
     ErrorSerializer,
@@ -49,6 +48,7 @@ from shopfloor.floor.serializers import (
     StepPauseSerializer,
     StepStartSerializer,
     StepWindowsSerializer,
+    batch_items,
     lot_status,
     window_dict,
 )
@@ -295,41 +295,7 @@ class ReadingBatchView(JsonAPIView):
     def post(self, request: Request) -> Response:
         raw = parse(BatchInputSerializer, request.data)["items"]
         person = services.person_for(request.user)
-        items: list[batch.BatchItem] = []
-        invalid: list[batch.ItemResult] = []
-        for index, entry in enumerate(raw):
-            serializer = BatchItemSerializer(data=entry)
-            key = entry.get("sample_key") if isinstance(entry, dict) else None
-            key_text = key.strip()[:100] if isinstance(key, str) else ""
-            if not serializer.is_valid():
-                problems = problems_from(serializer.errors, entry)
-                invalid.append(
-                    batch.refused(
-                        index,
-                        key_text,
-                        f"The item has {len(problems)} problem(s); it was not recorded.",
-                        problems,
-                    )
-                )
-                continue
-            data = serializer.validated_data
-            items.append(
-                batch.BatchItem(
-                    index=index,
-                    lot=data["lot"],
-                    step=data.get("step"),
-                    sample_key=data["sample_key"],
-                    reading=services.ReadingInput(
-                        quantity=data["quantity"],
-                        value=data["value"],
-                        unit=data["unit"],
-                        sample_index=data["sample_index"],
-                        position=data.get("position") or "",
-                        equipment_id=data.get("equipment"),
-                        captured_at=data.get("captured_at"),
-                    ),
-                )
-            )
+        items, invalid = batch_items(raw, problems_from)
         via = "instrument" if is_instrument(request) else "api"
 
         def action() -> tuple[int, Any]:

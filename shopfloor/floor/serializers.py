@@ -117,6 +117,57 @@ class BatchItemSerializer(ReadingInputSerializer):
         return value
 
 
+def batch_items(
+    raw: list[Any], problems_from: Any, labels: list[str] | None = None
+) -> tuple[list[Any], list[Any]]:
+    """Check each item on its own: (items to record, refusals of the malformed ones).
+
+    `labels` names each item in a refusal ("line 7" for a file); `problems_from` turns
+    serializer errors into the one problem-list shape.
+    """
+    from shopfloor.floor import batch, services
+
+    items: list[batch.BatchItem] = []
+    invalid: list[batch.ItemResult] = []
+    for index, entry in enumerate(raw):
+        serializer = BatchItemSerializer(data=entry)
+        key = entry.get("sample_key") if isinstance(entry, dict) else None
+        key_text = key.strip()[:100] if isinstance(key, str) else ""
+        if not serializer.is_valid():
+            problems = problems_from(serializer.errors, entry)
+            where = f"{labels[index]}: " if labels else ""
+            invalid.append(
+                batch.refused(
+                    index,
+                    key_text,
+                    f"{where}{len(problems)} problem(s): "
+                    + "; ".join(f"{p['field']}: {p['problem']}" for p in problems)
+                    + ". It was not recorded.",
+                    problems,
+                )
+            )
+            continue
+        data = serializer.validated_data
+        items.append(
+            batch.BatchItem(
+                index=index,
+                lot=data["lot"],
+                step=data.get("step"),
+                sample_key=data["sample_key"],
+                reading=services.ReadingInput(
+                    quantity=data["quantity"],
+                    value=data["value"],
+                    unit=data["unit"],
+                    sample_index=data["sample_index"],
+                    position=data.get("position") or "",
+                    equipment_id=data.get("equipment"),
+                    captured_at=data.get("captured_at"),
+                ),
+            )
+        )
+    return items, invalid
+
+
 class BatchInputSerializer(serializers.Serializer):
     """Only the envelope is checked here; each item is checked on its own, so one bad
     item is refused in the reply instead of failing the whole batch."""

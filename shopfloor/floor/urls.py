@@ -18,6 +18,7 @@ urlpatterns = [
     path("steps/<int:step_id>/pause/", views.pause_step, name="pause"),
     path("steps/<int:step_id>/complete/", views.complete_step, name="complete"),
     path("steps/<int:step_id>/readings/", views.record_reading, name="record_reading"),
+    path("readings/upload/", views.upload_readings, name="upload_readings"),
     path("readings/<int:reading_id>/correct/", views.correct_reading, name="correct_reading"),
     path("people/locked/", views.locked_badges, name="locked_badges"),
     path("people/<int:person_id>/unlock/", views.unlock_badge, name="unlock_badge"),

@@ -8,6 +8,8 @@ inline with their status; a person who may not use a page gets the 403 page sayi
 
 from __future__ import annotations
 
+import json
+import uuid
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
@@ -16,7 +18,9 @@ from django.contrib import messages
 from django.contrib.auth import login, logout
 from django.contrib.auth.decorators import login_required
 from django.core.exceptions import PermissionDenied
+from django.core.serializers.json import DjangoJSONEncoder
 from django.db.models import Exists, OuterRef
+from django.db.models.functions import Upper
 from django.http import HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
 from django.urls import reverse
@@ -25,8 +29,11 @@ from django.views.decorators.http import require_GET, require_http_methods, requ
 from shopfloor import access as read_scope
 from shopfloor import throttle, units
 from shopfloor.errors import DomainError, InvalidInput, NotFound
-from shopfloor.floor import forms, idempotency, services, traveller
+from shopfloor.floor import batch, csv_upload, forms, idempotency, services, traveller
+from shopfloor.floor.api import problems_from
 from shopfloor.floor.models import LotStep, Reading
+from shopfloor.floor.permissions import FLOOR_ROLES, check_work_center, roles_of
+from shopfloor.floor.serializers import batch_items
 from shopfloor.orders.services import lots_for_scan
 from shopfloor.plant.models import Equipment, Lot, Person, WorkCenter
 from shopfloor.quality import access
@@ -600,3 +607,74 @@ def unlock_badge(request: HttpRequest, person_id: int) -> HttpResponse:
         return _domain_page(request, exc)
     messages.success(request, f"Badge {person.badge_number} ({person.printed_name}) unlocked.")
     return redirect("floor:locked_badges")
+
+
+# --- gauge files ----------------------------------------------------------------------
+
+
+@login_required
+@require_http_methods(["GET", "POST"])
+def upload_readings(request: HttpRequest) -> HttpResponse:
+    """A gauge's exported CSV file recorded as one batch (the same use case as the
+    batch API): every line comes back created, duplicate or refused with the reason."""
+    person = _person(request)
+    if not roles_of(request.user) & FLOOR_ROLES:
+        raise PermissionDenied(
+            "Only operators, supervisors and administrators may upload readings."
+        )
+    context: dict[str, Any] = {
+        "columns": csv_upload.COLUMNS,
+        "required": csv_upload.REQUIRED,
+        "max_items": f"{batch.MAX_ITEMS:,}",
+        "max_kb": f"{csv_upload.MAX_BYTES // 1000:,}",
+        "key": uuid.uuid4().hex,
+    }
+    if request.method == "GET":
+        return render(request, "floor/upload.html", context)
+    upload = request.FILES.get("file")
+    try:
+        if upload is None:
+            raise csv_upload.FileProblem("Choose the gauge's CSV file first.")
+        parsed = csv_upload.read(upload.read(csv_upload.MAX_BYTES + 1))
+    except csv_upload.FileProblem as exc:
+        return render(request, "floor/upload.html", {**context, "error": str(exc)}, status=400)
+    codes = {r["equipment"].upper() for r in parsed.rows if r.get("equipment")}
+    equipment_ids = dict(
+        Equipment.objects.annotate(upper=Upper("code"))
+        .filter(upper__in=codes)
+        .values_list("upper", "pk")
+    )
+    raw = [csv_upload.item_data(r, parsed.digest, equipment_ids) for r in parsed.rows]
+    labels = [f"line {r['_line']}" for r in parsed.rows]
+    items, invalid = batch_items(raw, problems_from, labels)
+
+    def action() -> tuple[int, dict[str, Any]]:
+        results = batch.record_batch(
+            person=person,
+            items=items,
+            via="upload",
+            check_access=lambda step: check_work_center(request, step),  # type: ignore[arg-type]
+        )
+        body = batch.summary(sorted(results + invalid, key=lambda r: r.index))
+        return 200, json.loads(json.dumps(body, cls=DjangoJSONEncoder))
+
+    try:
+        outcome = idempotency.run_in_steps(
+            user=request.user,
+            key=request.POST.get("idempotency_key", ""),
+            request_fingerprint=idempotency.fingerprint("POST", request.path, parsed.digest),
+            action=action,
+        )
+    except DomainError as exc:
+        return render(
+            request, "floor/upload.html", {**context, "error": exc.detail}, status=exc.status
+        )
+    summary = outcome.body
+    for entry in summary.get("items", []):
+        entry["line"] = parsed.rows[entry["index"]]["_line"]
+        entry["row"] = raw[entry["index"]] if entry["index"] < len(raw) else {}
+    return render(
+        request,
+        "floor/upload.html",
+        {**context, "summary": summary, "file_name": upload.name, "replayed": outcome.replayed},
+    )

@@ -292,11 +292,14 @@ def test_every_operation_survives_fuzzing_and_conforms(app, world, caller):
         assert succeeded("POST", "/api/v1/routing/preview/") > 0
         assert sum(succeeded(*key) for key in writes) > 0
     else:
-        # An instrument token may post readings and nothing else (permissions.py).
+        # An instrument token may post readings (one or a batch) and nothing else
+        # (permissions.py).
         readings = tested[("POST", "/api/v1/readings/")]
         assert set(readings) - {401, 403}, readings
+        posts = {("POST", "/api/v1/readings/"), ("POST", "/api/v1/readings/batch/")}
+        assert set(tested[("POST", "/api/v1/readings/batch/")]) - {401, 403}
         for key, statuses in tested.items():
-            if key != ("POST", "/api/v1/readings/"):
+            if key not in posts:
                 assert set(statuses) == {403}, (key, statuses)
     # Whatever the fuzzer got recorded, the audit trail is still an unbroken hash chain.
     chain = audit.verify_chain()

@@ -89,7 +89,12 @@ def park_outbox(monkeypatch) -> list[int]:
         parked.append(event_id)
         return False
 
+    def publish_batch(event_ids: list[int]) -> bool:
+        parked.extend(event_ids)
+        return False
+
     monkeypatch.setattr(outbox, "publish", publish)
+    monkeypatch.setattr(outbox, "publish_batch", publish_batch)
     return parked
 
 

@@ -1,0 +1,57 @@
+"""The gauge-file upload page in a real browser at the operator's tablet (1024x768) and
+a desk screen (1366x768): choose a file, record it, read the result line by line.
+
+Outside fact: 1 mil = 25.4 µm exactly (NIST SP 811, appendix B); the plating step's
+surface copper window starts at 33.75 µm (the routing builder's class 2 window).
+"""
+
+from __future__ import annotations
+
+import pytest
+from playwright.sync_api import expect
+
+from shopfloor.floor.models import Reading
+from tests.worker import floorkit as kit
+
+pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
+
+
+@pytest.mark.parametrize(
+    ("size", "viewport"),
+    [("tablet", {"width": 1024, "height": 768}), ("desk", {"width": 1366, "height": 768})],
+)
+def test_operator_uploads_a_gauge_file(
+    browser, live_url, login_as, floor, shoot, parked_outbox, size, viewport
+):
+    kit.start_at(floor, floor.lot)
+    context = browser.new_context(viewport=viewport, base_url=live_url)
+    try:
+        page = login_as(context.new_page(), floor.personas["operator"])
+        page.get_by_role("link", name="Upload a gauge file").click()
+        expect(page.get_by_role("heading", name="Upload a gauge file")).to_be_visible()
+        shoot(page, f"upload-01-form-{size}")
+        csv_text = (
+            "lot,quantity,value,unit,sample_index,position\n"
+            f"{floor.lot.code},surface_copper,1.75,mil,1,panel 1 corner A\n"
+            f"{floor.lot.code},hole_wall_copper,0.4,mil,1,panel 1 hole B\n"
+            f"{floor.lot.code},nickel_thickness,5,um,1,panel 1\n"
+            "NO-SUCH-LOT,surface_copper,45,um,1,\n"
+        )
+        page.set_input_files(
+            "#file",
+            {"name": "xrf-export.csv", "mimeType": "text/csv", "buffer": csv_text.encode()},
+        )
+        page.get_by_role("button", name="Record the readings").click()
+        expect(page.locator(".upload-counts")).to_contain_text("2 recorded")
+        expect(page.locator(".upload-counts")).to_contain_text("2 refused")
+        table = page.locator(".upload-table")
+        expect(table).to_contain_text("out of window")  # 0.4 mil = 10.16 µm < 20 µm
+        expect(table).to_contain_text("not measured at")
+        expect(table).to_contain_text("No lot")
+        # The result table fits the screen: no sideways scrolling at this size.
+        width = page.evaluate("document.documentElement.scrollWidth")
+        assert width <= viewport["width"], width
+        shoot(page, f"upload-02-result-{size}")
+        assert Reading.objects.filter(lot_step__lot=floor.lot).count() == 2
+    finally:
+        context.close()
