@@ -372,3 +372,17 @@ def test_missing_fields_names_what_is_still_empty():
     filled["solder_mask"] = {"sides": "both", "colour": "green"}
     assert missing_fields(filled, r.to_fill) == []
     parse_spec(filled)
+
+
+def test_layer_and_overall_tolerances_are_read():
+    text = design_xml(overall="1.6").replace(
+        '<StackupLayer layerOrGroupRef="L1" thickness="0.035"',
+        '<StackupLayer layerOrGroupRef="L1" thickness="0.035" tolPlus="0.0025" tolMinus="0.0025"',
+    )
+    text = text.replace(
+        'whereMeasured="MASK"', 'whereMeasured="MASK" tolPlus="0.16" tolMinus="0.16"'
+    )
+    r = run(text)
+    top = next(row for row in r.rows if row.name == "L1")
+    assert top.tolerance() == "+2.5/-2.5 um"
+    assert r.source["stated_tolerance_mm"] == {"plus": 0.16, "minus": 0.16}

@@ -138,6 +138,14 @@ class Row:
     counted: bool
     copper_index: int | None = None
     kind_from: str = ""  # "material" or "function" for dielectrics
+    tol_plus_um: float | None = None
+    tol_minus_um: float | None = None
+
+    def tolerance(self) -> str:
+        """ "+2.5/-2.5 um" when the file states a non-zero tolerance, else ""."""
+        if not (self.tol_plus_um or self.tol_minus_um):
+            return ""
+        return f"+{self.tol_plus_um or 0:g}/-{self.tol_minus_um or 0:g} um"
 
 
 @dataclass(frozen=True)
@@ -370,6 +378,8 @@ def import_design(design: Design) -> ImportResult:
                 counted=counted,
                 copper_index=copper_refs.index(sl.ref) + 1 if role == "copper" else None,
                 kind_from=kind_from,
+                tol_plus_um=_um(sl.tol_plus_mm),
+                tol_minus_um=_um(sl.tol_minus_mm),
             )
         )
 
@@ -467,6 +477,11 @@ def import_design(design: Design) -> ImportResult:
         source["thickness_basis"] = basis
     if stated:
         source["stated_thickness_mm"] = _mm(stated, 4)
+        if stackup is not None and (stackup.tol_plus_mm or stackup.tol_minus_mm):
+            source["stated_tolerance_mm"] = {
+                "plus": _mm(stackup.tol_plus_mm or 0.0, 4),
+                "minus": _mm(stackup.tol_minus_mm or 0.0, 4),
+            }
     _check_dielectrics(all_dielectric_functions, dielectric_kinds, warnings)
 
     # ---------------------------------------------------------------- holes and vias

@@ -85,7 +85,8 @@ def cross_section_svg(result: ImportResult, title: str = "Stack-up cross-section
         parts.append(
             f'<rect x="{STACK_X}" y="{top:.2f}" width="{STACK_W}" height="{max(h, 0.6):.2f}" '
             f'fill="{fill}" stroke="#00000033" stroke-width="0.3">'
-            f"<title>{escape(r.name)}: {escape(r.role)} {_fmt(r.thickness_um or 0)}</title></rect>"
+            f"<title>{escape(r.name)}: {escape(r.role)} {_fmt(r.thickness_um or 0)}"
+            f"{escape(' ' + r.tolerance() if r.tolerance() else '')}</title></rect>"
         )
         mid = top + h / 2
         parts.append(
