@@ -52,7 +52,7 @@ def test_tc9_six_layer_rev_c_millimetres(shared_files):
     assert spec["outer_copper_base_um"] == 35.6
     assert spec["inner_copper_um"] == 35.6
     # <StackupLayer layerOrGroupRef="TOP" ... tolPlus="0.0025" tolMinus="0.0025">
-    assert next(r for r in r.rows if r.name == "TOP").tolerance() == "+2.5/-2.5 um"
+    assert next(row for row in r.rows if row.name == "TOP").tolerance() == "+2.5/-2.5 um"
     # Sequence numbers 3, 4, 8, 9 ... 18, 22, 23 (gaps) still give top-to-bottom order;
     # dielectrics DIELPREG 0.2540 x4 and the DIELBASE 0.3048 (POLYIMIDE_FILM_1MIL) core.
     kinds = [(row["kind"], row["thickness_um"]) for row in spec["stackup"]]
