@@ -17,11 +17,13 @@ from django.shortcuts import get_object_or_404, redirect, render
 from django.utils.safestring import mark_safe
 from django.views.decorators.http import require_http_methods, require_POST
 
-from routing import services
+from routing import services, spec_form
 from routing.api import EXAMPLE_SPEC, split_preview_body
 from routing.builder import render as routing_render
+from routing.builder import spec as spec_core
 from routing.builder.design_import import ImportResult, cross_section_svg
 from routing.models import RoutingRevision
+from shopfloor import units
 from shopfloor.errors import DomainError
 from shopfloor.floor.permissions import READ_ROLES, roles_of
 from shopfloor.plant.models import Lot, PartRevision
@@ -283,3 +285,138 @@ def release(request: HttpRequest, pk: int) -> HttpResponse:
         rev = get_object_or_404(RoutingRevision, pk=pk)
         return _revision_page(request, rev, roles, exc.detail, exc.status)
     return redirect("routing:revision", pk=pk)
+
+
+# --- build spec authoring ----------------------------------------------------------------
+
+
+def render_spec_form(
+    request: HttpRequest,
+    part_revision: PartRevision,
+    state: spec_form.FormState,
+    *,
+    error: str = "",
+    problems: list[dict[str, Any]] | None = None,
+    status: int = 200,
+) -> HttpResponse:
+    """The authoring page for a part revision, filled from `state`.
+
+    Public so another page (a design import) can show the form pre-filled from its own
+    spec dict: `render_spec_form(request, pr, spec_form.form_values(spec, imported=...))`.
+    """
+    roles = _require_reader(request)
+    spec = spec_form.spec_from_form(_state_as_post(state))
+    context = _spec_preview_context(spec, _overrides_of(state))
+    if problems is not None:
+        state.errors = spec_form.errors_by_input(problems)
+    return render(
+        request,
+        "engineering/spec_form.html",
+        {
+            "part_revision": part_revision,
+            "state": state,
+            "fields": spec_form.SIMPLE_FIELDS,
+            "stackup_kinds": spec_core.STACKUP_KINDS,
+            "via_kinds": spec_core.VIA_KINDS,
+            "drills": spec_core.DRILLS,
+            "quantities": units.quantities(),
+            "can_change": bool(roles & CHANGE_ROLES),
+            "page_error": error,
+            "page_problems": _shown(problems or []),
+            "imported_list": ",".join(sorted(state.imported)),
+            **context,
+        },
+        status=status,
+    )
+
+
+def _state_as_post(state: spec_form.FormState) -> dict[str, Any]:
+    post: dict[str, Any] = dict(state.values)
+    post["hard_gold_fingers"] = "on" if state.values.get("hard_gold_fingers") else ""
+    for prefix, rows in (("stackup", state.stackup), ("vias", state.vias)):
+        for i, row in enumerate(rows):
+            for key, value in row.items():
+                post[f"{prefix}-{i}-{key}"] = value
+    return post
+
+
+def _overrides_of(state: spec_form.FormState) -> list[dict[str, Any]]:
+    post = {f"ov-{i}-{k}": v for i, row in enumerate(state.overrides) for k, v in row.items()}
+    return spec_form.overrides_from_form(post)
+
+
+def _spec_preview_context(spec: dict[str, Any], overrides: list[dict[str, Any]]) -> dict[str, Any]:
+    """The live preview: the routing the spec gets, or every problem with it.
+
+    Looser overrides are shown as deviations pending approval: the PIN is asked for when
+    the preview becomes a draft (the existing deviation rule)."""
+    pending = [{**o, "approved_by": "pending: your PIN when drafting"} for o in overrides]
+    context: dict[str, Any] = {"result": None, "error": "", "problems": []}
+    try:
+        services.validate_spec(spec)
+        context["result"] = services.preview(spec, pending)
+    except DomainError as exc:
+        context["error"], context["problems"] = exc.detail, _shown(exc.problems)
+    return context
+
+
+@login_required
+@require_http_methods(["GET", "POST"])
+def spec_form_page(request: HttpRequest, part_revision_id: int) -> HttpResponse:
+    """Author a part revision's build spec; save it, or make the preview a draft revision."""
+    roles = _require_reader(request)
+    part_revision = get_object_or_404(
+        PartRevision.objects.select_related("part__customer"), pk=part_revision_id
+    )
+    if request.method == "GET":
+        spec = part_revision.build_spec or EXAMPLE_SPEC
+        state = spec_form.form_values(spec, part_revision_overrides(part_revision))
+        return render_spec_form(request, part_revision, state)
+    if not roles & CHANGE_ROLES:
+        raise PermissionDenied("Only process engineers (and administrators) author build specs.")
+    state = spec_form.state_from_post(request.POST)
+    spec = spec_form.spec_from_form(request.POST)
+    overrides = spec_form.overrides_from_form(request.POST)
+    person = _person(request)
+    try:
+        services.set_spec(person=person, part_revision_id=part_revision.pk, spec=spec)
+        if request.POST.get("action") == "draft":
+            revision = services.create_draft(
+                person=person,
+                part_revision_id=part_revision.pk,
+                reason=request.POST.get("reason", "") or "authored in the spec form",
+                overrides=overrides,
+                deviation_pin=request.POST.get("pin") or None,
+            )
+            return redirect("routing:revision", pk=revision.pk)
+    except DomainError as exc:
+        if exc.status == 403 and "PIN" not in exc.detail:
+            raise PermissionDenied(exc.detail) from exc
+        return render_spec_form(
+            request,
+            part_revision,
+            state,
+            error=exc.detail,
+            problems=exc.problems,
+            status=exc.status,
+        )
+    return redirect("routing:spec_form", part_revision_id=part_revision.pk)
+
+
+def part_revision_overrides(part_revision: PartRevision) -> list[dict[str, Any]]:
+    """Overrides to start the editor with: the newest revision's, else the newest job's."""
+    latest = part_revision.routing_revisions.order_by("-number").first()
+    if latest is not None and latest.overrides:
+        return [{k: v for k, v in o.items() if k != "approved_by"} for o in latest.overrides]
+    job = part_revision.jobs.exclude(customer_overrides=[]).order_by("-created_at").first()
+    return list(job.customer_overrides) if job is not None else []
+
+
+@login_required
+@require_POST
+def spec_form_preview(request: HttpRequest) -> HttpResponse:
+    """The live preview beside the form (htmx): nothing is saved."""
+    _require_reader(request)
+    spec = spec_form.spec_from_form(request.POST)
+    context = _spec_preview_context(spec, spec_form.overrides_from_form(request.POST))
+    return render(request, "engineering/spec_form.html#preview", context)
