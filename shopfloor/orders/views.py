@@ -30,6 +30,16 @@ from shopfloor.plant.models import Customer, Lot, Part, Person
 OVERRIDE_ROWS = 3
 
 
+def _shown(problems: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    """Problems with the allowed values as one line of text for the table."""
+    out = []
+    for p in problems:
+        allowed = p.get("allowed")
+        text = ", ".join(map(str, allowed)) if isinstance(allowed, list) else (allowed or "")
+        out.append({**p, "allowed_text": text})
+    return out
+
+
 def _reader(request: HttpRequest) -> set[str]:
     roles = roles_of(request.user)
     if not roles & READ_ROLES:
@@ -71,7 +81,7 @@ def job_list(request: HttpRequest) -> HttpResponse:
             "statuses": services.STATUSES,
             "q": request.GET,
             "error": error,
-            "problems": problems,
+            "problems": _shown(problems),
             "can_plan": bool(roles & PLAN_ROLES),
         },
         status=400 if error else 200,
@@ -86,7 +96,7 @@ def _entry_context(values: dict[str, Any], problems: list[dict[str, Any]]) -> di
     rows = values.get("override_rows") or [{} for _ in range(OVERRIDE_ROWS)]
     return {
         "v": values,
-        "problems": problems,
+        "problems": _shown(problems),
         "field_errors": by_field,
         "customers": Customer.objects.order_by("code"),
         "parts": Part.objects.select_related("customer").prefetch_related("revisions")[:500],
@@ -197,7 +207,7 @@ def _job_page(
             "makeup_default": makeup_default,
             "can_plan": bool(roles & PLAN_ROLES),
             "error": error,
-            "problems": problems or [],
+            "problems": _shown(problems or []),
             "spec_missing": not job.part_revision.build_spec,
         },
         status=status,
