@@ -382,6 +382,26 @@ ROWS: dict[str, Row] = {
         api=False,
         body=lambda c: {"action": "recompute", "start": "2020-01-01", "end": "2020-01-02"},
     ),
+    "GET build spec form": Row(
+        "GET",
+        lambda c: f"/engineering/part-revisions/{c['routing'].part_revision_id}/spec/",
+        READERS,
+        api=False,
+    ),
+    "POST build spec form": Row(
+        "POST",
+        lambda c: f"/engineering/part-revisions/{c['routing'].part_revision_id}/spec/",
+        ENGINEERING,
+        api=False,
+        body=lambda c: {"action": "save", "layers": "3"},
+    ),
+    "POST build spec live preview": Row(
+        "POST",
+        lambda c: "/engineering/spec-form/preview/",
+        READERS,
+        api=False,
+        body=lambda c: {"layers": "4"},
+    ),
     # --- jobs (planner) ------------------------------------------ op sup pe qe adm ins ano oth pla
     "GET jobs API": Row("GET", lambda c: "/api/v1/jobs/?status=released", READERS),
     "GET job API": Row("GET", lambda c: f"/api/v1/jobs/{c['job'].number}/", READERS),
