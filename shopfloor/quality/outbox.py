@@ -24,8 +24,11 @@ RETRY_POLICY = {"max_retries": 1, "interval_start": 0, "interval_step": 0.2, "in
 def publish(event_id: int, *, republish: bool = False) -> bool:
     """Send one event to the worker; True when the broker took it.
 
-    `republish` (the relay) stamps the new publish time even if the event had been
-    published before, so a lost message is sent again only once per relay period.
+    A first publish (after the request's commit) writes nothing: stamping it would cost
+    the request another round trip and race the worker's own update of the row. The
+    relay finds events left unprocessed by their age and stamps `published_at` when it
+    re-sends one (`republish`), so a lost message is sent again at most once per
+    OUTBOX_REPUBLISH_AFTER_SECONDS.
     """
     from shopfloor.quality import tasks
 
@@ -34,10 +37,8 @@ def publish(event_id: int, *, republish: bool = False) -> bool:
     except Exception as exc:  # broker unreachable: the relay will retry
         log.warning("outbox event %s left for the relay: %s", event_id, exc)
         return False
-    events = OutboxEvent.objects.filter(pk=event_id)
-    if not republish:
-        events = events.filter(published_at__isnull=True)
-    events.update(published_at=timezone.now())
+    if republish:
+        OutboxEvent.objects.filter(pk=event_id).update(published_at=timezone.now())
     return True
 
 
@@ -72,7 +73,4 @@ def publish_batch(event_ids: list[int]) -> bool:
     except Exception as exc:  # broker unreachable: the relay will retry
         log.warning("outbox events %s.. left for the relay: %s", event_ids[:3], exc)
         return False
-    OutboxEvent.objects.filter(pk__in=event_ids, published_at__isnull=True).update(
-        published_at=timezone.now()
-    )
-    return True
+    return True  # nothing written: the relay finds unprocessed events by age

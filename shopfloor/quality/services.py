@@ -348,7 +348,13 @@ def _notify_after_commit(alert_id: int) -> None:
 
 
 def relay_outbox(now: datetime | None = None, batch: int = RELAY_BATCH) -> dict[str, int]:
-    """Publish events the broker never got (or lost), and re-queue lost notifications."""
+    """Publish events the broker never got (or lost), and re-queue lost notifications.
+
+    A request's first publish writes nothing, so an unprocessed event with no
+    `published_at` may be queued or lost: the relay sends it (a queued one is then
+    processed once, the second message finds it claimed) and stamps it, so it is sent
+    again only after REPUBLISH_AFTER.
+    """
     from shopfloor.quality import tasks
 
     now = now or timezone.now()
