@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import heapq
 import random
+from bisect import bisect_right
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -123,11 +124,13 @@ def simulate(
 
 
 _Table = tuple[float, tuple[float, ...], float, tuple[float, ...], float]
-_Flat = tuple[list[int], list[_Table], list[int], list[int], list[int]]
+_Flat = tuple[list[int], list[_Table], list[int], list[int], list[float], list[float]]
+_SPAN = 1e9
 
 
 def _flatten(samplers: Sequence[Sampler], lots: Sequence[Lot]) -> _Flat:
-    """Every lot's steps in one list, indexed by a global step number (built once)."""
+    """Every lot's steps in one list, indexed by a global step number (built once), and
+    each lot's queue rank at its current step and at later ones."""
     tables = [s.as_tuple() for s in samplers]
     step_c: list[int] = []
     step_t: list[_Table] = []
@@ -139,8 +142,14 @@ def _flatten(samplers: Sequence[Sampler], lots: Sequence[Lot]) -> _Flat:
             step_c.append(c)
             step_t.append(tables[s])
         gend[i] = len(step_c)
-    later_key = [_key((0, lot.order[1])) for lot in lots]
-    return step_c, step_t, gstart, gend, later_key
+    # A queue entry is (rank x _SPAN + arrival minutes, lot index): one float compare
+    # instead of a tuple's. Ranks are the distinct (supervisor order, lot priority)
+    # pairs in order; arrivals stay within +-_SPAN / 2 minutes (about 950 years).
+    pairs = sorted({lot.order for lot in lots} | {(0, lot.order[1]) for lot in lots})
+    rank = {pair: k for k, pair in enumerate(pairs)}
+    first_key = [rank[lot.order] * _SPAN for lot in lots]
+    later_key = [rank[(0, lot.order[1])] * _SPAN for lot in lots]
+    return step_c, step_t, gstart, gend, first_key, later_key
 
 
 def _one(
@@ -150,20 +159,21 @@ def _one(
     rng: random.Random,
 ) -> Replication:
     # Written for speed (see the module docstring): flat per-step lists indexed by a
-    # global step number, events as (time, center, payload) with an int payload, the
-    # common case (a free single-lot center with an empty queue) started inline.
+    # global step number, events as (time, center, payload) with an int payload, queue
+    # entries as (float key, lot), and the common cases (a round-the-clock single-lot
+    # center: start the arriving lot, or refill the unit just freed) done inline.
     # Payload p: 0 <= p < n a lot's step done; n <= p < 2n lot p - n released into its
     # queue; -1 a closed center opens; p <= -2 batch number -2 - p done.
     rnd = rng.random
     push, pop = heapq.heappush, heapq.heappop
     n = len(lots)
-    step_c, step_t, gstart, gend, later_key = flat
+    step_c, step_t, gstart, gend, first_key, later_key = flat
     gpos = list(gstart)
     units = [c.units for c in centers]
     batch = [c.batch_size for c in centers]
     cals = [c.working for c in centers]
-    plain = [c.working is None and c.batch_size == 1 for c in centers]
-    queues: list[list[tuple[int, float, int]]] = [[] for _ in centers]
+    single = [c.batch_size == 1 for c in centers]
+    queues: list[list[tuple[float, int]]] = [[] for _ in centers]
     busy = [0] * len(centers)
     wake = [_INF] * len(centers)
     finish = [0.0] * n
@@ -172,11 +182,28 @@ def _one(
     events: list[tuple[float, int, int]] = []
     busy_total = [0.0] * len(centers)
 
+    # Simulated time only moves forward, so each calendar center keeps the working
+    # interval it is in (or the next one): an open check is two compares, and a step
+    # that ends inside that interval needs no calendar arithmetic.
+    cal_idx = [0] * len(centers)
+    cal_lo = [_INF] * len(centers)
+    cal_hi = [-_INF] * len(centers)
+
     def start(c: int, t: float) -> None:
         q = queues[c]
         cal = cals[c]
+        hi = _INF
         if cal is not None:
-            opens = cal.next_open(t)
+            hi = cal_hi[c]
+            if t >= hi:
+                k = bisect_right(cal.ends, t, cal_idx[c])
+                cal_idx[c] = k
+                if k == cal.n:
+                    cal_lo[c], cal_hi[c] = -_INF, _INF
+                else:
+                    cal_lo[c], cal_hi[c] = cal.starts[k], cal.ends[k]
+                hi = cal_hi[c]
+            opens = cal_lo[c]
             if opens > t:
                 if wake[c] > opens:
                     wake[c] = opens
@@ -185,11 +212,11 @@ def _one(
         b = batch[c]
         while q and busy[c] < units[c]:
             if b == 1:
-                i = pop(q)[2]
+                i = pop(q)[1]
                 p = i
                 members: tuple[int, ...] = (i,)
             else:
-                members = tuple(pop(q)[2] for _ in range(min(b, len(q))))
+                members = tuple(pop(q)[1] for _ in range(min(b, len(q))))
                 i = members[0]
                 p = -2 - len(batches)
                 batches.append(members)
@@ -200,7 +227,10 @@ def _one(
                 service[m] += d
             busy_total[c] += d
             busy[c] += 1
-            push(events, (t + d if cal is None else cal.add(t, d), c, p))
+            end = t + d
+            if end > hi and cal is not None:
+                end = cal.add(t, d)
+            push(events, (end, c, p))
 
     for i, lot in enumerate(lots):
         c = step_c[gpos[i]]
@@ -217,7 +247,7 @@ def _one(
         elif lot.release > 0:
             push(events, (lot.release, c, n + i))
         else:
-            queues[c].append((_key(lot.order), lot.arrived, i))
+            queues[c].append((first_key[i] + lot.arrived, i))
     for q in queues:
         heapq.heapify(q)
     for c in range(len(centers)):
@@ -227,7 +257,6 @@ def _one(
     while events:
         t, c, p = pop(events)
         if 0 <= p < n:
-            busy[c] -= 1
             g = gpos[p] + 1
             if g == gend[p]:
                 finish[p] = t
@@ -235,23 +264,50 @@ def _one(
                 gpos[p] = g
                 c2 = step_c[g]
                 q2 = queues[c2]
-                if plain[c2] and not q2 and busy[c2] < units[c2]:
+                cal = cals[c2]
+                if (
+                    single[c2]
+                    and not q2
+                    and busy[c2] < units[c2] - (c2 == c)
+                    and (cal is None or cal_lo[c2] <= t < cal_hi[c2])
+                ):
+                    # straight onto a free unit of an open single-lot center
                     w, hist, hs, table, ts = step_t[g]
                     u = rnd()
                     d = hist[int(u * hs)] if u < w else table[int((u - w) * ts)]
                     service[p] += d
                     busy_total[c2] += d
                     busy[c2] += 1
-                    push(events, (t + d, c2, p))
+                    end = t + d
+                    if cal is not None and end > cal_hi[c2]:
+                        end = cal.add(t, d)
+                    push(events, (end, c2, p))
                 else:
-                    push(q2, (later_key[p], t, p))
-                    if busy[c2] < units[c2]:
+                    push(q2, (later_key[p] + t, p))
+                    if c2 != c and busy[c2] < units[c2]:
                         start(c2, t)
-            if queues[c] and busy[c] < units[c]:
-                start(c, t)
+            # the unit just freed at c takes the head of its queue
+            busy[c] -= 1
+            q = queues[c]
+            if q:
+                cal = cals[c]
+                if single[c] and (cal is None or cal_lo[c] <= t < cal_hi[c]):
+                    i = pop(q)[1]
+                    w, hist, hs, table, ts = step_t[gpos[i]]
+                    u = rnd()
+                    d = hist[int(u * hs)] if u < w else table[int((u - w) * ts)]
+                    service[i] += d
+                    busy_total[c] += d
+                    busy[c] += 1
+                    end = t + d
+                    if cal is not None and end > cal_hi[c]:
+                        end = cal.add(t, d)
+                    push(events, (end, c, i))
+                else:
+                    start(c, t)
         elif p >= n:
             i = p - n
-            push(queues[c], (_key(lots[i].order), t, i))
+            push(queues[c], (first_key[i] + t, i))
             if busy[c] < units[c]:
                 start(c, t)
         elif p == -1:
@@ -268,7 +324,7 @@ def _one(
                     continue
                 gpos[i] = g
                 c2 = step_c[g]
-                push(queues[c2], (later_key[i], t, i))
+                push(queues[c2], (later_key[i] + t, i))
                 moved.append(c2)
             for c2 in dict.fromkeys(moved):
                 if busy[c2] < units[c2]:
