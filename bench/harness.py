@@ -292,6 +292,11 @@ def write_report(results: dict[str, Any]) -> None:
             results.get("import_peak_mb_100mb"),
             lambda v: v is not None and v < 200,
         ),
+        (
+            "forecast of 2,000 WIP lots x 100 replications < 10 s",
+            results.get("forecast_s_2000"),
+            lambda v: v is not None and v < 10,
+        ),
     ]
     lines = [
         "# Benchmarks",
@@ -396,6 +401,8 @@ def only(modules: list[str]) -> None:
         results.update(sub_bench(module))
         if module == "bench_design_import":
             results["import_measured"] = datetime.now(UTC).strftime("%Y-%m-%d %H:%M UTC")
+        if module == "bench_forecast":
+            results["forecast_measured"] = datetime.now(UTC).strftime("%Y-%m-%d %H:%M UTC")
     write_report(results)
     print(json.dumps(results, indent=2, sort_keys=True))
 
@@ -419,6 +426,7 @@ def main() -> None:
             "bench_alerts",
             "bench_board",
             "bench_design_import",
+            "bench_forecast",
         ):
             if (ROOT / "bench" / f"{module}.py").exists():
                 results.update(sub_bench(module))
