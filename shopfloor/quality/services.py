@@ -616,7 +616,8 @@ def job_remaining_minutes(job: Job) -> float | None:
 
 
 def check_due_dates(now: datetime | None = None) -> dict[str, int]:
-    """Raise one alert per job and state (at risk, late) using shopfloor.schedule."""
+    """Raise one alert per job and state (at risk, late) using shopfloor.schedule: from the
+    job's finish forecast where a fresh one exists, else from the flow-factor rule."""
     now = now or timezone.now()
     jobs = list(
         Job.objects.filter(panels__lot__status__in=ACTIVE_LOT)
@@ -624,19 +625,29 @@ def check_due_dates(now: datetime | None = None) -> dict[str, int]:
         .order_by("due_date", "pk")[:CHECK_BATCH]
     )
     counts = {"checked": len(jobs), "at_risk": 0, "late": 0}
+    # The finish forecast decides where one exists (P90 after the due date); the flow
+    # factor on the remaining standard minutes is the fallback while none does.
+    from shopfloor.planning.services import job_projections
+
+    forecasts = job_projections([j.pk for j in jobs], now)
     for job in jobs:
         remaining = job_remaining_minutes(job)
         if remaining is None:
             continue
-        state = schedule.due_state(now, due_at(job.due_date), remaining)
+        forecast = forecasts.get(job.pk)
+        if forecast is not None:
+            state = schedule.forecast_due_state(now, due_at(job.due_date), forecast.p90)
+            why = f"its forecast P90 finish is {timezone.localtime(forecast.p90):%Y-%m-%d %H:%M}."
+        else:
+            state = schedule.due_state(now, due_at(job.due_date), remaining)
+            why = f"{remaining:.0f} standard minutes of work remain."
         if state == schedule.DueState.ON_TIME:
             continue
         late = state == schedule.DueState.LATE
         message = (
             f"Job {job.number} is late: it was due {job.due_date:%Y-%m-%d}."
             if late
-            else f"Job {job.number} is at risk of missing {job.due_date:%Y-%m-%d}: "
-            f"{remaining:.0f} standard minutes of work remain."
+            else f"Job {job.number} is at risk of missing {job.due_date:%Y-%m-%d}: {why}"
         )
         with transaction.atomic():
             alert = _create_alert(

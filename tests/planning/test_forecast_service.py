@@ -268,3 +268,19 @@ def test_jobs_api_and_job_page_carry_the_forecast(floor, client):
     client.force_login(floor.personas["supervisor"].user)
     page = client.get(f"/jobs/{floor.job.number}/").content.decode()
     assert "P50 " in page and "P90 " in page
+
+
+def test_due_date_alert_follows_the_forecast(floor):
+    from shopfloor.quality import services as quality_services
+    from shopfloor.quality.models import Alert
+
+    # on time by the flow factor (due in 10 days), late by the forecast (shop shut 30 days)
+    assert quality_services.check_due_dates()["at_risk"] == 0
+    today = timezone.localdate()
+    Holiday.objects.bulk_create(
+        [Holiday(date=today + dt.timedelta(days=k), name="shutdown") for k in range(31)]
+    )
+    _run()
+    assert quality_services.check_due_dates()["at_risk"] == 1
+    alert = Alert.objects.get(job=floor.job, kind=Alert.Kind.DUE_RISK)
+    assert "forecast P90 finish" in alert.message
