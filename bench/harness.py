@@ -381,6 +381,32 @@ def write_report(results: dict[str, Any]) -> None:
                 f"\nMeasured {results['import_measured']} by "
                 "`python bench/harness.py --only bench_design_import`."
             )
+    if results.get("forecast_s_2000") is not None:
+        lines += [
+            "",
+            "## Finish forecast (2,000 WIP lots, 100 replications; bench/bench_forecast.py)",
+            "",
+            "The whole periodic run: read the floor, simulate, store the lot and job rows.",
+            "CPU counts this process and its forked replication processes; on a shared",
+            "machine the wall clock also counts other people's work (load average shown).",
+            "",
+            "| processes | wall s | simulation wall s | CPU s | open steps | load average |",
+            "|---|---|---|---|---|---|",
+            f"| {results.get('forecast_processes')} | {results.get('forecast_s_2000')} | "
+            f"{results.get('forecast_sim_s_2000')} | {results.get('forecast_cpu_s_2000')} | "
+            f"{results.get('forecast_open_steps_2000')} | "
+            f"{results.get('forecast_load_average')} |",
+            f"| 1 | {results.get('forecast_s_2000_one_process')} | "
+            f"{results.get('forecast_sim_s_2000_one_process')} | "
+            f"{results.get('forecast_cpu_s_2000_one_process')} | "
+            f"{results.get('forecast_open_steps_2000')} | "
+            f"{results.get('forecast_load_average')} |",
+        ]
+        if results.get("forecast_measured"):
+            lines.append(
+                f"\nMeasured {results['forecast_measured']} by "
+                "`python bench/harness.py --only bench_forecast`."
+            )
     lines += ["", "## All figures", "", "| key | value |", "|---|---|"]
     for key in sorted(results):
         lines.append(f"| `{key}` | {results[key]} |")
