@@ -163,6 +163,28 @@ def import_design(
     return design_import.import_design(design)
 
 
+def check_filled(spec: Any, to_fill: list[str]) -> None:
+    """Refuse a spec that still lacks what an imported design file did not state.
+
+    The validator alone would let an optional field with a default (mask colour) pass
+    unfilled; an imported draft names its to-fill fields, and this keeps them required.
+    """
+    missing = design_import.missing_fields(spec, to_fill)
+    if missing:
+        raise InvalidInput(
+            "Still to fill in (the design file does not state them): " + ", ".join(missing) + ".",
+            problems=[
+                {
+                    "field": path,
+                    "value": None,
+                    "problem": "to fill in: the design file does not state it",
+                    "allowed": None,
+                }
+                for path in missing
+            ],
+        )
+
+
 def _require_role(person: Person, role: str, what: str) -> None:
     if role not in person.roles() and "admin" not in person.roles():
         raise NotAllowed(f"Only a {role.replace('_', ' ')} can {what}.")

@@ -51,6 +51,13 @@ class FormState:
     overrides: list[dict[str, Any]]
     imported: set[str] = field(default_factory=set)
     errors: dict[str, list[str]] = field(default_factory=dict)
+    #: Spec fields a design import could not fill ("finish", "solder_mask.colour"): kept
+    #: required until filled (`routing.services.check_filled`).
+    to_fill: list[str] = field(default_factory=list)
+
+    @property
+    def to_fill_inputs(self) -> set[str]:
+        return {_input_for(p) for p in self.to_fill}
 
 
 def _text(value: Any) -> str:
@@ -210,7 +217,13 @@ def state_from_post(post: Mapping[str, Any]) -> FormState:
         vias=_rows(post, "vias"),
         overrides=_rows(post, "ov"),
         imported={n for n in str(post.get("imported", "")).split(",") if n},
+        to_fill=to_fill_from(post),
     )
+
+
+def to_fill_from(post: Mapping[str, Any]) -> list[str]:
+    """The to-fill list an imported form carries in its hidden `to_fill` input."""
+    return [n for n in str(post.get("to_fill", "")).split(",") if n]
 
 
 def _input_for(field_path: str) -> str:

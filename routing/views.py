@@ -94,38 +94,70 @@ def preview(request: HttpRequest) -> HttpResponse:
 @login_required
 @require_http_methods(["GET", "POST"])
 def import_design(request: HttpRequest) -> HttpResponse:
-    """Upload an IPC-2581 file; show its draft spec in the preview page to fill in."""
+    """Upload an IPC-2581 file; show its draft spec to fill in.
+
+    With a part revision chosen, the draft pre-fills that part revision's authoring form
+    (imported fields marked, the rest to fill in before it can be saved); without one,
+    it goes into the preview page to try out.
+    """
     roles = _require_reader(request)
     if not roles & CHANGE_ROLES:
         raise PermissionDenied("Only process engineers import design files.")
+    chosen = request.POST.get("part_revision") or request.GET.get("part_revision") or ""
+    page: dict[str, Any] = {"part_revisions": _part_revision_choices(), "chosen": chosen}
     if request.method == "GET":
-        return render(request, "engineering/import_design.html", {})
+        return render(request, "engineering/import_design.html", page)
     upload = request.FILES.get("file")
-    if upload is None:
-        return render(
-            request,
-            "engineering/import_design.html",
-            {"error": "Choose an IPC-2581 file (.xml, revision B, B1 or C) to import."},
-            status=400,
+    part_revision = None
+    if chosen:
+        part_revision = (
+            PartRevision.objects.select_related("part__customer")
+            .filter(pk=int(chosen) if chosen.isdigit() else 0)
+            .first()
         )
+        if part_revision is None:
+            page["error"] = f"No part revision {chosen!r}; choose one from the list or none."
+            return render(request, "engineering/import_design.html", page, status=400)
+    if upload is None:
+        page["error"] = "Choose an IPC-2581 file (.xml, revision B, B1 or C) to import."
+        return render(request, "engineering/import_design.html", page, status=400)
     name = upload.name or "the file"
     try:
         result = services.import_design(upload, name=name, size=upload.size)
     except DomainError as exc:
-        return render(
-            request,
-            "engineering/import_design.html",
-            {"error": exc.detail, "file_name": name},
-            status=exc.status,
+        page.update(error=exc.detail, file_name=name)
+        return render(request, "engineering/import_design.html", page, status=exc.status)
+    shown = _import_shown(result, name)
+    if part_revision is not None:
+        state = spec_form.form_values(
+            result.spec,
+            part_revision_overrides(part_revision),
+            imported=_form_keys(result.from_file),
         )
+        state.to_fill = list(result.to_fill)
+        return render_spec_form(request, part_revision, state, extra={"design_import": shown})
     context: dict[str, Any] = {
         "spec_text": json.dumps(result.draft(), indent=2),
         "result": None,
         "error": "",
         "problems": [],
-        "design_import": _import_shown(result, name),
+        "design_import": shown,
     }
     return render(request, "engineering/preview.html", context)
+
+
+def _part_revision_choices() -> list[PartRevision]:
+    return list(
+        PartRevision.objects.select_related("part__customer").order_by("part__number", "revision")
+    )
+
+
+def _form_keys(from_file: list[str]) -> list[str]:
+    """Spec fields from the file as the authoring form names its inputs."""
+    out: list[str] = []
+    for key in from_file:
+        out.extend(["outline.width_mm", "outline.height_mm"] if key == "outline" else [key])
+    return out
 
 
 def _import_shown(result: ImportResult, name: str) -> dict[str, Any]:
@@ -298,6 +330,7 @@ def render_spec_form(
     error: str = "",
     problems: list[dict[str, Any]] | None = None,
     status: int = 200,
+    extra: dict[str, Any] | None = None,
 ) -> HttpResponse:
     """The authoring page for a part revision, filled from `state`.
 
@@ -306,7 +339,7 @@ def render_spec_form(
     """
     roles = _require_reader(request)
     spec = spec_form.spec_from_form(_state_as_post(state))
-    context = _spec_preview_context(spec, _overrides_of(state))
+    context = _spec_preview_context(spec, _overrides_of(state), state.to_fill)
     if problems is not None:
         state.errors = spec_form.errors_by_input(problems)
     return render(
@@ -324,7 +357,9 @@ def render_spec_form(
             "page_error": error,
             "page_problems": _shown(problems or []),
             "imported_list": ",".join(sorted(state.imported)),
+            "to_fill_list": ",".join(state.to_fill),
             **context,
+            **(extra or {}),
         },
         status=status,
     )
@@ -345,7 +380,9 @@ def _overrides_of(state: spec_form.FormState) -> list[dict[str, Any]]:
     return spec_form.overrides_from_form(post)
 
 
-def _spec_preview_context(spec: dict[str, Any], overrides: list[dict[str, Any]]) -> dict[str, Any]:
+def _spec_preview_context(
+    spec: dict[str, Any], overrides: list[dict[str, Any]], to_fill: list[str] | None = None
+) -> dict[str, Any]:
     """The live preview: the routing the spec gets, or every problem with it.
 
     Looser overrides are shown as deviations pending approval: the PIN is asked for when
@@ -353,6 +390,7 @@ def _spec_preview_context(spec: dict[str, Any], overrides: list[dict[str, Any]])
     pending = [{**o, "approved_by": "pending: your PIN when drafting"} for o in overrides]
     context: dict[str, Any] = {"result": None, "error": "", "problems": []}
     try:
+        services.check_filled(spec, to_fill or [])
         services.validate_spec(spec)
         context["result"] = services.preview(spec, pending)
     except DomainError as exc:
@@ -379,6 +417,7 @@ def spec_form_page(request: HttpRequest, part_revision_id: int) -> HttpResponse:
     overrides = spec_form.overrides_from_form(request.POST)
     person = _person(request)
     try:
+        services.check_filled(spec, state.to_fill)
         services.set_spec(person=person, part_revision_id=part_revision.pk, spec=spec)
         if request.POST.get("action") == "draft":
             revision = services.create_draft(
@@ -418,5 +457,7 @@ def spec_form_preview(request: HttpRequest) -> HttpResponse:
     """The live preview beside the form (htmx): nothing is saved."""
     _require_reader(request)
     spec = spec_form.spec_from_form(request.POST)
-    context = _spec_preview_context(spec, spec_form.overrides_from_form(request.POST))
+    context = _spec_preview_context(
+        spec, spec_form.overrides_from_form(request.POST), spec_form.to_fill_from(request.POST)
+    )
     return render(request, "engineering/spec_form.html#preview", context)

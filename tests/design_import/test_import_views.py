@@ -220,3 +220,90 @@ def test_page_refuses_bad_files_and_non_engineers(floor, personas):
     assert "root element is &lt;a&gt;" in reply.content.decode()
     assert client.post("/engineering/import-design/", {}).status_code == 400
     assert page_for(personas["operator"]).get("/engineering/import-design/").status_code == 403
+
+
+# --------------------------------------------------------------------------- authoring form
+
+
+def _form_post(state, **extra):
+    post = dict(state.values)
+    post["hard_gold_fingers"] = "on" if state.values["hard_gold_fingers"] else ""
+    for prefix, rows in (("stackup", state.stackup), ("vias", state.vias)):
+        for i, row in enumerate(rows):
+            for k, v in row.items():
+                post[f"{prefix}-{i}-{k}"] = v
+    post["imported"] = ",".join(sorted(state.imported))
+    post["to_fill"] = ",".join(state.to_fill)
+    post.update(extra)
+    return post
+
+
+def test_import_into_a_part_revision_fills_its_form_then_drafts_and_releases(
+    floor, personas, shared_files
+):
+    from routing import services, spec_form
+    from tests.factories import PIN, make_part_revision
+
+    engineer = personas["process_engineer"]
+    pr = make_part_revision()
+    PartRevision.objects.filter(pk=pr.pk).update(build_spec={})
+    client = page_for(engineer)
+    path = shared_files / "tc11-rigidflex-buried-rev-c.xml"
+    with path.open("rb") as handle:
+        page = client.post(
+            "/engineering/import-design/", {"file": handle, "part_revision": str(pr.pk)}
+        )
+    assert page.status_code == 200
+    text = page.content.decode()
+    # The part revision's authoring form, pre-filled, imported fields and to-fill marked.
+    assert f'action="/engineering/part-revisions/{pr.pk}/spec/"' in text
+    assert "imported-tag" in text and "to fill in" in text
+    assert (
+        'name="to_fill" value="ipc_class,finish,solder_mask.colour,profile,electrical_test"' in text
+    )
+    assert "Imported from tc11-rigidflex-buried-rev-c.xml" in text and "<svg" in text
+    with path.open("rb") as handle:
+        result = services.import_design(handle)
+    state = spec_form.form_values(result.spec, imported=result.from_file)
+    state.to_fill = list(result.to_fill)
+    # Finish and class filled, mask colour left empty: refused, nothing saved (the
+    # validator alone would have defaulted the colour).
+    partly = _form_post(
+        state,
+        ipc_class="3",
+        finish="enig",
+        profile="route",
+        electrical_test="flying_probe",
+        action="save",
+    )
+    refused = client.post(f"/engineering/part-revisions/{pr.pk}/spec/", partly)
+    assert refused.status_code == 400
+    assert "Still to fill in" in refused.content.decode()
+    assert "solder_mask.colour" in refused.content.decode()
+    pr.refresh_from_db()
+    assert pr.build_spec == {}
+    live = client.post("/engineering/spec-form/preview/", partly)
+    assert "Still to fill in" in live.content.decode()
+    # Everything filled: saved and drafted in one click, then released with the PIN.
+    filled = {**partly, "solder_mask_colour": "green", "action": "draft", "reason": "from design"}
+    drafted = client.post(f"/engineering/part-revisions/{pr.pk}/spec/", filled)
+    assert drafted.status_code == 302, drafted.content.decode()[:2000]
+    pr.refresh_from_db()
+    # From the file: 6 copper layers, 0.95 mm over mask, the buried L2-L5 span.
+    assert pr.build_spec["layers"] == 6 and pr.build_spec["board_thickness_mm"] == 0.95
+    assert {"from": 2, "to": 5, "kind": "buried", "drill": "mechanical"} in pr.build_spec["vias"]
+    revision = RoutingRevision.objects.get(part_revision=pr)
+    released = client.post(f"/engineering/revisions/{revision.pk}/release/", {"pin": PIN})
+    assert released.status_code == 302
+    revision.refresh_from_db()
+    assert revision.status == "released"
+    # Two press cycles: the buried L2-L5 span is drilled in its own sub-assembly.
+    assert revision.built.get("lamination_cycles") == 2
+
+
+def test_import_into_an_unknown_part_revision_is_refused(floor, personas):
+    client = page_for(personas["process_engineer"])
+    reply = client.post(
+        "/engineering/import-design/", {"file": upload(design_xml()), "part_revision": "999999"}
+    )
+    assert reply.status_code == 400 and "No part revision" in reply.content.decode()
