@@ -63,7 +63,8 @@ def _row(lot: BoardLot, may_reorder: bool, form_id: str, back: str, csrf: str) -
     if lot.job_list:
         due += f'<div class="muted">{_e(lot.due_detail)}</div>'
     if lot.forecast_text:
-        due += f'<div class="forecast">{_e(lot.forecast_text)}</div>'
+        p50, _, p90 = lot.forecast_text.partition(" · ")
+        due += f'<div class="forecast"><span>{_e(p50)}</span> · <span>{_e(p90)}</span></div>'
     order = ""
     if may_reorder:
         buttons = ""
