@@ -61,7 +61,7 @@ def test_all_problems_reported_at_once():
         "layers": 3,
         "ipc_class": 4,
         "board_thickness_mm": -1.6,
-        "outer_copper_base_um": "17.5",
+        "outer_copper_base_um": "17.5 furlongs",  # a length unit copper weight never takes
         "finish": "gold_flash",
         "solder_mask": {"sides": "left", "colour": "green", "gloss": "high"},
         "legend": {"sides": 2},
