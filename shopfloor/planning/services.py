@@ -121,7 +121,7 @@ def measured_times(now: dt.datetime | None = None) -> MeasuredTimes:
     )
     run: dict[tuple[str, str], list[float]] = defaultdict(list)
     queue: dict[tuple[str, str], list[float]] = defaultdict(list)
-    for code, center, arrived, started, completed in rows.iterator(chunk_size=5000):
+    for code, center, arrived, started, completed in rows:
         if started is None or completed is None:
             continue
         run[(code, center)].append((completed - started).total_seconds() / 60.0)
@@ -167,6 +167,9 @@ def wip_lots() -> tuple[list[fc.WipLot], dict[str, int], dict[str, int]]:
             "started_at",
         )
     )
+    # Read in one go, not through a server-side cursor: PostgreSQL plans a cursor for its
+    # first rows (cursor_tuple_fraction) and picked a nested loop that took 40 s at
+    # 2,000 lots (bench/bench_forecast.py); the whole result is ~40,000 small tuples.
     jobs_of: dict[int, list[str]] = defaultdict(list)
     job_ids: dict[str, int] = {}
     for lot_id, job_id, number in (
@@ -200,7 +203,7 @@ def wip_lots() -> tuple[list[fc.WipLot], dict[str, int], dict[str, int]]:
         queue_priority,
         arrived_at,
         started_at,
-    ) in rows.iterator(chunk_size=5000):
+    ) in rows:
         if lot_id != last_lot:
             flush()
             last_lot = lot_id
