@@ -177,7 +177,7 @@ def check_filled(spec: Any, to_fill: list[str]) -> None:
                 {
                     "field": path,
                     "value": None,
-                    "problem": "to fill in: the design file does not state it",
+                    "problem": "not in the design file: fill it in",
                     "allowed": None,
                 }
                 for path in missing

@@ -62,3 +62,39 @@ def test_import_fill_in_and_preview(board_browser, live_server, floor, shared_fi
     page.click("button:has-text('Preview')")
     page.wait_for_selector("#preview-panel ol.steps")
     page.screenshot(path=str(ARTIFACTS / f"import-{stem}-previewed-1366x768.png"), full_page=True)
+
+
+@pytest.mark.parametrize("name", sorted(FILES))
+def test_import_into_the_authoring_form(board_browser, live_server, floor, shared_files, name):  # noqa: F811
+    from shopfloor.plant.models import PartRevision
+    from tests.factories import make_part_revision
+
+    pr = make_part_revision(number=f"DI-{FILES[name]}-{len(name)}")
+    PartRevision.objects.filter(pk=pr.pk).update(build_spec={})
+    page = signed_in_page(
+        board_browser, live_server, floor.personas["process_engineer"].user, 1366, 768
+    )
+    page.goto(f"{live_server.url}/engineering/part-revisions/{pr.pk}/spec/")
+    page.click("text=Fill in from a design file (IPC-2581)")
+    page.wait_for_selector("h1:has-text('Import a design file')")
+    assert page.input_value("#part-revision") == str(pr.pk)
+    page.set_input_files("#design-file", str(shared_files / name))
+    page.click("form.upload button")
+    page.wait_for_selector(f"h2:has-text('Imported from {name}')")
+    assert page.input_value("select[name=layers]") == str(FILES[name])
+    assert page.locator("label:has(span.tag.fill)").count() >= 5
+    stem = name.removesuffix(".xml")
+    ARTIFACTS.mkdir(exist_ok=True)
+    page.screenshot(path=str(ARTIFACTS / f"import-form-{stem}-1366x768.png"), full_page=True)
+    # Fill in what the file does not state; the live preview then shows the routing.
+    page.select_option("select[name=ipc_class]", "2")
+    page.select_option("select[name=finish]", "enig")
+    page.select_option("select[name=solder_mask_colour]", "green")
+    page.select_option("select[name=profile]", "route")
+    page.select_option("select[name=electrical_test]", "flying_probe")
+    page.wait_for_selector("#spec-preview ol.steps", timeout=15000)
+    page.screenshot(path=str(ARTIFACTS / f"import-form-{stem}-filled-1366x768.png"), full_page=True)
+    page.click("button[value=save]")
+    page.wait_for_load_state()
+    pr.refresh_from_db()
+    assert pr.build_spec["layers"] == FILES[name] and pr.build_spec["finish"] == "enig"
