@@ -8,7 +8,7 @@ decides visibility by itself. The rules:
   group (`is_admin`). `roles_of` counts a superuser as ``admin``, so every role check in the
   services, the API permissions and the pages treats both alike.
 - **Read scope by role** (`READ_SCOPE_BY_ROLE`): supervisors, quality and process
-  engineers, planners and administrators read every lot; operators read the lots that are at, or
+  engineers, planners, lab technicians and administrators read every lot; operators read the lots that are at, or
   have been at, one of the work centers on their badge (a step there has arrived). A
   person with several roles gets the widest scope. Anyone else is refused with a reason.
   A new role adds one row to the table (and one column to tests/test_role_matrix.py).
@@ -47,6 +47,8 @@ READ_SCOPE_BY_ROLE: dict[str, Reach] = {
     Role.PROCESS_ENGINEER: Reach.ALL,
     Role.ADMIN: Reach.ALL,
     Role.PLANNER: Reach.ALL,
+    # An out-of-window bath sends the lab to the lots it touched, on any work center.
+    Role.LAB_TECHNICIAN: Reach.ALL,
     Role.OPERATOR: Reach.OWN_WORK_CENTERS,
 }
 FULL_READ_ROLES = frozenset(r for r, reach in READ_SCOPE_BY_ROLE.items() if reach is Reach.ALL)

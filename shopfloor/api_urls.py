@@ -3,6 +3,7 @@
 from django.urls import path
 
 from routing import api as routing_api
+from shopfloor.chemistry import api as chemistry_api
 from shopfloor.floor import api as floor_api
 from shopfloor.orders import api as orders_api
 from shopfloor.planning import api as planning_api
@@ -33,4 +34,12 @@ urlpatterns = [
     path("lots/<str:code>/", floor_api.LotStatusView.as_view(), name="api-lot"),
     path("lots/<str:code>/windows/", floor_api.LotWindowsView.as_view(), name="api-lot-windows"),
     path("planning/quote/", planning_api.QuoteView.as_view(), name="api-planning-quote"),
+    path("tanks/", chemistry_api.TankListView.as_view(), name="api-tanks"),
+    path("tanks/<str:code>/", chemistry_api.TankDetailView.as_view(), name="api-tank"),
+    path("analyses/", chemistry_api.AnalysisCreateView.as_view(), name="api-analyses"),
+    path(
+        "analyses/<int:pk>/exposure/",
+        chemistry_api.ExposureView.as_view(),
+        name="api-analysis-exposure",
+    ),
 ]

@@ -252,6 +252,10 @@ CELERY_BEAT_SCHEDULE = {
         "task": "shopfloor.planning.tasks.run_forecast",
         "schedule": float(FORECAST_EVERY_SECONDS),
     },
+    "check-bath-analyses": {
+        "task": "shopfloor.quality.tasks.check_bath_analyses",
+        "schedule": 300.0,
+    },
 }
 
 # Mail (Django 6.1 MAILERS); alerts go to each work center's notification list.

@@ -17,6 +17,7 @@ urlpatterns = [
     path("floor/", include("shopfloor.floor.urls")),
     path("engineering/", include("routing.urls")),
     path("jobs/", include("shopfloor.orders.urls")),
+    path("lab/", include("shopfloor.chemistry.urls")),
     path("", include("shopfloor.quality.urls")),
     path("planning/", include("shopfloor.planning.urls")),
     path("api/v1/", include("shopfloor.api_urls")),

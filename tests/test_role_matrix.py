@@ -11,8 +11,10 @@ floor (any work center, queue order, queue-time warnings, badge unlocks); qualit
 engineers disposition NCRs and manage SPC limits; process engineers read (and release
 routings); planners read, and enter, release and make up jobs; admins do everything
 except the quality engineer's e-signed decisions; instruments only post readings at
-their own work center; anonymous callers nothing; an operator of another work center may
-not work a lot at a work center they are not assigned to. Sources:
+their own work center; lab technicians read like process engineers and work the baths
+(analyses, additions, dumps; an engineer confirms additions; quality, supervisors and
+admins hold the lots a bad bath touched); anonymous callers nothing; an operator of
+another work center may not work a lot at a work center they are not assigned to. Sources:
 shopfloor/floor/permissions.py, shopfloor/quality/access.py and the services (common
 practice for controlled documents and material review: only the owning function releases
 or dispositions).
@@ -53,13 +55,15 @@ CALLERS = (
     "planner",
     "superuser",
     "far_operator",
+    "lab_technician",
 )
+LAB = "lab_technician"  # derived too: the process engineer's column unless Row.lab says
 A, D = True, False  # allow, deny
-# The last two columns are derived, not written in each row: a superuser outside the admin
+# The last three columns are derived, not written in each row: a superuser outside the admin
 # group is an administrator (one rule, shopfloor.access.is_admin), so it gets the admin
 # column; an operator of a work center the lot never reached gets the other operator's
 # column, except on rows that read this lot (Row.reads_lot), which it may not read.
-DERIVED = ("superuser", "far_operator")
+DERIVED = ("superuser", "far_operator", LAB)
 PEOPLE = (A, A, A, A, A, D, D, A)  # every person with a role; no instruments, no anonymous
 FLOOR_WORK = (A, A, D, D, A, D, D, D)  # work a step at its work center
 SUP_ADMIN = (D, A, D, D, A, D, D, D)  # run the floor: reorder, release, unlock
@@ -81,6 +85,10 @@ class Row:
     api: bool = True
     owned: bool = True  # every row is decided: unexpected allows and refusals both fail
     reads_lot: bool = False  # shows the matrix lot (or its NCR/series): out of a far scope
+    # The lab technician's cell. None: a GET gets the process engineer's cell (both read
+    # everything), any other method is refused (the lab changes nothing outside /lab/);
+    # rows where that is not so spell it out.
+    lab: bool | None = None
 
     def expected(self) -> tuple[bool, ...]:
         written = self.expect
@@ -88,7 +96,10 @@ class Row:
             written = (*written, written[2] and written[3])  # the planner's derived cell
         by_caller = dict(zip(CALLERS[: -len(DERIVED)], written, strict=True))
         far = False if self.reads_lot else by_caller["other_operator"]
-        return (*written, by_caller["admin"], far)
+        lab = self.lab
+        if lab is None:
+            lab = by_caller["process_engineer"] if self.method == "GET" else False
+        return (*written, by_caller["admin"], far, lab)
 
 
 def _reading(ctx):
@@ -212,6 +223,7 @@ ROWS: dict[str, Row] = {
         lambda c: f"/engineering/part-revisions/{c['routing'].part_revision_id}/draft/",
         (D, D, A, D, A, D, D, D),
         api=False,
+        lab=D,
         body=lambda c: {"reason": "matrix"},
     ),
     "POST release": Row(
@@ -219,6 +231,7 @@ ROWS: dict[str, Row] = {
         lambda c: f"/engineering/revisions/{c['routing'].pk}/release/",
         (D, D, A, D, A, D, D, D),
         api=False,
+        lab=D,
         body=lambda c: {"pin": PIN},
     ),
     "POST move lot to revision": Row(
@@ -226,6 +239,7 @@ ROWS: dict[str, Row] = {
         lambda c: f"/engineering/revisions/{c['routing'].pk}/move-lot/",
         (D, D, A, D, A, D, D, D),
         api=False,
+        lab=D,
         body=lambda c: {"lot": c["lot"].pk, "reason": "matrix"},
     ),
     # --- floor tablet pages ------------------------------------- op sup pe qe adm ins ano oth
@@ -450,6 +464,97 @@ ROWS: dict[str, Row] = {
         api=False,
         body=lambda c: {"disposition": "use_as_is", "note": "matrix check", "pin": PIN},
     ),
+    # --- lab (bath chemistry) -------------------------------- op sup pe qe adm ins ano oth
+    # Everyone with a role reads the baths; the lab technician, process engineer and admin
+    # enter analyses and tank events; only an engineer (or admin) confirms an addition;
+    # quality, supervisors and admins hold exposed lots; exposed-lot lists span every
+    # work center, so operators are refused them (as for other centers' lots).
+    "GET lab tanks": Row("GET", lambda c: "/lab/", PEOPLE, api=False, lab=A),
+    "GET lab board strip": Row("GET", lambda c: "/lab/board-strip/", PEOPLE, api=False, lab=A),
+    "GET lab calculator": Row(
+        "GET", lambda c: "/lab/calculator/?metal=copper&minutes=10", PEOPLE, api=False, lab=A
+    ),
+    "GET lab tank": Row("GET", lambda c: f"/lab/tanks/{c['tank'].code}/", PEOPLE, api=False),
+    "GET lab addition": Row(
+        "GET",
+        lambda c: f"/lab/tanks/{c['tank'].code}/addition/?parameter=copper_sulfate",
+        PEOPLE,
+        api=False,
+    ),
+    "GET lab SPC": Row(
+        "GET", lambda c: f"/lab/tanks/{c['tank'].code}/spc/copper_sulfate/", PEOPLE, api=False
+    ),
+    "GET lab analysis exposure": Row(
+        "GET",
+        lambda c: f"/lab/analyses/{c['bad_analysis'].pk}/",
+        (D, A, A, A, A, D, D, D),
+        api=False,
+        lab=A,
+    ),
+    "POST lab analysis": Row(
+        "POST",
+        lambda c: f"/lab/tanks/{c['tank'].code}/analyses/",
+        (D, D, A, D, A, D, D, D),
+        api=False,
+        lab=A,
+        body=lambda c: {"parameter": "copper_sulfate", "value": "74", "unit": "g/L"},
+    ),
+    "POST lab tank event": Row(
+        "POST",
+        lambda c: f"/lab/tanks/{c['tank'].code}/events/",
+        (D, D, A, D, A, D, D, D),
+        api=False,
+        lab=A,
+        body=lambda c: {"kind": "counter", "amp_hours": "1000", "pin": PIN},
+    ),
+    "POST lab confirm addition": Row(
+        "POST",
+        lambda c: f"/lab/events/{c['addition'].pk}/confirm/",
+        (D, D, A, D, A, D, D, D),
+        api=False,
+        lab=D,
+        body=lambda c: {"pin": PIN},
+    ),
+    "POST lab hold exposed lots": Row(
+        "POST",
+        lambda c: f"/lab/analyses/{c['bad_analysis'].pk}/hold/",
+        (D, A, D, A, A, D, D, D),
+        api=False,
+        lab=D,
+    ),
+    "GET lab plating step": Row(
+        "GET", lambda c: f"/lab/plating/{c['step'].pk}/", PEOPLE, api=False, lab=A
+    ),
+    "POST lab plating step": Row(
+        "POST",
+        lambda c: f"/lab/plating/{c['step'].pk}/",
+        (D, A, A, D, A, D, D, D),
+        api=False,
+        lab=D,
+        body=lambda c: {"area_dm2": "20"},
+    ),
+    "GET API tanks": Row("GET", lambda c: "/api/v1/tanks/", (A, A, A, A, A, D, D, A), lab=A),
+    "GET API tank": Row(
+        "GET", lambda c: f"/api/v1/tanks/{c['tank'].code}/", (A, A, A, A, A, D, D, A), lab=A
+    ),
+    "POST API analysis": Row(
+        "POST",
+        lambda c: "/api/v1/analyses/",
+        (D, D, A, D, A, D, D, D),
+        lab=A,
+        body=lambda c: {
+            "tank": c["tank"].code,
+            "parameter": "chloride",
+            "value": "61",
+            "unit": "mg/L",
+        },
+    ),
+    "GET API analysis exposure": Row(
+        "GET",
+        lambda c: f"/api/v1/analyses/{c['bad_analysis'].pk}/exposure/",
+        (D, A, A, A, A, D, D, D),
+        lab=A,
+    ),
 }
 
 
@@ -507,6 +612,29 @@ def world(floor):
         "superuser": root,
         "far_operator": far,
     }
+    # Bath chemistry: a lab technician, the plating line's copper tank with an
+    # out-of-window analysis that exposed this lot's plating step, and an addition that
+    # waits for an engineer's confirmation.
+    from shopfloor.chemistry import services as chemistry
+    from tests.chemistry.kit import copper_tank
+
+    tank = copper_tank()
+    lab = make_person(Role.LAB_TECHNICIAN, "1011", "Lia Lab")
+    people[LAB] = lab
+    chemistry.record_tank_use(step, timezone.now() - dt.timedelta(minutes=5))
+    bad_analysis = chemistry.record_analysis(
+        person=lab,
+        tank_code=tank.code,
+        data=chemistry.AnalysisInput(parameter="copper_sulfate", value="50", unit="g/L"),
+    )
+    addition = chemistry.record_event(
+        person=lab,
+        tank_code=tank.code,
+        kind="addition",
+        pin=PIN,
+        parameter="copper_sulfate",
+        add_l=100,
+    )
     return {
         "lot": floor.lot,
         "step": step,
@@ -530,6 +658,9 @@ def world(floor):
             "due_date": (timezone.localdate() + dt.timedelta(days=30)).isoformat(),
             "ipc_class": 2,
         },
+        "tank": tank,
+        "bad_analysis": bad_analysis,
+        "addition": addition,
     }
 
 

@@ -304,6 +304,10 @@ def start_step(
             step.started_by = person
         step.status = LotStep.Status.IN_PROGRESS
         step.save()
+        # Which tank(s) a wet step ran in, so an out-of-window bath analysis can list it.
+        from shopfloor.chemistry.services import record_tank_use
+
+        record_tank_use(step, step.started_at)
         if material_lot_ids:
             found = list(MaterialLot.objects.filter(pk__in=material_lot_ids))
             if len(found) != len(set(material_lot_ids)):

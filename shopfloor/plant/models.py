@@ -25,6 +25,7 @@ class Role(models.TextChoices):
     PROCESS_ENGINEER = "process_engineer", "Process engineer"
     QUALITY_ENGINEER = "quality_engineer", "Quality engineer"
     PLANNER = "planner", "Planner"
+    LAB_TECHNICIAN = "lab_technician", "Lab technician"
     ADMIN = "admin", "Administrator"
 
 

@@ -40,6 +40,8 @@ class Alert(models.Model):
         QUEUE_EXCEEDED = "queue_time_exceeded", "Queue-time limit exceeded"
         DUE_RISK = "due_date_risk", "Due date at risk"
         LATE = "late", "Job late"
+        ANALYSIS_OVERDUE = "analysis_overdue", "Bath analysis overdue"
+        BATH_OUT_OF_WINDOW = "bath_out_of_window", "Bath out of window"
 
     class Severity(models.TextChoices):
         INFO = "info", "Info"

@@ -1144,3 +1144,25 @@ def disposition_ncr(
             },
         )
         return ncr
+
+
+# --- for other apps (bath chemistry) --------------------------------------------------
+
+
+def raise_alert(audit_after: dict[str, Any], **fields: Any) -> Alert | None:
+    """Create an alert (None when its dedupe key already has one), audit it and notify the
+    work center's list after commit. For alerts raised outside the reading path."""
+    alert = _create_alert(audit_after, **fields)
+    if alert is not None:
+        _notify_after_commit(alert.pk)
+    return alert
+
+
+def hold_for_review(
+    *, lot: Lot, lot_step: LotStep | None, alert: Alert, message: str, reason: str
+) -> Hold:
+    """Hold a lot with an NCR for quality review (only a disposition releases it), inside
+    the caller's transaction; the lot row is locked first."""
+    locked = Lot.objects.select_for_update(no_key=True).get(pk=lot.pk)
+    ncr = _open_ncr(locked, lot_step, alert, message)
+    return _hold(locked, lot_step, alert, ncr, reason)

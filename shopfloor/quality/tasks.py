@@ -77,6 +77,14 @@ def check_due_dates() -> dict[str, int]:
     return services.check_due_dates()
 
 
+@shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
+def check_bath_analyses() -> dict[str, int]:
+    """Bath analyses that fell due or overdue raise an alert (shopfloor.chemistry)."""
+    from shopfloor.chemistry import services as chemistry
+
+    return chemistry.check_analyses()
+
+
 @shared_task(
     acks_late=True,
     autoretry_for=(*_DB_ERRORS, OSError),

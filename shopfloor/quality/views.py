@@ -140,6 +140,8 @@ def overview(request: HttpRequest, scope: Scope) -> HttpResponse:
 @require_GET
 @reader
 def lot_page(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
+    from shopfloor.chemistry.services import bath_coverage
+
     h = history.lot_history(scope, code, full_readings=False)
     return render(
         request,
@@ -148,6 +150,7 @@ def lot_page(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
             "h": h,
             "summary": exports.reading_summary(h),
             "forecast": planning.lot_projection(h.lot),
+            "baths": bath_coverage(h.lot),
         },
     )
 

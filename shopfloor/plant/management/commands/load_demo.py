@@ -102,6 +102,9 @@ class Command(BaseCommand):
         engineer = next(p for p in people.values() if Role.PROCESS_ENGINEER in p.roles())
         operator = people[data["people"][0]["badge"]]
         routings = self._routings(data, engineer)
+        from shopfloor.chemistry import demo as baths
+
+        baths.ensure_tanks()  # before the lots move, so wet steps record their tanks
         created = 0
         for job_data in data["jobs"]:
             if Job.objects.filter(number=job_data["number"]).exists():
@@ -119,6 +122,9 @@ class Command(BaseCommand):
         planning_services.run_forecast("demo")
         quality_services.check_due_dates()
         quality_services.check_queue_times()
+        lab = next((p for p in people.values() if Role.LAB_TECHNICIAN in p.roles()), engineer)
+        baths.history(lab, engineer, data["pin"])
+        baths.after_jobs(lab, engineer, data["pin"])
         self.stdout.write(
             f"demo shop ready: {Job.objects.count()} jobs, {Lot.objects.count()} lots "
             f"({created} new this run)"

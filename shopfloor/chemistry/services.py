@@ -1,0 +1,991 @@
+"""Bath chemistry use cases: one function each, called by the pages, the API and the tasks.
+
+Why here: an analysis, an addition, a hold of exposed lots must each be one transaction
+with its audit entry, whichever screen or client asked for it, and must refuse bad input
+with a message that says what is allowed. The arithmetic itself is in the pure core
+(shopfloor.core.chemistry); this module reads and writes the rows around it.
+"""
+
+from __future__ import annotations
+
+import logging
+from dataclasses import dataclass, field
+from datetime import datetime, timedelta
+from typing import Any
+
+from django.db import transaction
+from django.db.models import QuerySet
+from django.utils import timezone
+from django.utils.dateparse import parse_datetime
+
+from shopfloor import units
+from shopfloor.audit import services as audit
+from shopfloor.chemistry.models import (
+    Analysis,
+    PlanParameter,
+    PlatedArea,
+    PlatingSetup,
+    Tank,
+    TankEvent,
+    TankUse,
+)
+from shopfloor.core.chemistry import bath, plating
+from shopfloor.core.chemistry import schedule as due_rules
+from shopfloor.core.chemistry.errors import ChemistryInputError, non_negative
+from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
+from shopfloor.floor.models import LotStep
+from shopfloor.plant.models import Lot, Person, Role
+
+log = logging.getLogger("shopfloor.chemistry")
+
+#: Enter analyses and additions, record dumps and make-ups.
+LAB_ROLES = frozenset({Role.LAB_TECHNICIAN, Role.PROCESS_ENGINEER, Role.ADMIN})
+#: Confirm an addition (the engineer's word that it may go in).
+CONFIRM_ROLES = frozenset({Role.PROCESS_ENGINEER, Role.ADMIN})
+#: Hold the lots an out-of-window bath touched, for quality review.
+HOLD_ROLES = frozenset({Role.QUALITY_ENGINEER, Role.SUPERVISOR, Role.ADMIN})
+#: Set a plating step's area and compute its amps and minutes.
+PLATING_ROLES = frozenset({Role.PROCESS_ENGINEER, Role.SUPERVISOR, Role.ADMIN})
+
+#: Shown on every addition screen and in every calculator reply.
+CAUTION = (
+    "Additions involve concentrated acids, oxidisers and gold salts (cyanide or "
+    "cyanide-free, by shop). Wear the protective equipment the safety data sheet names "
+    "(face shield, gloves, apron), always add acid to water (never water to acid), "
+    "add slowly with the ventilation running, and follow the site's procedures, the "
+    "safety data sheets and local codes. The calculated amount is advice: a qualified "
+    "person checks and confirms it before anything goes into a tank."
+)
+
+#: Routing step code -> (metal, default target thickness µm, default cathode efficiency).
+#: Targets: hole-wall copper of about 25 µm average for IPC class 2/3 work plated in one
+#: pattern plate, 8 µm tin etch resist, 5 µm nickel under 1 µm hard gold on fingers;
+#: efficiencies of 95-100 % for acid copper and nickel, lower for tin and gold (common
+#: practice; the site sets its own on the step).
+PLATING_STEPS: dict[str, tuple[str, float, float]] = {
+    "panel_plate": ("copper", 25.0, 0.95),
+    "pattern_plate_copper": ("copper", 25.0, 0.95),
+    "pattern_plate_tin": ("tin", 8.0, 0.90),
+    "gold_nickel_plate": ("nickel", 5.0, 0.95),
+    "gold_plate": ("gold", 1.0, 0.60),
+}
+
+
+def roles_of(person: Person) -> set[str]:
+    names = set(person.user.groups.values_list("name", flat=True))
+    if person.user.is_superuser:
+        names.add(Role.ADMIN)
+    return names
+
+
+def _require(person: Person, allowed: frozenset[str], what: str) -> None:
+    if not roles_of(person) & allowed:
+        who = ", ".join(sorted(r.replace("_", " ") for r in allowed))
+        raise NotAllowed(f"Only these roles may {what}: {who}.")
+
+
+def may(person: Person, allowed: frozenset[str]) -> bool:
+    return bool(roles_of(person) & allowed)
+
+
+def require_sees_all_lots(scope: Any) -> None:
+    """Exposed-lot lists name lots of every work center: not for operators (who read only
+    the lots at their own work centers)."""
+    if not scope.sees_all:
+        raise NotAllowed(
+            "The lots a bath exposed span every work center; ask a supervisor, quality "
+            "engineer or lab technician for this list."
+        )
+
+
+def _verify_pin(person: Person, pin: str) -> None:
+    from shopfloor.floor.services import verify_pin
+
+    if not pin:
+        raise InvalidInput("Enter your PIN to sign this entry.")
+    verify_pin(person, pin)
+
+
+# --- reads ----------------------------------------------------------------------------
+
+
+def get_tank(code: str) -> Tank:
+    tank = Tank.objects.select_related("work_center").filter(code__iexact=code.strip()).first()
+    if tank is None:
+        raise NotFound(f"No tank {code!r}. The lab page lists every tank.")
+    return tank
+
+
+def get_parameter(tank: Tank, code_or_id: str | int) -> PlanParameter:
+    qs = tank.parameters.all()
+    text = str(code_or_id).strip()
+    param = qs.filter(pk=int(text)).first() if text.isdigit() else qs.filter(code=text).first()
+    if param is None:
+        known = ", ".join(tank.parameters.values_list("code", flat=True))
+        raise NotFound(f"Tank {tank.code} has no parameter {text!r}; its plan has: {known}.")
+    return param
+
+
+def get_analysis(analysis_id: int) -> Analysis:
+    found = (
+        Analysis.objects.select_related("tank__work_center", "parameter", "analyst")
+        .filter(pk=analysis_id)
+        .first()
+    )
+    if found is None:
+        raise NotFound(f"No analysis {analysis_id}.")
+    return found
+
+
+@dataclass
+class ParameterRow:
+    """One plan parameter with its last analysis and when the next one is due."""
+
+    parameter: PlanParameter
+    due: due_rules.Due
+    last_value: str
+    in_window: bool | None
+
+
+def due_state(param: PlanParameter, tank: Tank, now: datetime) -> due_rules.Due:
+    last = param.last_taken_at or tank.made_up_at or tank.created_at
+    return due_rules.analysis_due(
+        param.frequency,
+        last_taken_at=last,
+        now=now,
+        every_amp_hours=param.every_amp_hours,
+        last_amp_hours=param.last_amp_hours,
+        amp_hours_now=tank.amp_hours,
+    )
+
+
+def fmt(param: PlanParameter, canonical: float) -> str:
+    """A canonical value shown in the parameter's own unit: '72.5 g/L'."""
+    try:
+        shown = units.bath_from_canonical(param.measure, canonical, param.unit)
+    except units.UnitError:
+        shown = canonical
+    text = f"{shown:.4g}"
+    return f"{text} {param.unit}".strip()
+
+
+def window_text(param: PlanParameter) -> str:
+    return f"{fmt(param, param.low)} – {fmt(param, param.high)} (target {fmt(param, param.target)})"
+
+
+@dataclass
+class TankRow:
+    tank: Tank
+    rows: list[ParameterRow] = field(default_factory=list)
+
+    @property
+    def flagged(self) -> bool:
+        return any(r.in_window is False for r in self.rows)
+
+    @property
+    def overdue(self) -> int:
+        return sum(1 for r in self.rows if r.due.state == "overdue")
+
+    @property
+    def due(self) -> int:
+        return sum(1 for r in self.rows if r.due.state == "due")
+
+
+def tank_rows(now: datetime | None = None, tanks: QuerySet[Tank] | None = None) -> list[TankRow]:
+    """Every tank with its plan's state (two queries whatever the number of tanks)."""
+    now = now or timezone.now()
+    qs = tanks if tanks is not None else Tank.objects.all()
+    tank_list = list(qs.select_related("work_center").order_by("work_center__code", "code"))
+    by_tank: dict[int, TankRow] = {t.pk: TankRow(t) for t in tank_list}
+    params = PlanParameter.objects.filter(tank__in=tank_list).select_related("last_analysis")
+    for p in params.order_by("tank_id", "position", "code"):
+        row = by_tank[p.tank_id]
+        last = p.last_analysis
+        row.rows.append(
+            ParameterRow(
+                p,
+                due_state(p, row.tank, now),
+                fmt(p, last.value) if last else "never analysed",
+                p.last_in_window,
+            )
+        )
+    return list(by_tank.values())
+
+
+# --- analyses -------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class AnalysisInput:
+    parameter: str  # code or id
+    value: Any
+    unit: str = ""
+    taken_at: Any = None  # datetime or ISO text with a time zone; None = now
+    amp_hours: Any = None
+    note: str = ""
+
+
+def _parse_taken_at(raw: Any, now: datetime) -> datetime:
+    if raw in (None, ""):
+        return now
+    when: datetime | None = raw if isinstance(raw, datetime) else None
+    if when is None:
+        try:
+            when = parse_datetime(raw.strip()) if isinstance(raw, str) else None
+        except ValueError:
+            when = None
+        if when is None:
+            raise InvalidInput(
+                f"taken_at {raw!r} is not a date and time; give ISO 8601 with a time zone, "
+                "e.g. 2026-03-02T07:30:00+01:00"
+            )
+    if timezone.is_naive(when):
+        raise InvalidInput("taken_at needs a time zone (e.g. +00:00); none was given.")
+    if when > now + timedelta(minutes=5):
+        raise InvalidInput("taken_at is in the future; give the time the sample was taken.")
+    return when
+
+
+def _optional_number(name: str, raw: Any) -> float | None:
+    if raw in (None, ""):
+        return None
+    try:
+        return _non_negative(name, raw)
+    except ChemistryInputError as exc:
+        raise InvalidInput(str(exc)) from exc
+
+
+def _non_negative(name: str, raw: Any) -> float:
+    return non_negative(name, raw)
+
+
+def judge(param: PlanParameter, value: float) -> bool:
+    return param.low <= value <= param.high
+
+
+def record_analysis(
+    *, person: Person, tank_code: str, data: AnalysisInput, via: str = "page"
+) -> Analysis:
+    """Store one analysis in canonical units, judge it, and act on the result.
+
+    Out of window: the tank is flagged (its parameter's last result is out), an alert is
+    raised that names the lots exposed since the last in-window analysis. In window: the
+    parameter's due and overdue alerts close.
+    """
+    _require(person, LAB_ROLES, "enter bath analyses")
+    from shopfloor.quality import services as quality
+    from shopfloor.quality.models import Alert
+
+    tank = get_tank(tank_code)
+    now = timezone.now()
+    with transaction.atomic():
+        param = (
+            PlanParameter.objects.select_for_update(no_key=True)
+            .filter(pk=get_parameter(tank, data.parameter).pk)
+            .get()
+        )
+        unit = (data.unit or param.unit).strip()
+        try:
+            value = units.bath_to_canonical(param.measure, data.value, unit)
+        except units.UnitError as exc:
+            raise InvalidInput(f"{param.name}: {exc}") from exc
+        taken_at = _parse_taken_at(data.taken_at, now)
+        amp_hours = _optional_number("amp-hour counter", data.amp_hours)
+        note = (data.note or "").strip()
+        if len(note) > 300:
+            raise InvalidInput("The note is longer than 300 characters; shorten it.")
+        in_window = judge(param, value)
+        window = {
+            "low": param.low,
+            "high": param.high,
+            "target": param.target,
+            "unit": units.BATH_MEASURES[param.measure],
+            "source": param.source,
+        }
+        analysis = Analysis.objects.create(
+            tank=tank,
+            parameter=param,
+            entered_value=str(data.value)[:40],
+            entered_unit=unit[:20],
+            value=value,
+            window=window,
+            in_window=in_window,
+            taken_at=taken_at,
+            analyst=person,
+            amp_hours=amp_hours,
+            note=note,
+            via=via,
+        )
+        if param.last_taken_at is None or taken_at >= param.last_taken_at:
+            param.last_analysis = analysis
+            param.last_taken_at = taken_at
+            param.last_in_window = in_window
+            if amp_hours is not None:
+                param.last_amp_hours = amp_hours
+            elif tank.amp_hours is not None:
+                param.last_amp_hours = tank.amp_hours
+            param.save(
+                update_fields=["last_analysis", "last_taken_at", "last_in_window", "last_amp_hours"]
+            )
+        if amp_hours is not None and (tank.amp_hours is None or amp_hours >= tank.amp_hours):
+            Tank.objects.filter(pk=tank.pk).update(amp_hours=amp_hours, amp_hours_at=taken_at)
+        Alert.objects.filter(
+            closed_at__isnull=True,
+            kind=Alert.Kind.ANALYSIS_OVERDUE,
+            dedupe_key__startswith=f"analysis_overdue:{param.pk}:",
+        ).update(closed_at=now)
+        audit.record(
+            actor=person.user,
+            action="bath.analysed",
+            object_type="analysis",
+            object_id=analysis.pk,
+            after={
+                "tank": tank.code,
+                "parameter": param.code,
+                "value": value,
+                "unit": window["unit"],
+                "in_window": in_window,
+            },
+        )
+        if not in_window:
+            exposed = exposure(analysis)
+            side = "below" if value < param.low else "above"
+            quality.raise_alert(
+                {"tank": tank.code, "analysis": analysis.pk, "lots_exposed": len(exposed.lots)},
+                kind=Alert.Kind.BATH_OUT_OF_WINDOW,
+                severity=Alert.Severity.WARNING,
+                dedupe_key=f"bath_oow:{analysis.pk}",
+                work_center=tank.work_center,
+                message=(
+                    f"Tank {tank.code} ({tank.name}): {param.name} {fmt(param, value)} is "
+                    f"{side} its window {window_text(param)}. {len(exposed.lots)} lot(s) ran "
+                    "in this tank since its last in-window analysis: review them."
+                ),
+            )
+    return analysis
+
+
+# --- impact ---------------------------------------------------------------------------
+
+
+@dataclass
+class Exposure:
+    """Lot steps that ran in a tank while one parameter was (or may have been) out."""
+
+    analysis: Analysis
+    since: datetime | None
+    since_analysis: Analysis | None
+    until: datetime | None
+    until_analysis: Analysis | None
+    uses: list[TankUse]
+
+    @property
+    def lots(self) -> list[Lot]:
+        seen: dict[int, Lot] = {}
+        for use in self.uses:
+            seen.setdefault(use.lot_step.lot_id, use.lot_step.lot)
+        return list(seen.values())
+
+
+def exposure(analysis: Analysis) -> Exposure:
+    """Every lot step that ran in the tank since the parameter's last in-window analysis
+    before this one (or the tank's make-up), up to the next in-window analysis (or now)."""
+    same = Analysis.objects.filter(parameter_id=analysis.parameter_id, in_window=True)
+    before = same.filter(taken_at__lt=analysis.taken_at).order_by("-taken_at", "-pk").first()
+    after = same.filter(taken_at__gt=analysis.taken_at).order_by("taken_at", "pk").first()
+    since = before.taken_at if before else analysis.tank.made_up_at
+    uses = TankUse.objects.filter(tank_id=analysis.tank_id).select_related(
+        "lot_step__lot", "lot_step__work_center"
+    )
+    if since is not None:
+        uses = uses.filter(used_at__gt=since)
+    if after is not None:
+        uses = uses.filter(used_at__lt=after.taken_at)
+    return Exposure(
+        analysis,
+        since,
+        before,
+        after.taken_at if after else None,
+        after,
+        list(uses.order_by("used_at", "pk")),
+    )
+
+
+def hold_exposed_lots(*, person: Person, analysis_id: int) -> list[Lot]:
+    """Hold every exposed lot (not scrapped, not already held for this analysis) with an
+    NCR each, so quality reviews them; returns the lots newly held."""
+    _require(person, HOLD_ROLES, "hold the lots a bath touched")
+    from shopfloor.quality import services as quality
+    from shopfloor.quality.models import Alert
+
+    analysis = get_analysis(analysis_id)
+    if analysis.in_window:
+        raise Conflict(
+            f"Analysis {analysis.pk} is in window; only an out-of-window analysis exposes lots."
+        )
+    found = exposure(analysis)
+    param = analysis.parameter
+    held: list[Lot] = []
+    with transaction.atomic():
+        for lot in found.lots:
+            if lot.status == Lot.Status.SCRAPPED:
+                continue
+            step = next(u.lot_step for u in found.uses if u.lot_step.lot_id == lot.pk)
+            message = (
+                f"Lot {lot.code} ran '{step.name}' in tank {analysis.tank.code} while "
+                f"{param.name} was {fmt(param, analysis.value)} (window {window_text(param)}, "
+                f"analysis {analysis.pk}). Held for quality review of the bath exposure."
+            )
+            alert = quality.raise_alert(
+                {"lot": lot.code, "analysis": analysis.pk, "by": person.badge_number},
+                kind=Alert.Kind.BATH_OUT_OF_WINDOW,
+                severity=Alert.Severity.WARNING,
+                dedupe_key=f"bath_exposure:{analysis.pk}:{lot.pk}",
+                lot=lot,
+                lot_step=step,
+                work_center=analysis.tank.work_center,
+                message=message,
+            )
+            if alert is None:
+                continue  # already held for this analysis
+            quality.hold_for_review(
+                lot=lot,
+                lot_step=step,
+                alert=alert,
+                message=message,
+                reason=f"Bath exposure: tank {analysis.tank.code}, analysis {analysis.pk}",
+            )
+            held.append(lot)
+        audit.record(
+            actor=person.user,
+            action="bath.exposed_lots_held",
+            object_type="analysis",
+            object_id=analysis.pk,
+            after={"lots": [lot.code for lot in held]},
+        )
+    return held
+
+
+# --- additions and tank events ----------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class AdditionAdvice:
+    parameter: PlanParameter
+    measured: float
+    target: float
+    stock: float
+    volume_l: float
+    advice: bath.Addition
+    dose: bath.AmpHourDose | None
+    caution: str = CAUTION
+
+
+def _number_in(param: PlanParameter, name: str, raw: Any, unit: str) -> float:
+    try:
+        return units.bath_to_canonical(param.measure, raw, unit or param.unit)
+    except units.UnitError as exc:
+        raise InvalidInput(f"{name}: {exc}") from exc
+
+
+def advise_addition(
+    *,
+    tank: Tank,
+    parameter: str | int,
+    measured: Any = None,
+    target: Any = None,
+    stock: Any = None,
+    volume_l: Any = None,
+    unit: str = "",
+) -> AdditionAdvice:
+    """The calculator's advice for one parameter (nothing is saved).
+
+    Defaults: measured = the last analysis, target = the plan's, stock = the plan's
+    replenisher, volume = the tank's working volume. Values are in `unit` (the plan's
+    unit when blank).
+    """
+    param = get_parameter(tank, parameter)
+    if param.measure not in ("mass_concentration", "volume_concentration"):
+        raise InvalidInput(
+            f"{param.name} is a {param.measure.replace('_', ' ')}: additions are worked out "
+            "for concentrations (g/L, mL/L ...). Follow the site's procedure for this one."
+        )
+    if measured in (None, ""):
+        if param.last_analysis_id is None:
+            raise InvalidInput(f"{param.name} has no analysis yet: enter the measured value.")
+        m = param.last_analysis.value  # type: ignore[union-attr]
+    else:
+        m = _number_in(param, "measured", measured, unit)
+    t = param.target if target in (None, "") else _number_in(param, "target", target, unit)
+    if stock in (None, ""):
+        if param.stock_strength is None:
+            raise InvalidInput(f"{param.name} has no replenisher strength in its plan: enter it.")
+        s = param.stock_strength
+    else:
+        s = _number_in(param, "stock", stock, unit)
+    v = tank.volume_l if volume_l in (None, "") else volume_l
+    try:
+        advice = bath.concentrate_addition(v, m, t, s, max_volume_l=tank.volume_l)
+        dose = None
+        if param.dose_ml_per_kah and tank.amp_hours is not None:
+            last = TankEvent.objects.filter(
+                tank=tank, parameter=param, kind=TankEvent.Kind.DOSE, amp_hours__isnull=False
+            ).first()
+            if last is not None and last.amp_hours is not None:
+                dose = bath.amp_hour_dose(param.dose_ml_per_kah, tank.amp_hours, last.amp_hours)
+    except ChemistryInputError as exc:
+        raise InvalidInput(str(exc)) from exc
+    return AdditionAdvice(param, m, t, s, float(v), advice, dose)
+
+
+def _event_kind(kind: str) -> str:
+    allowed = [k.value for k in TankEvent.Kind]
+    if kind not in allowed:
+        raise InvalidInput(f"unknown tank event {kind!r}; allowed: {', '.join(allowed)}")
+    return kind
+
+
+def record_event(
+    *,
+    person: Person,
+    tank_code: str,
+    kind: str,
+    pin: str,
+    parameter: str | int | None = None,
+    analysis_id: Any = None,
+    add_l: Any = 0,
+    water_l: Any = 0,
+    dump_l: Any = 0,
+    add_g: Any = 0,
+    amp_hours: Any = None,
+    advice: dict[str, Any] | None = None,
+    note: str = "",
+) -> TankEvent:
+    """Record an addition, dose, dump, make-up or counter reading, signed with the PIN.
+
+    An addition entered by a process engineer (or admin) is confirmed by that signature;
+    one entered by a lab technician waits for an engineer's confirmation
+    (`confirm_event`). A make-up restarts the tank's age (turnovers, exposure start).
+    """
+    _require(person, LAB_ROLES, "record additions, dumps and make-ups")
+    kind = _event_kind(kind)
+    tank = get_tank(tank_code)
+    param = get_parameter(tank, parameter) if parameter not in (None, "") else None
+    if kind in (TankEvent.Kind.ADDITION, TankEvent.Kind.DOSE) and param is None:
+        raise InvalidInput("An addition or dose names the parameter it corrects.")
+    analysis = None
+    if analysis_id not in (None, ""):
+        if not str(analysis_id).isdigit():
+            raise InvalidInput(f"analysis {analysis_id!r} is not an analysis number.")
+        analysis = Analysis.objects.filter(pk=int(analysis_id), tank=tank).first()
+        if analysis is None:
+            raise InvalidInput(f"Analysis {analysis_id} is not one of tank {tank.code}'s.")
+    try:
+        amounts = {
+            "add_l": _non_negative("litres added", add_l or 0),
+            "water_l": _non_negative("water added", water_l or 0),
+            "dump_l": _non_negative("litres dumped", dump_l or 0),
+            "add_g": _non_negative("grams added", add_g or 0),
+        }
+        counter = None if amp_hours in (None, "") else _non_negative("amp-hours", amp_hours)
+    except ChemistryInputError as exc:
+        raise InvalidInput(str(exc)) from exc
+    if kind == TankEvent.Kind.ADDITION and not (
+        amounts["add_l"] or amounts["add_g"] or amounts["water_l"]
+    ):
+        raise InvalidInput("An addition needs litres or grams added (or water for a dilution).")
+    if kind == TankEvent.Kind.DUMP and not amounts["dump_l"]:
+        raise InvalidInput("A partial dump needs the litres dumped.")
+    if amounts["dump_l"] > tank.volume_l:
+        raise InvalidInput(
+            f"{amounts['dump_l']:g} L dumped is more than the tank holds ({tank.volume_l:g} L)."
+        )
+    if kind == TankEvent.Kind.COUNTER and counter is None:
+        raise InvalidInput("A counter reading needs the amp-hours shown on the rectifier.")
+    _verify_pin(person, pin)
+    now = timezone.now()
+    confirms = may(person, CONFIRM_ROLES) or kind != TankEvent.Kind.ADDITION
+    with transaction.atomic():
+        event = TankEvent.objects.create(
+            tank=tank,
+            kind=kind,
+            parameter=param,
+            analysis=analysis,
+            amp_hours=counter,
+            advice=advice or {},
+            note=(note or "").strip()[:300],
+            entered_by=person,
+            entered_at=now,
+            confirmed_by=person if confirms else None,
+            confirmed_at=now if confirms else None,
+            **amounts,
+        )
+        updates: dict[str, Any] = {}
+        if counter is not None and (tank.amp_hours is None or counter >= tank.amp_hours):
+            updates.update(amp_hours=counter, amp_hours_at=now)
+        if kind == TankEvent.Kind.MAKE_UP:
+            updates["made_up_at"] = now
+        if updates:
+            Tank.objects.filter(pk=tank.pk).update(**updates)
+        audit.record(
+            actor=person.user,
+            action=f"bath.{kind}",
+            object_type="tank_event",
+            object_id=event.pk,
+            after={
+                "tank": tank.code,
+                "parameter": param.code if param else None,
+                **amounts,
+                "confirmed": confirms,
+            },
+        )
+    return event
+
+
+def confirm_event(*, person: Person, event_id: int, pin: str) -> TankEvent:
+    """An engineer confirms a lab technician's addition (who and when, signed with the PIN)."""
+    _require(person, CONFIRM_ROLES, "confirm additions")
+    _verify_pin(person, pin)
+    with transaction.atomic():
+        event = TankEvent.objects.select_for_update(no_key=True).filter(pk=event_id).first()
+        if event is None:
+            raise NotFound(f"No tank event {event_id}.")
+        if event.confirmed_at is not None:
+            raise Conflict(
+                f"This addition was already confirmed at {event.confirmed_at:%Y-%m-%d %H:%M}."
+            )
+        event.confirmed_by = person
+        event.confirmed_at = timezone.now()
+        event.save(update_fields=["confirmed_by", "confirmed_at"])
+        audit.record(
+            actor=person.user,
+            action="bath.addition_confirmed",
+            object_type="tank_event",
+            object_id=event.pk,
+            after={"tank": event.tank.code, "confirmed_by": person.badge_number},
+        )
+    return event
+
+
+def turnovers(tank: Tank) -> bath.Turnovers | None:
+    """Electroless nickel age: nickel replenished (confirmed additions to the nickel
+    parameter since the last make-up, litres × replenisher strength) in metal turnovers."""
+    if tank.makeup_nickel_g_per_l is None:
+        return None
+    events = TankEvent.objects.filter(
+        tank=tank,
+        kind=TankEvent.Kind.ADDITION,
+        confirmed_at__isnull=False,
+        parameter__measure="mass_concentration",
+        parameter__code__startswith="nickel",
+    ).select_related("parameter")
+    if tank.made_up_at is not None:
+        events = events.filter(entered_at__gte=tank.made_up_at)
+    grams = 0.0
+    for e in events:
+        strength = e.parameter.stock_strength if e.parameter else None
+        grams += e.add_g + e.add_l * (strength or 0.0)
+    return bath.metal_turnovers(
+        grams, tank.volume_l, tank.makeup_nickel_g_per_l, dump_at=tank.dump_at_turnovers or 5.0
+    )
+
+
+@dataclass(frozen=True)
+class HistoryRow:
+    at: datetime
+    kind: str
+    text: str
+    who: str
+    in_window: bool | None = None
+    analysis: Analysis | None = None
+    event: TankEvent | None = None
+
+
+def tank_history(tank: Tank, limit: int = 200) -> list[HistoryRow]:
+    """Analyses and events of a tank, newest first (bounded)."""
+    rows: list[HistoryRow] = []
+    for a in tank.analyses.select_related("parameter", "analyst")[:limit]:
+        rows.append(
+            HistoryRow(
+                a.taken_at,
+                "analysis",
+                f"{a.parameter.name}: {fmt(a.parameter, a.value)}"
+                + ("" if a.in_window else " — OUT OF WINDOW"),
+                a.analyst.printed_name,
+                a.in_window,
+                analysis=a,
+            )
+        )
+    for e in tank.events.select_related("parameter", "entered_by", "confirmed_by")[:limit]:
+        parts = []
+        if e.dump_l:
+            parts.append(f"dumped {e.dump_l:.3g} L")
+        if e.add_l:
+            parts.append(
+                f"added {e.add_l:.3g} L"
+                + (
+                    f" of {e.parameter.stock_name}"
+                    if e.parameter and e.parameter.stock_name
+                    else ""
+                )
+            )
+        if e.add_g:
+            parts.append(f"added {e.add_g:.4g} g")
+        if e.water_l:
+            parts.append(f"water {e.water_l:.3g} L")
+        if e.amp_hours is not None:
+            parts.append(f"counter {e.amp_hours:.0f} Ah")
+        what = e.get_kind_display() + (f" ({e.parameter.name})" if e.parameter else "")
+        who = e.entered_by.printed_name
+        if e.kind == TankEvent.Kind.ADDITION:
+            who += (
+                f"; confirmed by {e.confirmed_by.printed_name}"
+                if e.confirmed_by
+                else "; awaiting an engineer's confirmation"
+            )
+        rows.append(
+            HistoryRow(e.entered_at, e.kind, f"{what}: {', '.join(parts) or e.note}", who, event=e)
+        )
+    rows.sort(key=lambda r: r.at, reverse=True)
+    return rows[:limit]
+
+
+# --- tank use and the lot history --------------------------------------------------------
+
+
+def record_tank_use(step: LotStep, when: datetime | None = None) -> list[TankUse]:
+    """Note the tanks a wet step runs in (tanks at its work center that serve its code).
+
+    Called when the step starts, inside its transaction. When the step is a plating step
+    and its part has a plated area on file, its amps and minutes are computed too.
+    """
+    when = when or step.started_at or timezone.now()
+    tanks = [
+        t
+        for t in Tank.objects.filter(work_center_id=step.work_center_id)
+        if step.code in (t.step_codes or [])
+    ]
+    uses = []
+    for tank in tanks:
+        use, _ = TankUse.objects.get_or_create(lot_step=step, tank=tank, defaults={"used_at": when})
+        uses.append(use)
+    if step.code in PLATING_STEPS and not PlatingSetup.objects.filter(lot_step=step).exists():
+        area = design_area(step)
+        if area is not None:
+            try:
+                _store_setup(step, None, area[0], PlatingSetup.AreaSource.DESIGN, None, None)
+            except InvalidInput as exc:  # never stop a start over a missing parameter
+                log.info("plating setup for step %s not computed: %s", step.pk, exc.detail)
+    return uses
+
+
+@dataclass(frozen=True)
+class Coverage:
+    """A wet step, the tank it ran in and the analyses that covered it."""
+
+    step: LotStep
+    tank: Tank
+    used_at: datetime
+    analyses: list[tuple[PlanParameter, Analysis | None]]
+
+    @property
+    def all_in_window(self) -> bool:
+        return all(a is not None and a.in_window for _, a in self.analyses)
+
+
+def bath_coverage(lot: Lot) -> list[Coverage]:
+    """For each wet step of a lot: its tank and, per plan parameter, the last analysis
+    taken before the step ran (the one that covered it)."""
+    uses = list(
+        TankUse.objects.filter(lot_step__lot=lot)
+        .select_related("tank", "lot_step")
+        .order_by("lot_step__position", "tank__code")
+    )
+    if not uses:
+        return []
+    params = list(PlanParameter.objects.filter(tank__in={u.tank_id for u in uses}))
+    out = []
+    for use in uses:
+        covered = []
+        for p in (p for p in params if p.tank_id == use.tank_id):
+            last = (
+                Analysis.objects.filter(parameter=p, taken_at__lte=use.used_at)
+                .order_by("-taken_at", "-pk")
+                .first()
+            )
+            covered.append((p, last))
+        out.append(Coverage(use.lot_step, use.tank, use.used_at, covered))
+    return out
+
+
+# --- plating steps ---------------------------------------------------------------------
+
+
+def design_area(step: LotStep) -> tuple[float, str] | None:
+    """The plated area per panel from the job's design data, if the part has one."""
+    from shopfloor.plant.models import Job
+
+    job = Job.objects.filter(panels__lot_id=step.lot_id).order_by("pk").first()
+    if job is None:
+        return None
+    area = PlatedArea.objects.filter(part_revision_id=job.part_revision_id).first()
+    return (area.area_dm2, area.source) if area else None
+
+
+def _store_setup(
+    step: LotStep,
+    person: Person | None,
+    area: float,
+    source: str,
+    target_um: Any,
+    eff: Any,
+) -> PlatingSetup:
+    metal, default_target, default_eff = PLATING_STEPS[step.code]
+    params = dict(step.parameters or {})
+    j = params.get("current_density_a_per_dm2")
+    if j is None:
+        raise InvalidInput(f"'{step.name}' has no current density (current_density_a_per_dm2).")
+    target = default_target if target_um in (None, "") else target_um
+    efficiency = default_eff if eff in (None, "") else eff
+    try:
+        setup = plating.setup_for(
+            metal, area_dm2=area, current_density_asd=j, target_um=target, eff=efficiency
+        )
+    except ChemistryInputError as exc:
+        raise InvalidInput(str(exc)) from exc
+    row, _ = PlatingSetup.objects.update_or_create(
+        lot_step=step,
+        defaults={
+            "metal": metal,
+            "area_dm2": setup.area_dm2,
+            "area_source": source,
+            "current_density_asd": setup.current_density_asd,
+            "efficiency": setup.efficiency,
+            "target_um": setup.target_um,
+            "current_a": setup.current_a,
+            "minutes": setup.minutes,
+            "computed_by": person,
+            "computed_at": timezone.now(),
+        },
+    )
+    params.update(
+        {
+            "plated_area_dm2": round(setup.area_dm2, 2),
+            "target_thickness_um": round(setup.target_um, 2),
+            "cathode_efficiency": round(setup.efficiency, 3),
+            "rectifier_current_a": round(setup.current_a, 1),
+            "time_min": round(setup.minutes, 1),
+        }
+    )
+    LotStep.objects.filter(pk=step.pk).update(parameters=params)
+    audit.record(
+        actor=person.user if person else None,
+        action="plating.computed",
+        object_type="lot_step",
+        object_id=step.pk,
+        after={
+            "metal": metal,
+            "area_dm2": setup.area_dm2,
+            "area_source": source,
+            "current_a": setup.current_a,
+            "minutes": setup.minutes,
+        },
+    )
+    return row
+
+
+def compute_plating(
+    *,
+    person: Person,
+    lot_step_id: int,
+    area_dm2: Any = None,
+    target_um: Any = None,
+    efficiency: Any = None,
+) -> PlatingSetup:
+    """Compute a plating step's rectifier amps and minutes (Faraday's law) and show them
+    as step parameters. The area is the one entered, else the job's design data."""
+    _require(person, PLATING_ROLES, "set plating areas")
+    with transaction.atomic():
+        step = LotStep.objects.select_for_update(no_key=True).filter(pk=lot_step_id).first()
+        if step is None:
+            raise NotFound(f"No lot step {lot_step_id}.")
+        if step.code not in PLATING_STEPS:
+            raise InvalidInput(
+                f"'{step.name}' is not a plating step; the calculator serves: "
+                + ", ".join(sorted(PLATING_STEPS))
+            )
+        if step.status == LotStep.Status.DONE:
+            raise Conflict(f"'{step.name}' is already done; its parameters are part of the record.")
+        if area_dm2 not in (None, ""):
+            area: float = area_dm2
+            source = PlatingSetup.AreaSource.ENTERED
+        else:
+            found = design_area(step)
+            if found is None:
+                raise InvalidInput(
+                    "This job's design data has no plated area: enter the area per panel (dm²)."
+                )
+            area, source = found[0], PlatingSetup.AreaSource.DESIGN
+        return _store_setup(step, person, area, source, target_um, efficiency)
+
+
+def record_design_area(*, part_revision_id: int, area_dm2: float, source: str) -> PlatedArea:
+    """Store a part revision's plated area (from a design import, or entered once)."""
+    try:
+        area = plating.setup_for(
+            "copper", area_dm2=area_dm2, current_density_asd=1, target_um=1
+        ).area_dm2
+    except ChemistryInputError as exc:
+        raise InvalidInput(str(exc)) from exc
+    row, _ = PlatedArea.objects.update_or_create(
+        part_revision_id=part_revision_id, defaults={"area_dm2": area, "source": source[:200]}
+    )
+    return row
+
+
+# --- periodic check --------------------------------------------------------------------
+
+
+def check_analyses(now: datetime | None = None) -> dict[str, int]:
+    """Raise an alert for every planned analysis that is overdue.
+
+    One alert per parameter and missed analysis (the dedupe key carries the last analysis
+    id), so reruns of the beat task change nothing; recording the analysis closes it.
+    Analyses that are merely due show on the lab page and the board's lab strip.
+    """
+    from shopfloor.quality import services as quality
+    from shopfloor.quality.models import Alert
+
+    now = now or timezone.now()
+    counts = {"checked": 0, "due": 0, "overdue": 0, "alerts": 0}
+    for row in tank_rows(now):
+        for prow in row.rows:
+            counts["checked"] += 1
+            state = prow.due.state
+            if state == "ok":
+                continue
+            counts[state] += 1
+            if state != "overdue":
+                continue
+            p = prow.parameter
+            when = (
+                f"was due at {timezone.localtime(prow.due.due_at):%Y-%m-%d %H:%M}"
+                if prow.due.due_at
+                else f"is {-(prow.due.amp_hours_left or 0):.0f} Ah past its interval"
+            )
+            with transaction.atomic():
+                alert = quality.raise_alert(
+                    {"tank": row.tank.code, "parameter": p.code},
+                    kind=Alert.Kind.ANALYSIS_OVERDUE,
+                    severity=Alert.Severity.WARNING,
+                    dedupe_key=f"analysis_overdue:{p.pk}:{p.last_analysis_id or 0}",
+                    work_center=row.tank.work_center,
+                    message=(
+                        f"Tank {row.tank.code} ({row.tank.name}): the {p.name} analysis "
+                        f"({p.get_frequency_display().lower()}, {p.method}) {when} and is "
+                        "overdue."
+                    ),
+                )
+            if alert is not None:
+                counts["alerts"] += 1
+    return counts
