@@ -45,7 +45,13 @@ class Tank(models.Model):
     code = models.CharField(max_length=40, unique=True)
     name = models.CharField(max_length=120)
     kind = models.CharField(max_length=30, choices=ChemistryKind.choices)
-    volume_l = models.FloatField(help_text="Working volume (full level), litres")
+    volume_l = models.FloatField(help_text="Working volume (the bath's normal level), litres")
+    max_volume_l = models.FloatField(
+        null=True,
+        blank=True,
+        help_text="Highest safe level, litres: an addition that would pass it dumps first "
+        "(blank = no limit)",
+    )
     step_codes = models.JSONField(
         default=list,
         blank=True,

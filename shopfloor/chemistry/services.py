@@ -9,6 +9,7 @@ with a message that says what is allowed. The arithmetic itself is in the pure c
 from __future__ import annotations
 
 import logging
+import re
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta
 from typing import Any
@@ -69,6 +70,12 @@ PLATING_STEPS: dict[str, tuple[str, float, float]] = {
     "gold_nickel_plate": ("nickel", 5.0, 0.95),
     "gold_plate": ("gold", 1.0, 0.60),
 }
+
+
+def base_code(code: str) -> str:
+    """A routing step's code without its lamination-cycle suffix ('panel_plate_c1' ->
+    'panel_plate'): sub-assembly cycles repeat the same wet steps in the same tanks."""
+    return re.sub(r"_c\d+$", "", code or "")
 
 
 def roles_of(person: Person) -> set[str]:
@@ -146,6 +153,14 @@ class ParameterRow:
     last_value: str
     in_window: bool | None
 
+    @property
+    def window(self) -> str:
+        return window_short(self.parameter)
+
+    @property
+    def target(self) -> str:
+        return fmt(self.parameter, self.parameter.target)
+
 
 def due_state(param: PlanParameter, tank: Tank, now: datetime) -> due_rules.Due:
     last = param.last_taken_at or tank.made_up_at or tank.created_at
@@ -165,8 +180,14 @@ def fmt(param: PlanParameter, canonical: float) -> str:
         shown = units.bath_from_canonical(param.measure, canonical, param.unit)
     except units.UnitError:
         shown = canonical
-    text = f"{shown:.4g}"
+    text = f"{shown:.0f}" if abs(shown) >= 10_000 else f"{shown:.4g}"  # never 4.28e+05
     return f"{text} {param.unit}".strip()
+
+
+def window_short(param: PlanParameter) -> str:
+    """'40–80 mg/L' in the parameter's own unit."""
+    low, high = fmt(param, param.low), fmt(param, param.high)
+    return f"{low.removesuffix(' ' + param.unit)}–{high}"
 
 
 def window_text(param: PlanParameter) -> str:
@@ -480,6 +501,13 @@ class AdditionAdvice:
     dose: bath.AmpHourDose | None
     caution: str = CAUTION
 
+    @property
+    def shown(self) -> dict[str, str]:
+        """Measured, target and stock in the parameter's own unit, for the page."""
+        p = self.parameter
+        return {"measured": fmt(p, self.measured), "target": fmt(p, self.target),
+                "stock": fmt(p, self.stock)}  # fmt: skip
+
 
 def _number_in(param: PlanParameter, name: str, raw: Any, unit: str) -> float:
     try:
@@ -525,7 +553,7 @@ def advise_addition(
         s = _number_in(param, "stock", stock, unit)
     v = tank.volume_l if volume_l in (None, "") else volume_l
     try:
-        advice = bath.concentrate_addition(v, m, t, s, max_volume_l=tank.volume_l)
+        advice = bath.concentrate_addition(v, m, t, s, max_volume_l=tank.max_volume_l)
         dose = None
         if param.dose_ml_per_kah and tank.amp_hours is not None:
             last = TankEvent.objects.filter(
@@ -763,13 +791,14 @@ def record_tank_use(step: LotStep, when: datetime | None = None) -> list[TankUse
     tanks = [
         t
         for t in Tank.objects.filter(work_center_id=step.work_center_id)
-        if step.code in (t.step_codes or [])
+        if base_code(step.code) in (t.step_codes or [])
     ]
     uses = []
     for tank in tanks:
         use, _ = TankUse.objects.get_or_create(lot_step=step, tank=tank, defaults={"used_at": when})
         uses.append(use)
-    if step.code in PLATING_STEPS and not PlatingSetup.objects.filter(lot_step=step).exists():
+    plating_step = base_code(step.code) in PLATING_STEPS
+    if plating_step and not PlatingSetup.objects.filter(lot_step=step).exists():
         area = design_area(step)
         if area is not None:
             try:
@@ -840,7 +869,7 @@ def _store_setup(
     target_um: Any,
     eff: Any,
 ) -> PlatingSetup:
-    metal, default_target, default_eff = PLATING_STEPS[step.code]
+    metal, default_target, default_eff = PLATING_STEPS[base_code(step.code)]
     params = dict(step.parameters or {})
     j = params.get("current_density_a_per_dm2")
     if j is None:
@@ -909,7 +938,7 @@ def compute_plating(
         step = LotStep.objects.select_for_update(no_key=True).filter(pk=lot_step_id).first()
         if step is None:
             raise NotFound(f"No lot step {lot_step_id}.")
-        if step.code not in PLATING_STEPS:
+        if base_code(step.code) not in PLATING_STEPS:
             raise InvalidInput(
                 f"'{step.name}' is not a plating step; the calculator serves: "
                 + ", ".join(sorted(PLATING_STEPS))

@@ -25,6 +25,8 @@ from shopfloor.floor.models import LotStep
 from shopfloor.quality.access import Scope
 from shopfloor.quality.views import reader
 
+HISTORY_ROWS = 80  # a busy week of one tank; older entries are in the admin and the audit
+
 
 def _ctx(scope: Scope, **extra: Any) -> dict[str, Any]:
     person = scope.person
@@ -69,7 +71,9 @@ def _tank_context(scope: Scope, code: str, **extra: Any) -> dict[str, Any]:
         scope,
         tank=tank,
         row=row,
-        history=services.tank_history(tank),
+        history=services.tank_history(tank, limit=HISTORY_ROWS),
+        history_rows=HISTORY_ROWS,
+        sources=sorted({r.parameter.source for r in row.rows}),
         out_of_window=out_of_window,
         pending=pending,
         turnovers=services.turnovers(tank),
@@ -128,6 +132,16 @@ def addition_page(request: HttpRequest, scope: Scope, code: str) -> HttpResponse
         if p.measure in ("mass_concentration", "volume_concentration")
     ]
     ctx = _ctx(scope, tank=tank, parameters=concentrations, chosen=param_code, raw=request.GET)
+    chosen = next((p for p in concentrations if p.code == param_code), None)
+    if chosen is not None:  # the defaults a blank field takes, in the parameter's unit
+        last = chosen.last_analysis
+        ctx["defaults"] = {
+            "measured": services.fmt(chosen, last.value) if last else "",
+            "target": services.fmt(chosen, chosen.target),
+            "stock": services.fmt(chosen, chosen.stock_strength)
+            if chosen.stock_strength is not None
+            else "",
+        }
     status = 200
     if param_code:
         try:
@@ -227,7 +241,13 @@ def parameter_spc(request: HttpRequest, scope: Scope, code: str, parameter: str)
     return render(
         request,
         "chemistry/spc.html",
-        _ctx(scope, tank=tank, param=param, d=spc_view.parameter_chart(param)),
+        _ctx(
+            scope,
+            tank=tank,
+            param=param,
+            window=services.window_short(param),
+            d=spc_view.parameter_chart(param),
+        ),
     )
 
 
@@ -281,7 +301,7 @@ def plating_step(request: HttpRequest, scope: Scope, lot_step_id: int) -> HttpRe
         step=step,
         may_set=services.may(scope.person, services.PLATING_ROLES),
         design=services.design_area(step),
-        defaults=services.PLATING_STEPS.get(step.code),
+        defaults=services.PLATING_STEPS.get(services.base_code(step.code)),
     )
     status = 200
     if request.method == "POST":

@@ -22,6 +22,7 @@ def copper_tank(**extra: Any) -> Tank:
         name="Acid copper",
         kind="acid_copper",
         volume_l=4000,
+        max_volume_l=4200,
         step_codes=["pattern_plate_copper", "panel_plate"],
         **extra,
     )

@@ -62,7 +62,7 @@ def test_only_lab_roles_enter_analyses(floor):
     tank = copper_tank()
     with pytest.raises(NotAllowed, match="lab technician"):
         analyse(floor.personas["operator"], tank, "copper_sulfate", "75")
-    with pytest.raises(NotFound, match="no parameter .nickel."):
+    with pytest.raises(NotFound, match="no parameter 'nickel'"):
         analyse(lab_tech(), tank, "nickel", "5")
 
 
@@ -130,11 +130,14 @@ def test_addition_advice_record_and_engineer_confirmation(floor):
     tank, lab = copper_tank(), lab_tech()
     analyse(lab, tank, "copper_sulfate", "60")
     # 4000 L at 60 g/L to 75 with 300 g/L stock: a = 4000 × 15 / 225 = 266.67 L, which
-    # overflows the 4000 L tank, so dump first: d = (4000×75 − 4000×60) / (300 − 60)
-    # = 60000 / 240 = 250 L, then add 250 L (by hand, mass balance).
+    # passes the 4200 L highest level, so dump first (mass balance, by hand):
+    # d = (4200×75 − 4000×60 − 200×300) / (300 − 60) = 15000 / 240 = 62.5 L,
+    # a = 200 + 62.5 = 262.5 L. Check: 3937.5 × 60 + 262.5 × 300 = 315000 = 4200 × 75.
     advice = services.advise_addition(tank=tank, parameter="copper_sulfate")
     assert advice.advice.action == "dump_then_add"
-    assert advice.advice.dump_l == pytest.approx(250.0)
+    assert advice.advice.dump_l == pytest.approx(62.5)
+    assert advice.advice.add_l == pytest.approx(262.5)
+    assert advice.shown["measured"] == "60 g/L"
     assert "add acid to water" in advice.caution
     event = services.record_event(
         person=lab, tank_code=tank.code, kind="addition", pin=PIN, parameter="copper_sulfate",
@@ -220,3 +223,10 @@ def test_plating_step_parameters_from_current_density_and_area(floor):
         services.compute_plating(person=engineer, lot_step_id=other.pk, area_dm2=5)
     # the tablet shows them as the step's parameters
     floor_services.start_step(person=floor.personas["operator"], lot_step_id=step.pk)
+
+
+def test_lamination_cycle_steps_share_the_tank_and_the_calculator():
+    # 'panel_plate_c1' is the first sub-assembly cycle's panel plate (routing builder)
+    assert services.base_code("panel_plate_c1") == "panel_plate"
+    assert services.base_code("panel_plate") == "panel_plate"
+    assert services.base_code("inner_etch_c12") == "inner_etch"
