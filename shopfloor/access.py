@@ -8,9 +8,10 @@ decides visibility by itself. The rules:
   group (`is_admin`). `roles_of` counts a superuser as ``admin``, so every role check in the
   services, the API permissions and the pages treats both alike.
 - **Read scope by role** (`READ_SCOPE_BY_ROLE`): supervisors, quality and process
-  engineers, planners, lab technicians and administrators read every lot; operators read the lots that are at, or
-  have been at, one of the work centers on their badge (a step there has arrived). A
-  person with several roles gets the widest scope. Anyone else is refused with a reason.
+  engineers, planners, lab technicians and administrators read every lot; operators read
+  the lots that are at, or have been at, one of the work centers on their badge (a step
+  there has arrived). A person with several roles gets the widest scope. Anyone else is
+  refused with a reason.
   A new role adds one row to the table (and one column to tests/test_role_matrix.py).
 - **Signing and changing** need a badge (a Person): `Scope.actor` refuses an account
   without one, with a reason, while still letting it read what its role may read.
@@ -131,8 +132,8 @@ def scope_for(user: Any) -> Scope:
         return Scope(person, roles, False, centers)
     raise NotAllowed(
         "Your account has no shop-floor role (operator, supervisor, process engineer, quality "
-        "engineer or administrator), so lot records are not shown. Ask an administrator to "
-        "give you a role."
+        "engineer, lab technician or administrator), so lot records are not shown. Ask an "
+        "administrator to give you a role."
     )
 
 

@@ -523,7 +523,7 @@ ROWS: dict[str, Row] = {
         lab=D,
     ),
     "GET lab plating step": Row(
-        "GET", lambda c: f"/lab/plating/{c['step'].pk}/", PEOPLE, api=False, lab=A
+        "GET", lambda c: f"/lab/plating/{c['step'].pk}/", PEOPLE, api=False, lab=A, reads_lot=True
     ),
     "POST lab plating step": Row(
         "POST",

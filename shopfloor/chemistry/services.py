@@ -78,11 +78,11 @@ def base_code(code: str) -> str:
     return re.sub(r"_c\d+$", "", code or "")
 
 
-def roles_of(person: Person) -> set[str]:
-    names = set(person.user.groups.values_list("name", flat=True))
-    if person.user.is_superuser:
-        names.add(Role.ADMIN)
-    return names
+def roles_of(person: Person) -> frozenset[str]:
+    """The person's roles by the one rule (a superuser counts as admin)."""
+    from shopfloor.access import roles_of as account_roles
+
+    return account_roles(person.user)
 
 
 def _require(person: Person, allowed: frozenset[str], what: str) -> None:

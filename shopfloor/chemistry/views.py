@@ -15,6 +15,7 @@ from django.shortcuts import redirect, render
 from django.urls import reverse
 from django.views.decorators.http import require_GET, require_POST
 
+from shopfloor.access import Scope, require_lot_visible
 from shopfloor.chemistry import services, spc_view
 from shopfloor.chemistry.models import Frequency, TankEvent
 from shopfloor.core.chemistry import plating
@@ -22,19 +23,18 @@ from shopfloor.core.chemistry.constants import METALS
 from shopfloor.core.chemistry.errors import ChemistryInputError
 from shopfloor.errors import DomainError, InvalidInput
 from shopfloor.floor.models import LotStep
-from shopfloor.quality.access import Scope
 from shopfloor.quality.views import reader
 
 HISTORY_ROWS = 80  # a busy week of one tank; older entries are in the admin and the audit
 
 
 def _ctx(scope: Scope, **extra: Any) -> dict[str, Any]:
-    person = scope.person
+    can = scope.person is not None  # an account without a badge reads but signs nothing
     return {
         "scope": scope,
-        "may_enter": services.may(person, services.LAB_ROLES),
-        "may_confirm": services.may(person, services.CONFIRM_ROLES),
-        "may_hold": services.may(person, services.HOLD_ROLES),
+        "may_enter": can and bool(scope.roles & services.LAB_ROLES),
+        "may_confirm": can and bool(scope.roles & services.CONFIRM_ROLES),
+        "may_hold": can and bool(scope.roles & services.HOLD_ROLES),
         "caution": services.CAUTION,
         **extra,
     }
@@ -101,7 +101,7 @@ def analysis_create(request: HttpRequest, scope: Scope, code: str) -> HttpRespon
         note=request.POST.get("note", ""),
     )
     try:
-        analysis = services.record_analysis(person=scope.person, tank_code=code, data=data)
+        analysis = services.record_analysis(person=scope.actor, tank_code=code, data=data)
     except InvalidInput as exc:
         ctx = _tank_context(scope, code, analysis_error=exc.detail, entered=request.POST)
         return render(request, "chemistry/tank.html", ctx, status=400)
@@ -167,7 +167,7 @@ def event_create(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
     advice = {k: p.get(f"advice_{k}") for k in ("action", "add_l", "water_l", "dump_l")}
     try:
         services.record_event(
-            person=scope.person,
+            person=scope.actor,
             tank_code=code,
             kind=p.get("kind", ""),
             pin=p.get("pin", ""),
@@ -194,7 +194,7 @@ def event_create(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
 @reader
 def event_confirm(request: HttpRequest, scope: Scope, event_id: int) -> HttpResponse:
     event = services.confirm_event(
-        person=scope.person, event_id=event_id, pin=request.POST.get("pin", "")
+        person=scope.actor, event_id=event_id, pin=request.POST.get("pin", "")
     )
     messages.success(request, "Addition confirmed.")
     return redirect("chemistry:tank", code=event.tank.code)
@@ -222,7 +222,7 @@ def analysis_page(request: HttpRequest, scope: Scope, analysis_id: int) -> HttpR
 @require_POST
 @reader
 def hold_exposed(request: HttpRequest, scope: Scope, analysis_id: int) -> HttpResponse:
-    held = services.hold_exposed_lots(person=scope.person, analysis_id=analysis_id)
+    held = services.hold_exposed_lots(person=scope.actor, analysis_id=analysis_id)
     if held:
         messages.success(
             request,
@@ -296,10 +296,11 @@ def plating_step(request: HttpRequest, scope: Scope, lot_step_id: int) -> HttpRe
         from shopfloor.errors import NotFound
 
         raise NotFound(f"No lot step {lot_step_id}.")
+    require_lot_visible(scope, step.lot)
     ctx = _ctx(
         scope,
         step=step,
-        may_set=services.may(scope.person, services.PLATING_ROLES),
+        may_set=scope.person is not None and bool(scope.roles & services.PLATING_ROLES),
         design=services.design_area(step),
         defaults=services.PLATING_STEPS.get(services.base_code(step.code)),
     )
@@ -307,7 +308,7 @@ def plating_step(request: HttpRequest, scope: Scope, lot_step_id: int) -> HttpRe
     if request.method == "POST":
         try:
             services.compute_plating(
-                person=scope.person,
+                person=scope.actor,
                 lot_step_id=step.pk,
                 area_dm2=request.POST.get("area_dm2") or None,
                 target_um=request.POST.get("target_um") or None,
