@@ -62,7 +62,8 @@ A, D = True, False  # allow, deny
 # The last three columns are derived, not written in each row: a superuser outside the admin
 # group is an administrator (one rule, shopfloor.access.is_admin), so it gets the admin
 # column; an operator of a work center the lot never reached gets the other operator's
-# column, except on rows that read this lot (Row.reads_lot), which it may not read.
+# column, except on rows that read this lot (Row.reads_lot), which it may not read; the
+# lab technician's column comes from Row.lab (see there).
 DERIVED = ("superuser", "far_operator", LAB)
 PEOPLE = (A, A, A, A, A, D, D, A)  # every person with a role; no instruments, no anonymous
 FLOOR_WORK = (A, A, D, D, A, D, D, D)  # work a step at its work center
@@ -132,6 +133,7 @@ ROWS: dict[str, Row] = {
         lambda c: "/api/v1/routing/preview/",
         (A, A, A, A, A, D, D, A),
         body=lambda c: c["spec"],
+        lab=A,  # a preview changes nothing
     ),
     "POST routing import design": Row(
         "POST",
@@ -205,9 +207,10 @@ ROWS: dict[str, Row] = {
         (A, A, A, A, A, D, D, A),
         api=False,
         body=lambda c: {"spec": "{}"},
+        lab=A,
     ),
     "GET engineering import design": Row(
-        "GET", lambda c: "/engineering/import-design/", ENGINEERING, api=False
+        "GET", lambda c: "/engineering/import-design/", ENGINEERING, api=False, lab=D
     ),
     "POST engineering import design": Row(
         "POST", lambda c: "/engineering/import-design/", ENGINEERING, api=False, body=lambda c: {}

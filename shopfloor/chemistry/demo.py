@@ -227,6 +227,8 @@ def history(lab: Person, engineer: Person, pin: str) -> int:
                     ),
                 )
                 count += 1
+                if param.dose_ml_per_kah and amp_hours is not None:
+                    _dose(tank, param, lab, pin, amp_hours, taken)
                 top_up = i % 4 == 3 or (tank.makeup_nickel_g_per_l and param.code == "nickel")
                 if top_up and param.stock_strength:
                     _addition(tank, param, lab, engineer, pin, taken)
@@ -259,6 +261,26 @@ def _addition(
     later = at + dt.timedelta(minutes=40)
     TankEvent.objects.filter(pk=event.pk).update(
         entered_at=at + dt.timedelta(minutes=20), confirmed_at=later
+    )
+
+
+def _dose(
+    tank: Tank, param: PlanParameter, lab: Person, pin: str, amp_hours: float, at: dt.datetime
+) -> None:
+    """The additive dosed by charge at the counter reading taken with the analysis."""
+    last = TankEvent.objects.filter(tank=tank, parameter=param, kind=TankEvent.Kind.DOSE).first()
+    ml = (
+        0.0
+        if last is None or last.amp_hours is None
+        else ((amp_hours - last.amp_hours) * (param.dose_ml_per_kah or 0.0) / 1000.0)
+    )
+    event = services.record_event(
+        person=lab, tank_code=tank.code, kind=TankEvent.Kind.DOSE, pin=pin,
+        parameter=param.code, add_l=round(ml / 1000.0, 4), amp_hours=amp_hours,
+        note="amp-hour dose" if ml else "dosing counter start",
+    )  # fmt: skip
+    TankEvent.objects.filter(pk=event.pk).update(
+        entered_at=at + dt.timedelta(minutes=10), confirmed_at=at + dt.timedelta(minutes=10)
     )
 
 

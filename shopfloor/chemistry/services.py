@@ -368,7 +368,9 @@ def record_analysis(
                 "in_window": in_window,
             },
         )
-        if not in_window:
+        if in_window:
+            _drift_alert(analysis)
+        else:
             exposed = exposure(analysis)
             side = "below" if value < param.low else "above"
             quality.raise_alert(
@@ -384,6 +386,60 @@ def record_analysis(
                 ),
             )
     return analysis
+
+
+def _drift_alert(analysis: Analysis) -> None:
+    """An in-window analysis that breaks a run rule on its tank x parameter chart raises a
+    drift warning (never a hold), as readings do; an out-of-window one already alerted."""
+    from shopfloor.chemistry.spc_view import parameter_chart
+    from shopfloor.quality import services as quality
+    from shopfloor.quality.models import Alert
+
+    param = analysis.parameter
+    if param.last_analysis_id != analysis.pk:
+        return  # a late entry for an earlier time: the chart's newest point is another
+    chart = parameter_chart(param)
+    newest = len(chart.values) - 1
+    fired = [s for s in chart.signals if s.index == newest]
+    if not fired:
+        return
+    quality.raise_alert(
+        {"tank": analysis.tank.code, "parameter": param.code, "rule": fired[0].rule},
+        kind=Alert.Kind.DRIFT,
+        severity=Alert.Severity.WARNING,
+        dedupe_key=f"bath_drift:{analysis.pk}",
+        work_center=analysis.tank.work_center,
+        rule=fired[0].rule,
+        message=(
+            f"Tank {analysis.tank.code} ({analysis.tank.name}): {param.name} "
+            f"{fmt(param, analysis.value)} is in window but {fired[0].description.lower()} "
+            "on its control chart: the bath is drifting."
+        ),
+    )
+
+
+def doses_due(tank: Tank) -> list[tuple[PlanParameter, bath.AmpHourDose]]:
+    """Additives dosed by charge: mL due since each one's last dose (rectifier counter)."""
+    if tank.amp_hours is None:
+        return []
+    out = []
+    for param in tank.parameters.filter(dose_ml_per_kah__isnull=False):
+        last = (
+            TankEvent.objects.filter(
+                tank=tank, parameter=param, kind=TankEvent.Kind.DOSE, amp_hours__isnull=False
+            )
+            .order_by("-entered_at", "-pk")
+            .first()
+        )
+        if last is None or last.amp_hours is None or param.dose_ml_per_kah is None:
+            continue
+        try:
+            out.append(
+                (param, bath.amp_hour_dose(param.dose_ml_per_kah, tank.amp_hours, last.amp_hours))
+            )
+        except ChemistryInputError:
+            continue  # counter reset since the last dose: the page says to record a new start
+    return out
 
 
 # --- impact ---------------------------------------------------------------------------
@@ -554,13 +610,7 @@ def advise_addition(
     v = tank.volume_l if volume_l in (None, "") else volume_l
     try:
         advice = bath.concentrate_addition(v, m, t, s, max_volume_l=tank.max_volume_l)
-        dose = None
-        if param.dose_ml_per_kah and tank.amp_hours is not None:
-            last = TankEvent.objects.filter(
-                tank=tank, parameter=param, kind=TankEvent.Kind.DOSE, amp_hours__isnull=False
-            ).first()
-            if last is not None and last.amp_hours is not None:
-                dose = bath.amp_hour_dose(param.dose_ml_per_kah, tank.amp_hours, last.amp_hours)
+        dose = next((d for p, d in doses_due(tank) if p.pk == param.pk), None)
     except ChemistryInputError as exc:
         raise InvalidInput(str(exc)) from exc
     return AdditionAdvice(param, m, t, s, float(v), advice, dose)

@@ -77,6 +77,7 @@ def _tank_context(scope: Scope, code: str, **extra: Any) -> dict[str, Any]:
         out_of_window=out_of_window,
         pending=pending,
         turnovers=services.turnovers(tank),
+        doses=services.doses_due(tank),
         event_kinds=[(k.value, k.label) for k in TankEvent.Kind if k != TankEvent.Kind.ADDITION],
         frequencies=dict(Frequency.choices),
         **extra,

@@ -230,3 +230,26 @@ def test_lamination_cycle_steps_share_the_tank_and_the_calculator():
     assert services.base_code("panel_plate_c1") == "panel_plate"
     assert services.base_code("panel_plate") == "panel_plate"
     assert services.base_code("inner_etch_c12") == "inner_etch"
+
+
+def test_in_window_analysis_that_breaks_a_run_rule_raises_a_drift_warning(floor):
+    tank, lab = copper_tank(), lab_tech()
+    t0 = timezone.now() - dt.timedelta(days=3)
+    # 25 baseline analyses alternating 74.9 / 75.1 g/L: moving range 0.2, sigma = 0.2 /
+    # d2(2) = 0.2 / 1.128 = 0.177, UCL = 75 + 3 × 0.177 = 75.53 (individuals chart,
+    # Montgomery; the same spc module as readings). 80 g/L is in the 60-90 window but
+    # beyond 3 sigma: Western Electric rule 1.
+    for i in range(25):
+        analyse(
+            lab,
+            tank,
+            "copper_sulfate",
+            74.9 if i % 2 else 75.1,
+            taken_at=t0 + i * dt.timedelta(hours=2),
+        )
+    assert not Alert.objects.filter(kind=Alert.Kind.DRIFT).exists()
+    drifted = analyse(lab, tank, "copper_sulfate", "80", taken_at=t0 + dt.timedelta(hours=60))
+    assert drifted.in_window
+    alert = Alert.objects.get(kind=Alert.Kind.DRIFT, dedupe_key=f"bath_drift:{drifted.pk}")
+    assert "drifting" in alert.message and tank.code in alert.message
+    assert not Lot.objects.filter(on_hold=True).exists()  # a drift warning never holds
