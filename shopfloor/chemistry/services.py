@@ -38,6 +38,7 @@ from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Lot, Person, Role
 
 log = logging.getLogger("shopfloor.chemistry")
+MAX_ID_DIGITS = 18  # a bigint id has at most 19 digits; longer "ids" are codes (or junk)
 
 #: Enter analyses and additions, record dumps and make-ups.
 LAB_ROLES = frozenset({Role.LAB_TECHNICIAN, Role.PROCESS_ENGINEER, Role.ADMIN})
@@ -126,7 +127,8 @@ def get_tank(code: str) -> Tank:
 def get_parameter(tank: Tank, code_or_id: str | int) -> PlanParameter:
     qs = tank.parameters.all()
     text = str(code_or_id).strip()
-    param = qs.filter(pk=int(text)).first() if text.isdigit() else qs.filter(code=text).first()
+    by_id = text.isdigit() and len(text) <= MAX_ID_DIGITS
+    param = qs.filter(pk=int(text)).first() if by_id else qs.filter(code=text[:40]).first()
     if param is None:
         known = ", ".join(tank.parameters.values_list("code", flat=True))
         raise NotFound(f"Tank {tank.code} has no parameter {text!r}; its plan has: {known}.")
@@ -134,6 +136,8 @@ def get_parameter(tank: Tank, code_or_id: str | int) -> PlanParameter:
 
 
 def get_analysis(analysis_id: int) -> Analysis:
+    if not 0 < analysis_id < 2**63:  # beyond the id column: no such row, never a 500
+        raise NotFound(f"No analysis {analysis_id}.")
     found = (
         Analysis.objects.select_related("tank__work_center", "parameter", "analyst")
         .filter(pk=analysis_id)
@@ -653,7 +657,7 @@ def record_event(
         raise InvalidInput("An addition or dose names the parameter it corrects.")
     analysis = None
     if analysis_id not in (None, ""):
-        if not str(analysis_id).isdigit():
+        if not str(analysis_id).isdigit() or len(str(analysis_id)) > MAX_ID_DIGITS:
             raise InvalidInput(f"analysis {analysis_id!r} is not an analysis number.")
         analysis = Analysis.objects.filter(pk=int(analysis_id), tank=tank).first()
         if analysis is None:
@@ -725,7 +729,11 @@ def confirm_event(*, person: Person, event_id: int, pin: str) -> TankEvent:
     _require(person, CONFIRM_ROLES, "confirm additions")
     _verify_pin(person, pin)
     with transaction.atomic():
-        event = TankEvent.objects.select_for_update(no_key=True).filter(pk=event_id).first()
+        event = (
+            TankEvent.objects.select_for_update(no_key=True).filter(pk=event_id).first()
+            if 0 < event_id < 2**63
+            else None
+        )
         if event is None:
             raise NotFound(f"No tank event {event_id}.")
         if event.confirmed_at is not None:
@@ -985,7 +993,11 @@ def compute_plating(
     as step parameters. The area is the one entered, else the job's design data."""
     _require(person, PLATING_ROLES, "set plating areas")
     with transaction.atomic():
-        step = LotStep.objects.select_for_update(no_key=True).filter(pk=lot_step_id).first()
+        step = (
+            LotStep.objects.select_for_update(no_key=True).filter(pk=lot_step_id).first()
+            if 0 < lot_step_id < 2**63
+            else None
+        )
         if step is None:
             raise NotFound(f"No lot step {lot_step_id}.")
         if base_code(step.code) not in PLATING_STEPS:

@@ -292,7 +292,11 @@ def calculator(request: HttpRequest, scope: Scope) -> HttpResponse:
 
 @reader
 def plating_step(request: HttpRequest, scope: Scope, lot_step_id: int) -> HttpResponse:
-    step = LotStep.objects.select_related("lot", "work_center").filter(pk=lot_step_id).first()
+    step = (
+        LotStep.objects.select_related("lot", "work_center").filter(pk=lot_step_id).first()
+        if 0 < lot_step_id < 2**63
+        else None
+    )
     if step is None:
         from shopfloor.errors import NotFound
 
