@@ -132,8 +132,8 @@ def scope_for(user: Any) -> Scope:
         return Scope(person, roles, False, centers)
     raise NotAllowed(
         "Your account has no shop-floor role (operator, supervisor, process engineer, quality "
-        "engineer, lab technician or administrator), so lot records are not shown. Ask an "
-        "administrator to give you a role."
+        "engineer, planner, lab technician or administrator), so lot records are not shown. "
+        "Ask an administrator to give you a role."
     )
 
 
