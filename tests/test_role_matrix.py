@@ -147,7 +147,7 @@ ROWS: dict[str, Row] = {
         PLAN,
         body=lambda c: {"spec": c["spec"], "quantity": 10},
     ),
-    "GET quote page": Row("GET", lambda c: "/planning/quote/", PLAN, api=False),
+    "GET quote page": Row("GET", lambda c: "/planning/quote/", PLAN, api=False, lab=D),
     "POST quote page": Row(
         "POST",
         lambda c: "/planning/quote/",
