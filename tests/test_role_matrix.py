@@ -418,6 +418,7 @@ ROWS: dict[str, Row] = {
         READERS,
         api=False,
         body=lambda c: {"layers": "4"},
+        lab=A,  # a preview changes nothing
     ),
     # --- jobs (planner) ------------------------------------------ op sup pe qe adm ins ano oth pla
     "GET jobs API": Row("GET", lambda c: "/api/v1/jobs/?status=released", READERS),
