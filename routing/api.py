@@ -4,7 +4,9 @@ from __future__ import annotations
 
 from typing import Any
 
+from drf_spectacular.types import OpenApiTypes
 from drf_spectacular.utils import OpenApiExample, extend_schema
+from rest_framework import serializers as drf_serializers
 from rest_framework.parsers import MultiPartParser
 from rest_framework.request import Request
 from rest_framework.response import Response
@@ -18,8 +20,18 @@ from routing.serializers import (
     PreviewSerializer,
 )
 from shopfloor.errors import InvalidInput
-from shopfloor.floor.api import READ_ERRORS, JsonAPIView, error
-from shopfloor.floor.permissions import CanRead, _RolePermission
+from shopfloor.floor.api import (
+    IDEMPOTENCY_KEY,
+    READ_ERRORS,
+    REPLAY_HEADER,
+    WRITE_ERRORS,
+    JsonAPIView,
+    error,
+    idempotent,
+    parse,
+)
+from shopfloor.floor.permissions import CanEngineer, CanRead, _RolePermission
+from shopfloor.floor.services import person_for
 
 EXAMPLE_SPEC = {
     "layers": 4,
@@ -142,3 +154,109 @@ class ImportDesignView(APIView):
             )
         result = services.import_design(upload, name=upload.name or "", size=upload.size)
         return Response(result.as_dict())
+
+
+# --- authoring through the API (the ERP / engineering tools path) -------------------------
+
+
+class SpecBodySerializer(drf_serializers.Serializer):
+    """The build spec itself (README "Build spec"); checked by validate_spec."""
+
+
+class DraftInputSerializer(drf_serializers.Serializer):
+    reason = drf_serializers.CharField(max_length=300, required=False, allow_blank=True)
+    overrides = drf_serializers.ListField(
+        child=drf_serializers.DictField(), required=False, help_text="Customer window overrides"
+    )
+    deviation_pin = drf_serializers.CharField(
+        required=False, allow_blank=True, help_text="Your PIN: needed for a looser override"
+    )
+
+
+class RoutingReleaseInputSerializer(drf_serializers.Serializer):
+    pin = drf_serializers.CharField(help_text="Your PIN: the release e-signature")
+
+
+def revision_dict(revision: Any) -> dict[str, Any]:
+    from routing.builder import render
+
+    previous = revision.previous
+    return {
+        "id": revision.pk,
+        "part_revision": revision.part_revision_id,
+        "number": revision.number,
+        "status": revision.status,
+        "ipc_class": revision.ipc_class,
+        "reason": revision.reason,
+        "steps": len(revision.built.get("steps", [])),
+        "changes": render.diff_table(previous.built, revision.built) if previous else [],
+    }
+
+
+class PartRevisionSpecView(JsonAPIView):
+    permission_classes = [CanEngineer]
+
+    @extend_schema(
+        operation_id="part_revision_spec_set",
+        summary="Store a part revision's build spec (validated; stored normalised)",
+        description="The same validator as the authoring form, the command and the admin.",
+        request=SpecBodySerializer,
+        parameters=[IDEMPOTENCY_KEY, REPLAY_HEADER],
+        responses={200: OpenApiTypes.OBJECT, **WRITE_ERRORS},
+    )
+    def put(self, request: Request, pk: int) -> Response:
+        person = person_for(request.user)
+
+        def action() -> tuple[int, Any]:
+            pr = services.set_spec(person=person, part_revision_id=pk, spec=request.data)
+            return 200, {"part_revision": pr.pk, "build_spec": pr.build_spec}
+
+        return idempotent(request, action)
+
+
+class DraftCreateView(JsonAPIView):
+    permission_classes = [CanEngineer]
+
+    @extend_schema(
+        operation_id="routing_draft_create",
+        summary="Draft a routing revision from the part revision's build spec",
+        request=DraftInputSerializer,
+        parameters=[IDEMPOTENCY_KEY, REPLAY_HEADER],
+        responses={201: OpenApiTypes.OBJECT, **WRITE_ERRORS},
+    )
+    def post(self, request: Request, pk: int) -> Response:
+        data = parse(DraftInputSerializer, request.data)
+        person = person_for(request.user)
+
+        def action() -> tuple[int, Any]:
+            revision = services.create_draft(
+                person=person,
+                part_revision_id=pk,
+                reason=data.get("reason") or "",
+                overrides=data.get("overrides") or [],
+                deviation_pin=data.get("deviation_pin") or None,
+            )
+            return 201, revision_dict(revision)
+
+        return idempotent(request, action)
+
+
+class RevisionReleaseView(JsonAPIView):
+    permission_classes = [CanEngineer]
+
+    @extend_schema(
+        operation_id="routing_revision_release",
+        summary="Release a draft routing revision with the PIN (refused when identical)",
+        request=RoutingReleaseInputSerializer,
+        parameters=[IDEMPOTENCY_KEY, REPLAY_HEADER],
+        responses={200: OpenApiTypes.OBJECT, **WRITE_ERRORS},
+    )
+    def post(self, request: Request, pk: int) -> Response:
+        data = parse(RoutingReleaseInputSerializer, request.data)
+        person = person_for(request.user)
+
+        def action() -> tuple[int, Any]:
+            revision = services.release(person=person, revision_id=pk, pin=data["pin"])
+            return 200, revision_dict(revision)
+
+        return idempotent(request, action)

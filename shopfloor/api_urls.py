@@ -27,6 +27,21 @@ urlpatterns = [
     path(
         "steps/<int:pk>/complete/", floor_api.StepCompleteView.as_view(), name="api-step-complete"
     ),
+    path(
+        "part-revisions/<int:pk>/spec/",
+        routing_api.PartRevisionSpecView.as_view(),
+        name="api-part-revision-spec",
+    ),
+    path(
+        "part-revisions/<int:pk>/drafts/",
+        routing_api.DraftCreateView.as_view(),
+        name="api-routing-draft",
+    ),
+    path(
+        "routing-revisions/<int:pk>/release/",
+        routing_api.RevisionReleaseView.as_view(),
+        name="api-routing-release",
+    ),
     path("jobs/", orders_api.JobListView.as_view(), name="api-jobs"),
     path("jobs/<str:number>/", orders_api.JobDetailView.as_view(), name="api-job"),
     path("jobs/<str:number>/release/", orders_api.JobReleaseView.as_view(), name="api-job-release"),

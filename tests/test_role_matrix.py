@@ -420,6 +420,24 @@ ROWS: dict[str, Row] = {
         body=lambda c: {"layers": "4"},
         lab=A,  # a preview changes nothing
     ),
+    "PUT part revision spec API": Row(
+        "PUT",
+        lambda c: f"/api/v1/part-revisions/{c['routing'].part_revision_id}/spec/",
+        ENGINEERING,
+        body=lambda c: {"layers": 3},
+    ),
+    "POST routing draft API": Row(
+        "POST",
+        lambda c: f"/api/v1/part-revisions/{c['routing'].part_revision_id}/drafts/",
+        ENGINEERING,
+        body=lambda c: {"reason": "matrix"},
+    ),
+    "POST routing release API": Row(
+        "POST",
+        lambda c: f"/api/v1/routing-revisions/{c['routing'].pk}/release/",
+        ENGINEERING,
+        body=lambda c: {"pin": PIN},  # already released: 409 once past the role check
+    ),
     # --- jobs (planner) ------------------------------------------ op sup pe qe adm ins ano oth pla
     "GET jobs API": Row("GET", lambda c: "/api/v1/jobs/?status=released", READERS),
     "GET job API": Row("GET", lambda c: f"/api/v1/jobs/{c['job'].number}/", READERS),
@@ -700,6 +718,8 @@ def test_role_matrix(world):
             body = row.body(world) if row.body else None
             if row.method == "GET":
                 reply = client.get(url)
+            elif row.method == "PUT":
+                reply = client.put(url, body, format="json")
             elif row.api:
                 reply = client.post(url, body, format="json")
             else:

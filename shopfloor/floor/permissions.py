@@ -61,6 +61,13 @@ class CanRead(_RolePermission):
     what = "read lots and preview routings"
 
 
+class CanEngineer(_RolePermission):
+    """Author build specs, draft and release routings: process engineers (and admins)."""
+
+    roles = frozenset({"process_engineer", "admin"})
+    what = "author build specs and routings"
+
+
 class CanPlan(_RolePermission):
     """Enter jobs and release them to the floor: planners (and administrators)."""
 

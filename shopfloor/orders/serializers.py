@@ -68,6 +68,8 @@ class JobSerializer(serializers.Serializer):
     customer = serializers.CharField()
     part_number = serializers.CharField()
     part_revision = serializers.CharField()
+    part_revision_id = serializers.IntegerField(help_text="For the spec and routing endpoints")
+    has_spec = serializers.BooleanField(help_text="False until a build spec is authored")
     ipc_class = serializers.IntegerField()
     due_date = serializers.DateField()
     status = serializers.ChoiceField(choices=list(services.STATUSES))
@@ -100,6 +102,8 @@ def job_dict(summary: services.JobSummary) -> dict[str, Any]:
         "customer": part.customer.code,
         "part_number": part.number,
         "part_revision": job.part_revision.revision,
+        "part_revision_id": job.part_revision_id,
+        "has_spec": bool(job.part_revision.build_spec),
         "ipc_class": job.ipc_class,
         "due_date": job.due_date,
         "status": summary.status,

@@ -57,6 +57,26 @@ STATUSES: dict[str, str] = {
 }
 
 
+def has_nul(value: Any) -> bool:
+    """True when any text inside `value` holds a NUL character, which PostgreSQL cannot
+    store in text or jsonb: such input is refused with a reason instead of a 500."""
+    if isinstance(value, str):
+        return "\x00" in value
+    if isinstance(value, Mapping):
+        return any(has_nul(k) or has_nul(v) for k, v in value.items())
+    if isinstance(value, list | tuple):
+        return any(has_nul(v) for v in value)
+    return False
+
+
+def refuse_nul(value: Any, what: str = "body") -> None:
+    if has_nul(value):
+        raise InvalidInput(
+            f"The {what} contains a NUL character (\\0), which cannot be stored.",
+            problems=[_problem(what, None, "contains a NUL character", "text without \\0")],
+        )
+
+
 def require_planner(person: Person | None) -> Person:
     """Only planners (and administrators) enter and release jobs."""
     if person is None:
@@ -115,6 +135,7 @@ def _text(value: Any) -> str:
 def check_job_input(data: JobInput, *, today: dt.date | None = None) -> _CleanJob:
     """Every problem with a job entry at once (InvalidInput), or the cleaned values."""
     today = today or timezone.localdate()
+    refuse_nul(data.__dict__, "job")
     problems: list[dict[str, Any]] = []
 
     def text_field(name: str, value: Any, *, required: bool, what: str) -> str:
@@ -577,7 +598,8 @@ def job_queryset() -> QuerySet[Job]:
 
 def find_job(number: str) -> Job:
     number = (number or "").strip()
-    job = job_queryset().filter(number__iexact=number).first() if number else None
+    ok = number and not has_nul(number)
+    job = job_queryset().filter(number__iexact=number).first() if ok else None
     if job is None:
         raise NotFound(f"No job numbered {number!r}.")
     return job
@@ -608,6 +630,7 @@ class JobFilter:
 
 def parse_filter(raw: Mapping[str, Any]) -> JobFilter:
     """Query-string filters, every problem at once."""
+    refuse_nul({k: raw.get(k) for k in ("status", "customer", "due_before")}, "filter")
     problems: list[dict[str, Any]] = []
     status = _text(raw.get("status"))
     if status and status not in STATUSES:
@@ -731,6 +754,7 @@ def release_job(
     """
     require_planner(person)
     assert person is not None
+    refuse_nul([number, share_with or []], "release")
     problems: list[dict[str, Any]] = []
     bpp = _whole(boards_per_panel, "boards_per_panel", 1, panelise.MAX_BOARDS_PER_PANEL, problems)
     partners: list[tuple[str, int]] = []
@@ -984,7 +1008,7 @@ def lots_for_scan(code: str) -> list[Lot]:
     floor (all of them when none is left). Raises NotFound naming what was tried.
     """
     code = (code or "").strip()
-    if not code:
+    if not code or has_nul(code):
         raise InvalidInput("Scan or type a lot code, panel serial or job number.")
     lot = Lot.objects.filter(code__iexact=code).first()
     if lot is not None:

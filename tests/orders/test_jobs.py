@@ -294,3 +294,19 @@ def test_pages_enter_and_release_without_admin(floor):
     assert label["Content-Type"] == "application/pdf" and label.content.startswith(b"%PDF")
     letter = client.get(f"/floor/lots/{lot.code}/traveller.pdf?paper=letter")
     assert letter.content.startswith(b"%PDF")
+
+
+def test_nul_characters_are_refused_not_a_500(floor):
+    client = _api(floor.personas["planner"])
+    reply = client.post("/api/v1/jobs/", _entry(floor, customer_spec_notes="a\x00b"), format="json")
+    assert reply.status_code == 400 and "NUL" in reply.json()["detail"]
+    assert client.get("/api/v1/jobs/", {"customer": "x\x00"}).status_code == 400
+    engineer = _api(floor.personas["process_engineer"])
+    spec = {
+        **SPEC_4L_ENIG,
+        "stackup": [{"kind": "copper", "thickness_um": 17.5, "material": "\x00"}],
+    }
+    reply = engineer.put(
+        f"/api/v1/part-revisions/{floor.routing.part_revision_id}/spec/", spec, format="json"
+    )
+    assert reply.status_code == 400
