@@ -23,7 +23,7 @@ from routing.builder import render as routing_render
 from routing.builder import spec as spec_core
 from routing.builder.design_import import ImportResult, cross_section_svg
 from routing.models import RoutingRevision
-from shopfloor import units
+from shopfloor import strict_json, units
 from shopfloor.errors import DomainError
 from shopfloor.floor.permissions import READ_ROLES, roles_of
 from shopfloor.plant.models import Lot, PartRevision
@@ -79,7 +79,7 @@ def preview(request: HttpRequest) -> HttpResponse:
     status = 200
     if request.method == "POST":
         try:
-            spec, overrides = split_preview_body(json.loads(text, parse_constant=_no_constant))
+            spec, overrides = split_preview_body(strict_json.loads(text))
             context["result"] = services.preview(spec, overrides)
         except ValueError as exc:
             context["error"] = f"The text is not valid JSON: {exc}"
@@ -205,10 +205,6 @@ def _shown(problems: list[dict[str, Any]]) -> list[dict[str, Any]]:
         text = ", ".join(map(str, allowed)) if isinstance(allowed, list) else (allowed or "")
         out.append({**p, "allowed_text": text})
     return out
-
-
-def _no_constant(name: str) -> Any:
-    raise ValueError(f"{name} is not a number a spec can use")
 
 
 @login_required

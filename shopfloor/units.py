@@ -14,6 +14,7 @@ Pure Python (no Django imports) so the routing builder and its tests can use it.
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass
 from typing import Final
 
@@ -194,20 +195,35 @@ def allowed_units(quantity: str) -> list[str]:
     return ["count"]
 
 
+#: The only number text accepted: ASCII digits with an optional sign, point and exponent.
+#: Python's float() also takes "3_0", "٣٠" (Arabic-Indic) and "３０" (fullwidth) as 30,
+#: which a person never means to type into a gauge reading.
+ASCII_DECIMAL = re.compile(r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?", re.ASCII)
+DECIMAL_RULE = (
+    "numbers are ASCII digits with an optional sign, decimal point and exponent "
+    "(for example 12.5, -0.3 or 1.2e-3)"
+)
+
+
+def parse_decimal(text: str) -> float:
+    """A number typed as text, by DECIMAL_RULE only; ValueError (saying the rule) otherwise."""
+    stripped = text.strip()
+    if not ASCII_DECIMAL.fullmatch(stripped):
+        hint = " (use a point as the decimal separator)" if "," in stripped else ""
+        raise ValueError(f"{text!r} is not a number{hint}: {DECIMAL_RULE}")
+    return float(stripped)
+
+
 def _number(quantity: str, value: float | str) -> float:
     if isinstance(value, bool):  # bool is an int to Python, never a reading
         raise NotANumber(f"{quantity}: {value!r} is not a number; give a number such as 12.5")
     if isinstance(value, int | float):
         number = float(value)
     elif isinstance(value, str):
-        text = value.strip()
         try:
-            number = float(text)
-        except ValueError:
-            hint = " (use a point as the decimal separator)" if "," in text else ""
-            raise NotANumber(
-                f"{quantity}: {value!r} is not a number{hint}; give a number such as 12.5"
-            ) from None
+            number = parse_decimal(value)
+        except ValueError as exc:
+            raise NotANumber(f"{quantity}: {exc}") from None
     else:
         raise NotANumber(
             f"{quantity}: {type(value).__name__} is not a number; give a number such as 12.5"

@@ -16,12 +16,12 @@ from drf_spectacular.extensions import OpenApiAuthenticationExtension
 from drf_spectacular.types import OpenApiTypes
 from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
 from rest_framework import serializers as drf_serializers
-from rest_framework.parsers import JSONParser
 from rest_framework.request import Request
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
 from shopfloor.access import require_lot_readable
+from shopfloor.api_parsers import StrictJSONParser
 from shopfloor.errors import InvalidInput
 from shopfloor.floor import batch, idempotency, services
 from shopfloor.floor.permissions import (
@@ -223,7 +223,7 @@ def idempotent_batch(request: Request, action: Callable[[], tuple[int, Any]]) ->
 
 
 class JsonAPIView(APIView):
-    parser_classes = [JSONParser]
+    parser_classes = [StrictJSONParser]
 
 
 # --- readings ------------------------------------------------------------------------

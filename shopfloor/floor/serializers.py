@@ -14,6 +14,7 @@ from django.utils import timezone
 from drf_spectacular.utils import extend_schema_field
 from rest_framework import serializers
 
+from shopfloor import units
 from shopfloor.floor.models import LotStep, Reading
 
 MAX_ID = 2**63 - 1
@@ -42,7 +43,8 @@ class NumberOrTextField(serializers.Field):
     """
 
     default_error_messages = {
-        "invalid": "Give a number such as 12.5 (a point as the decimal separator).",
+        "invalid": "Give a number such as 12.5: ASCII digits with an optional sign, decimal "
+        "point and exponent (a point as the decimal separator).",
         "not_finite": "The value must be a finite number (not NaN or infinity).",
     }
 
@@ -54,7 +56,7 @@ class NumberOrTextField(serializers.Field):
             if not text or len(text) > 40:
                 self.fail("invalid")
             try:
-                number = float(text)
+                number = units.parse_decimal(text)
             except ValueError:
                 self.fail("invalid")
             if not math.isfinite(number):

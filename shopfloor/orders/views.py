@@ -122,7 +122,7 @@ def _override_rows(post: Any) -> tuple[list[dict[str, Any]], list[dict[str, Any]
         for key in ("min", "max", "target"):
             if row[key]:
                 try:
-                    item[key] = float(row[key])
+                    item[key] = units.parse_decimal(row[key])  # ASCII decimals only
                 except ValueError:
                     item[key] = row[key]  # the service reports it as not a number
         overrides.append(item)

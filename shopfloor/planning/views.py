@@ -13,6 +13,7 @@ from django.urls import reverse
 from django.views.decorators.http import require_http_methods, require_POST
 
 from routing.builder.spec import EXAMPLE_SPECS
+from shopfloor import strict_json
 from shopfloor.errors import DomainError
 from shopfloor.floor.permissions import roles_of
 from shopfloor.planning import services
@@ -46,7 +47,7 @@ def quote_page(request: HttpRequest) -> HttpResponse:
     if request.method == "POST":
         form.update({k: request.POST.get(k, "") for k in ("spec", *QUOTE_FIELDS)})
         try:
-            spec = json.loads(form["spec"])
+            spec = strict_json.loads(form["spec"])
         except ValueError as exc:
             context["error"] = f"The build spec is not valid JSON: {exc}"
         else:

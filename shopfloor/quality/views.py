@@ -27,6 +27,7 @@ from django.urls import reverse
 from django.utils.http import urlencode
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
+from shopfloor import units
 from shopfloor.errors import DomainError, InvalidInput
 from shopfloor.planning import services as planning
 from shopfloor.planning.services import PLANNING_ROLES
@@ -271,10 +272,12 @@ def _number(raw: str, label: str) -> float:
     """A finite number from a form field, or InvalidInput naming the field."""
     text = (raw or "").strip().replace(",", ".")
     try:
-        value = float(text)
+        value = units.parse_decimal(text)
     except ValueError:
         shown = f"{raw!r}" if text else "nothing"
-        raise InvalidInput(f"{label} must be a number (for example 45.2); got {shown}.") from None
+        raise InvalidInput(
+            f"{label} must be a number (for example 45.2); got {shown}. {units.DECIMAL_RULE}."
+        ) from None
     if not math.isfinite(value):
         raise InvalidInput(f"{label} must be a finite number; got {raw!r}.")
     return value
