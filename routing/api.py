@@ -51,7 +51,9 @@ EXAMPLE_SPEC = {
 def split_preview_body(data: Any) -> tuple[Any, list[dict[str, Any]]]:
     """Accept the spec itself or {"spec": ..., "overrides": [...]}; return (spec, overrides)."""
     if isinstance(data, dict) and "spec" in data:
-        overrides = data.get("overrides") or []
+        # Only a list of objects (or no key at all): a false-y value of the wrong type (0,
+        # "", {}, null) is refused like any other, as the schema says.
+        overrides = data.get("overrides", [])
         if not isinstance(overrides, list) or not all(isinstance(o, dict) for o in overrides):
             raise InvalidInput(
                 "overrides must be a list of objects.",

@@ -220,6 +220,8 @@ def _number(quantity: str, value: float | str) -> float:
     if isinstance(value, int | float):
         number = float(value)
     elif isinstance(value, str):
+        if value.strip().lower().lstrip("+-") in {"inf", "infinity", "nan"}:
+            raise NotFinite(f"{quantity}: {value!r} is not a finite number; give a real reading")
         try:
             number = parse_decimal(value)
         except ValueError as exc:

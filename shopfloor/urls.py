@@ -3,7 +3,7 @@ quality pages under /board/ and /quality/, the API under /api/v1/."""
 
 from django.conf import settings
 from django.contrib import admin
-from django.urls import include, path
+from django.urls import include, path, re_path
 from drf_spectacular.views import SpectacularAPIView, SpectacularSwaggerSplitView
 
 from shopfloor import views
@@ -21,6 +21,8 @@ urlpatterns = [
     path("", include("shopfloor.quality.urls")),
     path("planning/", include("shopfloor.planning.urls")),
     path("api/v1/", include("shopfloor.api_urls")),
+    # Anything else under /api/ (a negative id, a typo) is the API's JSON 404, also in DEBUG.
+    re_path(r"^api/v1/", views.api_not_found, name="api-not-found"),
     path("api/schema/", SpectacularAPIView.as_view(), name="schema"),
     path("api/docs/", SpectacularSwaggerSplitView.as_view(url_name="schema"), name="api-docs"),
 ]

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from django.http import HttpRequest, HttpResponse, JsonResponse
 from django.shortcuts import redirect, render
+from django.views.decorators.csrf import csrf_exempt
 
 from shopfloor import throttle
 from shopfloor.health import health_response
@@ -18,6 +19,14 @@ def home(request: HttpRequest) -> HttpResponse:
 def healthz(request: HttpRequest) -> JsonResponse:
     """Normally answered by shopfloor.health.HealthCheckMiddleware; same reply here."""
     return health_response()
+
+
+@csrf_exempt  # a JSON 404 for any method; nothing is read or changed
+def api_not_found(request: HttpRequest) -> JsonResponse:
+    return JsonResponse(
+        {"error": "not_found", "detail": f"No API endpoint at {request.path}; see /api/docs/."},
+        status=404,
+    )
 
 
 def forbidden(request: HttpRequest, exception: Exception | None = None) -> HttpResponse:

@@ -25,9 +25,9 @@ class InstrumentTokenAuthentication(authentication.BaseAuthentication):
         if not header:
             return None
         parts = header.split()
-        if not parts or parts[0] != self.keyword:
-            return None
-        if len(parts) != 2:
+        # A credential we do not understand is refused, never ignored in favour of the
+        # session cookie beside it: the caller meant to authenticate with it.
+        if not parts or parts[0] != self.keyword or len(parts) != 2:
             raise exceptions.AuthenticationFailed("Authorization header must be 'Token <key>'")
         from shopfloor.floor.models import InstrumentToken
 

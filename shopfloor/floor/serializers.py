@@ -8,8 +8,10 @@ stay in shopfloor.floor.services, which the tablet pages call too.
 from __future__ import annotations
 
 import math
+import re
 from typing import Any
 
+from django.core.validators import RegexValidator
 from django.utils import timezone
 from drf_spectacular.utils import extend_schema_field
 from rest_framework import serializers
@@ -18,6 +20,36 @@ from shopfloor import units
 from shopfloor.floor.models import LotStep, Reading
 
 MAX_ID = 2**63 - 1
+
+#: A reading typed as text: ASCII digits, optional sign, point and a 1-2 digit exponent,
+#: with surrounding spaces (which are dropped). The schema publishes this same pattern,
+#: so what the schema allows the server accepts and nothing else (every such number is
+#: finite: at most 40 characters, exponent at most 99).
+VALUE_TEXT_PATTERN = r"^\s*[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]{1,2})?\s*$"
+_VALUE_TEXT = re.compile(VALUE_TEXT_PATTERN, re.ASCII)
+
+
+class ExactCharField(serializers.CharField):
+    """A CharField whose limits mean what the schema says.
+
+    DRF trims surrounding whitespace (control characters included) before checking
+    max_length, so 300 characters plus trailing control characters passed a 300-character
+    limit the schema published; here the limit applies to the text as sent. A field that
+    may not be blank publishes the pattern "\\S" (some non-space character), which is
+    what DRF's trimming enforces.
+    """
+
+    def __init__(self, **kwargs: Any) -> None:
+        if not kwargs.get("allow_blank", False):
+            kwargs.setdefault("validators", []).append(
+                RegexValidator(r"\S", message="This field may not be blank.")
+            )
+        super().__init__(**kwargs)
+
+    def run_validation(self, data: Any = serializers.empty) -> Any:
+        if isinstance(data, str) and self.max_length is not None and len(data) > self.max_length:
+            self.fail("max_length", max_length=self.max_length)
+        return super().run_validation(data)
 
 
 class ErrorSerializer(serializers.Serializer):
@@ -33,7 +65,13 @@ class ErrorSerializer(serializers.Serializer):
 
 
 @extend_schema_field(
-    {"oneOf": [{"type": "number"}, {"type": "string", "maxLength": 40}], "example": 22.5}
+    {
+        "oneOf": [
+            {"type": "number", "minimum": -(10**15), "maximum": 10**15},
+            {"type": "string", "minLength": 1, "maxLength": 40, "pattern": VALUE_TEXT_PATTERN},
+        ],
+        "example": 22.5,
+    }
 )
 class NumberOrTextField(serializers.Field):
     """A reading value as typed: a JSON number or numeric text ("12.5"), never a bool.
@@ -53,7 +91,7 @@ class NumberOrTextField(serializers.Field):
             self.fail("invalid")
         if isinstance(data, str):
             text = data.strip()
-            if not text or len(text) > 40:
+            if len(data) > 40 or not _VALUE_TEXT.match(data):
                 self.fail("invalid")
             try:
                 number = units.parse_decimal(text)
@@ -64,7 +102,7 @@ class NumberOrTextField(serializers.Field):
             return text
         if isinstance(data, float) and not math.isfinite(data):
             self.fail("not_finite")
-        if isinstance(data, int) and abs(data) > 10**15:
+        if abs(data) > 10**15:
             self.fail("invalid")
         return data
 
@@ -84,7 +122,7 @@ class AwareDateTimeField(serializers.DateTimeField):
 
 
 class ReadingInputSerializer(serializers.Serializer):
-    lot = serializers.CharField(max_length=30, help_text="Lot (traveller) code as scanned")
+    lot = ExactCharField(max_length=30, help_text="Lot (traveller) code as scanned")
     step = serializers.IntegerField(
         required=False,
         allow_null=True,
@@ -92,13 +130,13 @@ class ReadingInputSerializer(serializers.Serializer):
         max_value=MAX_ID,
         help_text="Lot step id; default: the lot's current step",
     )
-    quantity = serializers.CharField(max_length=40, help_text="What is measured, e.g. hole_copper")
+    quantity = ExactCharField(max_length=40, help_text="What is measured, e.g. hole_copper")
     value = NumberOrTextField(help_text="Number as read (number or numeric text)")
-    unit = serializers.CharField(
+    unit = ExactCharField(
         max_length=20, allow_blank=True, help_text="Unit as read, e.g. um, mil, mm, percent, count"
     )
     sample_index = serializers.IntegerField(default=1, min_value=1, max_value=1000)
-    position = serializers.CharField(max_length=60, required=False, allow_blank=True, default="")
+    position = ExactCharField(max_length=60, required=False, allow_blank=True, default="")
     equipment = serializers.IntegerField(
         required=False, allow_null=True, min_value=1, max_value=MAX_ID
     )
@@ -202,8 +240,8 @@ class BatchResultSerializer(serializers.Serializer):
 
 class CorrectionInputSerializer(serializers.Serializer):
     value = NumberOrTextField()
-    unit = serializers.CharField(max_length=20, allow_blank=True)
-    reason = serializers.CharField(
+    unit = ExactCharField(max_length=20, allow_blank=True)
+    reason = ExactCharField(
         max_length=300, min_length=3, help_text="What was wrong with the first reading"
     )
     captured_at = AwareDateTimeField(required=False, allow_null=True)
@@ -221,11 +259,11 @@ class StepStartSerializer(serializers.Serializer):
 
 
 class StepPauseSerializer(serializers.Serializer):
-    reason = serializers.CharField(max_length=300, required=False, allow_blank=True, default="")
+    reason = ExactCharField(max_length=300, required=False, allow_blank=True, default="")
 
 
 class StepCompleteSerializer(serializers.Serializer):
-    pin = serializers.CharField(max_length=40, help_text="The signer's PIN (second component)")
+    pin = ExactCharField(max_length=40, help_text="The signer's PIN (second component)")
     meaning = serializers.ChoiceField(
         choices=["performed_by", "verified_by"],
         default="performed_by",
