@@ -613,7 +613,9 @@ def advise_addition(
         s = _number_in(param, "stock", stock, unit)
     v = tank.volume_l if volume_l in (None, "") else volume_l
     try:
-        advice = bath.concentrate_addition(v, m, t, s, max_volume_l=tank.max_volume_l)
+        advice = bath.concentrate_addition(
+            v, m, t, s, max_volume_l=tank.max_volume_l, high=param.high
+        )
         dose = next((d for p, d in doses_due(tank) if p.pk == param.pk), None)
     except ChemistryInputError as exc:
         raise InvalidInput(str(exc)) from exc

@@ -139,3 +139,13 @@ def test_electroless_nickel_turnovers_and_dump_point():
     assert not t.dump_due
     assert t.nickel_per_turnover_g == pytest.approx(1200)
     assert bath.metal_turnovers(6000, 200, 6.0, dump_at=5).dump_due
+
+
+def test_above_target_but_inside_the_window_adds_nothing():
+    # Brightener 1.037 mL/L, target 1.0, window up to 1.5: water would cost 4000 × 0.037 / 1
+    # = 148 L and dilute every other parameter; inside the window the advice is to wait
+    # (common practice). Above the window (1.6) the dilution advice stands.
+    r = bath.concentrate_addition(4000, 1.037, 1.0, 1000, high=1.5)
+    assert (r.action, r.add_l, r.water_l) == ("none", 0.0, 0.0)
+    assert "inside the window" in r.notes[0]
+    assert bath.concentrate_addition(4000, 1.6, 1.0, 1000, high=1.5).action == "dilute"

@@ -84,8 +84,12 @@ def concentrate_addition(
     stock: object,
     *,
     max_volume_l: object | None = None,
+    high: object | None = None,
 ) -> Addition:
     """Litres of a liquid concentrate of strength `stock` that bring `measured` to `target`.
+
+    With `high` (the window's upper limit) a value above target but still inside the
+    window is left alone: diluting would lower every other parameter of the bath too.
 
     `measured`, `target` and `stock` are in one unit. The addition's own volume is counted.
     With `max_volume_l` (the tank's working volume) an addition that would overflow
@@ -97,6 +101,19 @@ def concentrate_addition(
     if _on_target(x, t):
         return Addition("none", 0.0, 0.0, 0.0, v, x, ("The bath is on target: add nothing.",))
     if t < x:
+        if high is not None and x <= non_negative("window high", high):
+            return Addition(
+                "none",
+                0.0,
+                0.0,
+                0.0,
+                v,
+                x,
+                (
+                    "Above target but inside the window: add nothing. Diluting would lower "
+                    "every other parameter of the bath too; let use bring it down.",
+                ),
+            )
         return _lower(v, x, t, vm)
     if s <= t:
         raise StockTooWeak(
@@ -138,7 +155,8 @@ def _lower(v: float, x: float, t: float, vm: float | None) -> Addition:
             t,
             (
                 "The target is below the measured value: adding concentrate cannot lower "
-                "it. Dilute with water (as given), or dump and top up.",
+                "it. Dilute with water (as given), or dump and top up. Diluting also lowers "
+                "every other parameter of the bath: re-analyse them.",
                 f"Or: dump {dump_same_level:.3g} L and top back up to {v:g} L with water.",
             ),
         )
