@@ -404,7 +404,10 @@ def _drift_alert(analysis: Analysis) -> None:
         return  # a late entry for an earlier time: the chart's newest point is another
     chart = parameter_chart(param)
     newest = len(chart.values) - 1
-    fired = [s for s in chart.signals if s.index == newest]
+    # once per run of the pattern, as for readings: not when the same rule also fired on
+    # the point before (the run goes on)
+    before = {s.rule for s in chart.signals if s.index == newest - 1}
+    fired = [s for s in chart.signals if s.index == newest and s.rule not in before]
     if not fired:
         return
     quality.raise_alert(

@@ -253,3 +253,21 @@ def test_in_window_analysis_that_breaks_a_run_rule_raises_a_drift_warning(floor)
     alert = Alert.objects.get(kind=Alert.Kind.DRIFT, dedupe_key=f"bath_drift:{drifted.pk}")
     assert "drifting" in alert.message and tank.code in alert.message
     assert not Lot.objects.filter(on_hold=True).exists()  # a drift warning never holds
+
+
+def test_a_drift_run_is_reported_once(floor):
+    tank, lab = copper_tank(), lab_tech()
+    t0 = timezone.now() - dt.timedelta(days=3)
+    for i in range(25):
+        analyse(
+            lab,
+            tank,
+            "copper_sulfate",
+            74.9 if i % 2 else 75.1,
+            taken_at=t0 + i * dt.timedelta(hours=2),
+        )
+    # two points beyond 3 sigma in a row: one run, one warning
+    analyse(lab, tank, "copper_sulfate", "80", taken_at=t0 + dt.timedelta(hours=60))
+    analyse(lab, tank, "copper_sulfate", "80.5", taken_at=t0 + dt.timedelta(hours=62))
+    # (the second point also starts a run of another rule, 2 of 3 beyond 2 sigma)
+    assert Alert.objects.filter(kind=Alert.Kind.DRIFT, rule="western_electric_1").count() == 1
