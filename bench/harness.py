@@ -58,10 +58,89 @@ def run(cmd: list[str], **kw: Any) -> str:
     return out.stdout
 
 
+BATCH_LOTS = 200
+BATCH_ITEMS = 500  # readings per batch request: 5 lot steps x 100 samples
+BENCH_PORTS = os.environ.get("BENCH_PORTS", "")  # e.g. "18200-18299": stay inside a range
+
+
 def free_port() -> int:
+    if BENCH_PORTS:
+        low, high = (int(x) for x in BENCH_PORTS.split("-"))
+        for port in range(low, high + 1):
+            with socket.socket() as s:
+                try:
+                    s.bind(("127.0.0.1", port))
+                except OSError:
+                    continue
+                return port
+        raise RuntimeError(f"no free port in {BENCH_PORTS}")
     with socket.socket() as s:
         s.bind(("127.0.0.1", 0))
         return int(s.getsockname()[1])
+
+
+def cpu_seconds(pid: int) -> float:
+    """User + system CPU of a process and its waited-for children (/proc/<pid>/stat)."""
+    fields = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()
+    ticks = os.sysconf("SC_CLK_TCK")
+    return sum(int(fields[i]) for i in (11, 12, 13, 14)) / ticks
+
+
+def unprocessed_events() -> int:
+    import psycopg
+
+    with psycopg.connect(DATABASE_URL) as conn:
+        row = conn.execute(
+            "SELECT count(*) FROM quality_outboxevent WHERE processed_at IS NULL"
+        ).fetchone()
+        return int(row[0]) if row else 0
+
+
+class Sampler:
+    """A thread sampling, every `period` seconds, the worker's queue (Redis list length
+    plus unprocessed outbox events) or PostgreSQL's lock waits, until stopped."""
+
+    def __init__(self, what: str, period: float) -> None:
+        import threading
+
+        self.what, self.period = what, period
+        self.samples: list[int] = []
+        self.waits: dict[str, int] = {}
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._run, daemon=True)
+
+    def __enter__(self) -> Sampler:
+        self._thread.start()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self._stop.set()
+        self._thread.join(10)
+
+    def _run(self) -> None:
+        import psycopg
+        import redis
+
+        broker = redis.Redis.from_url(REDIS_URL)
+        with psycopg.connect(DATABASE_URL, autocommit=True) as conn:
+            while not self._stop.is_set():
+                if self.what == "queue":
+                    depth = conn.execute(
+                        "SELECT count(*) FROM quality_outboxevent WHERE processed_at IS NULL"
+                    ).fetchone()
+                    self.samples.append(int(depth[0] if depth else 0) + int(broker.llen("celery")))
+                else:
+                    rows = conn.execute(
+                        "SELECT l.locktype, coalesce(l.relation::regclass::text, '') "
+                        "FROM pg_locks l JOIN pg_stat_activity a ON a.pid = l.pid "
+                        "WHERE NOT l.granted AND a.datname = current_database() "
+                        "AND a.pid <> pg_backend_pid() AND a.query LIKE '%%floor_%%'"
+                    ).fetchall()
+                    self.samples.append(len(rows))
+                    for locktype, relation in rows:
+                        key = f"{locktype} {relation}".strip()
+                        self.waits[key] = self.waits.get(key, 0) + 1
+                time.sleep(self.period)
 
 
 def start(cmd: list[str], log: str) -> subprocess.Popen[bytes]:
@@ -93,6 +172,18 @@ def wait_http(port: int, timeout: float = 30) -> None:
         except OSError:
             time.sleep(0.3)
     raise RuntimeError(f"gunicorn did not open port {port}")
+
+
+def warm(port: int, requests: int = 8) -> None:
+    """A few requests with a long timeout first: on a loaded machine a gunicorn worker
+    takes many seconds to import Django on its first request."""
+    import http.client
+
+    for _ in range(requests):
+        conn = http.client.HTTPConnection("127.0.0.1", port, timeout=120)
+        conn.request("POST", "/bench/bare/", b'{"n": 0}', {"Content-Type": "application/json"})
+        conn.getresponse().read()
+        conn.close()
 
 
 def wrk(port: int, clients: int, mode: str, token: str, offset: int) -> dict[str, Any]:
@@ -145,26 +236,130 @@ def setup_database() -> str:
     run([PY, "manage.py", "migrate", "--noinput", "-v0"])
     run([PY, "manage.py", "collectstatic", "--noinput", "-v0"])
     run([PY, "manage.py", "load_demo"], env=env(REDIS_URL=""))
-    return run([PY, "bench/seed_ingest.py", str(NLOTS)]).strip().splitlines()[-1]
+    seeded = run([PY, "bench/seed_ingest.py", str(NLOTS), str(BATCH_LOTS)])
+    return seeded.strip().splitlines()[-1]
 
 
-def ingest(results: dict[str, Any]) -> None:
-    token = setup_database()
-    port = free_port()
-    start(
+def gunicorn(port: int, workers: int, log: str) -> subprocess.Popen[bytes]:
+    return start(
         [
             str(Path(PY).parent / "gunicorn"),
             "shopfloor.wsgi:application",
             "--bind",
             f"127.0.0.1:{port}",
             "--workers",
-            "2",
+            str(workers),
             "--log-level",
             "warning",
         ],
-        "bench-web.log",
+        log,
     )
-    start(
+
+
+def batch_load(port: int, token: str, results: dict[str, Any]) -> None:
+    """Batch posts (500 readings over 5 lot steps each) from 4 client threads for SECONDS,
+    then wait until the worker has processed every event: readings per second over the
+    load alone and over load plus drain (sustained), and the worker's queue depth."""
+    import http.client
+    import threading
+
+    counter = iter(range(10**9))
+    lock = threading.Lock()
+    created = [0]
+    statuses: dict[int, int] = {}
+    stop_at = time.time() + SECONDS
+
+    def body() -> bytes:
+        with lock:
+            n = next(counter)
+        items = []
+        for j in range(BATCH_ITEMS):
+            lot = (n * 5 + j // 100) % BATCH_LOTS
+            sample = ((n * 5 + j // 100) // BATCH_LOTS) * 100 + j % 100 + 1
+            items.append(
+                {
+                    "lot": f"BATCH-{lot:04d}",
+                    "quantity": "hole_wall_copper",
+                    "value": 24.0 + (j % 7) * 0.1,
+                    "unit": "um",
+                    "sample_index": sample,
+                    "sample_key": f"b{n}-{j}",
+                }
+            )
+        return json.dumps({"items": items}).encode()
+
+    def client() -> None:
+        conn = http.client.HTTPConnection("127.0.0.1", port, timeout=60)
+        while time.time() < stop_at:
+            conn.request(
+                "POST",
+                "/api/v1/readings/batch/",
+                body(),
+                {"Content-Type": "application/json", "Authorization": f"Token {token}"},
+            )
+            reply = conn.getresponse()
+            data = reply.read()
+            with lock:
+                statuses[reply.status] = statuses.get(reply.status, 0) + 1
+                if reply.status == 200:
+                    created[0] += json.loads(data)["created"]
+        conn.close()
+
+    with Sampler("queue", 0.25) as depth:
+        start_t = time.time()
+        threads = [threading.Thread(target=client) for _ in range(4)]
+        for t in threads:
+            t.start()
+        for t in threads:
+            t.join(SECONDS + 120)
+        load_s = time.time() - start_t
+        deadline = time.time() + 300
+        while unprocessed_events() and time.time() < deadline:
+            time.sleep(0.5)
+        total_s = time.time() - start_t
+    results["batch_readings"] = created[0]
+    results["batch_statuses"] = {str(k): v for k, v in statuses.items()}
+    results["batch_readings_per_s_load"] = round(created[0] / load_s, 1)
+    results["batch_readings_per_s"] = round(created[0] / total_s, 1)  # with the worker
+    results["batch_drain_s"] = round(total_s - load_s, 1)
+    results["worker_queue_depth_max"] = max(depth.samples, default=0)
+    results["worker_queue_depth_end"] = unprocessed_events()
+
+
+def lock_waits(token: str, results: dict[str, Any]) -> None:
+    """32 clients on 4 gunicorn workers while pg_locks is sampled every 10 ms: the share
+    of samples in which a reading request waits on a lock another one holds."""
+    port = free_port()
+    gunicorn(port, 4, "bench-web4.log")
+    wait_http(port)
+    warm(port, 16)
+    wrk(port, 4, "bare", "", 0)
+    with Sampler("locks", 0.01) as locks:
+        ing = wrk(port, 32, "ingest", token, 360_000)
+    waiting = sum(1 for n in locks.samples if n)
+    results["audit_lock_wait_share_32"] = round(waiting / max(len(locks.samples), 1), 4)
+    results["lock_wait_samples_32"] = len(locks.samples)
+    results["lock_waits_by_kind_32"] = dict(sorted(locks.waits.items(), key=lambda kv: -kv[1])[:5])
+    results["ingest_rps_32_4workers"] = round(ing["rps"], 1)
+
+
+def ingest(results: dict[str, Any]) -> None:
+    token = setup_database()
+    statements = subprocess.run(
+        [PY, "bench/bench_statements.py", token],
+        cwd=ROOT,
+        env=env(),
+        capture_output=True,
+        text=True,
+        timeout=600,
+    )
+    match = re.search(r"BENCHJSON (\{.*\})", statements.stdout)
+    results.update(
+        json.loads(match.group(1)) if match else {"statements_error": statements.stderr[-2000:]}
+    )
+    port = free_port()
+    gunicorn(port, 2, "bench-web.log")
+    worker = start(
         [
             str(Path(PY).parent / "celery"),
             "-A",
@@ -180,7 +375,10 @@ def ingest(results: dict[str, Any]) -> None:
         "bench-worker.log",
     )
     wait_http(port)
+    warm(port)
     wrk(port, 4, "bare", "", 0)  # warm-up: both workers, connection pools
+    worker_cpu_before = cpu_seconds(worker.pid)
+    events_before = unprocessed_events()
     # each load phase gets its own block of (lot, sample) pairs: NLOTS lots x 1000 samples
     # shared by the phases, 120,000 readings each (far more than one phase can send)
     offset = 0
@@ -218,10 +416,23 @@ def ingest(results: dict[str, Any]) -> None:
             break
         time.sleep(2)
     results["outbox_unprocessed_after_load"] = left
+    # The worker's own machine time per reading event, beside the request's.
+    processed = sum(results.get(f"ingest_stored_{c}", 0) for c in CLIENTS)
+    worker_cpu = cpu_seconds(worker.pid) - worker_cpu_before
+    results["worker_cpu_ms_per_reading"] = round(1000 * worker_cpu / max(processed, 1), 2)
+    results["outbox_before_load"] = events_before
+    batch_load(port, token, results)
+    lock_waits(token, results)
+    # No beat runs here: seal as it would, then verify the whole trail.
+    sealed_at = time.time()
+    results["audit_seal"] = run([PY, "manage.py", "audit", "seal"]).strip()
+    results["audit_seal_s"] = round(time.time() - sealed_at, 2)
     verify = subprocess.run(
         [PY, "manage.py", "audit", "verify"], cwd=ROOT, env=env(), capture_output=True, text=True
     )
-    results["audit_chain_after_load"] = "intact" if verify.returncode == 0 else verify.stderr
+    results["audit_chain_after_load"] = (
+        verify.stdout.strip() if verify.returncode == 0 else verify.stderr[-2000:]
+    )
     stop_all()
     started.clear()
 
@@ -251,6 +462,31 @@ def write_report(results: dict[str, Any]) -> None:
             "ingest ≥ 60 % of bare endpoint at 32 clients",
             results.get("ingest_ratio_32"),
             lambda v: v is not None and v >= 0.6,
+        ),
+        (
+            "ingest ≥ 0.25 of bare endpoint at 32 clients (issue 13)",
+            results.get("ingest_ratio_32"),
+            lambda v: v is not None and v >= 0.25,
+        ),
+        (
+            "round trips per reading POST ≤ 6 (BEGIN and COMMIT included)",
+            results.get("ingest_statements_per_reading"),
+            lambda v: v is not None and v <= 6,
+        ),
+        (
+            "batch readings/s with the worker ≥ 5 × bare rps at 32 clients",
+            (results.get("batch_readings_per_s"), results.get("bare_rps_32")),
+            lambda v: v[0] is not None and v[1] is not None and v[0] >= 5 * v[1],
+        ),
+        (
+            "share of lock-wait samples, 32 clients on 4 gunicorn workers ≤ 0.05",
+            results.get("audit_lock_wait_share_32"),
+            lambda v: v is not None and v <= 0.05,
+        ),
+        (
+            "worker queue depth 0 after drain",
+            results.get("worker_queue_depth_end"),
+            lambda v: v == 0,
         ),
         (
             "alert latency p95 < 1 s",
@@ -337,6 +573,28 @@ def write_report(results: dict[str, Any]) -> None:
             "the worker (SPC series update), all on the same cores; 60 % of the bare endpoint",
             f"would leave {1000 * cores / (0.6 * bare32):.1f} ms for all of that.",
         ]
+    lines += [
+        "",
+        "## Write path (issue 13)",
+        "",
+        f"- One reading POST, in-process: {results.get('ingest_statements_per_reading')} round "
+        f"trips (statements plus BEGIN/COMMIT), {results.get('ingest_python_ms_per_reading')} ms "
+        f"of Python, {results.get('ingest_db_wait_ms_per_reading')} ms waiting on PostgreSQL.",
+        f"- The worker's own CPU per reading event: {results.get('worker_cpu_ms_per_reading')} ms "
+        "(one solo worker process).",
+        f"- Batch posts ({BATCH_ITEMS} readings over 5 lot steps per request, 4 client "
+        f"threads, {SECONDS} s): {results.get('batch_readings_per_s_load')} readings/s during "
+        f"the load, {results.get('batch_readings_per_s')} readings/s counting the "
+        f"{results.get('batch_drain_s')} s the worker needed afterwards to process every "
+        f"event; queue depth max {results.get('worker_queue_depth_max')}, at the end "
+        f"{results.get('worker_queue_depth_end')}.",
+        f"- Lock waits with 4 gunicorn workers at 32 clients: "
+        f"{results.get('audit_lock_wait_share_32')} of {results.get('lock_wait_samples_32')} "
+        f"samples (by kind: {results.get('lock_waits_by_kind_32')}); ingest there "
+        f"{results.get('ingest_rps_32_4workers')} req/s.",
+        f"- Audit after the load: sealed in {results.get('audit_seal_s')} s "
+        f"({results.get('audit_seal')}); verify: {results.get('audit_chain_after_load')}.",
+    ]
     lines += [
         "",
         "## Alert latency (reading commit -> alert row; 20 clients, one Celery worker)",

@@ -42,7 +42,7 @@ PLAN = [
 ]
 
 
-def main(nlots: int) -> None:
+def main(nlots: int, batch_lots: int = 0) -> None:
     with connection.cursor() as cursor:
         cursor.execute(
             "CREATE TABLE IF NOT EXISTS bench_ping (id bigserial primary key, "
@@ -66,8 +66,9 @@ def main(nlots: int) -> None:
             name="bench gauge", work_center=wc, user=user, key_hash=hash_token(raw)
         )
         now = timezone.now()
-        for k in range(nlots):
-            code = f"BENCH-{k:04d}"
+        codes = [f"BENCH-{k:04d}" for k in range(nlots)]
+        codes += [f"BATCH-{k:04d}" for k in range(batch_lots)]  # the batch-post phase's
+        for code in codes:
             if Lot.objects.filter(code=code).exists():
                 continue
             lot = Lot.objects.create(
@@ -89,4 +90,7 @@ def main(nlots: int) -> None:
 
 
 if __name__ == "__main__":
-    main(int(sys.argv[1]) if len(sys.argv) > 1 else 400)
+    main(
+        int(sys.argv[1]) if len(sys.argv) > 1 else 400,
+        int(sys.argv[2]) if len(sys.argv) > 2 else 0,
+    )
