@@ -486,6 +486,30 @@ def boards_scrapped_on_live_panels(job_ids: Iterable[int]) -> dict[int, int]:
     return {}
 
 
+def short_jobs(limit: int = 12) -> list[dict[str, Any]]:
+    """Released jobs whose boards on live panels no longer cover the order, in ONE query
+    (the supervisor board's budget is fixed): number, ordered, good boards, shortfall.
+
+    Counts whole scrapped panels and scrapped lots; boards scrapped on live panels are on
+    the job page (`summaries`), which the board links to.
+    """
+    from django.db.models import Count, F, Sum
+    from django.db.models.functions import Coalesce
+
+    good = Sum(
+        "images__count",
+        filter=Q(images__panel__scrapped=False)
+        & ~Q(images__panel__lot__status=Lot.Status.SCRAPPED),
+    )
+    rows = (
+        Job.objects.annotate(started=Count("images"), good=Coalesce(good, 0))
+        .filter(started__gt=0, good__lt=F("quantity"))
+        .order_by("due_date", "number")
+        .values_list("number", "quantity", "good")[:limit]
+    )
+    return [{"number": n, "ordered": q, "good": g, "shortfall": q - g} for n, q, g in rows]
+
+
 def projected_finishes(job_ids: list[int]) -> dict[int, Any]:
     """The jobs' finish forecasts (shopfloor/planning), by job id, in one query."""
     from shopfloor.planning.services import job_projections

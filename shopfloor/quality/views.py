@@ -29,6 +29,7 @@ from django.views.decorators.http import require_GET, require_http_methods, requ
 
 from shopfloor import units
 from shopfloor.errors import DomainError, InvalidInput
+from shopfloor.orders import services as orders_services
 from shopfloor.planning import services as planning
 from shopfloor.planning.services import PLANNING_ROLES
 from shopfloor.quality import access, board, charts, exports, history, services
@@ -77,6 +78,8 @@ def _board_context(request: HttpRequest, scope: Scope) -> dict[str, Any]:
         "error": error,
         "scope": scope,
         "may_plan": bool(scope.roles & PLANNING_ROLES),
+        # jobs whose remaining good boards no longer cover the order (one query)
+        "short_jobs": orders_services.short_jobs() if scope.sees_all else [],
         "sorts": board.SORTS,
         "raw": request.GET,
     }

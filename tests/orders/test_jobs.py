@@ -310,3 +310,16 @@ def test_nul_characters_are_refused_not_a_500(floor):
         f"/api/v1/part-revisions/{floor.routing.part_revision_id}/spec/", spec, format="json"
     )
     assert reply.status_code == 400
+
+
+def test_board_shows_a_short_job(floor):
+    planner = floor.personas["planner"]
+    job = services.enter_job(person=planner, data=services.JobInput(**_entry(floor, quantity=40)))
+    result = services.release_job(person=planner, number=job.number, boards_per_panel=4)
+    Panel.objects.filter(pk__in=[p.pk for p in result.panels[:3]]).update(scrapped=True)
+    short = {j["number"]: j for j in services.short_jobs()}
+    assert short[job.number]["shortfall"] == 8  # 40 ordered, (11 - 3) x 4 = 32 good
+    client = Client()
+    client.force_login(floor.personas["supervisor"].user)
+    page = client.get("/board/").content.decode()
+    assert "Jobs short of their order" in page and f"{job.number}</a>" in page
