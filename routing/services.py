@@ -398,10 +398,11 @@ def move_lot(*, person: Person, lot_id: int, revision_id: int, reason: str) -> L
         last = LotStep.objects.filter(lot=lot).order_by("-position").first()
         position = (last.position if last else 0) + 10
         added = 0
-        for rstep in target.steps.order_by("seq"):
+        library = library_of(target)
+        for rstep in target.steps.select_related("revision").order_by("seq"):
             if rstep.code in done_codes:
                 continue
-            LotStep.objects.create(**lot_step_fields(rstep), lot=lot, position=position)
+            LotStep.objects.create(**lot_step_fields(rstep, library), lot=lot, position=position)
             position += 10
             added += 1
         old = lot.routing_revision_id
@@ -423,9 +424,28 @@ def move_lot(*, person: Person, lot_id: int, revision_id: int, reason: str) -> L
         return lot
 
 
-def lot_step_fields(rstep: RoutingStep) -> dict[str, Any]:
-    """The snapshot of a routing step that a lot carries with it."""
+def library_of(revision: RoutingRevision) -> ProcessLibrary:
+    """The process library a routing revision was built with (the built-in one when the
+    revision names none or its stored version no longer parses)."""
+    version = revision.library_version
+    data = version.data if version is not None else None
+    if data is None:
+        return ProcessLibrary.default()
+    try:
+        return ProcessLibrary.from_dict(data)
+    except Exception:  # an old stored version the current parser refuses
+        return ProcessLibrary.default()
+
+
+def lot_step_fields(rstep: RoutingStep, library: ProcessLibrary | None = None) -> dict[str, Any]:
+    """The snapshot of a routing step that a lot carries with it (including the material
+    kinds the step consumes, so the tablet asks for them and a recall is complete)."""
+    library = library or library_of(rstep.revision)
+    layers = (rstep.revision.build_spec or {}).get("layers")
     return {
+        "materials": list(
+            library.materials_for(rstep.code, layers=layers if isinstance(layers, int) else None)
+        ),
         "code": rstep.code,
         "name": rstep.name,
         "work_center_id": rstep.work_center_id,

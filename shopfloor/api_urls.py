@@ -7,6 +7,7 @@ from shopfloor.chemistry import api as chemistry_api
 from shopfloor.floor import api as floor_api
 from shopfloor.orders import api as orders_api
 from shopfloor.planning import api as planning_api
+from shopfloor.shipping import api as shipping_api
 
 urlpatterns = [
     path("routing/preview/", routing_api.PreviewView.as_view(), name="api-routing-preview"),
@@ -46,6 +47,26 @@ urlpatterns = [
     path("jobs/<str:number>/", orders_api.JobDetailView.as_view(), name="api-job"),
     path("jobs/<str:number>/release/", orders_api.JobReleaseView.as_view(), name="api-job-release"),
     path("jobs/<str:number>/make-up/", orders_api.JobMakeupView.as_view(), name="api-job-makeup"),
+    path(
+        "steps/<int:pk>/materials/",
+        shipping_api.MaterialUseView.as_view(),
+        name="api-step-materials",
+    ),
+    path("steps/<int:pk>/scrap/", shipping_api.ScrapView.as_view(), name="api-step-scrap"),
+    path(
+        "steps/<int:pk>/accepted/", shipping_api.AcceptanceView.as_view(), name="api-step-accepted"
+    ),
+    path(
+        "ncrs/<str:number>/disposition/",
+        shipping_api.DispositionView.as_view(),
+        name="api-ncr-disposition",
+    ),
+    path("shipments/", shipping_api.ShipmentCreateView.as_view(), name="api-shipments"),
+    path(
+        "certificates/<str:number>/pdf/",
+        shipping_api.CertificatePdfView.as_view(),
+        name="api-certificate-pdf",
+    ),
     path("lots/<str:code>/", floor_api.LotStatusView.as_view(), name="api-lot"),
     path("lots/<str:code>/windows/", floor_api.LotWindowsView.as_view(), name="api-lot-windows"),
     path("planning/quote/", planning_api.QuoteView.as_view(), name="api-planning-quote"),

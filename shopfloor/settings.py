@@ -54,6 +54,7 @@ INSTALLED_APPS = [
     "shopfloor.planning",
     "shopfloor.chemistry",
     "shopfloor.orders",
+    "shopfloor.shipping",
 ]
 
 MIDDLEWARE = [

@@ -31,6 +31,7 @@ __all__ = [
     "ProcessLibrary",
     "StepDefinition",
     "WindowOverride",
+    "base_code",
 ]
 
 _SAFETY: Final = (
@@ -97,7 +98,14 @@ def _step(
     queue: int | None = None,
     queue_until: str | None = None,
     measurements: dict[str, dict[str, Any]] | None = None,
+    materials: list[str] | None = None,
+    rework: list[str] | None = None,
 ) -> dict[str, Any]:
+    extra: dict[str, Any] = {}
+    if materials is not None:
+        extra["materials"] = materials
+    if rework is not None:
+        extra["rework"] = rework
     return {
         "name": name,
         "work_center": work_center,
@@ -108,6 +116,7 @@ def _step(
         "queue_time_limit_minutes": queue,
         "queue_time_until": queue_until,
         "measurements": measurements or {},
+        **extra,
     }
 
 
@@ -123,6 +132,29 @@ _ETCH_PARAMS: Final = {
     "temperature_c": 50,
     "etchant": "cupric chloride",
 }
+
+#: Default rework after solder mask defects: strip the mask and apply it again (a mask
+#: that is misregistered or thin cannot be patched; common practice).
+_MASK_REDO: Final = [
+    "mask_strip",
+    "mask_clean",
+    "mask_coat",
+    "mask_tack_dry",
+    "mask_expose",
+    "mask_develop",
+]
+
+#: The kinds of material a step may consume (the plant's material lot kinds).
+MATERIAL_KINDS: Final = (
+    "laminate",
+    "prepreg",
+    "foil",
+    "dry_film",
+    "mask_ink",
+    "legend_ink",
+    "chemistry",
+    "other",
+)
 
 #: The default library. Plain JSON types only, so it can be stored and edited as JSON.
 DEFAULT_LIBRARY: Final[dict[str, Any]] = {
@@ -159,6 +191,7 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             30,
             {"exposure_mj_per_cm2": 60},
             hazard=_UV,
+            materials=["dry_film"],
         ),
         "inner_develop": _step(
             "Inner-layer develop",
@@ -189,6 +222,7 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             "Scan every inner layer; verify each call and repair or scrap before release.",
             30,
             measurements={"aoi_defects": {}},
+            rework=["aoi_repair", "aoi_repair_verify"],
         ),
         "post_etch_punch": _step(
             "Post-etch punch",
@@ -212,6 +246,7 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             "Stack cores, prepreg and foil as the stack-up says; check the build sheet "
             "against the job.",
             40,
+            materials=["laminate", "prepreg", "foil"],
         ),
         "press": _step(
             "Press",
@@ -294,6 +329,7 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             40,
             {"exposure_mj_per_cm2": 70},
             hazard=_UV,
+            materials=["dry_film"],
         ),
         "outer_develop": _step(
             "Outer-layer develop",
@@ -349,6 +385,7 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             "Scan both sides; verify each call and repair or scrap before release.",
             30,
             measurements={"aoi_defects": {}},
+            rework=["aoi_repair", "aoi_repair_verify"],
         ),
         "mask_clean": _step(
             "Solder mask pre-clean",
@@ -363,6 +400,7 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             "Coat the liquid photoimageable mask.",
             25,
             {"method": "screen or spray"},
+            materials=["mask_ink"],
         ),
         "mask_tack_dry": _step(
             "Solder mask tack dry",
@@ -386,9 +424,14 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             15,
             {"developer": "sodium carbonate 1 %", "temperature_c": 30},
             measurements={"mask_registration": {}},
+            rework=_MASK_REDO,
         ),
         "legend_print": _step(
-            "Legend print", "legend", "Print the legend; check it is legible and off the pads.", 20
+            "Legend print",
+            "legend",
+            "Print the legend; check it is legible and off the pads.",
+            20,
+            materials=["legend_ink"],
         ),
         "final_cure": _step(
             "Final cure",
@@ -397,6 +440,7 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             60,
             {"temperature_c": 150, "time_min": 60},
             measurements={"mask_thickness": {}},
+            rework=[*_MASK_REDO, "final_cure"],
         ),
         "gold_tape": _step(
             "Tape for finger plating",
@@ -452,6 +496,7 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             queue=2880,
             queue_until="pack",
             measurements={"nickel_thickness": {}, "gold_thickness": {}},
+            rework=["finish_strip", "enig_clean", "enig_nickel", "enig_gold"],
         ),
         "enepig_clean": _step(
             "ENEPIG pre-clean",
@@ -486,6 +531,13 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             queue=2880,
             queue_until="pack",
             measurements={"nickel_thickness": {}, "palladium_thickness": {}, "gold_thickness": {}},
+            rework=[
+                "finish_strip",
+                "enepig_clean",
+                "enepig_nickel",
+                "enepig_palladium",
+                "enepig_gold",
+            ],
         ),
         "silver_clean": _step(
             "Immersion silver pre-clean",
@@ -504,6 +556,7 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             queue=480,
             queue_until="pack",
             measurements={"silver_thickness": {}},
+            rework=["finish_strip", "silver_clean", "silver_immersion"],
         ),
         "tin_clean": _step(
             "Immersion tin pre-clean",
@@ -522,11 +575,14 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             queue=1440,
             queue_until="pack",
             measurements={"tin_thickness": {}},
+            rework=["finish_strip", "tin_clean", "tin_immersion"],
         ),
         "hasl_clean": _step(
             "HASL pre-clean", "hasl", "Microetch the copper and dry.", 10, hazard=_ETCHANT
         ),
-        "hasl_flux": _step("HASL flux", "hasl", "Apply flux evenly to both sides.", 5),
+        "hasl_flux": _step(
+            "HASL flux", "hasl", "Apply flux evenly to both sides.", 5, materials=["chemistry"]
+        ),
         "hasl_level": _step(
             "Hot-air solder levelling (lead-free)",
             "hasl",
@@ -556,6 +612,7 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             "Test every board against the netlist; mark and segregate failures.",
             120,
             measurements={"etest_opens": {}, "etest_shorts": {}},
+            rework=["etest_repair", "etest_flying_probe"],
         ),
         "etest_fixture": _step(
             "Electrical test, fixture",
@@ -564,6 +621,7 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             "failures.",
             45,
             measurements={"etest_opens": {}, "etest_shorts": {}},
+            rework=["etest_repair", "etest_fixture"],
         ),
         "profile_route": _step(
             "Profile route",
@@ -599,6 +657,46 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
                 "conductor_width": {},
             },
         ),
+        # Rework-only steps: no build routing uses them; a disposition inserts them.
+        "aoi_repair": _step(
+            "Repair at the AOI verify station",
+            "aoi",
+            "Repair the confirmed defects the NCR names (add or remove copper as the "
+            "defect needs) on the panels listed; never repair a defect the customer's "
+            "specification forbids repairing.",
+            30,
+        ),
+        "aoi_repair_verify": _step(
+            "Verify the repair",
+            "aoi",
+            "Re-scan or verify each repaired site under magnification; record the defects "
+            "still found (zero to pass).",
+            20,
+            measurements={"aoi_defects": {}},
+        ),
+        "etest_repair": _step(
+            "Repair electrical test failures",
+            "etest",
+            "Locate and repair the opens and shorts the tester marked, if the class allows a "
+            "repair; otherwise mark the board for scrap.",
+            30,
+        ),
+        "mask_strip": _step(
+            "Strip solder mask",
+            "solder_mask",
+            "Strip the mask in the stripper; rinse and dry; check the copper for attack.",
+            40,
+            {"stripper": "alkaline mask stripper"},
+            hazard=_ETCHANT,
+        ),
+        "finish_strip": _step(
+            "Strip the surface finish",
+            "finish_line",
+            "Strip the surface finish back to copper as the line's rework sheet says; "
+            "rinse and dry before re-finishing.",
+            30,
+            hazard=_PLATING,
+        ),
         "pack": _step(
             "Pack",
             "shipping",
@@ -609,8 +707,13 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
     },
 }
 
+#: Steps only a disposition inserts (an older stored library may lack them; the
+#: built-in definitions are used then).
+REWORK_ONLY_STEP_CODES: Final = frozenset(
+    {"aoi_repair", "aoi_repair_verify", "etest_repair", "mask_strip", "finish_strip"}
+)
 #: Step codes the builder may ask for; a library without them would break routings.
-REQUIRED_STEP_CODES: Final = frozenset(DEFAULT_LIBRARY["steps"])
+REQUIRED_STEP_CODES: Final = frozenset(DEFAULT_LIBRARY["steps"]) - REWORK_ONLY_STEP_CODES
 
 _STEP_KEYS: Final = frozenset(
     {
@@ -623,6 +726,8 @@ _STEP_KEYS: Final = frozenset(
         "queue_time_limit_minutes",
         "queue_time_until",
         "measurements",
+        "materials",
+        "rework",
     }
 )
 _WINDOW_KEYS: Final = frozenset({"min", "max", "target", "samples", "source", "unit"})
@@ -663,6 +768,10 @@ class StepDefinition:
     queue_time_limit_minutes: int | None
     queue_time_until: str | None
     measurements: Mapping[str, WindowOverride]
+    #: Material kinds the step consumes (None: the built-in library's list for the code).
+    materials: tuple[str, ...] | None = None
+    #: Library step codes a rework after this step runs (None: the built-in default).
+    rework: tuple[str, ...] | None = None
 
 
 @dataclass(frozen=True)
@@ -722,7 +831,11 @@ class ProcessLibrary:
                 step = _parse_step(code, raw, centers, errors)
                 if step is not None:
                     steps[code] = step
+            known = set(steps) | REWORK_ONLY_STEP_CODES
             for step in steps.values():
+                for code in step.rework or ():
+                    if code not in known:
+                        errors.append(f"step {step.code}: rework step {code!r} is not a step code")
                 until = step.queue_time_until
                 if until not in (None, "next_plating") and until not in steps:
                     errors.append(
@@ -734,6 +847,47 @@ class ProcessLibrary:
 
     def step(self, code: str) -> StepDefinition:
         return self.steps[code]
+
+    def definition(self, code: str) -> StepDefinition:
+        """A step of this library, or the built-in one (rework-only steps an older stored
+        library lacks)."""
+        if code in self.steps:
+            return self.steps[code]
+        return _default_library().steps[code]
+
+    def materials_for(self, code: str, *, layers: int | None = None) -> tuple[str, ...]:
+        """The material kinds a step consumes (this library's list, else the built-in).
+
+        `code` may carry a lamination-cycle suffix (``layup_c2``). A one- or two-layer
+        board has no layup: its copper-clad laminate is first cut for drilling, so the
+        drill step records the laminate lot.
+        """
+        code = base_code(code)
+        if code == "drill_mechanical" and layers is not None and layers <= 2:
+            return ("laminate",)
+        d = self.steps.get(code)
+        if d is not None and d.materials is not None:
+            return d.materials
+        builtin = _default_library().steps.get(code)
+        return builtin.materials or () if builtin is not None else ()
+
+    def rework_for(self, code: str) -> tuple[str, ...]:
+        """Default rework route after a nonconformance at step `code`: what a fab does
+        there (AOI defects: repair and verify; mask: strip and recoat; finish: strip and
+        re-finish); a step without one is simply done again (re-measured)."""
+        d = self.steps.get(code)
+        if d is not None and d.rework is not None:
+            return d.rework or (code,)
+        builtin = _default_library().steps.get(code)
+        if builtin is not None and builtin.rework:
+            return builtin.rework
+        return (code,)
+
+
+def base_code(code: str) -> str:
+    """A routing step code without its lamination-cycle suffix (``layup_c2`` -> ``layup``)."""
+    head, sep, tail = code.rpartition("_c")
+    return head if sep and tail.isdigit() else code
 
 
 def _is_number(v: Any) -> bool:
@@ -798,6 +952,14 @@ def _parse_step(
     if until is not None and not isinstance(until, str):
         errors.append(f"{where}: queue_time_until must be a step code or null")
     measurements = _parse_measurements(where, raw.get("measurements", {}), errors)
+    materials = _code_list(where, "materials", raw.get("materials"), errors)
+    for kind in materials or ():
+        if kind not in MATERIAL_KINDS:
+            errors.append(
+                f"{where}: material kind {kind!r} is not known; allowed: "
+                + ", ".join(MATERIAL_KINDS)
+            )
+    rework = _code_list(where, "rework", raw.get("rework"), errors)
     if len(errors) != n:
         return None
     assert isinstance(code, str) and isinstance(name, str) and isinstance(wc, str)
@@ -813,7 +975,18 @@ def _parse_step(
         queue_time_limit_minutes=queue,
         queue_time_until=until,
         measurements=measurements,
+        materials=materials,
+        rework=rework,
     )
+
+
+def _code_list(where: str, key: str, raw: Any, errors: list[str]) -> tuple[str, ...] | None:
+    if raw is None:
+        return None
+    if not isinstance(raw, list) or not all(isinstance(x, str) and x for x in raw):
+        errors.append(f"{where}: {key} must be a list of codes (text)")
+        return None
+    return tuple(raw)
 
 
 def _parse_measurements(where: str, raw: Any, errors: list[str]) -> dict[str, WindowOverride]:

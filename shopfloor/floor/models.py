@@ -62,6 +62,9 @@ class LotStep(models.Model):
         "plant.Equipment", null=True, blank=True, on_delete=models.PROTECT, related_name="+"
     )
     material_lots = models.ManyToManyField("plant.MaterialLot", blank=True, related_name="steps")
+    materials = models.JSONField(
+        default=list, blank=True, help_text="Material kinds this step consumes (snapshot)"
+    )
     signature = models.OneToOneField(
         "audit.Signature", null=True, blank=True, on_delete=models.PROTECT, related_name="+"
     )
@@ -159,3 +162,118 @@ class InstrumentToken(models.Model):
 
     def __str__(self) -> str:
         return f"{self.name} @ {self.work_center.code}"
+
+
+class ShelfLife(models.Model):
+    """A site's shelf life for a kind of material, counted from the day it was received.
+
+    Prepreg and solder mask ink age in storage (resin advances, ink thickens); the
+    supplier's datasheet and the site's storage conditions set the figure, so it is
+    site data, edited in the admin. A material lot's own expiry date, when given, wins.
+    """
+
+    kind = models.CharField(max_length=20, unique=True)
+    days = models.PositiveIntegerField()
+    note = models.CharField(max_length=200, blank=True)
+
+    class Meta:
+        ordering = ["kind"]
+        verbose_name_plural = "shelf lives"
+
+    def __str__(self) -> str:
+        return f"{self.kind}: {self.days} days"
+
+
+class MaterialUse(models.Model):
+    """A material lot consumed at a lot step: what a recall reads (material -> lots)."""
+
+    lot_step = models.ForeignKey(LotStep, on_delete=models.PROTECT, related_name="material_uses")
+    material_lot = models.ForeignKey(
+        "plant.MaterialLot", on_delete=models.PROTECT, related_name="uses"
+    )
+    kind = models.CharField(max_length=20)
+    recorded_by = models.ForeignKey("plant.Person", on_delete=models.PROTECT, related_name="+")
+    recorded_at = models.DateTimeField(default=timezone.now)
+    via = models.CharField(max_length=20, default="tablet")
+
+    class Meta:
+        ordering = ["lot_step", "recorded_at"]
+        constraints = [
+            models.UniqueConstraint(fields=["lot_step", "material_lot"], name="material_use_unique")
+        ]
+
+    def __str__(self) -> str:
+        return f"{self.material_lot_id} at lot step {self.lot_step_id}"
+
+
+class ScrapReason(models.Model):
+    """Why boards or panels were scrapped: a list the site edits in the admin."""
+
+    code = models.CharField(max_length=30, unique=True)
+    name = models.CharField(max_length=120)
+    active = models.BooleanField(default=True)
+
+    class Meta:
+        ordering = ["name"]
+
+    def __str__(self) -> str:
+        return self.name
+
+
+class ScrapRecord(models.Model):
+    """Boards or a whole panel scrapped at a lot step (by an operator or a disposition).
+
+    ``boards`` is always the number of boards lost, so yields add up per step; a whole
+    panel scrapped counts its remaining good boards and ``panel_scrapped`` is set.
+    """
+
+    class Source(models.TextChoices):
+        OPERATOR = "operator", "Operator at the step"
+        DISPOSITION = "disposition", "NCR disposition"
+        INSPECTION = "inspection", "Final inspection"
+
+    lot_step = models.ForeignKey(LotStep, on_delete=models.PROTECT, related_name="scrap_records")
+    panel = models.ForeignKey(
+        "plant.Panel", null=True, blank=True, on_delete=models.PROTECT, related_name="scrap"
+    )
+    job = models.ForeignKey(
+        "plant.Job", null=True, blank=True, on_delete=models.PROTECT, related_name="scrap"
+    )
+    boards = models.PositiveIntegerField()
+    panel_scrapped = models.BooleanField(default=False)
+    reason = models.ForeignKey(ScrapReason, on_delete=models.PROTECT, related_name="records")
+    note = models.CharField(max_length=300, blank=True)
+    source = models.CharField(max_length=12, choices=Source.choices)
+    ncr = models.ForeignKey(
+        "quality.Nonconformance",
+        null=True,
+        blank=True,
+        on_delete=models.PROTECT,
+        related_name="scrap_records",
+    )
+    recorded_by = models.ForeignKey("plant.Person", on_delete=models.PROTECT, related_name="+")
+    recorded_at = models.DateTimeField(default=timezone.now)
+
+    class Meta:
+        ordering = ["lot_step", "recorded_at"]
+
+    def __str__(self) -> str:
+        return f"{self.boards} board(s) at lot step {self.lot_step_id}"
+
+
+class AcceptedQuantity(models.Model):
+    """Boards of a job final inspection accepted from a lot (what may ship)."""
+
+    lot_step = models.ForeignKey(LotStep, on_delete=models.PROTECT, related_name="acceptances")
+    job = models.ForeignKey("plant.Job", on_delete=models.PROTECT, related_name="acceptances")
+    boards = models.PositiveIntegerField()
+    recorded_by = models.ForeignKey("plant.Person", on_delete=models.PROTECT, related_name="+")
+    recorded_at = models.DateTimeField(default=timezone.now)
+
+    class Meta:
+        constraints = [
+            models.UniqueConstraint(fields=["lot_step", "job"], name="accepted_quantity_unique")
+        ]
+
+    def __str__(self) -> str:
+        return f"{self.boards} of job {self.job_id} at lot step {self.lot_step_id}"

@@ -23,9 +23,27 @@ from django.utils import timezone
 
 from shopfloor import throttle, units
 from shopfloor.audit import services as audit
+from shopfloor.core import materials as materials_core
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
-from shopfloor.floor.models import LotStep, Reading
-from shopfloor.plant.models import Equipment, Lot, MaterialLot, Person, Qualification
+from shopfloor.floor.models import (
+    AcceptedQuantity,
+    LotStep,
+    MaterialUse,
+    Reading,
+    ScrapReason,
+    ScrapRecord,
+    ShelfLife,
+)
+from shopfloor.plant.models import (
+    Equipment,
+    Job,
+    Lot,
+    MaterialLot,
+    Panel,
+    PanelImage,
+    Person,
+    Qualification,
+)
 from shopfloor.quality import outbox
 from shopfloor.quality.models import OutboxEvent
 from shopfloor.windows import judge_window
@@ -309,10 +327,15 @@ def start_step(
 
         record_tank_use(step, step.started_at)
         if material_lot_ids:
-            found = list(MaterialLot.objects.filter(pk__in=material_lot_ids))
-            if len(found) != len(set(material_lot_ids)):
-                raise InvalidInput("One or more material lots do not exist.")
-            step.material_lots.add(*found)
+            found = {m.pk: m for m in MaterialLot.objects.filter(pk__in=material_lot_ids)}
+            unknown = sorted(set(material_lot_ids) - set(found))
+            if unknown:
+                raise InvalidInput(
+                    f"Material lot id(s) {unknown} are not on record.",
+                    problems=[{"field": "material_lots", "value": unknown}],
+                )
+            for material_id in dict.fromkeys(material_lot_ids):
+                _use_material(step, found[material_id], person, "api")
         if lot.status == Lot.Status.NOT_STARTED:
             lot.status = Lot.Status.IN_PROCESS
             lot.started_at = now
@@ -626,6 +649,15 @@ def complete_step(
                 "This step cannot be completed yet; readings missing: " + "; ".join(missing),
                 problems=[{"field": "readings", "missing": missing}],
             )
+        lacking = missing_materials(step)
+        if lacking:
+            raise Conflict(
+                "This step cannot be completed yet; scan the material lot used for: "
+                + ", ".join(lacking)
+                + ".",
+                problems=[{"field": "materials", "missing": lacking}],
+            )
+        _require_acceptance(step)
         before = _step_state(step)
         now = timezone.now()
         step.status = LotStep.Status.DONE
@@ -657,3 +689,419 @@ def complete_step(
             after={**_step_state(step), "signature": sig.pk, "next": nxt.code if nxt else None},
         )
         return step
+
+
+# --- materials ----------------------------------------------------------------------
+
+
+def material_label(kind: str) -> str:
+    return str(dict(MaterialLot.Kind.choices).get(kind, kind.replace("_", " ")))
+
+
+def material_usability(material: MaterialLot) -> materials_core.Usability:
+    """Shelf life and expiry of a material lot today (site shelf lives from the admin)."""
+    shelf = ShelfLife.objects.filter(kind=material.kind).values_list("days", flat=True).first()
+    facts = materials_core.MaterialFacts(
+        code=material.code,
+        kind=material.kind,
+        kind_label=material_label(material.kind),
+        received_on=material.received_on,
+        expires_on=material.expires_on,
+    )
+    return materials_core.usability(facts, timezone.localdate(), shelf)
+
+
+def missing_materials(step: LotStep) -> list[str]:
+    """The material kinds the step consumes that have no material lot recorded yet."""
+    if not step.materials:
+        return []
+    have = set(MaterialUse.objects.filter(lot_step=step).values_list("kind", flat=True))
+    return [material_label(k) for k in step.materials if k not in have]
+
+
+def _use_material(step: LotStep, material: MaterialLot, person: Person, via: str) -> MaterialUse:
+    """Check and record one material lot at a step (the caller holds the step's lock)."""
+    wanted = list(step.materials or [])
+    if material.kind not in wanted and material.kind != MaterialLot.Kind.OTHER:
+        allowed = ", ".join(material_label(k) for k in wanted) or "none (it consumes no material)"
+        raise InvalidInput(
+            f"{material.code} is {material_label(material.kind).lower()}, which '{step.name}' "
+            f"does not use. This step takes: {allowed}.",
+            problems=[{"field": "material_lot", "value": material.code, "allowed": allowed}],
+        )
+    check = material_usability(material)
+    if not check.usable:
+        raise Conflict(check.reason, problems=[{"field": "material_lot", "value": material.code}])
+    use = MaterialUse.objects.filter(lot_step=step, material_lot=material).first()
+    if use is not None:
+        return use
+    use = MaterialUse.objects.create(
+        lot_step=step, material_lot=material, kind=material.kind, recorded_by=person, via=via
+    )
+    step.material_lots.add(material)  # the recall and genealogy pages read this link
+    audit.record(
+        actor=person.user,
+        action="material.used",
+        object_type="lot_step",
+        object_id=step.pk,
+        after={
+            "lot": step.lot.code,
+            "step": step.code,
+            "material_lot": material.code,
+            "kind": material.kind,
+            "expires_on": check.expires_on,
+        },
+    )
+    return use
+
+
+def record_material(
+    *, person: Person, lot_step_id: int, code: str, via: str = "tablet"
+) -> MaterialUse:
+    """An operator scans (or picks) the material lot a step consumes.
+
+    Refused with the reason: an unknown code, a kind the step does not use, a lot past
+    its expiry or shelf life (or whose age cannot be checked). The use is recorded per
+    lot step, so a recall (material lot -> lots -> jobs -> customers) is complete.
+    """
+    code = (code or "").strip()
+    if not code:
+        raise InvalidInput("Scan or type the material lot code from its label.")
+    with transaction.atomic():
+        step, lot = _lock_step(lot_step_id)
+        check_assigned(person, step.work_center_id)
+        _require_workable(step, lot)
+        if step.status != LotStep.Status.IN_PROGRESS:
+            raise Conflict(f"Start '{step.name}' before recording the material used.")
+        material = MaterialLot.objects.filter(code__iexact=code).first()
+        if material is None:
+            raise InvalidInput(
+                f"No material lot {code!r} is on record. Check the label; a lot stores has "
+                "not received cannot be used.",
+                problems=[{"field": "material_lot", "value": code}],
+            )
+        return _use_material(step, material, person, via)
+
+
+def usable_material_lots(step: LotStep) -> dict[str, list[tuple[MaterialLot, str]]]:
+    """Per material kind the step consumes: the lots on record that may be used today,
+    newest expiry last, each with its expiry text (for the tablet's pick list)."""
+    out: dict[str, list[tuple[MaterialLot, str]]] = {k: [] for k in step.materials or []}
+    if not out:
+        return out
+    for m in MaterialLot.objects.filter(kind__in=list(out)).order_by("code")[:500]:
+        check = material_usability(m)
+        if check.usable:
+            when = f"use by {check.expires_on:%Y-%m-%d}" if check.expires_on else "no expiry"
+            out[m.kind].append((m, when))
+    return out
+
+
+# --- quantities: scrap and acceptance ---------------------------------------------------
+
+FINAL_INSPECTION = "final_inspection"
+
+
+def is_final_inspection(step: LotStep) -> bool:
+    """The step that records the accepted quantity (the library's final inspection)."""
+    from routing.builder.library import base_code
+
+    return base_code(step.code) == FINAL_INSPECTION and not step.is_rework
+
+
+def panel_good_boards(panels: list[Panel]) -> dict[tuple[int, int], int]:
+    """(panel id, job id) -> boards still good: images less boards crossed out."""
+    ids = [p.pk for p in panels if not p.scrapped]
+    good: dict[tuple[int, int], int] = {}
+    for panel_id, job_id, count in PanelImage.objects.filter(panel_id__in=ids).values_list(
+        "panel_id", "job_id", "count"
+    ):
+        good[(panel_id, job_id)] = good.get((panel_id, job_id), 0) + count
+    for panel_id, job_id, boards in ScrapRecord.objects.filter(
+        panel_id__in=ids, panel_scrapped=False
+    ).values_list("panel_id", "job_id", "boards"):
+        key = (panel_id, job_id)
+        if key in good:
+            good[key] = max(good[key] - boards, 0)
+    return good
+
+
+def lot_good_boards(lot: Lot) -> dict[int, int]:
+    """Job id -> good boards on the lot's live panels now."""
+    out: dict[int, int] = {}
+    for (_, job_id), n in panel_good_boards(list(lot.panels.all())).items():
+        out[job_id] = out.get(job_id, 0) + n
+    return out
+
+
+def scrap_reason(code: str) -> ScrapReason:
+    reason = ScrapReason.objects.filter(code=(code or "").strip(), active=True).first()
+    if reason is None:
+        allowed = ", ".join(ScrapReason.objects.filter(active=True).values_list("code", flat=True))
+        raise InvalidInput(
+            f"Scrap reason {code!r} is not on the site's list. Allowed: {allowed}.",
+            problems=[{"field": "reason", "value": code, "allowed": allowed}],
+        )
+    return reason
+
+
+def scrap_panel_boards(
+    *,
+    step: LotStep,
+    lot: Lot,
+    panel: Panel,
+    boards: int | None,
+    job: Job | None,
+    reason: ScrapReason,
+    note: str,
+    person: Person,
+    source: str,
+    ncr: Any = None,
+) -> list[ScrapRecord]:
+    """Cross out boards on a panel, or scrap the whole panel (boards=None); the caller
+    holds the lot's lock. Shared by the operator's scrap and the NCR disposition."""
+    good = {
+        job_id: n
+        for (panel_id, job_id), n in panel_good_boards([panel]).items()
+        if panel_id == panel.pk
+    }
+    records: list[ScrapRecord] = []
+    if boards is None or (sum(good.values()) == (boards or 0) and job is None):
+        for job_id, n in sorted(good.items()):
+            records.append(
+                ScrapRecord(
+                    lot_step=step,
+                    panel=panel,
+                    job_id=job_id,
+                    boards=n,
+                    panel_scrapped=True,
+                    reason=reason,
+                    note=note,
+                    source=source,
+                    ncr=ncr,
+                    recorded_by=person,
+                )
+            )
+        if not records:  # a panel with no images: still a panel lost
+            records.append(
+                ScrapRecord(
+                    lot_step=step,
+                    panel=panel,
+                    boards=0,
+                    panel_scrapped=True,
+                    reason=reason,
+                    note=note,
+                    source=source,
+                    ncr=ncr,
+                    recorded_by=person,
+                )
+            )
+        panel.scrapped = True
+        panel.save(update_fields=["scrapped"])
+        lot.panel_count = max(lot.panel_count - 1, 0)
+        lot.save(update_fields=["panel_count"])
+    else:
+        if job is None:
+            if len(good) != 1:
+                raise InvalidInput(
+                    f"Panel {panel.serial} carries boards of several jobs; say which job's "
+                    "boards are crossed out."
+                )
+            job_id = next(iter(good))
+        else:
+            job_id = job.pk
+        left = good.get(job_id)
+        if left is None:
+            raise InvalidInput(f"Panel {panel.serial} carries no boards of that job.")
+        if not 1 <= boards <= left:
+            raise InvalidInput(
+                f"Panel {panel.serial} has {left} good board(s) of that job; cross out 1 to "
+                f"{left}, or scrap the whole panel.",
+                problems=[{"field": "boards", "value": boards, "allowed": f"1..{left}"}],
+            )
+        records.append(
+            ScrapRecord(
+                lot_step=step,
+                panel=panel,
+                job_id=job_id,
+                boards=boards,
+                reason=reason,
+                note=note,
+                source=source,
+                ncr=ncr,
+                recorded_by=person,
+            )
+        )
+    ScrapRecord.objects.bulk_create(records)
+    if not lot.panels.filter(scrapped=False).exists():
+        lot.status = Lot.Status.SCRAPPED
+        lot.save(update_fields=["status"])
+    return records
+
+
+def record_scrap(
+    *,
+    person: Person,
+    lot_step_id: int,
+    panel_serial: str,
+    reason_code: str,
+    boards: int | None = None,
+    job_number: str | None = None,
+    note: str = "",
+) -> list[ScrapRecord]:
+    """An operator scraps at the current step: boards crossed out on a panel, or the
+    whole panel (leave `boards` out). The reason comes from the site's list."""
+    reason = scrap_reason(reason_code)
+    note = (note or "").strip()[:300]
+    if reason.code == "other" and len(note) < 3:
+        raise InvalidInput("Scrap reason 'other' needs a note saying what was wrong.")
+    if boards is not None and (isinstance(boards, bool) or not isinstance(boards, int)):
+        raise InvalidInput("boards must be a whole number (leave it out to scrap the panel).")
+    with transaction.atomic():
+        step, lot = _lock_step(lot_step_id)
+        check_assigned(person, step.work_center_id)
+        _require_workable(step, lot)
+        if step.status != LotStep.Status.IN_PROGRESS:
+            raise Conflict(f"Start '{step.name}' before recording scrap.")
+        panel = (
+            Panel.objects.select_for_update(no_key=True)
+            .filter(lot=lot, serial__iexact=(panel_serial or "").strip())
+            .first()
+        )
+        if panel is None:
+            serials = ", ".join(lot.panels.filter(scrapped=False).values_list("serial", flat=True))
+            raise InvalidInput(
+                f"Panel {panel_serial!r} is not in lot {lot.code}. Its live panels: {serials}.",
+                problems=[{"field": "panel", "value": panel_serial, "allowed": serials}],
+            )
+        if panel.scrapped:
+            raise Conflict(f"Panel {panel.serial} is already scrapped.")
+        job = None
+        if job_number:
+            job = Job.objects.filter(number=job_number.strip()).first()
+            if job is None:
+                raise InvalidInput(f"No job {job_number!r}.")
+        records = scrap_panel_boards(
+            step=step,
+            lot=lot,
+            panel=panel,
+            boards=boards,
+            job=job,
+            reason=reason,
+            note=note,
+            person=person,
+            source=ScrapRecord.Source.OPERATOR,
+        )
+        audit.record(
+            actor=person.user,
+            action="scrap.recorded",
+            object_type="lot_step",
+            object_id=step.pk,
+            after={
+                "lot": lot.code,
+                "step": step.code,
+                "panel": panel.serial,
+                "boards": sum(r.boards for r in records),
+                "panel_scrapped": records[0].panel_scrapped,
+                "reason": reason.code,
+                "note": note,
+            },
+        )
+        return records
+
+
+def record_acceptance(
+    *, person: Person, lot_step_id: int, accepted: dict[str, int], reason_code: str = ""
+) -> list[AcceptedQuantity]:
+    """Final inspection records the boards accepted per job (job number -> boards).
+
+    Accepted may not exceed the good boards on the lot's live panels; boards inspected
+    but not accepted are scrapped at this step with a reason from the site's list.
+    Recording again before sign-off replaces the figures (audited before and after).
+    """
+    with transaction.atomic():
+        step, lot = _lock_step(lot_step_id)
+        check_assigned(person, step.work_center_id)
+        _require_workable(step, lot)
+        if not is_final_inspection(step):
+            raise Conflict(
+                f"Accepted quantities are recorded at final inspection, not at '{step.name}'."
+            )
+        if step.status != LotStep.Status.IN_PROGRESS:
+            raise Conflict(f"Start '{step.name}' before recording the accepted quantity.")
+        good = lot_good_boards(lot)
+        jobs = {j.number: j for j in Job.objects.filter(pk__in=list(good))}
+        problems: list[dict[str, Any]] = []
+        for number in sorted(set(jobs) - set(accepted)):
+            problems.append({"field": f"accepted.{number}", "problem": "missing"})
+        for number, n in accepted.items():
+            job = jobs.get(number)
+            if job is None:
+                problems.append(
+                    {
+                        "field": f"accepted.{number}",
+                        "problem": "this lot carries no boards of that job",
+                        "allowed": sorted(jobs),
+                    }
+                )
+            elif isinstance(n, bool) or not isinstance(n, int) or not 0 <= n <= good[job.pk]:
+                problems.append(
+                    {
+                        "field": f"accepted.{number}",
+                        "value": n,
+                        "problem": f"{good[job.pk]} good board(s) of job {number} are on the lot",
+                        "allowed": f"0..{good[job.pk]}",
+                    }
+                )
+        if problems:
+            raise InvalidInput(
+                f"The accepted quantities have {len(problems)} problem(s); nothing was saved.",
+                problems=problems,
+            )
+        rejected = {number: good[jobs[number].pk] - n for number, n in accepted.items()}
+        reason = None
+        if any(rejected.values()):
+            if not reason_code:
+                raise InvalidInput(
+                    "Some good boards were not accepted: give the scrap reason for them."
+                )
+            reason = scrap_reason(reason_code)
+        before = {
+            a.job.number: a.boards
+            for a in AcceptedQuantity.objects.filter(lot_step=step).select_related("job")
+        }
+        ScrapRecord.objects.filter(lot_step=step, source=ScrapRecord.Source.INSPECTION).delete()
+        AcceptedQuantity.objects.filter(lot_step=step).delete()
+        rows = [
+            AcceptedQuantity(lot_step=step, job=jobs[number], boards=n, recorded_by=person)
+            for number, n in sorted(accepted.items())
+        ]
+        AcceptedQuantity.objects.bulk_create(rows)
+        for number, n in rejected.items():
+            if n and reason is not None:
+                ScrapRecord.objects.create(
+                    lot_step=step,
+                    job=jobs[number],
+                    boards=n,
+                    reason=reason,
+                    note="not accepted at final inspection",
+                    source=ScrapRecord.Source.INSPECTION,
+                    recorded_by=person,
+                )
+        audit.record(
+            actor=person.user,
+            action="acceptance.recorded",
+            object_type="lot_step",
+            object_id=step.pk,
+            before=before or None,
+            after={"lot": lot.code, "accepted": accepted, "rejected": rejected},
+        )
+        return rows
+
+
+def _require_acceptance(step: LotStep) -> None:
+    if is_final_inspection(step) and not AcceptedQuantity.objects.filter(lot_step=step).exists():
+        raise Conflict(
+            "Record the accepted quantity before signing off final inspection.",
+            problems=[{"field": "accepted", "missing": ["accepted quantity"]}],
+        )

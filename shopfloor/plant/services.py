@@ -6,7 +6,7 @@ from django.db import transaction
 from django.utils import timezone
 
 from routing.models import RoutingRevision
-from routing.services import lot_step_fields
+from routing.services import library_of, lot_step_fields
 from shopfloor.audit import services as audit
 from shopfloor.errors import Conflict, InvalidInput
 from shopfloor.floor.models import LotStep
@@ -47,9 +47,12 @@ def create_lot(
             PanelImage.objects.bulk_create(
                 [PanelImage(panel=panel, job=job, count=count) for job, count in images]
             )
+        library = library_of(routing_revision)
         steps = [
-            LotStep(lot=lot, position=(i + 1) * 10, **lot_step_fields(rstep))
-            for i, rstep in enumerate(routing_revision.steps.order_by("seq"))
+            LotStep(lot=lot, position=(i + 1) * 10, **lot_step_fields(rstep, library))
+            for i, rstep in enumerate(
+                routing_revision.steps.select_related("revision").order_by("seq")
+            )
         ]
         if steps:
             steps[0].arrived_at = timezone.now()

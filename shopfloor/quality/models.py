@@ -76,6 +76,20 @@ class Alert(models.Model):
         return f"{self.get_kind_display()}: {self.message[:60]}"
 
 
+class RootCause(models.Model):
+    """A root-cause category an NCR is closed against: a list the site edits in the admin."""
+
+    code = models.CharField(max_length=30, unique=True)
+    name = models.CharField(max_length=120)
+    active = models.BooleanField(default=True)
+
+    class Meta:
+        ordering = ["name"]
+
+    def __str__(self) -> str:
+        return self.name
+
+
 class Nonconformance(models.Model):
     """An NCR: what was wrong, the readings that showed it, and how it was dispositioned."""
 
@@ -87,6 +101,7 @@ class Nonconformance(models.Model):
         USE_AS_IS = "use_as_is", "Use as is"
         REWORK = "rework", "Rework"
         SCRAP = "scrap", "Scrap"
+        MIXED = "mixed", "Per panel (mixed)"
 
     number = models.CharField(max_length=20, unique=True)
     lot = models.ForeignKey("plant.Lot", on_delete=models.PROTECT, related_name="ncrs")
@@ -103,6 +118,13 @@ class Nonconformance(models.Model):
     dispositioned_at = models.DateTimeField(null=True, blank=True)
     disposition_signature = models.OneToOneField(
         "audit.Signature", null=True, blank=True, on_delete=models.PROTECT, related_name="+"
+    )
+    root_cause = models.ForeignKey(
+        RootCause, null=True, blank=True, on_delete=models.PROTECT, related_name="ncrs"
+    )
+    corrective_action = models.TextField(blank=True)
+    panel_actions = models.JSONField(
+        default=dict, blank=True, help_text="Panel serial -> use_as_is | rework | scrap"
     )
     scrap_lot = models.ForeignKey(
         "plant.Lot",

@@ -378,7 +378,14 @@ def _panel_ids(raw: list[str]) -> list[Any]:
 
 
 def _ncr_context(scope: Scope, number: str) -> dict[str, Any]:
+    from shopfloor.floor.models import ScrapReason
+    from shopfloor.quality import disposition
+    from shopfloor.quality.models import RootCause
+
     ncr = access.access_ncr(scope, number)
+    held = ncr.lot_step
+    default_route = disposition.default_rework(held) if held else []
+    route_rows = max(len(default_route) + 2, 4)
     return {
         "ncr": ncr,
         "readings": list(
@@ -388,11 +395,62 @@ def _ncr_context(scope: Scope, number: str) -> dict[str, Any]:
         ),
         "holds": list(ncr.holds.order_by("opened_at")),
         "panels": list(ncr.lot.panels.filter(scrapped=False).order_by("serial")),
+        "panel_rows": [(p, "") for p in ncr.lot.panels.filter(scrapped=False).order_by("serial")],
+        "panel_choices": PANEL_CHOICES,
         "rework_steps": list(ncr.rework_steps.select_related("work_center").order_by("position")),
+        "rework_library": disposition.rework_choices(held) if held else [],
+        "default_route": default_route,
+        "route_slots": [
+            default_route[i] if i < len(default_route) else "" for i in range(route_rows)
+        ],
+        "scrap_reasons": list(ScrapReason.objects.filter(active=True)),
+        "root_causes": list(RootCause.objects.filter(active=True)),
+        "panel_actions": sorted((ncr.panel_actions or {}).items()),
         "choices": DISPOSITION_CHOICES,
         "may_disposition": "quality_engineer" in scope.roles,
         "signer": scope.person.printed_name if scope.person else "",
         "entered": {},
+    }
+
+
+PANEL_CHOICES = [("use_as_is", "Use as is"), ("rework", "Rework"), ("scrap", "Scrap")]
+
+
+def _disposition_input(request: HttpRequest) -> dict[str, Any]:
+    """The form as the service's arguments: per-panel actions when any panel has one,
+    else the older whole-lot choice (scrap some = the ticked panels)."""
+    post = request.POST
+    panel_actions = {
+        key.removeprefix("action-"): value
+        for key, value in post.items()
+        if key.startswith("action-") and value
+    }
+    route = [c.strip() for c in post.getlist("rework_route") if c.strip()]
+    common: dict[str, Any] = {
+        "root_cause": post.get("root_cause", ""),
+        "corrective_action": post.get("corrective_action", ""),
+        "scrap_reason": post.get("scrap_reason", ""),
+    }
+    if panel_actions:
+        return {
+            **common,
+            "disposition": "",
+            "panel_actions": panel_actions,
+            "rework_route": route if "rework" in panel_actions.values() and route else None,
+        }
+    choice = post.get("disposition", "")
+    ticked = post.getlist("panels")
+    if ticked and choice not in ("scrap_some", "scrap_all"):
+        raise InvalidInput(
+            "Panels are ticked, but the decision is not a scrap: say per panel what happens "
+            "to it (nothing ticked is dropped)."
+        )
+    return {
+        **common,
+        "disposition": "scrap" if choice in ("scrap_all", "scrap_some") else choice,
+        "scrap_panel_ids": _panel_ids(ticked) if choice == "scrap_some" else None,
+        "rework_steps": _rework_lines(post.get("rework_steps", "")) if choice == "rework" else None,
+        "rework_route": route if choice == "rework" and route else None,
     }
 
 
@@ -403,34 +461,42 @@ def ncr_page(request: HttpRequest, scope: Scope, number: str) -> HttpResponse:
     if request.method == "GET":
         return render(request, "quality/ncr.html", _ncr_context(scope, number))
     ncr = access.access_ncr(scope, number)
-    choice = request.POST.get("disposition", "")
-    panel_ids = _panel_ids(request.POST.getlist("panels")) if choice == "scrap_some" else None
     try:
+        args = _disposition_input(request)
+        disposition = args.pop("disposition")
         services.disposition_ncr(
             scope.actor,
             ncr.pk,
-            "scrap" if choice in ("scrap_all", "scrap_some") else choice,
+            disposition,
             request.POST.get("note", ""),
             request.POST.get("pin", ""),
-            scrap_panel_ids=panel_ids,
-            rework_steps=_rework_lines(request.POST.get("rework_steps", ""))
-            if choice == "rework"
-            else None,
+            **args,
         )
     except DomainError as exc:
         if exc.status == 403 and "quality_engineer" not in scope.roles:
             return _refusal(request, exc)  # wrong role: the 403 page says why
         ctx = _ncr_context(scope, number)
+        entered_actions = {
+            k.removeprefix("action-"): v for k, v in request.POST.items() if k.startswith("action-")
+        }
         ctx.update(
             error=exc.detail,
             problems=exc.problems,
             entered={
-                "disposition": choice,
+                "disposition": request.POST.get("disposition", ""),
                 "note": request.POST.get("note", ""),
                 "rework_steps": request.POST.get("rework_steps", ""),
                 "panels": set(request.POST.getlist("panels")),
+                "actions": entered_actions,
+                "root_cause": request.POST.get("root_cause", ""),
+                "corrective_action": request.POST.get("corrective_action", ""),
+                "scrap_reason": request.POST.get("scrap_reason", ""),
             },
         )
+        ctx["panel_rows"] = [(p, entered_actions.get(p.serial, "")) for p in ctx["panels"]]
+        route = list(request.POST.getlist("rework_route"))
+        if route:
+            ctx["route_slots"] = route + [""] * max(0, 4 - len(route))
         return render(request, "quality/ncr.html", ctx, status=exc.status)
     messages.success(request, f"{ncr.number} dispositioned and signed; the hold is released.")
     return redirect(reverse("quality:ncr", args=[ncr.number]))

@@ -24,7 +24,43 @@ def finish_step(person: Person, step: LotStep) -> None:
                     sample_index=sample,
                 ),
             )
+    supply_materials(person, step)
+    if services.is_final_inspection(step):
+        accept_all(person, step)
     services.complete_step(person=person, lot_step_id=step.pk, pin=PIN)
+
+
+def supply_materials(person: Person, step: LotStep) -> None:
+    """Record a fresh material lot of every kind the step consumes (made on the fly)."""
+    import datetime as dt
+
+    from django.utils import timezone
+
+    from shopfloor.plant.models import MaterialLot
+
+    for kind in step.materials or []:
+        material, _ = MaterialLot.objects.get_or_create(
+            code=f"TEST-{kind.upper()}",
+            defaults={
+                "kind": kind,
+                "description": f"test {kind}",
+                "received_on": timezone.localdate() - dt.timedelta(days=1),
+            },
+        )
+        services.record_material(person=person, lot_step_id=step.pk, code=material.code)
+
+
+def accept_all(person: Person, step: LotStep) -> None:
+    """Final inspection accepts every good board on the lot."""
+    from shopfloor.plant.models import Job
+
+    good = services.lot_good_boards(step.lot)
+    numbers = dict(Job.objects.filter(pk__in=list(good)).values_list("pk", "number"))
+    services.record_acceptance(
+        person=person,
+        lot_step_id=step.pk,
+        accepted={numbers[job_id]: n for job_id, n in good.items()},
+    )
 
 
 def in_window_value(m: dict) -> float:

@@ -33,7 +33,15 @@ def test_use_as_is_releases_hold_with_signature(floor):
     with pytest.raises(Conflict):  # held: the floor refuses work
         kit.record(floor, step, "surface_copper", 41.0, sample=2)
 
-    services.disposition_ncr(qe, ncr.pk, "use_as_is", "Customer accepted by deviation", PIN)
+    services.disposition_ncr(
+        qe,
+        ncr.pk,
+        "use_as_is",
+        "Customer accepted by deviation",
+        PIN,
+        root_cause="process_drift",
+        corrective_action="Plating controls tightened",
+    )
 
     ncr.refresh_from_db()
     assert ncr.status == "closed" and ncr.disposition == "use_as_is"
@@ -45,7 +53,15 @@ def test_use_as_is_releases_hold_with_signature(floor):
     assert AuditEntry.objects.filter(action="ncr.dispositioned").count() == 1
     kit.record(floor, step, "surface_copper", 41.0, sample=2)  # workable again
     with pytest.raises(Conflict):
-        services.disposition_ncr(qe, ncr.pk, "scrap", "second try", PIN)
+        services.disposition_ncr(
+            qe,
+            ncr.pk,
+            "scrap",
+            "second try",
+            PIN,
+            root_cause="process_drift",
+            corrective_action="Plating controls tightened",
+        )
 
 
 def test_rework_inserts_step_after_held_step(floor):
@@ -56,11 +72,18 @@ def test_rework_inserts_step_after_held_step(floor):
         .first()
     )
     services.disposition_ncr(
-        floor.personas["quality_engineer"], ncr.pk, "rework", "Strip copper and replate", PIN
+        floor.personas["quality_engineer"],
+        ncr.pk,
+        "rework",
+        "Strip copper and replate",
+        PIN,
+        root_cause="process_drift",
+        corrective_action="Plating controls tightened",
     )
     rework = LotStep.objects.get(is_rework=True)
     assert step.position < rework.position < nxt.position
-    assert rework.added_by_ncr_id == ncr.pk and rework.name == "Strip and replate"
+    # The library's default after pattern plating is the plating step again (not a strip).
+    assert rework.added_by_ncr_id == ncr.pk and rework.name == step.name
     assert rework.work_center_id == step.work_center_id and rework.plan == step.plan
     assert not Lot.objects.get(pk=floor.lot.pk).on_hold
     # The held step is finished first, then the rework step comes next in the route.
@@ -75,7 +98,13 @@ def test_rework_inserts_step_after_held_step(floor):
 def test_operator_sees_the_rework_step_marked_with_its_ncr(floor, client):
     step, ncr = _held(floor)
     services.disposition_ncr(
-        floor.personas["quality_engineer"], ncr.pk, "rework", "Strip copper and replate", PIN
+        floor.personas["quality_engineer"],
+        ncr.pk,
+        "rework",
+        "Strip copper and replate",
+        PIN,
+        root_cause="process_drift",
+        corrective_action="Plating controls tightened",
     )
     for n in range(2, 6):
         kit.record(floor, step, "surface_copper", 41.0, sample=n)
@@ -86,7 +115,7 @@ def test_operator_sees_the_rework_step_marked_with_its_ncr(floor, client):
     page = client.get(f"/floor/lots/{floor.lot.code}/").content.decode()
     ncr.refresh_from_db()
     now_card = page.split('id="current-step"')[1].split("</section>")[0]
-    assert "Strip and replate" in now_card and "REWORK" in now_card
+    assert step.name in now_card and "REWORK" in now_card
     assert ncr.number in now_card and "Strip copper and replate" in now_card
     route = page.split('class="route"')[1]
     assert f"REWORK for {ncr.number}" in route
@@ -102,7 +131,14 @@ def test_rework_with_more_steps_than_gap_moves_later_steps(floor):
     )
     steps = [{"name": f"Rework pass {i}"} for i in range(1, 11)]
     services.disposition_ncr(
-        floor.personas["quality_engineer"], ncr.pk, "rework", "Ten passes", PIN, rework_steps=steps
+        floor.personas["quality_engineer"],
+        ncr.pk,
+        "rework",
+        "Ten passes",
+        PIN,
+        rework_steps=steps,
+        root_cause="process_drift",
+        corrective_action="Plating controls tightened",
     )
     order = list(
         LotStep.objects.filter(lot=floor.lot, position__gt=step.position)
@@ -116,7 +152,13 @@ def test_rework_with_more_steps_than_gap_moves_later_steps(floor):
 def test_scrap_all(floor):
     _, ncr = _held(floor)
     services.disposition_ncr(
-        floor.personas["quality_engineer"], ncr.pk, "scrap", "Plating burnt", PIN
+        floor.personas["quality_engineer"],
+        ncr.pk,
+        "scrap",
+        "Plating burnt",
+        PIN,
+        root_cause="process_drift",
+        corrective_action="Plating controls tightened",
     )
     lot = Lot.objects.get(pk=floor.lot.pk)
     assert lot.status == "scrapped" and not lot.on_hold
@@ -134,6 +176,8 @@ def test_scrap_some_panels_splits_lot(floor):
         "One panel burnt",
         PIN,
         scrap_panel_ids=[bad.pk],
+        root_cause="process_drift",
+        corrective_action="Plating controls tightened",
     )
     split = Lot.objects.get(split_from=floor.lot)
     assert split.code == f"{floor.lot.code}-S1" and split.status == "scrapped"
@@ -151,17 +195,67 @@ def test_refusals_save_nothing(floor):
     _, ncr = _held(floor)
     qe = floor.personas["quality_engineer"]
     with pytest.raises(NotAllowed):
-        services.disposition_ncr(floor.personas["supervisor"], ncr.pk, "use_as_is", "ok", PIN)
+        services.disposition_ncr(
+            floor.personas["supervisor"],
+            ncr.pk,
+            "use_as_is",
+            "ok",
+            PIN,
+            root_cause="process_drift",
+            corrective_action="Plating controls tightened",
+        )
     with pytest.raises(NotAllowed):
-        services.disposition_ncr(qe, ncr.pk, "use_as_is", "looks fine", "0000")
+        services.disposition_ncr(
+            qe,
+            ncr.pk,
+            "use_as_is",
+            "looks fine",
+            "0000",
+            root_cause="process_drift",
+            corrective_action="Plating controls tightened",
+        )
     with pytest.raises(InvalidInput, match="use_as_is, rework, scrap"):
-        services.disposition_ncr(qe, ncr.pk, "bin_it", "nope", PIN)
+        services.disposition_ncr(
+            qe,
+            ncr.pk,
+            "bin_it",
+            "nope",
+            PIN,
+            root_cause="process_drift",
+            corrective_action="Plating controls tightened",
+        )
     with pytest.raises(InvalidInput, match="note"):
-        services.disposition_ncr(qe, ncr.pk, "use_as_is", " ", PIN)
+        services.disposition_ncr(
+            qe,
+            ncr.pk,
+            "use_as_is",
+            " ",
+            PIN,
+            root_cause="process_drift",
+            corrective_action="Plating controls tightened",
+        )
     with pytest.raises(InvalidInput, match="not live panels"):
-        services.disposition_ncr(qe, ncr.pk, "scrap", "bad ids", PIN, scrap_panel_ids=[999999])
+        services.disposition_ncr(
+            qe,
+            ncr.pk,
+            "scrap",
+            "bad ids",
+            PIN,
+            scrap_panel_ids=[999999],
+            root_cause="process_drift",
+            corrective_action="Plating controls tightened",
+        )
     with pytest.raises(InvalidInput, match="problem"):
-        services.disposition_ncr(qe, ncr.pk, "rework", "bad", PIN, rework_steps=[{"nm": 1}])
+        services.disposition_ncr(
+            qe,
+            ncr.pk,
+            "rework",
+            "bad",
+            PIN,
+            rework_steps=[{"nm": 1}],
+            root_cause="process_drift",
+            corrective_action="Plating controls tightened",
+        )
     ncr.refresh_from_db()
     assert ncr.status == "open" and Lot.objects.get(pk=floor.lot.pk).on_hold
     assert not Lot.objects.filter(split_from=floor.lot).exists()
@@ -171,7 +265,13 @@ def test_refusals_save_nothing(floor):
 def test_signature_binds_disposition_content(floor):
     _, ncr = _held(floor)
     services.disposition_ncr(
-        floor.personas["quality_engineer"], ncr.pk, "use_as_is", "Within customer deviation", PIN
+        floor.personas["quality_engineer"],
+        ncr.pk,
+        "use_as_is",
+        "Within customer deviation",
+        PIN,
+        root_cause="process_drift",
+        corrective_action="Plating controls tightened",
     )
     ncr.refresh_from_db()
     content = {
@@ -179,6 +279,9 @@ def test_signature_binds_disposition_content(floor):
         "lot": floor.lot.code,
         "disposition": "use_as_is",
         "note": "Within customer deviation",
+        "root_cause": "process_drift",
+        "corrective_action": "Plating controls tightened",
+        "panels": {p.serial: "use_as_is" for p in Panel.objects.filter(lot=floor.lot)},
     }
     assert signature_valid(
         ncr.disposition_signature, record_type="ncr", record_id=ncr.pk, content=content

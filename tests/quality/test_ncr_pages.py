@@ -48,6 +48,10 @@ def held(floor):
     return step, ncr, reading
 
 
+#: The root cause and corrective action every disposition now records.
+QA = {"root_cause": "process_drift", "corrective_action": "Rectifier checked daily"}
+
+
 def _url(ncr: Nonconformance) -> str:
     return f"/quality/ncrs/{ncr.number}/"
 
@@ -83,7 +87,7 @@ def test_open_ncr_page_shows_evidence_and_form(floor, held):
     assert 'id="disposition-form"' in html
     assert "Dispositioned by Quinn Quality" in html  # the signature's meaning, before signing
     for panel in Panel.objects.filter(lot=floor.lot):
-        assert f'value="{panel.pk}"' in html
+        assert f'name="action-{panel.serial}"' in html
 
 
 def test_ncr_is_linked_from_overview_and_lot_history(floor, held):
@@ -125,7 +129,7 @@ def test_operator_of_another_work_center_may_not_read_it(floor, held):
 def test_wrong_role_gets_403_page_saying_why(floor, held, who):
     _, ncr, _ = held
     reply = _client(floor.personas[who]).post(
-        _url(ncr), {"disposition": "use_as_is", "note": "looks fine", "pin": PIN}
+        _url(ncr), {"disposition": "use_as_is", "note": "looks fine", "pin": PIN, **QA}
     )
     assert reply.status_code == 403
     assert "Only a quality engineer can disposition a nonconformance" in reply.content.decode()
@@ -136,7 +140,7 @@ def test_wrong_role_gets_403_page_saying_why(floor, held, who):
 def test_wrong_pin_is_shown_inline(floor, held):
     _, ncr, _ = held
     reply = _client(floor.personas["quality_engineer"]).post(
-        _url(ncr), {"disposition": "use_as_is", "note": "looks fine", "pin": "0000"}
+        _url(ncr), {"disposition": "use_as_is", "note": "looks fine", "pin": "0000", **QA}
     )
     assert reply.status_code == 403
     html = reply.content.decode()
@@ -148,7 +152,7 @@ def test_wrong_pin_is_shown_inline(floor, held):
 def test_missing_note_is_shown_inline(floor, held):
     _, ncr, _ = held
     reply = _client(floor.personas["quality_engineer"]).post(
-        _url(ncr), {"disposition": "use_as_is", "note": "  ", "pin": PIN}
+        _url(ncr), {"disposition": "use_as_is", "note": "  ", "pin": PIN, **QA}
     )
     assert reply.status_code == 400
     assert "needs a note" in reply.content.decode()
@@ -158,7 +162,7 @@ def test_missing_note_is_shown_inline(floor, held):
 def test_partial_scrap_without_panels_is_refused(floor, held):
     _, ncr, _ = held
     reply = _client(floor.personas["quality_engineer"]).post(
-        _url(ncr), {"disposition": "scrap_some", "note": "one burnt", "pin": PIN}
+        _url(ncr), {"disposition": "scrap_some", "note": "one burnt", "pin": PIN, **QA}
     )
     assert reply.status_code == 400
     assert "non-empty list of panel ids" in reply.content.decode()
@@ -179,7 +183,7 @@ def test_partial_scrap_without_panels_is_refused(floor, held):
 def test_bad_choices_are_refused_with_the_reason(floor, held, data, message):
     _, ncr, _ = held
     reply = _client(floor.personas["quality_engineer"]).post(
-        _url(ncr), {"note": "a reason", "pin": PIN, **data}
+        _url(ncr), {"note": "a reason", "pin": PIN, **QA, **data}
     )
     assert reply.status_code == 400, reply.content.decode()[:400]
     assert message in reply.content.decode()
@@ -194,7 +198,7 @@ def test_use_as_is_signs_releases_and_shows_the_decision(floor, held):
     client = _client(floor.personas["quality_engineer"])
     assert _on_floor_held(floor)
     reply = client.post(
-        _url(ncr), {"disposition": "use_as_is", "note": "Customer deviation D-17", "pin": PIN}
+        _url(ncr), {"disposition": "use_as_is", "note": "Customer deviation D-17", "pin": PIN, **QA}
     )
     assert reply.status_code == 302 and reply["Location"] == _url(ncr)
     ncr.refresh_from_db()
@@ -209,7 +213,7 @@ def test_use_as_is_signs_releases_and_shows_the_decision(floor, held):
     assert "Disposition: Use as is" in html and "Customer deviation D-17" in html
     assert 'id="disposition-form"' not in html
     # A second decision on a closed NCR is a conflict (the form is gone, a stale tab posts).
-    again = client.post(_url(ncr), {"disposition": "scrap_all", "note": "again", "pin": PIN})
+    again = client.post(_url(ncr), {"disposition": "scrap_all", "note": "again", "pin": PIN, **QA})
     assert again.status_code == 409 and "already dispositioned" in again.content.decode()
     assert Signature.objects.filter(meaning="dispositioned_by").count() == 1
 
@@ -222,9 +226,8 @@ def test_rework_adds_named_steps_and_shows_them(floor, held):
         {
             "disposition": "rework",
             "note": "Strip and replate the panels",
-            "pin": PIN,
+            "pin": PIN, **QA,
             "rework_steps": f"Strip copper | {step.work_center.code}\n\nReplate copper\n",
-            "panels": [str(Panel.objects.filter(lot=floor.lot).first().pk)],  # ignored
         },
     )
     assert reply.status_code == 302
@@ -237,14 +240,16 @@ def test_rework_adds_named_steps_and_shows_them(floor, held):
     assert not _on_floor_held(floor)
 
 
-def test_rework_without_lines_adds_the_default_step(floor, held):
-    _, ncr, _ = held
+def test_rework_without_lines_adds_the_library_default(floor, held):
+    """Low copper at pattern plating: the default is to plate again at that step (the
+    process library's default for a measured step), never a strip."""
+    step, ncr, _ = held
     _client(floor.personas["quality_engineer"]).post(
-        _url(ncr), {"disposition": "rework", "note": "replate", "pin": PIN}
+        _url(ncr), {"disposition": "rework", "note": "replate", "pin": PIN, **QA}
     )
-    assert list(LotStep.objects.filter(is_rework=True).values_list("name", flat=True)) == [
-        "Strip and replate"
-    ]
+    names = list(LotStep.objects.filter(is_rework=True).values_list("name", flat=True))
+    assert names == [step.name]
+    assert not any("strip" in n.lower() for n in names)
 
 
 def test_partial_scrap_splits_the_lot_and_both_keep_history(floor, held):
@@ -257,7 +262,7 @@ def test_partial_scrap_splits_the_lot_and_both_keep_history(floor, held):
         {
             "disposition": "scrap_some",
             "note": "First panel burnt at the rack contact",
-            "pin": PIN,
+            "pin": PIN, **QA,
             "panels": [str(panels[0].pk)],
         },
     )
@@ -288,7 +293,7 @@ def test_scrap_all_ignores_ticked_panels(floor, held):
     first = Panel.objects.filter(lot=floor.lot).first()
     _client(floor.personas["quality_engineer"]).post(
         _url(ncr),
-        {"disposition": "scrap_all", "note": "all burnt", "pin": PIN, "panels": [str(first.pk)]},
+        {"disposition": "scrap_all", "note": "all burnt", "pin": PIN, **QA, "panels": [str(first.pk)]},
     )
     lot = Lot.objects.get(pk=floor.lot.pk)
     assert lot.status == "scrapped" and not Lot.objects.filter(split_from=lot).exists()
@@ -304,11 +309,11 @@ def test_only_the_disposition_releases_the_hold(floor, held):
         assert reply.status_code == 409 and "on hold" in reply.content.decode()
         assert _on_floor_held(floor)
     supervisor = _client(floor.personas["supervisor"])
-    supervisor.post(_url(ncr), {"disposition": "use_as_is", "note": "fine", "pin": PIN})
+    supervisor.post(_url(ncr), {"disposition": "use_as_is", "note": "fine", "pin": PIN, **QA})
     assert _on_floor_held(floor)
     assert Hold.objects.get(ncr=ncr).released_at is None
     _client(floor.personas["quality_engineer"]).post(
-        _url(ncr), {"disposition": "use_as_is", "note": "fine", "pin": PIN}
+        _url(ncr), {"disposition": "use_as_is", "note": "fine", "pin": PIN, **QA}
     )
     assert Hold.objects.get(ncr=ncr).released_at is not None
     assert not _on_floor_held(floor)
