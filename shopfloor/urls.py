@@ -20,6 +20,7 @@ urlpatterns = [
     path("lab/", include("shopfloor.chemistry.urls")),
     path("", include("shopfloor.quality.urls")),
     path("planning/", include("shopfloor.planning.urls")),
+    path("shipping/", include("shopfloor.shipping.urls")),
     path("api/v1/", include("shopfloor.api_urls")),
     # Anything else under /api/ (a negative id, a typo) is the API's JSON 404, also in DEBUG.
     re_path(r"^api/v1/", views.api_not_found, name="api-not-found"),

@@ -29,9 +29,9 @@ def test_demo_loads_twice_without_duplicates(settings, django_capture_on_commit_
     with django_capture_on_commit_callbacks(execute=True):
         call_command("load_demo")
     first = _counts()
-    # 12 jobs with lots made by the loader, one job only entered, one released by the
+    # 13 jobs with lots made by the loader (one of them shipped), one job only entered, one released by the
     # planner's release (45 boards at 6 per panel, 8 % allowance: ceil(8.1) = 9 panels, 1 lot)
-    assert first["jobs"] == 14 and first["lots"] == 13
+    assert first["jobs"] == 15 and first["lots"] == 14
     from shopfloor.orders import services as orders
 
     assert orders.job_summary("WO-24113").status == "entered"
@@ -43,7 +43,27 @@ def test_demo_loads_twice_without_duplicates(settings, django_capture_on_commit_
         "LOT-24111-1",
     }
     assert first["ncrs"] == 2
+    _check_materials_and_shipping()
     with django_capture_on_commit_callbacks(execute=True):
         call_command("load_demo")
     assert _counts() == first
     assert verify_chain().ok
+
+
+def _check_materials_and_shipping() -> None:
+    """The demo records its materials per lot step, holds one job ready to ship and one
+    shipped with its certificate."""
+    from shopfloor.floor.models import MaterialUse
+    from shopfloor.plant.models import MaterialLot
+    from shopfloor.shipping import services as shipping
+    from shopfloor.shipping.models import Certificate
+
+    used = set(MaterialUse.objects.values_list("kind", flat=True))
+    assert {"laminate", "prepreg", "foil", "dry_film", "mask_ink"} <= used
+    expired = MaterialLot.objects.get(code="PP-2604-X")
+    assert not MaterialUse.objects.filter(material_lot=expired).exists()
+    ready = shipping.job_shipping(Job.objects.get(number="WO-24112"))
+    assert ready.shipped == 0 and ready.available == 12
+    shipped = Job.objects.get(number="WO-24115")
+    assert shipping.job_closed(shipped)
+    assert Certificate.objects.filter(shipment__job=shipped).count() == 1

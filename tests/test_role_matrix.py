@@ -194,6 +194,47 @@ ROWS: dict[str, Row] = {
         (A, A, D, D, A, D, D, D),
         body=lambda c: {"pin": PIN},
     ),
+    "POST step material": Row(
+        "POST",
+        lambda c: f"/api/v1/steps/{c['step'].pk}/materials/",
+        (A, A, D, D, A, D, D, D),
+        body=lambda c: {"material_lot": "NO-SUCH-LOT"},
+    ),
+    "POST step scrap": Row(
+        "POST",
+        lambda c: f"/api/v1/steps/{c['step'].pk}/scrap/",
+        (A, A, D, D, A, D, D, D),
+        body=lambda c: {"panel": "NO-SUCH-PANEL", "reason": "short"},
+    ),
+    "POST step accepted": Row(
+        "POST",
+        lambda c: f"/api/v1/steps/{c['step'].pk}/accepted/",
+        (A, A, D, D, A, D, D, D),
+        body=lambda c: {"accepted": {c["job"].number: 1}},
+    ),
+    "POST NCR disposition (API)": Row(
+        "POST",
+        lambda c: f"/api/v1/ncrs/{c['ncr'].number}/disposition/",
+        QUALITY,
+        body=lambda c: {
+            "disposition": "use_as_is",
+            "root_cause": "nope",
+            "corrective_action": "matrix",
+            "note": "matrix",
+            "pin": "0000",
+        },
+    ),
+    # Shipping: planners (and administrators) ship; certificates are read by the planner,
+    # quality and supervisors. (The planner caller joins this table with the planner role.)
+    "POST shipment": Row(
+        "POST",
+        lambda c: "/api/v1/shipments/",
+        (D, D, D, D, A, D, D, D),
+        body=lambda c: {"job": c["job"].number, "quantity": 1, "lots": [c["lot"].code]},
+    ),
+    "GET certificate PDF (API)": Row(
+        "GET", lambda c: "/api/v1/certificates/COC-000000/pdf/", (D, A, D, A, A, D, D, D)
+    ),
     # --- engineering pages -------------------------------------- op sup pe qe adm ins ano oth
     "GET engineering index": Row(
         "GET", lambda c: "/engineering/", (A, A, A, A, A, D, D, A), api=False
@@ -306,6 +347,27 @@ ROWS: dict[str, Row] = {
         FLOOR_WORK,
         api=False,
         body=lambda c: {"reason": "matrix"},
+    ),
+    "POST tablet material": Row(
+        "POST",
+        lambda c: f"/floor/steps/{c['step'].pk}/materials/",
+        FLOOR_WORK,
+        api=False,
+        body=lambda c: {"code": "NO-SUCH-LOT"},
+    ),
+    "POST tablet scrap": Row(
+        "POST",
+        lambda c: f"/floor/steps/{c['step'].pk}/scrap/",
+        FLOOR_WORK,
+        api=False,
+        body=lambda c: {"panel": "NO-SUCH-PANEL", "reason": "short"},
+    ),
+    "POST tablet accepted": Row(
+        "POST",
+        lambda c: f"/floor/steps/{c['step'].pk}/accepted/",
+        FLOOR_WORK,
+        api=False,
+        body=lambda c: {f"accepted-{c['job'].number}": "1"},
     ),
     "GET locked badges": Row("GET", lambda c: "/floor/people/locked/", SUP_ADMIN, api=False),
     "POST unlock badge": Row(
@@ -576,6 +638,23 @@ ROWS: dict[str, Row] = {
         lambda c: f"/api/v1/analyses/{c['bad_analysis'].pk}/exposure/",
         (D, A, A, A, A, D, D, D),
         lab=A,
+    # --- shipping pages ----------------------------------------- op sup pe qe adm ins ano oth
+    "GET shipping": Row("GET", lambda c: "/shipping/", (D, A, D, A, A, D, D, D), api=False),
+    "GET shipping job": Row(
+        "GET", lambda c: f"/shipping/jobs/{c['job'].number}/", (D, A, D, A, A, D, D, D), api=False
+    ),
+    "POST ship job": Row(
+        "POST",
+        lambda c: f"/shipping/jobs/{c['job'].number}/",
+        (D, D, D, D, A, D, D, D),
+        api=False,
+        body=lambda c: {"quantity": "1", "lots": [c["lot"].code]},
+    ),
+    "GET certificate PDF": Row(
+        "GET",
+        lambda c: "/shipping/certificates/COC-000000.pdf",
+        (D, A, D, A, A, D, D, D),
+        api=False,
     ),
 }
 

@@ -104,3 +104,44 @@ class CompleteForm(TabletForm):
         data = super().payload()
         data["pin"] = sha256(str(data.get("pin", "")).encode()).hexdigest()
         return data
+
+
+class MaterialForm(TabletForm):
+    code = forms.CharField(max_length=60, required=False, label="Material lot")
+    pick = forms.CharField(max_length=60, required=False, label="Material lot")
+
+    def clean(self) -> dict[str, Any]:
+        data = super().clean() or {}
+        code = (data.get("code") or "").strip() or (data.get("pick") or "").strip()
+        if not code:
+            raise forms.ValidationError("scan the material lot's label or pick it from the list")
+        data["code"] = code
+        return data
+
+
+class ScrapForm(TabletForm):
+    panel = forms.CharField(max_length=40, label="Panel")
+    boards = forms.IntegerField(required=False, min_value=1, max_value=10_000, label="Boards")
+    reason = forms.CharField(max_length=30, label="Reason")
+    note = forms.CharField(max_length=300, required=False, label="Note")
+
+
+class AcceptanceForm(TabletForm):
+    """Final inspection: one `accepted-<job number>` field per job on the lot."""
+
+    reason = forms.CharField(max_length=30, required=False, label="Scrap reason")
+
+    def __init__(self, *args: Any, **kwargs: Any) -> None:
+        super().__init__(*args, **kwargs)
+        for key in sorted(self.data):
+            if key.startswith("accepted-"):
+                self.fields[key] = forms.IntegerField(
+                    min_value=0, max_value=10_000_000, label=f"Accepted, job {key[9:]}"
+                )
+
+    def accepted(self) -> dict[str, int]:
+        return {
+            k.removeprefix("accepted-"): int(v)
+            for k, v in self.cleaned_data.items()
+            if k.startswith("accepted-")
+        }

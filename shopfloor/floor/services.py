@@ -1105,3 +1105,34 @@ def _require_acceptance(step: LotStep) -> None:
             "Record the accepted quantity before signing off final inspection.",
             problems=[{"field": "accepted", "missing": ["accepted quantity"]}],
         )
+
+
+def lot_yields(lot: Lot) -> list[Any]:
+    """Boards in, scrapped and out at every step of the lot (shopfloor.core.yields)."""
+    from django.db.models import Count, Sum
+
+    from shopfloor.core import yields
+
+    steps = list(lot.steps.order_by("position").values_list("pk", "name", "position"))
+    totals: dict[int, dict[str, Any]] = {
+        row["lot_step_id"]: dict(row)
+        for row in ScrapRecord.objects.filter(lot_step__lot=lot)
+        .values("lot_step_id")
+        .annotate(
+            boards=Sum("boards"),
+            panels=Count("panel", distinct=True, filter=Q(panel_scrapped=True)),
+        )
+    }
+    good_now = sum(lot_good_boards(lot).values())
+    return yields.step_yields(
+        good_now,
+        [
+            yields.StepScrap(
+                key=position,
+                name=name,
+                boards_scrapped=int(totals.get(pk, {}).get("boards") or 0),
+                panels_scrapped=int(totals.get(pk, {}).get("panels") or 0),
+            )
+            for pk, name, position in steps
+        ],
+    )

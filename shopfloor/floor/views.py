@@ -288,11 +288,50 @@ def _single_row(step: LotStep, quantity: str, sample: int, **extra: Any) -> Samp
     return _sample_row(step, m, sample, readings, _equipment(step), **extra)
 
 
+def _step_records(lot: Lot, step: LotStep | None) -> dict[str, Any]:
+    """Materials, scrap and accepted quantities of the current step, for the tablet."""
+    from shopfloor.floor.models import AcceptedQuantity, MaterialUse, ScrapReason, ScrapRecord
+    from shopfloor.plant.models import Job
+
+    if step is None:
+        return {}
+    uses = list(MaterialUse.objects.filter(lot_step=step).select_related("material_lot"))
+    kinds = [
+        {
+            "kind": kind,
+            "label": services.material_label(kind),
+            "used": [u.material_lot for u in uses if u.kind == kind],
+        }
+        for kind in step.materials or []
+    ]
+    choices = services.usable_material_lots(step) if step.materials else {}
+    good = services.lot_good_boards(lot)
+    jobs = {j.pk: j for j in Job.objects.filter(pk__in=list(good))}
+    accepted = {a.job_id: a.boards for a in AcceptedQuantity.objects.filter(lot_step=step)}
+    return {
+        "material_kinds": kinds,
+        "material_choices": [
+            (services.material_label(kind), options) for kind, options in choices.items()
+        ],
+        "live_panels": list(lot.panels.filter(scrapped=False).order_by("serial")),
+        "scrap_reasons": list(ScrapReason.objects.filter(active=True)),
+        "step_scrap": list(
+            ScrapRecord.objects.filter(lot_step=step).select_related("panel", "reason")
+        ),
+        "final_inspection": services.is_final_inspection(step),
+        "acceptance": [
+            {"job": jobs[job_id], "good": n, "accepted": accepted.get(job_id)}
+            for job_id, n in sorted(good.items(), key=lambda kv: jobs[kv[0]].number)
+        ],
+    }
+
+
 def _lot_context(lot: Lot, person: Person) -> dict[str, Any]:
     lot.refresh_from_db()
     data = traveller.traveller_data(lot)
     step = services.current_step(lot)
     return {
+        **_step_records(lot, step),
         "lot": lot,
         "person": person,
         "jobs": data.jobs,
@@ -469,6 +508,56 @@ def complete_step(request: HttpRequest, step_id: int) -> HttpResponse:
         return f"'{step.name}' signed off. {meaning}: {person.printed_name}."
 
     return _step_action(request, step_id, forms.CompleteForm, call)
+
+
+@login_required
+@require_POST
+def record_material(request: HttpRequest, step_id: int) -> HttpResponse:
+    def call(person: Person, step: LotStep, data: dict[str, Any]) -> str:
+        use = services.record_material(person=person, lot_step_id=step.pk, code=data["code"])
+        return f"Recorded {use.material_lot.code} ({services.material_label(use.kind)})."
+
+    return _step_action(request, step_id, forms.MaterialForm, call)
+
+
+@login_required
+@require_POST
+def record_scrap(request: HttpRequest, step_id: int) -> HttpResponse:
+    def call(person: Person, step: LotStep, data: dict[str, Any]) -> str:
+        records = services.record_scrap(
+            person=person,
+            lot_step_id=step.pk,
+            panel_serial=data["panel"],
+            reason_code=data["reason"],
+            boards=data.get("boards"),
+            note=data.get("note") or "",
+        )
+        n = sum(r.boards for r in records)
+        if records[0].panel_scrapped:
+            return f"Panel {data['panel']} scrapped ({n} board(s))."
+        return f"{n} board(s) crossed out on panel {data['panel']}."
+
+    return _step_action(request, step_id, forms.ScrapForm, call)
+
+
+@login_required
+@require_POST
+def record_acceptance(request: HttpRequest, step_id: int) -> HttpResponse:
+    def call(person: Person, step: LotStep, data: dict[str, Any]) -> str:
+        accepted = {
+            k.removeprefix("accepted-"): int(v)
+            for k, v in data.items()
+            if k.startswith("accepted-")
+        }
+        rows = services.record_acceptance(
+            person=person,
+            lot_step_id=step.pk,
+            accepted=accepted,
+            reason_code=data.get("reason") or "",
+        )
+        return "Accepted: " + ", ".join(f"{r.boards} of job {r.job.number}" for r in rows) + "."
+
+    return _step_action(request, step_id, forms.AcceptanceForm, call)
 
 
 def _row_response(

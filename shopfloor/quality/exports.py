@@ -231,7 +231,7 @@ def lot_record_pdf(h: history.LotHistory, *, certificate: bool = False) -> bytes
         ]
     )
     job_rows = [
-        ["Job", "Customer", "Part number", "Rev", "Ordered", "Shipped (images)", "Due", "IPC class"]
+        ["Job", "Customer", "Part number", "Rev", "Ordered", "On live panels", "Due", "IPC class"]
     ]
     images_by_job: dict[str, int] = {}
     for panel in h.panels:

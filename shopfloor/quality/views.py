@@ -32,6 +32,8 @@ from shopfloor.errors import DomainError, InvalidInput
 from shopfloor.orders import services as orders_services
 from shopfloor.planning import services as planning
 from shopfloor.planning.services import PLANNING_ROLES
+from shopfloor.core.yields import overall_yield as rolled_yield
+from shopfloor.errors import Conflict, DomainError, InvalidInput
 from shopfloor.quality import access, board, charts, exports, history, services
 from shopfloor.quality.access import Scope, scope_for
 
@@ -145,8 +147,11 @@ def overview(request: HttpRequest, scope: Scope) -> HttpResponse:
 @reader
 def lot_page(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
     from shopfloor.chemistry.services import bath_coverage
+    from shopfloor.floor.services import lot_yields
+    from shopfloor.shipping.models import Certificate
 
     h = history.lot_history(scope, code, full_readings=False)
+    yields = lot_yields(h.lot)
     return render(
         request,
         "quality/lot.html",
@@ -155,6 +160,14 @@ def lot_page(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
             "summary": exports.reading_summary(h),
             "forecast": planning.lot_projection(h.lot),
             "baths": bath_coverage(h.lot),
+            "yields": [y for y in yields if y.boards_scrapped or y.panels_scrapped],
+            "all_yields": yields,
+            "rolled_yield": rolled_yield(yields),
+            "certificates": list(
+                Certificate.objects.filter(shipment__lots__lot=h.lot)
+                .select_related("shipment__job")
+                .distinct()
+            ),
         },
     )
 
@@ -177,13 +190,16 @@ def lot_csv(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
 @require_GET
 @reader
 def lot_pdf(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
-    certificate = request.GET.get("kind") == "certificate"
+    if request.GET.get("kind") == "certificate":
+        raise Conflict(
+            "A certificate of conformance is issued with a shipment, and only when every lot "
+            "in it has completed every step, every reading is in window or dispositioned and "
+            "no NCR is open. Ship the job from the shipping page; its certificate is listed "
+            "there and on this lot's page."
+        )
     h = history.lot_history(scope, code)
-    response = HttpResponse(
-        exports.lot_record_pdf(h, certificate=certificate), content_type="application/pdf"
-    )
-    name = "certificate" if certificate else "record"
-    response["Content-Disposition"] = f'inline; filename="lot-{h.lot.code}-{name}.pdf"'
+    response = HttpResponse(exports.lot_record_pdf(h), content_type="application/pdf")
+    response["Content-Disposition"] = f'inline; filename="lot-{h.lot.code}-record.pdf"'
     return response
 
 

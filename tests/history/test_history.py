@@ -333,7 +333,7 @@ def test_csv_is_streamed_with_every_reading(rich, floor, client):
 
 def test_pdf_lot_record_contains_part_source_and_class(rich, floor, client, tmp_path):
     c = _qe(client, floor)
-    for suffix in ("", "?kind=certificate"):
+    for suffix in ("",):
         r = c.get(f"/quality/lots/{rich['lot'].code}/record.pdf{suffix}")
         assert r.status_code == 200 and r["Content-Type"] == "application/pdf"
         pdf = tmp_path / "lot.pdf"
@@ -346,7 +346,11 @@ def test_pdf_lot_record_contains_part_source_and_class(rich, floor, client, tmp_
         assert "Class 2" in text and "IPC class 2" in text
         assert "NCR-0001" in text  # the reading outside the window names its NCR
         assert "M2" in text and "P2" in text  # traceability claim in the footer
-    assert "Certificate of conformance" in text
+    # A lot alone never gets a certificate: certificates are issued with a shipment,
+    # only when the records show conformance (issue 12).
+    refused = c.get(f"/quality/lots/{rich['lot'].code}/record.pdf?kind=certificate")
+    assert refused.status_code == 409
+    assert "issued with a shipment" in refused.content.decode()
 
 
 def test_reading_summary_against_window(rich):

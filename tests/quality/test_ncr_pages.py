@@ -226,7 +226,8 @@ def test_rework_adds_named_steps_and_shows_them(floor, held):
         {
             "disposition": "rework",
             "note": "Strip and replate the panels",
-            "pin": PIN, **QA,
+            "pin": PIN,
+            **QA,
             "rework_steps": f"Strip copper | {step.work_center.code}\n\nReplate copper\n",
         },
     )
@@ -262,7 +263,8 @@ def test_partial_scrap_splits_the_lot_and_both_keep_history(floor, held):
         {
             "disposition": "scrap_some",
             "note": "First panel burnt at the rack contact",
-            "pin": PIN, **QA,
+            "pin": PIN,
+            **QA,
             "panels": [str(panels[0].pk)],
         },
     )
@@ -293,7 +295,13 @@ def test_scrap_all_ignores_ticked_panels(floor, held):
     first = Panel.objects.filter(lot=floor.lot).first()
     _client(floor.personas["quality_engineer"]).post(
         _url(ncr),
-        {"disposition": "scrap_all", "note": "all burnt", "pin": PIN, **QA, "panels": [str(first.pk)]},
+        {
+            "disposition": "scrap_all",
+            "note": "all burnt",
+            "pin": PIN,
+            **QA,
+            "panels": [str(first.pk)],
+        },
     )
     lot = Lot.objects.get(pk=floor.lot.pk)
     assert lot.status == "scrapped" and not Lot.objects.filter(split_from=lot).exists()

@@ -200,7 +200,8 @@ class Command(BaseCommand):
                 defaults={
                     "kind": m["kind"],
                     "description": m["description"],
-                    "received_on": timezone.localdate() - dt.timedelta(days=20),
+                    "received_on": timezone.localdate()
+                    - dt.timedelta(days=m.get("received_days", 20)),
                 },
             )
 
@@ -261,7 +262,6 @@ class Command(BaseCommand):
                 images=[(job, _images_per_panel(j))],
                 panels=j["panels"],
             )
-        materials = list(MaterialLot.objects.order_by("code").values_list("pk", flat=True)[:3])
         for _ in range(j["advance"]):
             step = floor.current_step(lot)
             if step is None:
@@ -269,11 +269,8 @@ class Command(BaseCommand):
             if j.get("hold") and step.plan:
                 self._hold(lot, step, operator)
                 return
-            floor.start_step(
-                person=operator,
-                lot_step_id=step.pk,
-                material_lot_ids=materials if step.code.startswith("layup") else None,
-            )
+            floor.start_step(person=operator, lot_step_id=step.pk)
+            self._materials(step, operator)
             for window in step.plan:
                 for sample in range(1, int(window.get("samples") or 1) + 1):
                     floor.record_reading(
@@ -287,13 +284,30 @@ class Command(BaseCommand):
                             position=f"coupon {sample}",
                         ),
                     )
+            if floor.is_final_inspection(step):
+                good = floor.lot_good_boards(lot)
+                floor.record_acceptance(
+                    person=operator,
+                    lot_step_id=step.pk,
+                    accepted={job.number: good.get(job.pk, 0)},
+                )
             floor.complete_step(person=operator, lot_step_id=step.pk, pin=pin)
             lot.refresh_from_db()
+        if j.get("ship"):
+            from shopfloor.shipping import services as shipping
+
+            shipping.ship(
+                person=self._shipper(),
+                job_number=job.number,
+                quantity=j["ship"],
+                lot_codes=[lot.code],
+            )
         if j.get("hold"):
             # no measured step reached within 'advance'; find the next measured one
             step = floor.current_step(lot)
             while step is not None and not step.plan:
                 floor.start_step(person=operator, lot_step_id=step.pk)
+                self._materials(step, operator)
                 floor.complete_step(person=operator, lot_step_id=step.pk, pin=pin)
                 step = floor.current_step(lot)
             if step is not None:
@@ -323,6 +337,24 @@ class Command(BaseCommand):
             orders.release_job(
                 person=planner, number=job.number, boards_per_panel=j["release_boards_per_panel"]
             )
+
+    def _materials(self, step: LotStep, operator: Person) -> None:
+        """Scan a usable material lot of every kind the step consumes (as the tablet does)."""
+        for kind in step.materials or []:
+            choices = floor.usable_material_lots(step).get(kind) or []
+            if choices:
+                floor.record_material(
+                    person=operator, lot_step_id=step.pk, code=choices[0][0].code, via="demo"
+                )
+
+    def _shipper(self) -> Person:
+        """Whoever ships in the demo: a planner if there is one, else the administrator."""
+        person = (
+            Person.objects.filter(user__groups__name=Role.PLANNER).order_by("badge_number").first()
+            or Person.objects.filter(user__is_superuser=True).order_by("badge_number").first()
+        )
+        assert person is not None, "the demo needs a planner or an administrator badge"
+        return person
 
     def _hold(self, lot: Lot, step: LotStep, operator: Person) -> None:
         floor.start_step(person=operator, lot_step_id=step.pk)
