@@ -60,3 +60,46 @@ class InstrumentTokenAdmin(admin.ModelAdmin):
 
     def has_add_permission(self, request, obj=None) -> bool:  # type: ignore[no-untyped-def]
         return False
+
+
+# --- site lists (edited here) and the records the floor services write ----------------
+
+from shopfloor.floor.models import (  # noqa: E402
+    AcceptedQuantity,
+    MaterialUse,
+    ScrapReason,
+    ScrapRecord,
+    ShelfLife,
+)
+
+
+@admin.register(ShelfLife)
+class ShelfLifeAdmin(admin.ModelAdmin):
+    """Site shelf lives per material kind (days from receipt); the datasheet governs."""
+
+    list_display = ["kind", "days", "note"]
+
+
+@admin.register(ScrapReason)
+class ScrapReasonAdmin(admin.ModelAdmin):
+    """The site's scrap reasons; retire one by unticking active (records keep it)."""
+
+    list_display = ["code", "name", "active"]
+    list_filter = ["active"]
+
+
+@admin.register(MaterialUse)
+class MaterialUseAdmin(ReadOnlyAdmin):
+    list_display = ["lot_step", "material_lot", "kind", "recorded_by", "recorded_at"]
+    search_fields = ["material_lot__code", "lot_step__lot__code"]
+
+
+@admin.register(ScrapRecord)
+class ScrapRecordAdmin(ReadOnlyAdmin):
+    list_display = ["lot_step", "panel", "boards", "panel_scrapped", "reason", "source"]
+    list_filter = ["source", "reason"]
+
+
+@admin.register(AcceptedQuantity)
+class AcceptedQuantityAdmin(ReadOnlyAdmin):
+    list_display = ["lot_step", "job", "boards", "recorded_by", "recorded_at"]

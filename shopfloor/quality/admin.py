@@ -48,3 +48,14 @@ class SeriesStateAdmin(admin.ModelAdmin):
     ]
     list_filter = ["work_center", "limits_fixed"]
     search_fields = ["key", "quantity"]
+
+
+from shopfloor.quality.models import RootCause  # noqa: E402
+
+
+@admin.register(RootCause)
+class RootCauseAdmin(admin.ModelAdmin):
+    """The site's root-cause list for NCRs; retire one by unticking active."""
+
+    list_display = ["code", "name", "active"]
+    list_filter = ["active"]

@@ -47,6 +47,11 @@ NO_ADD = {
     "quality.hold",
     "plant.lot",
     "planning.forecastrun",  # written by the forecast task only
+    "floor.materialuse",
+    "floor.scraprecord",
+    "floor.acceptedquantity",
+    "shipping.shipment",
+    "shipping.certificate",
 }
 
 
