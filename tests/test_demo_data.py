@@ -29,8 +29,9 @@ def test_demo_loads_twice_without_duplicates(settings, django_capture_on_commit_
     with django_capture_on_commit_callbacks(execute=True):
         call_command("load_demo")
     first = _counts()
-    # 13 jobs with lots made by the loader (one of them shipped), one job only entered, one released by the
-    # planner's release (45 boards at 6 per panel, 8 % allowance: ceil(8.1) = 9 panels, 1 lot)
+    # 13 jobs with lots made by the loader (one of them shipped), one job only entered,
+    # one released by the planner's release (45 boards at 6 per panel, 8 % allowance:
+    # ceil(8.1) = 9 panels, 1 lot)
     assert first["jobs"] == 15 and first["lots"] == 14
     from shopfloor.orders import services as orders
 

@@ -1136,3 +1136,18 @@ def lot_yields(lot: Lot) -> list[Any]:
             for pk, name, position in steps
         ],
     )
+
+
+def boards_scrapped_on_live_panels(job_ids: Any) -> dict[int, int]:
+    """Boards of each job scrapped while their panel runs on: crossed out at a step, or
+    not accepted at final inspection (whole scrapped panels are counted by the panel)."""
+    from django.db.models import Sum
+
+    rows = (
+        ScrapRecord.objects.filter(job_id__in=list(job_ids), panel_scrapped=False)
+        .filter(Q(panel__isnull=True) | Q(panel__scrapped=False))
+        .values("job_id")
+        .annotate(n=Sum("boards"))
+        .values_list("job_id", "n")
+    )
+    return {job_id: int(n or 0) for job_id, n in rows}

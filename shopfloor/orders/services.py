@@ -475,15 +475,18 @@ class JobSummary:
 
 
 def shipped_quantities(job_ids: Iterable[int]) -> dict[int, int]:
-    """Boards shipped per job. Shipping (issue 12, second part) fills this from its
-    shipment records; before any shipment exists every job has shipped 0."""
-    return {}
+    """Boards shipped per job, from the shipment records (shopfloor.shipping)."""
+    from shopfloor.shipping.services import shipped_by_job
+
+    return shipped_by_job(job_ids)
 
 
 def boards_scrapped_on_live_panels(job_ids: Iterable[int]) -> dict[int, int]:
     """Boards scrapped on panels that are themselves still running (crossed-out images,
-    partial dispositions). Filled by the per-step quantities (issue 12, second part)."""
-    return {}
+    boards final inspection did not accept), from the per-step scrap records."""
+    from shopfloor.floor.services import boards_scrapped_on_live_panels as scrapped
+
+    return scrapped(job_ids)
 
 
 def short_jobs(limit: int = 12) -> list[dict[str, Any]]:

@@ -11,6 +11,7 @@ and nothing is saved.
 from __future__ import annotations
 
 import uuid
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -77,6 +78,17 @@ def find_job(number: str) -> Job:
 
 def shipped_quantity(job: Job) -> int:
     return int(Shipment.objects.filter(job=job).aggregate(n=Sum("quantity"))["n"] or 0)
+
+
+def shipped_by_job(job_ids: Iterable[int]) -> dict[int, int]:
+    """Boards shipped per job (for the job status and the job API)."""
+    rows = (
+        Shipment.objects.filter(job_id__in=list(job_ids))
+        .values("job_id")
+        .annotate(n=Sum("quantity"))
+        .values_list("job_id", "n")
+    )
+    return {job_id: int(n or 0) for job_id, n in rows}
 
 
 def job_closed(job: Job) -> bool:
