@@ -73,6 +73,7 @@ ENGINEERING = (D, D, A, D, A, D, D, D)  # import design files (process engineeri
 PLANNER = (D, D, D, D, A, D, D, D, A)  # enter and release jobs (planner column last)
 READERS = (A, A, A, A, A, D, D, A, A)  # every person with a role, planner included
 PLAN = (D, A, A, D, A, D, D, D, A)  # quote ship dates, ask for a forecast run
+CERT_READERS = (D, A, D, A, A, D, D, D, A)  # shipping pages, certificates: planner, QE, sup
 
 
 @dataclass(frozen=True)
@@ -225,15 +226,15 @@ ROWS: dict[str, Row] = {
         },
     ),
     # Shipping: planners (and administrators) ship; certificates are read by the planner,
-    # quality and supervisors. (The planner caller joins this table with the planner role.)
+    # quality and supervisors.
     "POST shipment": Row(
         "POST",
         lambda c: "/api/v1/shipments/",
-        (D, D, D, D, A, D, D, D),
+        PLANNER,
         body=lambda c: {"job": c["job"].number, "quantity": 1, "lots": [c["lot"].code]},
     ),
     "GET certificate PDF (API)": Row(
-        "GET", lambda c: "/api/v1/certificates/COC-000000/pdf/", (D, A, D, A, A, D, D, D)
+        "GET", lambda c: "/api/v1/certificates/COC-000000/pdf/", CERT_READERS
     ),
     # --- engineering pages -------------------------------------- op sup pe qe adm ins ano oth
     "GET engineering index": Row(
@@ -639,21 +640,21 @@ ROWS: dict[str, Row] = {
         (D, A, A, A, A, D, D, D),
         lab=A,
     # --- shipping pages ----------------------------------------- op sup pe qe adm ins ano oth
-    "GET shipping": Row("GET", lambda c: "/shipping/", (D, A, D, A, A, D, D, D), api=False),
+    "GET shipping": Row("GET", lambda c: "/shipping/", CERT_READERS, api=False),
     "GET shipping job": Row(
-        "GET", lambda c: f"/shipping/jobs/{c['job'].number}/", (D, A, D, A, A, D, D, D), api=False
+        "GET", lambda c: f"/shipping/jobs/{c['job'].number}/", CERT_READERS, api=False
     ),
     "POST ship job": Row(
         "POST",
         lambda c: f"/shipping/jobs/{c['job'].number}/",
-        (D, D, D, D, A, D, D, D),
+        PLANNER,
         api=False,
         body=lambda c: {"quantity": "1", "lots": [c["lot"].code]},
     ),
     "GET certificate PDF": Row(
         "GET",
         lambda c: "/shipping/certificates/COC-000000.pdf",
-        (D, A, D, A, A, D, D, D),
+        CERT_READERS,
         api=False,
     ),
 }
