@@ -36,14 +36,19 @@ def test_quality_engineer_dispositions_rework_and_hold_banner_goes(persona_page,
     assert "Dispositioned by Quinn Quality" in office.inner_text(".sign-meaning")
     shoot(office, "ncr-open-1280x800")
 
-    office.check("input[name=disposition][value=rework]")
-    office.fill("#rework_steps", f"Strip copper and replate | {step.work_center.code}")
-    office.fill("#note", "Surface copper 70 um: strip and replate per shop practice")
+    office.click("button[data-set-all=rework]")  # every panel: rework (the page's script)
+    assert office.locator("input[type=radio][value=rework]:checked").count() == 2
+    # the rework route defaults to the process library's: plate again at this step
+    assert office.locator("select[name=rework_route]").first.input_value() == step.code
+    office.select_option("#root_cause", "process_drift")
+    office.fill("#corrective_action", "Rectifier current checked at each shift start")
+    office.fill("#note", "Surface copper 70 um: plate again to the window")
     office.fill("#pin", "0000")  # a wrong PIN first: refused in place, nothing saved
     office.click("#disposition-form button[type=submit]")
     office.wait_for_selector("#disposition-error")
     assert "Wrong PIN" in office.inner_text("#disposition-error")
     assert office.input_value("#note").startswith("Surface copper 70 um")
+    assert office.locator("input[type=radio][value=rework]:checked").count() == 2  # kept
     shoot(office, "ncr-wrong-pin-1280x800")
 
     office.fill("#pin", PIN)
@@ -51,7 +56,7 @@ def test_quality_engineer_dispositions_rework_and_hold_banner_goes(persona_page,
     office.wait_for_selector("#decision")
     decision = office.inner_text("#decision")
     assert "Disposition: Rework" in decision and "Quinn Quality" in decision
-    assert "Strip copper and replate" in decision
+    assert step.name in decision and "Process drift" in decision
     shoot(office, "ncr-dispositioned-1280x800")
 
     tablet.reload()
@@ -59,7 +64,7 @@ def test_quality_engineer_dispositions_rework_and_hold_banner_goes(persona_page,
     assert tablet.locator(".hold-banner").count() == 0
     shoot(tablet, "ncr-tablet-released")
     rework = LotStep.objects.get(lot=floor.lot, is_rework=True)
-    assert rework.name == "Strip copper and replate" and rework.position > step.position
+    assert rework.name == step.name and rework.position > step.position
     # the route marks the added step, with the NCR it came from
     route_rework = tablet.locator(".route-step:has(.rework-tag)")
     assert route_rework.count() == 1
