@@ -67,4 +67,16 @@ def _check_materials_and_shipping() -> None:
     assert ready.shipped == 0 and ready.available == 12
     shipped = Job.objects.get(number="WO-24115")
     assert shipping.job_closed(shipped)
+    # one job at each stage of an order's life (issue 12's demo)
+    from shopfloor.orders import services as orders
+
+    stages = {
+        "WO-24113": "entered",
+        "WO-24114": "released",
+        "WO-24102": "in_process",
+        "WO-24105": "held",
+        "WO-24112": "ready_to_ship",
+        "WO-24115": "shipped",
+    }
+    assert {n: orders.job_summary(n).status for n in stages} == stages
     assert Certificate.objects.filter(shipment__job=shipped).count() == 1

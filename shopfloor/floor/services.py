@@ -7,6 +7,7 @@ event in the same transaction. The tablet views and the API call these functions
 
 from __future__ import annotations
 
+import datetime as dt
 import logging
 import math
 import secrets
@@ -698,9 +699,15 @@ def material_label(kind: str) -> str:
     return str(dict(MaterialLot.Kind.choices).get(kind, kind.replace("_", " ")))
 
 
-def material_usability(material: MaterialLot) -> materials_core.Usability:
-    """Shelf life and expiry of a material lot today (site shelf lives from the admin)."""
-    shelf = ShelfLife.objects.filter(kind=material.kind).values_list("days", flat=True).first()
+def material_usability(
+    material: MaterialLot, shelf_lives: dict[str, int] | None = None
+) -> materials_core.Usability:
+    """Shelf life and expiry of a material lot today (site shelf lives from the admin;
+    pass `shelf_lives` when checking many lots, to read them once)."""
+    if shelf_lives is None:
+        shelf = ShelfLife.objects.filter(kind=material.kind).values_list("days", flat=True).first()
+    else:
+        shelf = shelf_lives.get(material.kind)
     facts = materials_core.MaterialFacts(
         code=material.code,
         kind=material.kind,
@@ -785,16 +792,24 @@ def record_material(
 
 def usable_material_lots(step: LotStep) -> dict[str, list[tuple[MaterialLot, str]]]:
     """Per material kind the step consumes: the lots on record that may be used today,
-    newest expiry last, each with its expiry text (for the tablet's pick list)."""
-    out: dict[str, list[tuple[MaterialLot, str]]] = {k: [] for k in step.materials or []}
+    soonest expiry first (first expired, first out: common practice for shelf-life
+    materials), each with its expiry text (for the tablet's pick list)."""
+    out: dict[str, list[tuple[MaterialLot, str, Any]]] = {k: [] for k in step.materials or []}
     if not out:
-        return out
+        return {}
+    shelf_lives = dict(ShelfLife.objects.values_list("kind", "days"))
     for m in MaterialLot.objects.filter(kind__in=list(out)).order_by("code")[:500]:
-        check = material_usability(m)
+        check = material_usability(m, shelf_lives)
         if check.usable:
             when = f"use by {check.expires_on:%Y-%m-%d}" if check.expires_on else "no expiry"
-            out[m.kind].append((m, when))
-    return out
+            out[m.kind].append((m, when, check.expires_on))
+    return {
+        kind: [
+            (m, when)
+            for m, when, _ in sorted(rows, key=lambda r: (r[2] is None, r[2] or dt.date.max))
+        ]
+        for kind, rows in out.items()
+    }
 
 
 # --- quantities: scrap and acceptance ---------------------------------------------------
