@@ -26,7 +26,7 @@ def test_sourcing_notes_never_reach_the_customer():
     assert text.startswith("IPC-6012 hole copper for through holes, class 2")
     assert forbidden_words(text) == [] and "memory" not in text.lower()
     silver = customer_standard("IPC-4553A immersion silver, minimum 0.12 um (from memory); max")
-    assert silver == "IPC-4553A immersion silver, minimum 0.12 um"
+    assert silver == "IPC-4553A immersion silver, minimum 0.12 µm"  # the unit as printed
     assert customer_standard("shop practice: registration within 50 um") == (
         "Manufacturer's process requirement"
     )

@@ -286,7 +286,7 @@ def test_partial_scrap_splits_the_lot_and_both_keep_history(floor, held):
     assert f'Split from lot <a href="/quality/lots/{lot.code}/"' in child.content.decode()
     assert AuditEntry.objects.filter(action="lot.split").count() == 1
     html = client.get(_url(ncr)).content.decode()
-    assert "(some panels)" in html and f"/quality/lots/{split.code}/" in html
+    assert "(some panels scrapped)" in html and f"/quality/lots/{split.code}/" in html
     assert not _on_floor_held(floor)
 
 

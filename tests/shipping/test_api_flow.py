@@ -134,7 +134,7 @@ def test_order_to_shipment_through_the_api(floor, materials, tmp_path):
                 "customer": pr.part.customer.code,
                 "part_number": pr.part.number,
                 "part_revision": pr.revision,
-                "quantity": 10,
+                "quantity": 8,
                 "due_date": (timezone.localdate() + dt.timedelta(days=20)).isoformat(),
                 "ipc_class": 2,
             },
@@ -238,7 +238,7 @@ def test_order_to_shipment_through_the_api(floor, materials, tmp_path):
     first = _ok(
         planner.post(
             "/api/v1/shipments/",
-            {"job": number, "quantity": 6, "lots": [lot.code]},
+            {"job": number, "quantity": 5, "lots": [lot.code]},
             format="json",
             HTTP_IDEMPOTENCY_KEY="erp-ship-1",
         ),
@@ -247,24 +247,24 @@ def test_order_to_shipment_through_the_api(floor, materials, tmp_path):
     assert first["job_closed"] is False and first["certificate"].startswith("COC-")
     replay = planner.post(
         "/api/v1/shipments/",
-        {"job": number, "quantity": 6, "lots": [lot.code]},
+        {"job": number, "quantity": 5, "lots": [lot.code]},
         format="json",
         HTTP_IDEMPOTENCY_KEY="erp-ship-1",
     )
     assert replay.json()["shipment"] == first["shipment"]  # a retried request ships once
     too_many = planner.post(
-        "/api/v1/shipments/", {"job": number, "quantity": 5, "lots": [lot.code]}, format="json"
+        "/api/v1/shipments/", {"job": number, "quantity": 4, "lots": [lot.code]}, format="json"
     )
-    assert too_many.status_code == 409  # 4 left to ship of 10
+    assert too_many.status_code == 409  # 3 left to ship of 8
     second = _ok(
         planner.post(
-            "/api/v1/shipments/", {"job": number, "quantity": 4, "lots": [lot.code]}, format="json"
+            "/api/v1/shipments/", {"job": number, "quantity": 3, "lots": [lot.code]}, format="json"
         ),
         201,
     )
     assert second["job_closed"] is True
     state = _ok(planner.get(f"/api/v1/jobs/{number}/"))
-    assert state["status"] == "shipped" and state["quantities"]["shipped"] == 10
+    assert state["status"] == "shipped" and state["quantities"]["shipped"] == 8
     pdf = planner.get(first["certificate_url"].replace("http://testserver", ""))
     assert pdf.status_code == 200 and pdf["Content-Type"] == "application/pdf"
     if shutil.which("pdftotext"):
