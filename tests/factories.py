@@ -130,6 +130,9 @@ class Floor:
 
 
 def make_floor() -> Floor:
+    from shopfloor.floor.site_lists import ensure_site_lists
+
+    ensure_site_lists()  # a transactional test's flush empties what the migrations seeded
     routing_services.ensure_library()
     centers = {wc.code: wc for wc in WorkCenter.objects.all()}
     everywhere = list(centers.values())

@@ -97,6 +97,9 @@ class Command(BaseCommand):
     def handle(self, *args: Any, **options: Any) -> None:
         data = json.loads(Path(options["file"]).read_text(encoding="utf-8"))
         routing_services.ensure_library(note="built-in library (demo)")
+        from shopfloor.floor.site_lists import ensure_site_lists
+
+        ensure_site_lists()
         people = self._people(data)
         self._plant(data)
         engineer = next(p for p in people.values() if Role.PROCESS_ENGINEER in p.roles())
