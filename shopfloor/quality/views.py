@@ -28,12 +28,11 @@ from django.utils.http import urlencode
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
 from shopfloor import units
-from shopfloor.errors import DomainError, InvalidInput
+from shopfloor.core.yields import overall_yield as rolled_yield
+from shopfloor.errors import Conflict, DomainError, InvalidInput
 from shopfloor.orders import services as orders_services
 from shopfloor.planning import services as planning
 from shopfloor.planning.services import PLANNING_ROLES
-from shopfloor.core.yields import overall_yield as rolled_yield
-from shopfloor.errors import Conflict, DomainError, InvalidInput
 from shopfloor.quality import access, board, charts, exports, history, services
 from shopfloor.quality.access import Scope, scope_for
 

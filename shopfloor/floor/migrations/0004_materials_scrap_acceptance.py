@@ -8,7 +8,7 @@ from django.db import migrations, models
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('floor', '0002_initial'),
+        ('floor', '0003_reading_sample_key'),
         ('plant', '0003_lot_code_upper_index'),
         ('quality', '0003_ncr_root_cause'),
     ]
