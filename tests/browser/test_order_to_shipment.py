@@ -1,16 +1,18 @@
 """One new order walked from entry to shipment in a real browser, without the admin and
 without a shell.
 
-The planner enters the job on the job page and releases it to the floor (office screen,
-1366x768). Operators work every step: helpers post the long middle through the same
-services the API calls, but layup (with its material scan, an expired prepreg refused
-first), pattern plating with its readings, and final inspection (readings and accepted
-quantity) go through the tablet (1024x768). One AOI count is out of window; the quality
-engineer dispositions it per panel on the NCR page (rework one panel, scrap one, use the
-rest as is); the rework (AOI repair and verify, the library's default) runs; the planner
-ships on the shipping page; the certificate PDF is read back with pdftotext
-(poppler-utils). The certificate must name IPC-6012 and the class of the build spec, and
-never the shop's sourcing notes ("from memory").
+The planner enters the job for a new part on the job page; the process engineer authors
+its build spec in the form (copper typed as "0.5 oz"), watches the live preview, makes it
+a draft revision in one click and releases it with the PIN; the planner releases the job
+to the floor (office screens, 1366x768). Operators work every step: helpers post the
+long middle through the same services the API calls, but layup (with its material scan,
+an expired prepreg refused first), pattern plating with its readings, and final
+inspection (readings and accepted quantity) go through the tablet (1024x768). One AOI
+count is out of window; the quality engineer dispositions it per panel on the NCR page
+(rework one panel, scrap one, use the rest as is); the rework (AOI repair and verify, the
+library's default) runs; the planner ships on the shipping page; the certificate PDF is
+read back with pdftotext (poppler-utils). The certificate must name IPC-6012 and the
+class of the build spec, and never the shop's sourcing notes ("from memory").
 """
 
 from __future__ import annotations
@@ -24,7 +26,7 @@ from django.utils import timezone
 from playwright.sync_api import expect
 
 from shopfloor.floor import services as floor_services
-from shopfloor.plant.models import Job, Lot, MaterialLot
+from shopfloor.plant.models import Job, Lot, MaterialLot, PartRevision
 from shopfloor.quality import services as quality
 from shopfloor.quality.models import Nonconformance
 from tests.factories import PIN
@@ -74,15 +76,15 @@ def _sign(page):
 
 def test_order_to_shipment_in_the_browser(persona_page, floor, shoot, tmp_path):
     _materials()
-    pr = floor.routing.part_revision
+    customer = floor.routing.part_revision.part.customer
     operator = floor.personas["operator"]
 
-    # --- the planner enters the job and releases it --------------------------------------
+    # --- the planner enters the job for a new part ---------------------------------------
     office = persona_page("planner", viewport=OFFICE)
     office.goto("/jobs/new/")
-    office.fill("input[name=customer]", pr.part.customer.code)
-    office.fill("input[name=part_number]", pr.part.number)
-    office.fill("input[name=part_revision]", pr.revision)
+    office.fill("input[name=customer]", customer.code)
+    office.fill("input[name=part_number]", "E2E-4L-01")
+    office.fill("input[name=part_revision]", "A")
     office.fill("input[name=quantity]", "8")
     office.fill("input[name=due_date]", (timezone.localdate() + dt.timedelta(days=15)).isoformat())
     office.select_option("select[name=ipc_class]", "2")
@@ -91,6 +93,28 @@ def test_order_to_shipment_in_the_browser(persona_page, floor, shoot, tmp_path):
     office.wait_for_url("**/jobs/*/")
     number = office.url.rstrip("/").split("/")[-1]
     job = Job.objects.get(number=number)
+    pr = PartRevision.objects.get(part__number="E2E-4L-01", revision="A")
+    assert pr.build_spec == {}
+
+    # --- the engineer authors the spec in the form, drafts and releases it ----------------
+    eng = persona_page("process_engineer", viewport=OFFICE)
+    eng.goto(f"/engineering/part-revisions/{pr.pk}/spec/")
+    eng.fill("input[name=outer_copper_base_um]", "0.5 oz")
+    eng.select_option("select[name=finish]", "enig")
+    expect(eng.locator("#spec-preview")).to_contain_text("Layup")
+    shoot(eng, "e2e-01b-spec-form")
+    eng.fill("input[name=reason]", "first routing for the new part")
+    eng.click("button[value=draft]")
+    eng.wait_for_url("**/engineering/revisions/*/")
+    eng.fill("#pin", PIN)
+    eng.click("button:has-text('Release with my signature')")
+    expect(eng.locator(".signature")).to_contain_text("Released by")
+    shoot(eng, "e2e-01c-routing-released")
+    pr.refresh_from_db()
+    assert pr.build_spec["finish"] == "enig" and pr.build_spec["outer_copper_base_um"] == 17.39
+
+    # --- the planner releases the job to the floor ---------------------------------------
+    office.reload()
     office.fill(".release-form input[name=boards_per_panel]", "4")
     office.click("button:has-text('Release to the floor')")
     expect(office.locator("body")).to_contain_text("Released to the floor")
