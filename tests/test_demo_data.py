@@ -64,7 +64,7 @@ def _check_materials_and_shipping() -> None:
     expired = MaterialLot.objects.get(code="PP-2604-X")
     assert not MaterialUse.objects.filter(material_lot=expired).exists()
     ready = shipping.job_shipping(Job.objects.get(number="WO-24112"))
-    assert ready.shipped == 0 and ready.available == 12
+    assert ready.shipped == 0 and ready.available == ready.accepted > 0
     shipped = Job.objects.get(number="WO-24115")
     assert shipping.job_closed(shipped)
     # one job at each stage of an order's life (issue 12's demo)
