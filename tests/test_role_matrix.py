@@ -639,6 +639,7 @@ ROWS: dict[str, Row] = {
         lambda c: f"/api/v1/analyses/{c['bad_analysis'].pk}/exposure/",
         (D, A, A, A, A, D, D, D),
         lab=A,
+    ),
     # --- shipping pages ----------------------------------------- op sup pe qe adm ins ano oth
     "GET shipping": Row("GET", lambda c: "/shipping/", CERT_READERS, api=False),
     "GET shipping job": Row(

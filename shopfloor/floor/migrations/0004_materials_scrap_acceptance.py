@@ -10,7 +10,7 @@ class Migration(migrations.Migration):
     dependencies = [
         ('floor', '0003_reading_sample_key'),
         ('plant', '0003_lot_code_upper_index'),
-        ('quality', '0003_ncr_root_cause'),
+        ('quality', '0004_ncr_root_cause'),
     ]
 
     operations = [
