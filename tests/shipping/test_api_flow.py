@@ -1,13 +1,14 @@
 """One order from entry to shipment through the API alone (the ERP and instrument path).
 
-The ERP enters the job and releases it; operators (and a gauge's instrument token) work
-every step through the floor API, scanning the material lots a step consumes; one
-out-of-window AOI count opens an NCR that quality dispositions per panel through the API
-(one panel reworked by the library's default, AOI repair and verify; the other scrapped);
-final inspection records the accepted boards; the ERP ships in two partial shipments and
-reads the certificate back. The gate's refusals come back as 409 with every reason.
-Standards: the certificate names IPC-6012 and the class of the build spec; the PDF is
-read with pdftotext (poppler-utils).
+The ERP enters the job for a new part, engineering puts its spec, drafts and releases the
+routing through the API, and the ERP releases the job; operators (and a gauge's
+instrument token) work every step through the floor API, scanning the material lots a
+step consumes; one out-of-window AOI count opens an NCR that quality dispositions per
+panel through the API (one panel reworked by the library's default, AOI repair and
+verify; the other scrapped); final inspection records the accepted boards; the ERP ships
+in two partial shipments and reads the certificate back. The gate's refusals come back
+as 409 with every reason. Standards: the certificate names IPC-6012 and the class of the
+build spec; the PDF is read with pdftotext (poppler-utils).
 """
 
 from __future__ import annotations
@@ -25,7 +26,7 @@ from shopfloor.plant.models import MaterialLot
 from shopfloor.quality import services as quality
 from shopfloor.quality.models import Nonconformance, OutboxEvent
 from tests.api.helpers import issue_token
-from tests.factories import PIN
+from tests.factories import PIN, SPEC_4L_ENIG
 from tests.floor.helpers import in_window_value
 
 pytestmark = pytest.mark.django_db
@@ -125,15 +126,16 @@ def test_order_to_shipment_through_the_api(floor, materials, tmp_path):
     planner = _client(floor.personas["planner"])
     op = _client(floor.personas["operator"])
     qe = _client(floor.personas["quality_engineer"])
-    pr = floor.routing.part_revision
-    # --- the ERP enters and releases the job
+    engineer = _client(floor.personas["process_engineer"])
+    customer = floor.routing.part_revision.part.customer
+    # --- the ERP enters the job for a new part; engineering authors it through the API
     job = _ok(
         planner.post(
             "/api/v1/jobs/",
             {
-                "customer": pr.part.customer.code,
-                "part_number": pr.part.number,
-                "part_revision": pr.revision,
+                "customer": customer.code,
+                "part_number": "API-E2E-1",
+                "part_revision": "A",
                 "quantity": 8,
                 "due_date": (timezone.localdate() + dt.timedelta(days=20)).isoformat(),
                 "ipc_class": 2,
@@ -144,6 +146,19 @@ def test_order_to_shipment_through_the_api(floor, materials, tmp_path):
         201,
     )
     number = job["number"]
+    pr_id = job["part_revision_id"]
+    _ok(engineer.put(f"/api/v1/part-revisions/{pr_id}/spec/", SPEC_4L_ENIG, format="json"))
+    draft = _ok(
+        engineer.post(f"/api/v1/part-revisions/{pr_id}/drafts/", {"reason": "new"}, format="json")
+    )
+    _ok(
+        engineer.post(
+            f"/api/v1/routing-revisions/{draft['id']}/release/", {"pin": PIN}, format="json"
+        )
+    )
+    from shopfloor.plant.models import PartRevision
+
+    pr = PartRevision.objects.get(pk=pr_id)
     released = _ok(
         planner.post(f"/api/v1/jobs/{number}/release/", {"boards_per_panel": 4}, format="json"),
         201,
