@@ -33,7 +33,7 @@ from shopfloor.orders import services
 
 JOB_NUMBER_IN_PATH = OpenApiParameter(
     "number",
-    {"type": "string", "pattern": "^[^/]+$", "maxLength": 30},
+    {"type": "string", "pattern": "^[^/\\u0000]+$", "maxLength": 30},
     OpenApiParameter.PATH,
     description="Job (work order) number",
 )
@@ -73,7 +73,11 @@ class JobListView(JsonAPIView):
         summary="Jobs by due date, filtered by status, customer and due date",
         parameters=[
             OpenApiParameter("status", OpenApiTypes.STR, enum=list(services.STATUSES)),
-            OpenApiParameter("customer", OpenApiTypes.STR, description="Code or part of a name"),
+            OpenApiParameter(
+                "customer",
+                {"type": "string", "pattern": "^[^\\u0000]*$", "maxLength": 40},
+                description="Code or part of a name (no NUL characters)",
+            ),
             OpenApiParameter("due_before", OpenApiTypes.DATE),
         ],
         responses={
