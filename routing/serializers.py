@@ -67,6 +67,14 @@ class PreviewStepSerializer(serializers.Serializer):
     standard_minutes = serializers.IntegerField()
     cycle = serializers.IntegerField(allow_null=True)
     measurements = WindowSerializer(many=True)
+    criteria_in_words = serializers.ListField(
+        child=serializers.DictField(child=serializers.CharField()),
+        required=False,
+        help_text=(
+            "One line per quantity with every entry in plain words, e.g. "
+            "'average of 5 samples ≥ 25 µm; each ≥ 20 µm'"
+        ),
+    )
 
 
 class PreviewSerializer(serializers.Serializer):

@@ -121,7 +121,16 @@ def _build(spec: Any, overrides: list[dict[str, Any]], library: ProcessLibrary) 
 def _override(raw: Any) -> overrides_core.Override:
     if not isinstance(raw, dict) or "quantity" not in raw:
         raise ValueError("each override is an object with at least 'quantity' and 'reason'")
-    allowed = {"quantity", "step_code", "min", "max", "target", "reason", "approved_by"}
+    allowed = {
+        "quantity",
+        "step_code",
+        "min",
+        "max",
+        "target",
+        "reason",
+        "approved_by",
+        "applies_to",
+    }
     unknown = set(raw) - allowed
     if unknown:
         raise ValueError(f"unknown override keys {sorted(unknown)}; allowed: {sorted(allowed)}")
@@ -133,6 +142,7 @@ def _override(raw: Any) -> overrides_core.Override:
         target=raw.get("target"),
         reason=str(raw.get("reason") or ""),
         approved_by=raw.get("approved_by"),
+        applies_to=raw.get("applies_to"),
     )
 
 

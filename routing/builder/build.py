@@ -18,13 +18,14 @@ practice); final inspection; pack.
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
 from .library import DEFAULT_PLATING_ALLOWANCE_MM, ProcessLibrary, StepDefinition
 from .spec import BuildSpec, SubAssembly, Via
-from .windows import Window, window_rule
+from .windows import Window, window_rules
 
 __all__ = ["Routing", "Step", "Window", "build_routing"]
 
@@ -238,37 +239,38 @@ def _windows(
     for quantity, override in d.measurements.items():
         if quantity in p.skip_quantities:
             continue
-        w = window_rule(
-            quantity,
-            spec,
-            step_code=p.base,
-            hole=p.hole,
-            design_conductor_um=design_conductor_um,
-            surface_mount=surface_mount,
-        ).window
+        defaults = [
+            r.window
+            for r in window_rules(
+                quantity,
+                spec,
+                step_code=p.base,
+                hole=p.hole,
+                design_conductor_um=design_conductor_um,
+                surface_mount=surface_mount,
+            )
+        ]
         if override.sets_limits:
-            w = Window(
-                quantity=w.quantity,
-                unit=w.unit,
-                min=override.min,
-                max=override.max,
-                target=override.target,
-                samples=override.samples if override.samples is not None else w.samples,
-                source=f"process library: {override.source}",
-                attribute=w.attribute,
+            # The library's own window replaces the default entries of this quantity.
+            w = defaults[0]
+            out.append(
+                Window(
+                    quantity=w.quantity,
+                    unit=w.unit,
+                    min=override.min,
+                    max=override.max,
+                    target=override.target,
+                    samples=override.samples if override.samples is not None else w.samples,
+                    source=f"process library: {override.source}",
+                    attribute=w.attribute,
+                    applies_to=override.applies_to or "each_reading",
+                )
             )
-        elif override.samples is not None and not w.attribute:
-            w = Window(
-                quantity=w.quantity,
-                unit=w.unit,
-                min=w.min,
-                max=w.max,
-                target=w.target,
-                samples=override.samples,
-                source=w.source,
-                attribute=w.attribute,
-            )
-        out.append(w)
+            continue
+        for w in defaults:
+            if override.samples is not None and not w.attribute:
+                w = dataclasses.replace(w, samples=override.samples)
+            out.append(w)
     return tuple(out)
 
 

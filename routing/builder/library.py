@@ -730,7 +730,9 @@ _STEP_KEYS: Final = frozenset(
         "rework",
     }
 )
-_WINDOW_KEYS: Final = frozenset({"min", "max", "target", "samples", "source", "unit"})
+_WINDOW_KEYS: Final = frozenset({"min", "max", "target", "samples", "source", "unit", "applies_to"})
+#: What a library window's limits may apply to (see `shopfloor.core.judging`).
+_APPLIES_TO: Final = ("each_reading", "mean", "minimum", "maximum", "range")
 
 
 class LibraryInvalid(ValueError):
@@ -750,6 +752,7 @@ class WindowOverride:
     target: float | None = None
     samples: int | None = None
     source: str | None = None
+    applies_to: str | None = None
 
     @property
     def sets_limits(self) -> bool:
@@ -1028,7 +1031,13 @@ def _parse_measurements(where: str, raw: Any, errors: list[str]) -> dict[str, Wi
             errors.append(f"{at}: samples must be a whole number >= 1")
             samples = None
         source = w.get("source")
-        override = WindowOverride(min=lo, max=hi, target=tgt, samples=samples, source=source)
+        what = w.get("applies_to")
+        if what is not None and what not in _APPLIES_TO:
+            errors.append(f"{at}: applies_to must be one of {', '.join(_APPLIES_TO)}")
+            what = None
+        override = WindowOverride(
+            min=lo, max=hi, target=tgt, samples=samples, source=source, applies_to=what
+        )
         if override.sets_limits and (not isinstance(source, str) or not source.strip()):
             errors.append(f"{at}: a library window that sets limits must name its source")
         out[quantity] = override

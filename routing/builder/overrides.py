@@ -43,6 +43,9 @@ class Override:
     target: float | None
     reason: str
     approved_by: str | None = None
+    #: Which entry of the quantity to change ("mean", "each_reading", ...); None changes
+    #: every entry of the quantity (hole copper: the average and the thin-area entry).
+    applies_to: str | None = None
 
 
 def _check(o: Override) -> None:
@@ -66,6 +69,12 @@ def _check(o: Override) -> None:
             raise OverrideInvalid(f"override {name}: {exc}") from None
     if o.min is not None and o.max is not None and o.min > o.max:
         raise OverrideInvalid(f"override of {o.quantity}: min {o.min:g} is above max {o.max:g}")
+    allowed = ("each_reading", "mean", "minimum", "maximum", "range")
+    if o.applies_to is not None and o.applies_to not in allowed:
+        raise OverrideInvalid(
+            f"override of {o.quantity}: applies_to {o.applies_to!r} is not one of "
+            f"{', '.join(allowed)} (leave it out to change every entry of the quantity)"
+        )
 
 
 def _merged(default: Window, o: Override) -> tuple[float | None, float | None, float | None]:
@@ -156,7 +165,7 @@ def apply_overrides(routing: Routing, overrides: list[Override]) -> Routing:
                 continue
             windows = list(step.measurements)
             for j, w in enumerate(windows):
-                if w.quantity == o.quantity:
+                if w.quantity == o.quantity and o.applies_to in (None, w.applies_to):
                     windows[j] = _apply_one(w, o)
                     hit = True
             steps[i] = _with_measurements(step, tuple(windows))

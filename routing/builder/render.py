@@ -10,6 +10,8 @@ from __future__ import annotations
 import json
 from typing import Any
 
+from shopfloor.core.judging import describe_criteria, describe_entry, group_plan
+
 from .build import Routing, Step
 from .windows import Window
 
@@ -43,6 +45,18 @@ def _window_dict(w: Window) -> dict[str, Any]:
         "source": w.source,
         "attribute": w.attribute,
         "deviation": w.deviation,
+        "applies_to": w.applies_to,
+        "in_words": describe_entry(
+            {
+                "quantity": w.quantity,
+                "unit": w.unit,
+                "min": w.min,
+                "max": w.max,
+                "applies_to": w.applies_to,
+                "attribute": w.attribute,
+            },
+            w.samples,
+        ),
     }
 
 
@@ -59,7 +73,13 @@ def _step_dict(s: Step) -> dict[str, Any]:
         "standard_minutes": s.standard_minutes,
         "cycle": s.cycle,
         "measurements": [_window_dict(w) for w in s.measurements],
+        "criteria_in_words": _criteria_words([_window_dict(w) for w in s.measurements]),
     }
+
+
+def _criteria_words(entries: list[dict[str, Any]]) -> list[dict[str, str]]:
+    """One line per quantity: 'average of 5 samples ≥ 25 µm; each ≥ 20 µm'."""
+    return [{"quantity": g.quantity, "in_words": g.words} for g in group_plan(entries)]
 
 
 def routing_to_dict(routing: Routing) -> dict[str, Any]:
@@ -80,20 +100,6 @@ def _fmt(v: Any) -> str:
     return str(v)
 
 
-def _limits(w: Window) -> str:
-    if w.attribute:
-        return f"max {_fmt(w.max)} {w.unit}"
-    parts = []
-    if w.min is not None:
-        parts.append(f"min {_fmt(w.min)}")
-    if w.target is not None:
-        parts.append(f"target {_fmt(w.target)}")
-    if w.max is not None:
-        parts.append(f"max {_fmt(w.max)}")
-    text = " / ".join(parts) if parts else "record only"
-    return f"{text} {w.unit}"
-
-
 def routing_to_text(routing: Routing) -> str:
     """A fixed-width table for a person: one line per step, measurements beneath."""
     rows: list[str] = []
@@ -105,11 +111,14 @@ def routing_to_text(routing: Routing) -> str:
         rows.append(
             f"{s.seq:>3}  {s.code:<28} {name:<44} {s.work_center:<14} {s.standard_minutes:>5}"
         )
-        for w in s.measurements:
-            flag = "  DEVIATION" if w.deviation else ""
-            samples = "every board" if w.samples is None else f"{w.samples} samples"
-            rows.append(f"{'':>5}  measure {w.quantity}: {_limits(w)}, {samples}{flag}")
-            rows.append(f"{'':>5}    source: {w.source}")
+        for g in group_plan(_window_dict(w) for w in s.measurements):
+            flag = "  DEVIATION" if any(e.get("deviation") for e in g.entries) else ""
+            first = g.entries[0]
+            samples = "every board" if first.get("samples") is None else f"{g.samples} samples"
+            words = describe_criteria(g.entries)
+            rows.append(f"{'':>5}  measure {g.quantity}: {words}, {samples}{flag}")
+            for source in dict.fromkeys(str(e.get("source")) for e in g.entries):
+                rows.append(f"{'':>5}    source: {source}")
         if s.queue_time_limit_minutes is not None:
             until = s.parameters.get("queue_time_until", "the next step")
             rows.append(f"{'':>5}  queue limit: {s.queue_time_limit_minutes} min until {until}")
@@ -167,8 +176,8 @@ def diff_routings(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
 
 def _diff_measurements(seq: int, code: str, old: dict[str, Any], new: dict[str, Any]) -> list[str]:
     lines: list[str] = []
-    before = {m["quantity"]: m for m in old.get("measurements", [])}
-    after = {m["quantity"]: m for m in new.get("measurements", [])}
+    before = {_entry_key(m): m for m in old.get("measurements", [])}
+    after = {_entry_key(m): m for m in new.get("measurements", [])}
     for q, m in after.items():
         if q not in before:
             lines.append(f"+ step {seq} {code} measure {q} {_dict_limits(m)}")
@@ -182,6 +191,13 @@ def _diff_measurements(seq: int, code: str, old: dict[str, Any], new: dict[str, 
         if q not in after:
             lines.append(f"- step {seq} {code} measure {q} {_dict_limits(m)}")
     return lines
+
+
+def _entry_key(m: dict[str, Any]) -> str:
+    """A plan entry's identity in a diff: its quantity, plus what it applies to when that
+    is not every reading ('hole_wall_copper (mean)')."""
+    what = m.get("applies_to") or "each_reading"
+    return m["quantity"] if what == "each_reading" else f"{m['quantity']} ({what})"
 
 
 def _dict_limits(m: dict[str, Any]) -> str:

@@ -17,6 +17,7 @@ from drf_spectacular.utils import extend_schema_field
 from rest_framework import serializers
 
 from shopfloor import units
+from shopfloor.core import judging
 from shopfloor.floor.models import LotStep, Reading
 
 MAX_ID = 2**63 - 1
@@ -283,6 +284,16 @@ class WindowSerializer(serializers.Serializer):
     source = serializers.CharField(help_text="Standard and clause, shop practice or customer")
     attribute = serializers.BooleanField()
     deviation = serializers.BooleanField()
+    applies_to = serializers.ChoiceField(
+        choices=["each_reading", "mean", "minimum", "maximum", "range"],
+        help_text=(
+            "What the limits bound: every reading, or the sample set's mean, smallest, "
+            "largest sample or range (largest - smallest)"
+        ),
+    )
+    in_words = serializers.CharField(
+        help_text="This entry in plain words, rounded to the quantity's resolution"
+    )
 
     def to_representation(self, instance: Any) -> Any:
         if isinstance(instance, dict):
@@ -393,4 +404,6 @@ def window_dict(m: dict[str, Any]) -> dict[str, Any]:
         "source": m.get("source") or "",
         "attribute": bool(m.get("attribute")),
         "deviation": bool(m.get("deviation")),
+        "applies_to": judging.applies_to(m),
+        "in_words": judging.describe_entry(m),
     }

@@ -228,8 +228,21 @@ def test_dict_contract():
         "standard_minutes",
         "cycle",
         "measurements",
+        "criteria_in_words",
     }
-    m = next(s for s in d["steps"] if s["code"] == "pattern_plate_copper")["measurements"][0]
+    plating = next(s for s in d["steps"] if s["code"] == "pattern_plate_copper")
+    m, thin = plating["measurements"][:2]
+    # IPC-6012 hole copper, class 3: the average of the set >= 25 um, each reading (thin
+    # area) >= 20 um (from memory)
+    assert (thin["applies_to"], thin["min"], thin["in_words"]) == (
+        "each_reading",
+        20.0,
+        "each ≥ 20 µm",
+    )
+    assert plating["criteria_in_words"][0] == {
+        "quantity": "hole_wall_copper",
+        "in_words": "average of 5 samples ≥ 25 µm; each ≥ 20 µm",
+    }
     assert m == {
         "quantity": "hole_wall_copper",
         "unit": "um",
@@ -240,6 +253,8 @@ def test_dict_contract():
         "source": m["source"],
         "attribute": False,
         "deviation": False,
+        "applies_to": "mean",
+        "in_words": "average of 5 samples ≥ 25 µm",
     }
     assert json.loads(json.dumps(d)) == d
     assert d["lamination_cycles"] == 2 and d["aspect_ratio"] == 6.4
@@ -249,7 +264,12 @@ def test_text_table():
     text = routing_to_text(build_routing(make("eight_layer_buried")))
     lines = text.splitlines()
     assert lines[0].split()[:2] == ["seq", "code"]
-    assert any(line.strip().startswith("measure hole_wall_copper: min 25 um") for line in lines)
+    assert any(
+        line.strip().startswith(
+            "measure hole_wall_copper: average of 5 samples ≥ 25 µm; each ≥ 20 µm"
+        )
+        for line in lines
+    )
     assert "2 lamination cycle(s)" in text
 
 
@@ -258,15 +278,28 @@ def test_diff_routings():
     new_routing = build_routing(make(hard_gold_fingers=True))
     new_routing = apply_overrides(
         new_routing,
-        [Override("hole_wall_copper", "pattern_plate_copper", 22.0, None, None, "drawing note 4")],
+        [
+            Override(
+                "hole_wall_copper",
+                "pattern_plate_copper",
+                22.0,
+                None,
+                None,
+                "drawing note 4",
+                applies_to="mean",
+            )
+        ],
     )
     new = routing_to_dict(new_routing)
     lines = diff_routings(old, new)
     seq = next(s["seq"] for s in new["steps"] if s["code"] == "gold_plate")
     assert f"+ step {seq} gold_plate Finger hard gold plate" in lines
     assert any(
-        line.startswith("~ step") and "hole_wall_copper min 20 -> 22 um" in line for line in lines
+        line.startswith("~ step") and "hole_wall_copper (mean) min 20 -> 22 um" in line
+        for line in lines
     )
+    # only the average entry changed; the thin-area (each reading) entry kept its 18 um
+    assert not any("hole_wall_copper min" in line for line in lines)
     back = diff_routings(new, old)
     assert any(line.startswith("- step") and "gold_plate" in line for line in back)
     assert diff_routings(old, old) == []
