@@ -48,17 +48,9 @@ def judge_window(value: float, window: dict[str, Any]) -> Judgement:
 
 
 def describe_window(window: dict[str, Any]) -> str:
-    """'20 – 25 um (target 22)', '>= 20 um', '<= 0 count' for people."""
-    unit = window.get("unit", "")
-    lo, hi, target = window.get("min"), window.get("max"), window.get("target")
-    if lo is not None and hi is not None:
-        text = f"{lo:g} – {hi:g} {unit}"
-    elif lo is not None:
-        text = f"≥ {lo:g} {unit}"
-    elif hi is not None:
-        text = f"≤ {hi:g} {unit}"
-    else:
-        text = f"record only ({unit})"
-    if target is not None:
-        text += f" (target {target:g})"
-    return text
+    """A window (a plan entry, or a reading's snapshot with all criteria of its quantity)
+    in plain words, rounded to the quantity's resolution: 'average of 5 samples ≥ 25 µm;
+    each ≥ 20 µm', '33.8 – 57.5 µm (target 41.5 µm)'."""
+    from shopfloor.core import judging
+
+    return judging.describe_criteria(judging.criteria_of(window))

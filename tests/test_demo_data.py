@@ -44,6 +44,20 @@ def test_demo_loads_twice_without_duplicates(settings, django_capture_on_commit_
         "LOT-24111-1",
     }
     assert first["ncrs"] == 2
+    # each hold is a real failure under the plan's own criteria (IPC-6012 hole copper:
+    # the class figure bounds the average of the set, the thin-area figure each reading;
+    # from memory): one alert per failed set, citing every sample of it
+    from shopfloor.core import judging
+
+    for ncr in Nonconformance.objects.all():
+        readings = list(ncr.readings.order_by("sample_index"))
+        assert len(readings) >= 1
+        group = judging.group_plan(judging.criteria_of(readings[0].window))[0]
+        values = {r.sample_index: r.value for r in readings if r.superseded_by_id is None}
+        each_ok = all(judging.judge_each(v, group.entries).in_window for v in values.values())
+        verdict = judging.judge_set(values, group.set_entries, group.samples)
+        assert not each_ok or verdict.in_window is False
+    assert Alert.objects.filter(kind="out_of_window").count() == 2
     _check_materials_and_shipping()
     with django_capture_on_commit_callbacks(execute=True):
         call_command("load_demo")

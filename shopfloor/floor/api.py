@@ -238,8 +238,13 @@ class ReadingCreateView(JsonAPIView):
         description=(
             "Records one reading (value converted to the quantity's canonical unit) on the "
             "lot's current step, or on `step` when given; judges it against the step's "
-            "window and returns the window with its source. Instrument tokens may post only "
-            "at their own work center."
+            "window and returns the window with its source and its criteria in plain words. "
+            "A value outside its window, or implausibly far from it, is refused with 409 "
+            "(error `confirm_out_of_window`, saying what to confirm and, where another unit "
+            'would fit, which) unless the request carries `"confirm_out_of_window": true`; '
+            "the confirmation is stored with the reading. A reading that completes the "
+            "sample set returns the set's verdict. Instrument tokens may post only at their "
+            "own work center."
         ),
         request=ReadingInputSerializer,
         parameters=[IDEMPOTENCY_KEY, REPLAY_HEADER],
@@ -261,6 +266,7 @@ class ReadingCreateView(JsonAPIView):
             position=data.get("position") or "",
             equipment_id=data.get("equipment"),
             captured_at=data.get("captured_at"),
+            confirm_out_of_window=bool(data.get("confirm_out_of_window")),
         )
         via = "instrument" if is_instrument(request) else "api"
 
@@ -334,6 +340,8 @@ class ReadingCorrectView(JsonAPIView):
                 unit=data["unit"],
                 reason=data["reason"],
                 captured_at=data.get("captured_at"),
+                confirm_out_of_window=bool(data.get("confirm_out_of_window")),
+                lot_code=data.get("lot"),
             )
             return 201, ReadingSerializer(new).data
 

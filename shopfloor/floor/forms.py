@@ -75,6 +75,8 @@ class ReadingForm(TabletForm):
     position = forms.CharField(max_length=60, required=False, label="Position")
     equipment = forms.IntegerField(required=False, min_value=1, label="Gauge")
     captured_at = CapturedAtField(required=False, label="Capture time")
+    # Set by the Confirm button the typo guard offers; never ticked silently.
+    confirm_out_of_window = forms.BooleanField(required=False)
 
     def clean_value(self) -> str:
         value = self.cleaned_data["value"].strip()
@@ -88,6 +90,7 @@ class CorrectionForm(TabletForm):
     unit = forms.CharField(max_length=20, required=False, label="Unit")
     reason = forms.CharField(max_length=300, label="Reason")
     captured_at = CapturedAtField(required=False, label="Capture time")
+    confirm_out_of_window = forms.BooleanField(required=False)
 
 
 class CompleteForm(TabletForm):

@@ -116,6 +116,15 @@ class Reading(models.Model):
         help_text="The instrument's own key for this measurement (batch posts): a repeat "
         "with the same key on the same lot step returns this reading",
     )
+    # What the operator (or instrument) confirmed before an out-of-window or implausible
+    # value was stored: the very question the typo guard asked. Blank: nothing to confirm.
+    confirmation = models.CharField(max_length=400, blank=True)
+    # Set when this reading completed (or, as a correction, changed) a complete sample
+    # set: the set's verdict against its mean / smallest / largest / range criteria.
+    set_verdict = models.JSONField(null=True, blank=True)
+    # Identity of the criteria it was judged against (shopfloor.core.judging.spec_key):
+    # SPC series never mix readings judged against different windows.
+    spec_key = models.CharField(max_length=64, blank=True)
 
     class Meta:
         ordering = ["lot_step", "quantity", "sample_index", "recorded_at"]

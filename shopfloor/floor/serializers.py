@@ -142,6 +142,13 @@ class ReadingInputSerializer(serializers.Serializer):
         required=False, allow_null=True, min_value=1, max_value=MAX_ID
     )
     captured_at = AwareDateTimeField(required=False, allow_null=True)
+    confirm_out_of_window = serializers.BooleanField(
+        default=False,
+        help_text=(
+            "Store a value outside its window (or implausibly far from it) as entered. "
+            "Without it such a value is refused with 409 saying what to confirm."
+        ),
+    )
 
 
 class BatchItemSerializer(ReadingInputSerializer):
@@ -246,6 +253,14 @@ class CorrectionInputSerializer(serializers.Serializer):
         max_length=300, min_length=3, help_text="What was wrong with the first reading"
     )
     captured_at = AwareDateTimeField(required=False, allow_null=True)
+    confirm_out_of_window = serializers.BooleanField(
+        default=False, help_text="As for a new reading: store an out-of-window value as entered"
+    )
+    lot = serializers.CharField(
+        max_length=30,
+        required=False,
+        help_text="The lot the reading belongs to; a reading of another lot is refused (409)",
+    )
 
 
 class StepStartSerializer(serializers.Serializer):
@@ -332,6 +347,8 @@ class ReadingSerializer(serializers.ModelSerializer):
             "window",
             "superseded_by",
             "via",
+            "confirmation",
+            "set_verdict",
         ]
         read_only_fields = fields
 
@@ -405,5 +422,6 @@ def window_dict(m: dict[str, Any]) -> dict[str, Any]:
         "attribute": bool(m.get("attribute")),
         "deviation": bool(m.get("deviation")),
         "applies_to": judging.applies_to(m),
-        "in_words": judging.describe_entry(m),
+        # a reading's snapshot carries every criterion of its quantity in words
+        "in_words": m.get("in_words") or judging.describe_entry(m),
     }

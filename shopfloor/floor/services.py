@@ -25,6 +25,7 @@ from django.utils import timezone
 from shopfloor import throttle, units
 from shopfloor.audit import services as audit
 from shopfloor.core import materials as materials_core
+from shopfloor.core import judging
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
 from shopfloor.floor.models import (
     AcceptedQuantity,
@@ -46,8 +47,7 @@ from shopfloor.plant.models import (
     Qualification,
 )
 from shopfloor.quality import outbox
-from shopfloor.quality.models import OutboxEvent
-from shopfloor.windows import judge_window
+from shopfloor.quality.models import Hold, OutboxEvent
 
 log = logging.getLogger("shopfloor.floor")
 
@@ -269,8 +269,18 @@ def _lock_step(lot_step_id: int) -> tuple[LotStep, Lot]:
     return step, step.lot
 
 
-def _require_workable(step: LotStep, lot: Lot) -> None:
-    if lot.on_hold:
+def _require_workable(step: LotStep, lot: Lot, *, held_step_readings: bool = False) -> None:
+    """Refuse work on a held, finished or not-current step.
+
+    `held_step_readings`: a held lot still takes readings and corrections at the step
+    whose reading put it on hold (the rest of the sample set, so quality sees the whole
+    set, and corrections of typing slips); the hold itself stays until a disposition.
+    Costs one query, and only when the lot is on hold.
+    """
+    if lot.on_hold and not (
+        held_step_readings
+        and Hold.objects.filter(lot=lot, lot_step=step, released_at__isnull=True).exists()
+    ):
         raise Conflict(
             f"Lot {lot.code} is on hold. It cannot be worked until quality dispositions the "
             "nonconformance."
@@ -396,23 +406,38 @@ def missing_readings(step: LotStep) -> list[str]:
     ).values_list("quantity", "sample_index"):
         have.setdefault(quantity, set()).add(sample)
     missing: list[str] = []
-    for m in step.plan:
-        need = int(m.get("samples") or 1)
-        got = len({s for s in have.get(m["quantity"], set()) if 1 <= s <= need})
+    for group in judging.group_plan(step.plan):
+        need = group.samples
+        got = len({s for s in have.get(group.quantity, set()) if 1 <= s <= need})
         if got < need:
-            missing.append(f"{m['quantity']}: {got} of {need} samples")
+            missing.append(f"{group.quantity}: {got} of {need} samples")
     return missing
 
 
-def window_for(step: LotStep, quantity: str) -> dict[str, Any]:
-    for m in step.plan:
-        if m["quantity"] == quantity:
-            return dict(m)
-    allowed = ", ".join(m["quantity"] for m in step.plan) or "none (this step has no readings)"
+def quantity_plan(step: LotStep, quantity: str) -> judging.QuantityPlan:
+    """Every plan entry of `quantity` at this step (several when a quantity carries a set
+    criterion and an each-reading one), or InvalidInput naming what is measured here."""
+    for group in judging.group_plan(step.plan):
+        if group.quantity == quantity:
+            return group
+    allowed = ", ".join(g.quantity for g in judging.group_plan(step.plan))
+    allowed = allowed or "none (this step has no readings)"
     raise InvalidInput(
         f"'{quantity}' is not measured at '{step.name}'. Allowed here: {allowed}.",
         problems=[{"field": "quantity", "value": quantity, "allowed": allowed}],
     )
+
+
+def window_for(step: LotStep, quantity: str) -> dict[str, Any]:
+    """The window snapshot a reading of `quantity` stores (each-reading limits plus every
+    criterion of the quantity and its plain words)."""
+    return quantity_plan(step, quantity).window()
+
+
+class ConfirmationNeeded(Conflict):
+    """A value outside its window (or implausibly far from it) that was not confirmed."""
+
+    code = "confirm_out_of_window"
 
 
 @dataclass(frozen=True)
@@ -424,10 +449,62 @@ class ReadingInput:
     position: str = ""
     equipment_id: int | None = None
     captured_at: datetime | None = None
+    # The operator saw the typo guard's question and confirmed the value as entered.
+    confirm_out_of_window: bool = False
 
 
-def _parse_reading(step: LotStep, data: ReadingInput) -> tuple[dict[str, Any], float, datetime]:
-    window = window_for(step, data.quantity)
+# Units offered by the typo guard's "did you mean ...?", per canonical unit.
+_GUARD_UNITS: dict[str, tuple[str, ...]] = {
+    "um": ("µm", "mil", "µin", "mm"),
+    "mm": ("mm", "mil", "in", "µm"),
+}
+
+
+def _alternatives(quantity: str, number: Any, canonical: str) -> dict[str, float]:
+    """What the typed number would be under each other unit of the same dimension."""
+    out: dict[str, float] = {}
+    for unit in _GUARD_UNITS.get(canonical, ()):
+        try:
+            out[unit] = units.to_canonical(quantity, number, unit)
+        except (units.UnitError, ValueError):
+            continue
+    return out
+
+
+def _guard(group: judging.QuantityPlan, data: ReadingInput, value: float) -> str:
+    """The confirmation the typo guard needs for this value ('' when none); raises
+    ConfirmationNeeded (409) when it needs one and the input did not confirm."""
+    guard = judging.guard_value(
+        value,
+        str(data.value).strip(),
+        data.unit,
+        group.entries,
+        _alternatives(data.quantity, data.value, group.unit),
+    )
+    if guard is None:
+        return ""
+    if not data.confirm_out_of_window:
+        raise ConfirmationNeeded(
+            f"{data.quantity} sample {data.sample_index}: {guard.message} Nothing was saved; "
+            'send it again with "confirm_out_of_window": true to store it as entered.',
+            problems=[
+                {
+                    "field": "confirm_out_of_window",
+                    "value": str(data.value),
+                    "unit": data.unit,
+                    "problem": guard.message,
+                    "suggested_unit": guard.suggested_unit,
+                    "implausible": guard.implausible,
+                }
+            ],
+        )
+    return guard.message[:400]
+
+
+def _parse_reading(
+    step: LotStep, data: ReadingInput
+) -> tuple[judging.QuantityPlan, float, datetime, str]:
+    group = quantity_plan(step, data.quantity)
     try:
         value = units.to_canonical(data.quantity, data.value, data.unit)
     except (units.UnitError, ValueError) as exc:
@@ -443,7 +520,7 @@ def _parse_reading(step: LotStep, data: ReadingInput) -> tuple[dict[str, Any], f
                 }
             ],
         ) from exc
-    samples = int(window.get("samples") or 1)
+    samples = group.samples
     if not isinstance(data.sample_index, int) or not 1 <= data.sample_index <= max(samples, 1):
         raise InvalidInput(
             f"Sample {data.sample_index} is outside the plan: this step takes samples 1 to "
@@ -462,37 +539,51 @@ def _parse_reading(step: LotStep, data: ReadingInput) -> tuple[dict[str, Any], f
         raise InvalidInput("captured_at is more than 24 hours old; enter it as a correction.")
     if not math.isfinite(value):
         raise InvalidInput("The value must be a finite number.")
-    return window, value, captured
+    confirmation = _guard(group, data, value)
+    return group, value, captured, confirmation
+
+
+def _current_set(step: LotStep, quantity: str) -> dict[int, tuple[int, float]]:
+    """sample index -> (reading id, value) of the current readings of one quantity."""
+    return {
+        sample: (pk, value)
+        for sample, pk, value in Reading.objects.filter(
+            lot_step=step, quantity=quantity, superseded_by__isnull=True
+        ).values_list("sample_index", "pk", "value")
+    }
 
 
 def record_reading(
     *, person: Person, lot_step_id: int, data: ReadingInput, via: str = "tablet"
 ) -> Reading:
-    """Record one reading on the lot's current step, judge it, and queue the event."""
+    """Record one reading on the lot's current step, judge it, and queue the event.
+
+    Each-reading criteria judge it at once; when it completes the sample set, the set's
+    criteria (mean, smallest, largest, range) judge the set and the event carries the
+    verdict. A held lot takes the rest of the set at the held step.
+    """
     with transaction.atomic():
         step, lot = _lock_step(lot_step_id)
         check_assigned(person, step.work_center_id)
-        _require_workable(step, lot)
+        _require_workable(step, lot, held_step_readings=True)
         if step.status != LotStep.Status.IN_PROGRESS:
             raise Conflict(f"Start '{step.name}' before recording readings.")
-        window, value, captured = _parse_reading(step, data)
+        group, value, captured, confirmation = _parse_reading(step, data)
         equipment = None
         if data.equipment_id is not None:
             equipment = _usable_equipment(data.equipment_id, step.work_center_id)
-        existing = Reading.objects.filter(
-            lot_step=step,
-            quantity=data.quantity,
-            sample_index=data.sample_index,
-            superseded_by__isnull=True,
-        ).first()
+        current = _current_set(step, data.quantity)  # also the duplicate-sample check
+        existing = current.get(data.sample_index)
         if existing is not None:
             # A second value for the same sample is a correction, which needs a reason.
+            old_value = units.format_value(data.quantity, existing[1])
             raise Conflict(
                 f"Sample {data.sample_index} of {data.quantity} already has a reading "
-                f"({existing.value:g} {existing.unit}). To change it, record a correction "
-                "with a reason."
+                f"({old_value}). To change it, record a correction with a reason."
             )
-        reading = _store_reading(step, lot, person, data, window, value, captured, equipment, via)
+        reading = _store_reading(
+            step, lot, person, data, group, value, captured, equipment, via, confirmation, current
+        )
         return reading
 
 
@@ -501,13 +592,32 @@ def _store_reading(
     lot: Lot,
     person: Person,
     data: ReadingInput,
-    window: dict[str, Any],
+    group: judging.QuantityPlan,
     value: float,
     captured: datetime,
     equipment: Equipment | None,
     via: str,
+    confirmation: str,
+    current: dict[int, tuple[int, float]],
+    corrected: int | None = None,
 ) -> Reading:
-    judgement = judge_window(value, window)
+    judgement = judging.judge_each(value, group.entries)
+    window = group.window()
+    members = {i: v for i, (_, v) in current.items()}
+    members[data.sample_index] = value
+    set_info: dict[str, Any] | None = None
+    if group.set_entries:
+        verdict = judging.judge_set(members, group.set_entries, group.samples)
+        if verdict.complete:
+            set_info = {
+                "in_window": verdict.in_window,
+                "message": verdict.message,
+                "figures": [
+                    {"applies_to": v.applies_to, "figure": v.figure, "in_window": v.in_window}
+                    for v in verdict.verdicts
+                ],
+                "values": {str(i): members[i] for i in sorted(members)},
+            }
     reading = Reading.objects.create(
         lot_step=step,
         quantity=data.quantity,
@@ -523,7 +633,31 @@ def _store_reading(
         window=window,
         in_window=judgement.in_window,
         via=via,
+        confirmation=confirmation,
+        set_verdict=set_info,
+        spec_key=judging.spec_key(group.entries),
     )
+    payload: dict[str, Any] = {
+        "reading": reading.pk,
+        "lot": lot.pk,
+        "lot_step": step.pk,
+        "in_window": judgement.in_window,
+        "message": judgement.message,
+    }
+    if set_info is not None:
+        payload["set"] = {
+            **set_info,
+            "readings": sorted([*(pk for pk, _ in current.values()), reading.pk]),
+        }
+    if corrected is not None or lot.on_hold:
+        # what the handler needs to cite the set on the NCR and to see whether a
+        # correction brought it back inside
+        payload["set_so_far"] = sorted([*(pk for pk, _ in current.values()), reading.pk])
+        payload["each_in_window"] = all(
+            judging.judge_each(v, group.entries).in_window for v in members.values()
+        )
+    if corrected is not None:
+        payload["corrects"] = corrected
     audit.record(
         actor=person.user,
         action="reading.recorded",
@@ -538,18 +672,11 @@ def _store_reading(
             "sample": reading.sample_index,
             "in_window": reading.in_window,
             "source": window.get("source"),
+            **({"confirmed": confirmation} if confirmation else {}),
+            **({"set_in_window": payload["set"]["in_window"]} if "set" in payload else {}),
         },
     )
-    event = OutboxEvent.objects.create(
-        kind="reading.recorded",
-        payload={
-            "reading": reading.pk,
-            "lot": lot.pk,
-            "lot_step": step.pk,
-            "in_window": judgement.in_window,
-            "message": judgement.message,
-        },
-    )
+    event = OutboxEvent.objects.create(kind="reading.recorded", payload=payload)
     outbox.enqueue(event)
     return reading
 
@@ -562,20 +689,38 @@ def correct_reading(
     unit: str,
     reason: str,
     captured_at: datetime | None = None,
+    confirm_out_of_window: bool = False,
+    lot_code: str | None = None,
 ) -> Reading:
-    """Supersede a reading with a new one; both stay in history with the reason."""
+    """Supersede a reading with a new one; both stay in history with the reason.
+
+    Allowed on a held lot at the held step (a typing slip found after the hold). When
+    the correction brings the set back inside, the event handler notes it on the NCR so
+    quality can close it as a recording error. `lot_code`, when given, must be the
+    reading's lot (a correction sent for the wrong lot is refused, nothing saved).
+    """
     reason = (reason or "").strip()
     if len(reason) < 3:
         raise InvalidInput("A correction needs a reason (what was wrong with the first reading).")
     with transaction.atomic():
-        old = Reading.objects.select_for_update(no_key=True).filter(pk=reading_id).first()
+        old = (
+            Reading.objects.select_for_update(no_key=True, of=("self",))
+            .select_related("lot_step__lot")
+            .filter(pk=reading_id)
+            .first()
+        )
         if old is None:
             raise NotFound(f"No reading {reading_id}.")
+        if lot_code is not None and old.lot_step.lot.code.upper() != lot_code.strip().upper():
+            raise Conflict(
+                f"Reading {reading_id} belongs to lot {old.lot_step.lot.code}, not {lot_code}; "
+                "nothing was changed. Correct a reading of the lot in front of you."
+            )
         if old.superseded_by_id is not None:
             raise Conflict("That reading was already corrected; correct the newest one instead.")
         step, lot = _lock_step(old.lot_step_id)
         check_assigned(person, step.work_center_id)
-        _require_workable(step, lot)
+        _require_workable(step, lot, held_step_readings=True)
         data = ReadingInput(
             quantity=old.quantity,
             value=value,
@@ -584,11 +729,26 @@ def correct_reading(
             position=old.position,
             equipment_id=old.equipment_id,
             captured_at=captured_at,
+            confirm_out_of_window=confirm_out_of_window,
         )
-        window, canonical, captured = _parse_reading(step, data)
+        group, canonical, captured, confirmation = _parse_reading(step, data)
         equipment = old.equipment
+        current = _current_set(step, old.quantity)
+        current.pop(old.sample_index, None)
+        # Supersede first so the new reading is the only current one of its sample.
         new = _store_reading(
-            step, lot, person, data, window, canonical, captured, equipment, "correction"
+            step,
+            lot,
+            person,
+            data,
+            group,
+            canonical,
+            captured,
+            equipment,
+            "correction",
+            confirmation,
+            current,
+            corrected=old.pk,
         )
         old.superseded_by = new
         old.correction_reason = reason[:300]

@@ -28,6 +28,7 @@ from django.views.decorators.http import require_GET, require_http_methods, requ
 
 from shopfloor import access as read_scope
 from shopfloor import throttle, units
+from shopfloor.core import judging
 from shopfloor.errors import DomainError, InvalidInput, NotFound
 from shopfloor.floor import batch, csv_upload, forms, idempotency, services, traveller
 from shopfloor.floor.api import problems_from
@@ -37,7 +38,6 @@ from shopfloor.floor.serializers import batch_items
 from shopfloor.orders.services import lots_for_scan
 from shopfloor.plant.models import Equipment, Lot, Person, WorkCenter
 from shopfloor.quality import access
-from shopfloor.windows import describe_window
 
 OPEN_STATUSES = [LotStep.Status.WAITING, LotStep.Status.IN_PROGRESS, LotStep.Status.PAUSED]
 
@@ -190,10 +190,26 @@ class SampleRow:
     equipment: list[Equipment]
     error: str = ""
     entered: dict[str, Any] = field(default_factory=dict)
+    # The typo guard's question when the value needs confirming (the row offers Confirm).
+    confirm: str = ""
+    # Lines for the running set figure ("mean so far 26.2 µm, needs ≥ 25 µm"), sent with
+    # a row so the measurement's summary refreshes when one sample is recorded (htmx oob).
+    running: list[str] | None = None
 
     @property
     def quantity(self) -> str:
         return str(self.measurement["quantity"])
+
+    @property
+    def running_id(self) -> str:
+        return f"run-{self.step.pk}-{self.quantity}"
+
+    @property
+    def stored_text(self) -> str:
+        """The stored value rounded to the quantity's resolution (stored exactly)."""
+        if self.current is None:
+            return ""
+        return judging.for_people(self.quantity, self.current.value, self.current.unit)
 
     @property
     def row_id(self) -> str:
@@ -213,6 +229,11 @@ class PlanItem:
     window_text: str
     source: str
     rows: list[SampleRow]
+    running: list[str] = field(default_factory=list)
+
+    @property
+    def running_id(self) -> str:
+        return self.rows[0].running_id if self.rows else ""
 
     @property
     def label(self) -> str:
@@ -255,37 +276,59 @@ def _sample_row(
     )
 
 
+def _running(step: LotStep, group: judging.QuantityPlan, readings: list[Reading]) -> list[str]:
+    values = {r.sample_index: r.value for r in readings if r.superseded_by_id is None}
+    return judging.running_text(values, group.set_entries, group.samples)
+
+
+def _of_quantity(grouped: dict[tuple[str, int], list[Reading]], quantity: str) -> list[Reading]:
+    return [r for (q, _), rs in grouped.items() if q == quantity for r in rs]
+
+
 def _plan(step: LotStep) -> list[PlanItem]:
     equipment = _equipment(step)
     grouped = _readings_by_sample(step)
     items = []
-    for m in step.plan:
-        samples = int(m.get("samples") or 1)
+    for group in judging.group_plan(step.plan):
+        m = group.window()
         rows = [
-            _sample_row(step, m, s, grouped.get((m["quantity"], s), []), equipment)
-            for s in range(1, samples + 1)
+            _sample_row(step, m, s, grouped.get((group.quantity, s), []), equipment)
+            for s in range(1, group.samples + 1)
         ]
         items.append(
             PlanItem(
                 measurement=m,
-                window_text=describe_window(m),
-                source=traveller.window_source(m),
+                window_text=group.words,
+                source="; ".join(dict.fromkeys(traveller.window_source(e) for e in group.entries)),
                 rows=rows,
+                running=_running(
+                    step,
+                    group,
+                    [r for rs in grouped.values() for r in rs if r.quantity == group.quantity],
+                ),
             )
         )
     return items
 
 
 def _single_row(step: LotStep, quantity: str, sample: int, **extra: Any) -> SampleRow | None:
-    m = next((m for m in step.plan if m["quantity"] == quantity), None)
-    if m is None:
+    group = next((g for g in judging.group_plan(step.plan) if g.quantity == quantity), None)
+    if group is None:
         return None
     readings = list(
-        Reading.objects.filter(lot_step=step, quantity=quantity, sample_index=sample)
+        Reading.objects.filter(lot_step=step, quantity=quantity)
         .select_related("equipment", "operator")
         .order_by("recorded_at", "pk")
     )
-    return _sample_row(step, m, sample, readings, _equipment(step), **extra)
+    extra.setdefault("running", _running(step, group, readings))
+    return _sample_row(
+        step,
+        group.window(),
+        sample,
+        [r for r in readings if r.sample_index == sample],
+        _equipment(step),
+        **extra,
+    )
 
 
 def _step_records(lot: Lot, step: LotStep | None) -> dict[str, Any]:
@@ -570,6 +613,15 @@ def _row_response(
     return render(request, "floor/_sample_row.html", {"row": row}, status=status)
 
 
+def _refusal_fields(exc: DomainError, entered: dict[str, Any]) -> dict[str, Any]:
+    """A refused reading's row: the message, what was typed, and (typo guard) the
+    question to confirm, so the operator can Confirm or Re-enter in place."""
+    if isinstance(exc, services.ConfirmationNeeded):
+        question = exc.problems[0]["problem"] if exc.problems else exc.detail
+        return {"error": "", "confirm": question, "entered": entered}
+    return {"error": exc.detail, "entered": entered}
+
+
 @login_required
 @require_POST
 def record_reading(request: HttpRequest, step_id: int) -> HttpResponse:
@@ -586,7 +638,10 @@ def record_reading(request: HttpRequest, step_id: int) -> HttpResponse:
         sample = int(request.POST.get("sample_index", "1"))
     except ValueError:
         sample = 1
-    entered = {k: request.POST.get(k, "") for k in ("value", "unit", "position", "equipment")}
+    entered = {
+        k: request.POST.get(k, "")
+        for k in ("value", "unit", "position", "equipment", "captured_at")
+    }
     try:
         if not form.is_valid():
             raise InvalidInput(form.error_text())
@@ -604,13 +659,14 @@ def record_reading(request: HttpRequest, step_id: int) -> HttpResponse:
                     position=data["position"] or "",
                     equipment_id=data["equipment"],
                     captured_at=data["captured_at"],
+                    confirm_out_of_window=bool(data.get("confirm_out_of_window")),
                 ),
             )
             return 201, {"reading": reading.pk, "in_window": reading.in_window}
 
         outcome = _run(request, form, action)
     except DomainError as exc:
-        row = _single_row(step, quantity, sample, error=exc.detail, entered=entered)
+        row = _single_row(step, quantity, sample, **_refusal_fields(exc, entered))
         if row is None:
             return _refuse_page(request, person, step.lot, exc.detail, exc.status)
         return _row_response(request, row, step.lot, exc.status)
@@ -654,12 +710,13 @@ def correct_reading(request: HttpRequest, reading_id: int) -> HttpResponse:
                 unit=data["unit"] or "",
                 reason=data["reason"],
                 captured_at=data["captured_at"],
+                confirm_out_of_window=bool(data.get("confirm_out_of_window")),
             )
             return 201, {"reading": new.pk, "in_window": new.in_window}
 
         outcome = _run(request, form, action)
     except DomainError as exc:
-        row = _single_row(step, old.quantity, old.sample_index, error=exc.detail, entered=entered)
+        row = _single_row(step, old.quantity, old.sample_index, **_refusal_fields(exc, entered))
         return _row_response(request, row, step.lot, exc.status)
     return _row_response(
         request, _single_row(step, old.quantity, old.sample_index), step.lot, outcome.status

@@ -510,6 +510,11 @@ def disposition_ncr(
     from shopfloor.floor.services import verify_pin
 
     _require_quality(person, "disposition a nonconformance")
+    # A recording error (only when a correction brought the set back inside, see
+    # Nonconformance.correction_note) keeps every panel as it is, like use as is.
+    recording = disposition == Nonconformance.Disposition.RECORDING_ERROR
+    if recording:
+        disposition = USE_AS_IS
     note = (note or "").strip()
     if len(note) < 3:
         raise InvalidInput("A disposition needs a note (at least 3 characters) saying why.")
@@ -555,6 +560,12 @@ def disposition_ncr(
         if ncr.status != Nonconformance.Status.OPEN:
             raise Conflict(
                 f"{ncr.number} was already dispositioned ({ncr.get_disposition_display().lower()})."
+            )
+        if recording and not ncr.correction_note:
+            raise Conflict(
+                f"{ncr.number} cannot be closed as a recording error: no correction has "
+                "brought its set back inside. Use as is, rework or scrap it, or record the "
+                "correction first."
             )
         held = (
             LotStep.objects.select_for_update(no_key=True)
@@ -603,6 +614,8 @@ def disposition_ncr(
             detail.update(_scrap(ncr, lot, held, live, scrap_ids, person, scrap_reason))
         now = timezone.now()
         ncr.disposition = actions.pop() if len(actions) == 1 else MIXED
+        if recording:
+            ncr.disposition = Nonconformance.Disposition.RECORDING_ERROR
         ncr.dispositioned_at = now
         ncr.status = Nonconformance.Status.CLOSED
         ncr.root_cause = cause

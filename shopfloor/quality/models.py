@@ -102,6 +102,9 @@ class Nonconformance(models.Model):
         REWORK = "rework", "Rework"
         SCRAP = "scrap", "Scrap"
         MIXED = "mixed", "Per panel (mixed)"
+        # Only when a correction brought the set back inside (correction_note is set):
+        # the product was never out of window, the first entry was a recording slip.
+        RECORDING_ERROR = "recording_error", "Recording error (corrected)"
 
     number = models.CharField(max_length=20, unique=True)
     lot = models.ForeignKey("plant.Lot", on_delete=models.PROTECT, related_name="ncrs")
@@ -111,9 +114,11 @@ class Nonconformance(models.Model):
     )
     readings = models.ManyToManyField("floor.Reading", blank=True, related_name="ncrs")
     description = models.TextField()
+    # Written by the event handler when a correction brought the set back inside.
+    correction_note = models.TextField(blank=True)
     status = models.CharField(max_length=10, choices=Status.choices, default=Status.OPEN)
     opened_at = models.DateTimeField(default=timezone.now)
-    disposition = models.CharField(max_length=12, choices=Disposition.choices, blank=True)
+    disposition = models.CharField(max_length=16, choices=Disposition.choices, blank=True)
     disposition_note = models.TextField(blank=True)
     dispositioned_at = models.DateTimeField(null=True, blank=True)
     disposition_signature = models.OneToOneField(

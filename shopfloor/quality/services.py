@@ -187,18 +187,71 @@ def _handle_reading(event: OutboxEvent) -> list[Alert]:
     if reading is None:
         log.warning("outbox event %s names reading %r, which does not exist", event.pk, reading_id)
         return []
+    payload = event.payload or {}
+    set_info = payload.get("set") if isinstance(payload.get("set"), dict) else None
+    set_failed = set_info is not None and set_info.get("in_window") is False
     alerts: list[Alert] = []
-    if not reading.in_window:
-        alert = _out_of_window(event, reading)
+    if not reading.in_window or set_failed:
+        alert = _out_of_window(event, reading, set_info if set_failed else None)
         if alert is not None:
             alerts.append(alert)
+    elif payload.get("set_so_far"):
+        # A held lot's remaining samples, or a correction: cite them on the open NCR of
+        # the step, and say so when a correction brought the set back inside.
+        _cite_on_open_ncr(reading, payload)
     drift = series_core.add_point(reading)
-    if reading.in_window:  # an out-of-window reading already has its alert and hold
+    if reading.in_window and not set_failed:  # out of window: already alerted and held
         for signal in drift:
             alert = _drift_alert(reading, signal)
             if alert is not None:
                 alerts.append(alert)
     return alerts
+
+
+def _set_text(step: LotStep, quantity: str) -> tuple[list[Reading], str]:
+    """The current readings of a quantity's set at a step, and 'samples 1: 27.9 µm, ...'."""
+    from shopfloor.core import judging
+
+    members = list(
+        Reading.objects.filter(lot_step=step, quantity=quantity, superseded_by__isnull=True)
+        .order_by("sample_index")
+        .only("pk", "sample_index", "value", "unit", "quantity")
+    )
+    text = ", ".join(
+        f"{r.sample_index}: {judging.for_people(r.quantity, r.value, r.unit)}" for r in members
+    )
+    return members, text
+
+
+def _cite_on_open_ncr(reading: Reading, payload: dict[str, Any]) -> None:
+    step = reading.lot_step
+    ncr = Nonconformance.objects.filter(
+        lot_step=step, status=Nonconformance.Status.OPEN, readings__quantity=reading.quantity
+    ).first()
+    if ncr is None:
+        return
+    ncr.readings.add(reading)
+    if not payload.get("corrects") or not payload.get("each_in_window"):
+        return
+    set_info = payload.get("set")
+    if isinstance(set_info, dict) and set_info.get("in_window") is False:
+        return
+    _members, text = _set_text(step, reading.quantity)
+    complete = "complete set" if isinstance(set_info, dict) else "samples recorded so far"
+    note = (
+        f"A correction (reading {payload['corrects']} -> {reading.pk}) brought the "
+        f"{reading.quantity} {complete} back inside ({reading.window.get('in_words', '')}): "
+        f"samples {text}. Quality may close this NCR as a recording error."
+    )
+    ncr.correction_note = note[:2000]
+    ncr.save(update_fields=["correction_note"])
+    audit.record(
+        actor=None,
+        action="ncr.correction_noted",
+        object_type="ncr",
+        object_id=ncr.pk,
+        after={"number": ncr.number, "reading": reading.pk, "note": note},
+    )
 
 
 def _lot_job(lot: Lot) -> Job | None:
@@ -265,23 +318,41 @@ def _hold(lot: Lot, step: LotStep | None, alert: Alert, ncr: Nonconformance, rea
     return hold
 
 
-def _out_of_window(event: OutboxEvent, reading: Reading) -> Alert | None:
+def _out_of_window(
+    event: OutboxEvent, reading: Reading, set_info: dict[str, Any] | None
+) -> Alert | None:
+    """One alert, hold and NCR per sample set, citing all its samples.
+
+    A reading outside an each-reading window alerts at once; a complete set outside a
+    set criterion (mean, smallest, largest, range) alerts when it completes. Either way
+    the dedupe key is the set's (lot step and quantity), so a second bad sample of the
+    same set joins the open NCR instead of raising a second alert and hold.
+    """
     step = reading.lot_step
     lot = Lot.objects.select_for_update(no_key=True).get(pk=step.lot_id)
     window = reading.window or {}
-    detail = (event.payload or {}).get("message") or "outside its window"
+    if set_info is not None:
+        detail = str(set_info.get("message") or "the set is outside its window")
+    else:
+        detail = (event.payload or {}).get("message") or "outside its window"
+        detail = f"sample {reading.sample_index}: {detail}"
     source = window.get("source") or "no source recorded"
+    members, samples = _set_text(step, reading.quantity)
+    criteria = window.get("in_words") or ""
     message = (
         f"Lot {lot.code} at '{step.name}' ({step.work_center.name}): {reading.quantity} "
-        f"sample {reading.sample_index}: {detail} (window source: {source}). "
-        "The lot is on hold until quality dispositions the NCR."
+        f"{detail}. Samples {samples}"
+        f"{' (' + criteria + ')' if criteria else ''} (window source: {source}). "
+        "The lot is on hold until quality dispositions the NCR; the rest of the set and "
+        "corrections may still be recorded."
     )
-    severity = severity_for(reading.value, window)
+    entry, figure = _failing_entry(window, set_info, reading.value)
+    severity = Alert.Severity.CRITICAL if window.get("attribute") else severity_for(figure, entry)
     alert = _create_alert(
         kind=Alert.Kind.OUT_OF_WINDOW,
         severity=severity,
         event=event,
-        dedupe_key=f"reading:{reading.pk}:out_of_window",
+        dedupe_key=f"set:{step.pk}:{reading.quantity}:out_of_window"[:120],
         lot=lot,
         lot_step=step,
         job=_lot_job(lot),
@@ -293,19 +364,41 @@ def _out_of_window(event: OutboxEvent, reading: Reading) -> Alert | None:
             "lot": lot.code,
             "reading": reading.pk,
             "event": event.pk,
+            "samples": [r.pk for r in members],
         },
     )
     if alert is None:
+        # The set already has its alert: this sample joins that NCR (quality sees it).
+        ncr = Nonconformance.objects.filter(
+            lot_step=step, alert__dedupe_key=f"set:{step.pk}:{reading.quantity}:out_of_window"
+        ).first()
+        if ncr is not None:
+            ncr.readings.add(reading)
         return None
     ncr = _open_ncr(
         lot,
         step,
         alert,
-        f"{reading.quantity} out of window at '{step.name}': {detail} (source: {source})",
+        f"{reading.quantity} out of window at '{step.name}': {detail}. Samples {samples} "
+        f"(source: {source})",
     )
-    ncr.readings.add(reading)
-    _hold(lot, step, alert, ncr, f"Reading {reading.pk} out of window ({detail})")
+    ncr.readings.add(*members)
+    _hold(lot, step, alert, ncr, f"{reading.quantity} set out of window ({detail})")
     return alert
+
+
+def _failing_entry(
+    window: dict[str, Any], set_info: dict[str, Any] | None, value: float
+) -> tuple[dict[str, Any], float]:
+    """The criterion and figure a severity is measured with: the failed set criterion and
+    its figure (the mean, ...), or the reading's own each-reading limits and value."""
+    failed = next((f for f in (set_info or {}).get("figures", []) if not f.get("in_window")), None)
+    if failed is None:
+        return window, value
+    for entry in window.get("criteria") or []:
+        if (entry.get("applies_to") or "each_reading") == failed.get("applies_to"):
+            return dict(entry), float(failed["figure"])
+    return window, value
 
 
 def _drift_alert(reading: Reading, signal: series_core.DriftSignal) -> Alert | None:

@@ -62,7 +62,10 @@ def test_reading_is_converted_judged_and_returns_window_with_source(
     assert data["unit"] == "um"
     assert data["entered_value"] == "0.8" and data["entered_unit"] == "mil"
     assert data["in_window"] is True
-    assert data["window"]["min"] == pytest.approx(20.0)
+    # IPC-6012 class 2 hole copper: the average of the set >= 20 um, each reading (thin
+    # area) >= 18 um (from memory); the reading itself is judged against the 18 um
+    assert data["window"]["min"] == pytest.approx(18.0)
+    assert data["window"]["in_words"] == "average of 5 samples ≥ 20 µm; each ≥ 18 µm"
     assert "IPC-6012" in data["window"]["source"]
     assert data["step"] == plating.pk and data["lot"] == floor.lot.code
     assert data["via"] == "api"
@@ -70,11 +73,30 @@ def test_reading_is_converted_judged_and_returns_window_with_source(
 
 
 def test_reading_below_the_class_2_minimum_is_out_of_window(floor, plating, operator_client):
-    # 0.7 mil = 17.78 µm, under the 20 µm class 2 minimum.
+    # 0.7 mil = 17.78 µm, under the 18 µm class 2 thin-area minimum (IPC-6012, from memory)
     reply = operator_client.post(URL, body(floor, value="0.7"), format="json")
+    # the typo guard: nothing saved, and the reply says what to confirm
+    assert reply.status_code == 409
+    assert reply.json()["error"] == "confirm_out_of_window"
+    assert "0.7 mil = 17.8 µm is below" in reply.json()["detail"]
+    assert '"confirm_out_of_window": true' in reply.json()["detail"]
+    assert Reading.objects.count() == 0
+    reply = operator_client.post(
+        URL, body(floor, value="0.7", confirm_out_of_window=True), format="json"
+    )
     assert reply.status_code == 201
     assert reply.json()["value"] == pytest.approx(17.78)
     assert reply.json()["in_window"] is False
+    assert reply.json()["confirmation"].startswith("0.7 mil = 17.8 µm is below")
+
+
+def test_typo_guard_suggests_the_unit_that_fits(floor, plating, operator_client):
+    # 1.1 typed as um, meant as mil: 1.1 mil = 27.94 um (1 mil = 25.4 um exactly) fits
+    reply = operator_client.post(URL, body(floor, value="1.1", unit="um"), format="json")
+    assert reply.status_code == 409
+    assert "Did you mean 1.1 mil?" in reply.json()["detail"]
+    assert reply.json()["problems"][0]["suggested_unit"] == "mil"
+    assert Reading.objects.count() == 0
 
 
 BAD_INPUTS = [
@@ -212,7 +234,9 @@ def test_withdrawn_or_wrong_token_is_401(floor, plating):
 
 
 def test_correction_supersedes_with_reason(floor, plating, operator_client):
-    first = operator_client.post(URL, body(floor, value=0.7), format="json").json()
+    first = operator_client.post(
+        URL, body(floor, value=0.7, confirm_out_of_window=True), format="json"
+    ).json()
     reply = operator_client.post(
         f"/api/v1/readings/{first['id']}/correct/",
         {"value": 21.0, "unit": "um", "reason": "probe not seated"},

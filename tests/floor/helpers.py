@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from shopfloor.core import judging
 from shopfloor.floor import services
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Lot, Person
@@ -12,8 +13,9 @@ def finish_step(person: Person, step: LotStep) -> None:
     """Start and sign one step, recording in-window readings (each window's middle)."""
     if step.status != LotStep.Status.IN_PROGRESS:
         services.start_step(person=person, lot_step_id=step.pk)
-    for m in step.plan:
-        for sample in range(1, int(m.get("samples") or 1) + 1):
+    for group in judging.group_plan(step.plan):
+        m = group.window()
+        for sample in range(1, group.samples + 1):
             services.record_reading(
                 person=person,
                 lot_step_id=step.pk,
@@ -63,8 +65,17 @@ def accept_all(person: Person, step: LotStep) -> None:
     )
 
 
+def _tightest(m: dict) -> tuple:
+    """The narrowest limits over every criterion of a window (mean, each reading, ...)."""
+    entries = [e for e in (m.get("criteria") or [m]) if e.get("applies_to") != "range"]
+    lows = [e["min"] for e in entries if e.get("min") is not None]
+    highs = [e["max"] for e in entries if e.get("max") is not None]
+    return (max(lows) if lows else None), (min(highs) if highs else None)
+
+
 def in_window_value(m: dict) -> float:
-    lo, hi, target = m.get("min"), m.get("max"), m.get("target")
+    """A value inside every criterion of the window (a plan entry or a reading window)."""
+    (lo, hi), target = _tightest(m), m.get("target")
     if target is not None:
         return float(target)
     if lo is not None and hi is not None:

@@ -34,6 +34,8 @@ pytestmark = pytest.mark.django_db
 
 def reading(step, quantity, value, sample=1, unit=None, **kw):
     m = next(m for m in step.plan if m["quantity"] == quantity)
+    # these tests are about what happens to a recorded value; the typo guard has its own
+    kw.setdefault("confirm_out_of_window", True)
     return services.ReadingInput(
         quantity=quantity, value=value, unit=unit or m["unit"], sample_index=sample, **kw
     )

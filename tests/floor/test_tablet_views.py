@@ -272,8 +272,25 @@ def test_in_and_out_of_window_feedback(op_client, started):
             "idempotency_key": "r-out",
         },
     )
+    # Out of window: the typo guard asks first and stores nothing (409 with Confirm).
+    assert r.status_code == 409
+    assert "Check this value:" in text(r) and 'name="confirm_out_of_window"' in text(r)
+    assert Reading.objects.filter(lot_step=started).count() == 1
+    r = htmx_post(
+        op_client,
+        reading_url(started),
+        {
+            "quantity": m["quantity"],
+            "sample_index": 2,
+            "value": str(m["min"] - 0.01),
+            "unit": "um",
+            "idempotency_key": "r-out",
+            "confirm_out_of_window": "1",
+        },
+    )
     assert r.status_code == 201
     body = text(r)
+    assert "Confirmed as entered:" in body
     assert "OUT OF WINDOW" in body and "Quality will be alerted; the lot will be held." in body
     assert 'class="sample-row bad"' in body
     assert Reading.objects.filter(lot_step=started).count() == 2
@@ -402,7 +419,13 @@ def test_correction_supersedes_and_shows_old_struck_through(op_client, started):
     htmx_post(
         op_client,
         reading_url(started),
-        {"quantity": "surface_copper", "sample_index": 1, "value": "20", "unit": "um"},
+        {
+            "quantity": "surface_copper",
+            "sample_index": 1,
+            "value": "20",
+            "unit": "um",
+            "confirm_out_of_window": "1",
+        },
     )
     old = Reading.objects.get(lot_step=started)
     url = f"/floor/readings/{old.pk}/correct/"
@@ -446,10 +469,12 @@ def test_non_htmx_reading_post_redirects_back(op_client, started):
 
 
 def fill_plan(step: LotStep, person: Person) -> None:
+    from shopfloor.core import judging
     from shopfloor.floor import services
 
-    for m in step.plan:
-        for s in range(1, int(m.get("samples") or 1) + 1):
+    for group in judging.group_plan(step.plan):
+        m = group.window()
+        for s in range(1, group.samples + 1):
             services.record_reading(
                 person=person,
                 lot_step_id=step.pk,

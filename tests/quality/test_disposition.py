@@ -30,8 +30,13 @@ def _held(floor, lot=None):
 def test_use_as_is_releases_hold_with_signature(floor):
     step, ncr = _held(floor)
     qe = floor.personas["quality_engineer"]
-    with pytest.raises(Conflict):  # held: the floor refuses work
-        kit.record(floor, step, "surface_copper", 41.0, sample=2)
+    with pytest.raises(Conflict, match="on hold"):  # held: the step cannot be signed off
+        floor_services.complete_step(
+            person=floor.personas["operator"], lot_step_id=step.pk, pin=PIN
+        )
+    # ... but the rest of the set may still be recorded at the held step (quality sees
+    # the whole set on the NCR)
+    kit.record(floor, step, "surface_copper", 41.0, sample=2)
 
     services.disposition_ncr(
         qe,
@@ -51,7 +56,7 @@ def test_use_as_is_releases_hold_with_signature(floor):
     sig = Signature.objects.get(meaning="dispositioned_by")
     assert sig.pk == ncr.disposition_signature_id and sig.signer == qe
     assert AuditEntry.objects.filter(action="ncr.dispositioned").count() == 1
-    kit.record(floor, step, "surface_copper", 41.0, sample=2)  # workable again
+    kit.record(floor, step, "surface_copper", 41.0, sample=3)  # workable again
     with pytest.raises(Conflict):
         services.disposition_ncr(
             qe,

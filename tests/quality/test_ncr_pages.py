@@ -311,9 +311,11 @@ def test_only_the_disposition_releases_the_hold(floor, held):
     step, ncr, _ = held
     operator = _client(floor.personas["operator"])
     sample2 = {"quantity": "surface_copper", "value": "41", "unit": "um", "sample_index": "2"}
-    # Working the lot is refused while held, however often it is tried.
+    # Signing the step off is refused while held, however often it is tried.
     for _ in range(2):
-        reply = operator.post(f"/floor/steps/{step.pk}/readings/", sample2)
+        reply = operator.post(
+            f"/floor/steps/{step.pk}/complete/", {"pin": PIN, "meaning": "performed_by"}
+        )
         assert reply.status_code == 409 and "on hold" in reply.content.decode()
         assert _on_floor_held(floor)
     supervisor = _client(floor.personas["supervisor"])
@@ -325,6 +327,7 @@ def test_only_the_disposition_releases_the_hold(floor, held):
     )
     assert Hold.objects.get(ncr=ncr).released_at is not None
     assert not _on_floor_held(floor)
+    # the rest of the set could be recorded while held, and still can after release
     reply = operator.post(f"/floor/steps/{step.pk}/readings/", sample2)
     assert reply.status_code == 302
     assert Reading.objects.filter(lot_step=step, sample_index=2).exists()

@@ -45,8 +45,13 @@ def record(
     return floor_services.record_reading(
         person=floor.personas["operator"],
         lot_step_id=step.pk,
+        # out-of-window values here are deliberate (the typo guard has its own tests)
         data=floor_services.ReadingInput(
-            quantity=quantity, value=value, unit=unit, sample_index=sample
+            quantity=quantity,
+            value=value,
+            unit=unit,
+            sample_index=sample,
+            confirm_out_of_window=True,
         ),
     )
 

@@ -23,6 +23,7 @@ from django.utils import timezone
 
 from routing import services as routing_services
 from routing.models import RoutingRevision
+from shopfloor.core import judging
 from shopfloor.floor import services as floor
 from shopfloor.floor.models import LotStep
 from shopfloor.plant import services as plant
@@ -50,7 +51,8 @@ def in_window_value(window: dict[str, Any], sample: int, lot_code: str = "") -> 
     little off the centre (up to 2 %), so the demo's SPC charts look like a process, not
     a flat line; deterministic, so loading twice gives the same values.
     """
-    lo, hi, target = window.get("min"), window.get("max"), window.get("target")
+    lo, hi = _tightest(window)
+    target = window.get("target")
     lot_shift = (zlib.crc32(lot_code.encode()) % 5 - 2) / 100.0
     wobble = ((sample * 37) % 7 - 3) / 100.0 + lot_shift
     if window.get("attribute"):
@@ -67,6 +69,32 @@ def in_window_value(window: dict[str, Any], sample: int, lot_code: str = "") -> 
         base = 1.0
     span = (float(hi) - float(lo)) if lo is not None and hi is not None else abs(base) * 0.2
     return round(base + wobble * span, 4)
+
+
+def _tightest(window: dict[str, Any]) -> tuple[float | None, float | None]:
+    """The narrowest limits over every criterion of a window (the class average for the
+    mean and the thin-area minimum for each reading: a value must clear both)."""
+    entries = [e for e in judging.criteria_of(window) if judging.applies_to(e) != "range"]
+    lows = [float(e["min"]) for e in entries if e.get("min") is not None]
+    highs = [float(e["max"]) for e in entries if e.get("max") is not None]
+    return (max(lows) if lows else None), (min(highs) if highs else None)
+
+
+def failing_set(group: judging.QuantityPlan) -> list[float]:
+    """A real failure under the plan's own criteria: for a set with a mean criterion, a
+    set whose every sample clears the each-reading minimum but whose average falls short
+    (the class 3 hole-copper case); otherwise one sample outside its window."""
+    mean = next((e for e in group.set_entries if judging.applies_to(e) == "mean"), None)
+    each = group.each[0] if group.each else {}
+    if mean is not None and mean.get("min") is not None:
+        floor_ = float(each.get("min") or 0.0)
+        target = float(mean["min"]) - 0.4 * (float(mean["min"]) - floor_)
+        spread = [0.6, -0.3, 0.2, -0.4, 0.1, -0.2, 0.3, -0.1, 0.0, 0.0]
+        return [round(target + spread[i % len(spread)], 2) for i in range(group.samples)]
+    window = group.window()
+    values = [in_window_value(window, i + 1) for i in range(group.samples)]
+    values[0] = out_of_window_value(window)
+    return values
 
 
 def out_of_window_value(window: dict[str, Any]) -> float:
@@ -274,15 +302,16 @@ class Command(BaseCommand):
                 return
             floor.start_step(person=operator, lot_step_id=step.pk)
             self._materials(step, operator)
-            for window in step.plan:
-                for sample in range(1, int(window.get("samples") or 1) + 1):
+            for group in judging.group_plan(step.plan):
+                window = group.window()
+                for sample in range(1, group.samples + 1):
                     floor.record_reading(
                         person=operator,
                         lot_step_id=step.pk,
                         data=floor.ReadingInput(
-                            quantity=window["quantity"],
+                            quantity=group.quantity,
                             value=in_window_value(window, sample, lot.code),
-                            unit=window["unit"],
+                            unit=group.unit,
                             sample_index=sample,
                             position=f"coupon {sample}",
                         ),
@@ -360,16 +389,25 @@ class Command(BaseCommand):
         return person
 
     def _hold(self, lot: Lot, step: LotStep, operator: Person) -> None:
+        """Record a sample set that really fails its plan (confirmed, as an operator
+        would), so the alert, hold and NCR come from the real judging and alert task."""
         floor.start_step(person=operator, lot_step_id=step.pk)
-        window = step.plan[0]
-        floor.record_reading(
-            person=operator,
-            lot_step_id=step.pk,
-            data=floor.ReadingInput(
-                quantity=window["quantity"],
-                value=out_of_window_value(window),
-                unit=window["unit"],
-                sample_index=1,
-                position="coupon 1",
-            ),
-        )
+        groups = [
+            g
+            for g in judging.group_plan(step.plan)
+            if any(e.get("min") is not None or e.get("max") is not None for e in g.entries)
+        ]
+        group = next((g for g in groups if g.quantity == "hole_wall_copper"), groups[0])
+        for sample, value in enumerate(failing_set(group), start=1):
+            floor.record_reading(
+                person=operator,
+                lot_step_id=step.pk,
+                data=floor.ReadingInput(
+                    quantity=group.quantity,
+                    value=value,
+                    unit=group.unit,
+                    sample_index=sample,
+                    position=f"coupon {sample}",
+                    confirm_out_of_window=True,
+                ),
+            )
