@@ -65,7 +65,7 @@ def test_the_walk_stays_in_window_and_signs_off(class3_step):
     for sample, (value, unit) in enumerate(WALK, start=1):
         if (value, unit) == ("0.9", "mil"):
             # 0.9 mil = 22.86 um is below the 25 um average: the guard asks first
-            with pytest.raises(floor_services.ConfirmationNeeded, match="22.9 µm is below 25"):
+            with pytest.raises(floor_services.ConfirmationNeeded, match=r"22\.9 µm is below 25"):
                 _record(floor, step, sample, value, unit)
             reading = _record(floor, step, sample, value, unit, confirm=True)
             assert reading.confirmation.startswith("0.9 mil = 22.9 µm")
