@@ -7,6 +7,8 @@ process. Readings are never edited: a correction is a new reading that supersede
 
 from __future__ import annotations
 
+from typing import Any
+
 from django.conf import settings
 from django.db import models
 from django.utils import timezone
@@ -139,6 +141,15 @@ class Reading(models.Model):
 
     def __str__(self) -> str:
         return f"{self.quantity}={self.value:g} {self.unit}"
+
+    def save(self, *args: Any, **kwargs: Any) -> None:
+        # The window identity is derived data, stored so SPC series can filter on it; the
+        # floor service sets it, this covers rows made any other way (admin, scripts).
+        if not self.spec_key and self.window:
+            from shopfloor.core import judging
+
+            self.spec_key = judging.spec_key(judging.criteria_of(self.window))
+        super().save(*args, **kwargs)
 
 
 class IdempotencyRecord(models.Model):

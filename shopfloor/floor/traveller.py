@@ -19,10 +19,10 @@ import segno
 from django.conf import settings
 from django.utils import timezone
 
+from shopfloor.core import judging
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Job, Lot
 from shopfloor.safe_output import pdf_paragraph
-from shopfloor.windows import describe_window
 
 _DEJAVU = Path("/usr/share/fonts/truetype/dejavu")
 
@@ -185,12 +185,13 @@ def traveller_pdf(lot: Lot, paper: str = "a4") -> bytes:
                     small,
                 )
             )
-        for m in step.plan:
+        for group in judging.group_plan(step.plan):
+            sources = "; ".join(dict.fromkeys(window_source(e) for e in group.entries))
             lines.append(
                 p(
-                    f"{m.get('quantity', '').replace('_', ' ')}: "
-                    f"{describe_window(m)} × {m.get('samples') or 1} — source: "
-                    f"{window_source(m)}",
+                    f"{group.quantity.replace('_', ' ')}: {group.words}, "
+                    f"{group.samples} sample{'s' if group.samples != 1 else ''} — source: "
+                    f"{sources}",
                     small,
                 )
             )

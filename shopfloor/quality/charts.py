@@ -9,7 +9,7 @@ never colour alone: rule breaks are drawn as a square marker and named in text.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from html import escape
 from typing import Any
@@ -48,6 +48,27 @@ def _fmt(v: float) -> str:
     return f"{v:.4g}"
 
 
+#: Smallest vertical distance between two labels on one side of a chart (px at 11 px text).
+LABEL_GAP = 14.0
+
+
+def spread_labels(ys: Sequence[float], gap: float = LABEL_GAP) -> list[float]:
+    """Label positions moved apart so no two are closer than `gap`, each as near its line
+    as possible (order kept). Limits close together (a c chart's LCL at 0 next to the
+    axis, or USL beside UCL) otherwise print on top of each other."""
+    order = sorted(range(len(ys)), key=lambda i: ys[i])
+    placed = [float(ys[i]) for i in order]
+    for k in range(1, len(placed)):
+        placed[k] = max(placed[k], placed[k - 1] + gap)
+    # pull the block back up if it was pushed down more than needed (centre the shifts)
+    for k in range(len(placed) - 2, -1, -1):
+        placed[k] = min(placed[k], placed[k + 1] - gap)
+    out = [0.0] * len(ys)
+    for k, i in enumerate(order):
+        out[i] = placed[k]
+    return out
+
+
 def _scale(lo: float, hi: float, top: float, bottom: float):  # type: ignore[no-untyped-def]
     span = (hi - lo) or 1.0
     return lambda v: bottom - (v - lo) / span * (bottom - top)
@@ -66,12 +87,15 @@ def control_chart(
     usl: float | None = None,
     width: float = 900,
     height: float = 340,
+    fmt: Callable[[float], str] | None = None,
 ) -> Figure:
     """Points in order with centre line, UCL/LCL, optional spec limits; rule breaks marked.
 
     `signals` pairs a point index with the rule it broke; every broken rule is named in a
-    legend under the plot so the chart reads without colour.
+    legend under the plot so the chart reads without colour. `fmt` writes numbers for
+    people (pass the quantity's resolution rounding); labels never overlap.
     """
+    fmt = fmt or _fmt
     fig = Figure(width, height, title)
     left, right, top, bottom = 70.0, width - 90.0, 34.0, height - 70.0
     fig.shapes.append(Shape("text", (left, 20), text=title, size=15))
@@ -91,39 +115,39 @@ def control_chart(
         return left + i * step if n > 1 else (left + right) / 2
 
     fig.shapes.append(Shape("rect", (left, top, right - left, bottom - top), stroke=GRID))
-    for value, label, colour, dash in (
-        (ucl, "UCL", LIMIT, True),
-        (centre, "CL", INK, False),
-        (lcl, "LCL", LIMIT, True),
-    ):
+    lines = [(ucl, "UCL", LIMIT, True), (centre, "CL", INK, False), (lcl, "LCL", LIMIT, True)]
+    label_ys = spread_labels([y(v) + 4 for v, *_ in lines])
+    for (value, label, colour, dash), label_y in zip(lines, label_ys, strict=True):
         fig.shapes.append(
             Shape("line", (left, y(value), right, y(value)), stroke=colour, dash=dash, width=1.5)
         )
         fig.shapes.append(
             Shape(
                 "text",
-                (right + 6, y(value) + 4),
-                text=f"{label} {_fmt(value)}",
+                (right + 6, label_y),
+                text=f"{label} {fmt(value)}",
                 size=11,
                 stroke=colour,
             )
         )
-    for spec_value, label in ((lsl, "LSL"), (usl, "USL")):
-        if spec_value is not None:
-            value = spec_value
-            fig.shapes.append(
-                Shape("line", (left, y(value), right, y(value)), stroke=SPEC, width=1, dash=True)
+    specs = [(v, label) for v, label in ((lsl, "LSL"), (usl, "USL")) if v is not None]
+    spec_ys = spread_labels([y(v) + 4 for v, _ in specs])
+    for (spec_value, label), label_y in zip(specs, spec_ys, strict=True):
+        fig.shapes.append(
+            Shape(
+                "line", (left, y(spec_value), right, y(spec_value)), stroke=SPEC, width=1, dash=True
             )
-            fig.shapes.append(
-                Shape(
-                    "text",
-                    (left - 6, y(value) + 4),
-                    text=f"{label} {_fmt(value)}",
-                    size=10,
-                    stroke=SPEC,
-                    anchor="end",
-                )
+        )
+        fig.shapes.append(
+            Shape(
+                "text",
+                (left - 6, label_y),
+                text=f"{label} {fmt(spec_value)}",
+                size=10,
+                stroke=SPEC,
+                anchor="end",
             )
+        )
     fig.shapes.append(
         Shape(
             "polyline",

@@ -17,6 +17,7 @@ import statistics
 from collections.abc import Iterator
 from typing import Any
 
+from shopfloor.core import judging
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Lot
 from shopfloor.quality import charts, history
@@ -160,11 +161,26 @@ def reading_summary(h: history.LotHistory) -> list[dict[str, Any]]:
     for (quantity, source), rs in sorted(groups.items()):
         values = [r.value for r in rs]
         outside = [r for r in rs if not r.in_window]
-        ncrs = sorted({x for r in outside for x in ncr_by_reading.get(r.pk, [])})
+        # a set judged outside (its mean, smallest, largest or range), by the newest
+        # verdict of each lot step's set (a later correction may have brought it back)
+        latest: dict[int, Reading] = {}
+        for r in rs:
+            if r.set_verdict is not None:
+                seen = latest.get(r.lot_step_id)
+                if seen is None or (r.recorded_at, r.pk) > (seen.recorded_at, seen.pk):
+                    latest[r.lot_step_id] = r
+        sets_out = [r for r in latest.values() if (r.set_verdict or {}).get("in_window") is False]
+        flagged = outside + [r for r in rs if r.lot_step_id in {x.lot_step_id for x in sets_out}]
+        ncrs = sorted({x for r in flagged for x in ncr_by_reading.get(r.pk, [])})
+        parts = []
+        if outside:
+            parts.append(f"{len(outside)} outside")
+        if sets_out:
+            parts.append(f"{len(sets_out)} sample set(s) outside")
         verdict = (
             "all in window"
-            if not outside
-            else (f"{len(outside)} outside; " + (", ".join(ncrs) if ncrs else "no NCR recorded"))
+            if not parts
+            else "; ".join(parts) + "; " + (", ".join(ncrs) if ncrs else "no NCR recorded")
         )
         out.append(
             {
@@ -281,9 +297,9 @@ def lot_record_pdf(h: history.LotHistory, *, certificate: bool = False) -> bytes
             [
                 s["quantity"],
                 s["count"],
-                f"{s['min']:.4g}",
-                f"{s['max']:.4g}",
-                f"{s['mean']:.4g}",
+                judging.for_people(s["quantity"], s["min"], symbol=False),
+                judging.for_people(s["quantity"], s["max"], symbol=False),
+                judging.for_people(s["quantity"], s["mean"], symbol=False),
                 Paragraph(s["window"], p),
                 Paragraph(s["source"], p),
                 Paragraph(s["verdict"], p),

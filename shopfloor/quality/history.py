@@ -21,6 +21,7 @@ from typing import Any
 from django.db.models import Avg, Count, Max, Min, Prefetch, Q, QuerySet
 
 from shopfloor.audit.models import AuditEntry, Signature
+from shopfloor.core import judging
 from shopfloor.errors import InvalidInput, NotFound
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Equipment, Job, Lot, MaterialLot, Panel, PanelImage
@@ -333,12 +334,18 @@ READING_EVENTS_PER_STEP = 40
 def _reading_event(r: Reading, step: LotStep) -> TimelineEvent:
     verdict = "in window" if r.in_window else "OUT OF WINDOW"
     detail = f"{describe_window(r.window)}; source: {r.window.get('source', 'none')}; {verdict}"
+    if r.set_verdict:
+        state = "inside" if r.set_verdict.get("in_window") else "OUTSIDE"
+        detail += f"; sample set {state}: {r.set_verdict.get('message', '')}"
+    if r.confirmation:
+        detail += f"; confirmed as entered: {r.confirmation}"
     if r.superseded_by_id:
         detail += f"; SUPERSEDED (reason: {r.correction_reason})"
+    shown = judging.for_people(r.quantity, r.value, r.unit)
     return TimelineEvent(
         r.captured_at,
         "reading",
-        f"{r.quantity} sample {r.sample_index} = {r.value:g} {r.unit} at {step.name}",
+        f"{r.quantity} sample {r.sample_index} = {shown} at {step.name}",
         detail,
         _person(r.operator),
         superseded=bool(r.superseded_by_id),
@@ -351,7 +358,7 @@ def _reading_events(
     """One event per reading, or for a summarised step the notable readings (already the
     only ones loaded) plus one line per quantity from the database aggregates."""
     events = [_reading_event(r, step) for r in step.readings.all()]
-    plan = {m["quantity"]: m for m in step.plan}
+    plan = {g.quantity: g.window() for g in judging.group_plan(step.plan)}
     for row in summary or []:
         window = plan.get(row["quantity"], {"unit": row["unit"]})
         out = row["out"]
@@ -360,7 +367,9 @@ def _reading_events(
                 row["last"],
                 "reading",
                 f"{row['n']} {row['quantity']} readings at {step.name}: "
-                f"{row['lo']:g} to {row['hi']:g} {row['unit']}, mean {row['mean']:.4g}",
+                f"{judging.for_people(row['quantity'], row['lo'], symbol=False)} to "
+                f"{judging.for_people(row['quantity'], row['hi'], row['unit'])}, mean "
+                f"{judging.for_people(row['quantity'], row['mean'], row['unit'])}",
                 f"{describe_window(window)}; source: {window.get('source', 'none')}; "
                 + ("all in window" if not out else f"{out} OUT OF WINDOW (listed)")
                 + "; every reading is in the CSV export",
@@ -759,6 +768,8 @@ class SeriesRow:
     equipment: str
     points: int
     stored: bool
+    step_code: str = ""
+    window_label: str = ""
 
 
 @dataclass
@@ -775,26 +786,39 @@ class SeriesDetail:
     chart: str = "individuals"
     subgroup_size: int = 1
     readings: list[float] = field(default_factory=list)  # every reading (histogram, Cpk)
+    # X-bar charts: each subgroup's range (R) or standard deviation (S), drawn beneath
+    spreads: list[float] = field(default_factory=list)
+    # attribute charts: mean defects per unit and the Poisson ppm above the window
+    attribute: dict[str, Any] | None = None
 
     @property
     def chart_label(self) -> str:
         return CHART_LABELS.get(self.chart, self.chart)
 
+    @property
+    def spread_label(self) -> str:
+        return "S" if self.chart == "xbar_s" else "R"
 
+
+#: Chart names for people (each already ends in "chart": never "c chart chart").
 CHART_LABELS = {
-    "individuals": "individuals",
-    "xbar_r": "X-bar/R",
-    "xbar_s": "X-bar/S",
+    "individuals": "individuals chart",
+    "xbar_r": "X-bar/R chart",
+    "xbar_s": "X-bar/S chart",
     "c": "c chart",
+    "u": "u chart",
+    "p": "p chart",
+    "np": "np chart",
 }
 
 
-def _series_key(quantity: str, wc: str, eq: str | None) -> str:
-    return f"{quantity}@{wc}" + (f"@{eq}" if eq else "")
+def _series_key(quantity: str, step: str, wc: str, eq: str | None, spec: str) -> str:
+    return f"{quantity}@{step}@{wc}@{eq or '-'}@{spec}"
 
 
 def spc_series(scope: Scope) -> list[SeriesRow]:
-    """Stored series when the SPC worker has made them; otherwise grouped from readings."""
+    """Stored series when the SPC worker has made them; otherwise grouped from readings
+    (by quantity, operation, work center, equipment and window, like stored ones)."""
     from django.db.models import Count
 
     from shopfloor.quality.models import SeriesState
@@ -810,6 +834,8 @@ def spc_series(scope: Scope) -> list[SeriesRow]:
                     s.equipment.code if s.equipment else "",
                     s.points,
                     True,
+                    s.step_code,
+                    s.window_label,
                 )
             )
     if rows:
@@ -817,24 +843,42 @@ def spc_series(scope: Scope) -> list[SeriesRow]:
     grouped = (
         Reading.objects.filter(superseded_by__isnull=True)
         .values(
-            "quantity", "lot_step__work_center__code", "lot_step__work_center_id", "equipment__code"
+            "quantity",
+            "lot_step__code",
+            "lot_step__work_center__code",
+            "lot_step__work_center_id",
+            "equipment__code",
+            "spec_key",
         )
         .annotate(n=Count("id"))
-        .order_by("quantity", "lot_step__work_center__code")
+        .order_by("quantity", "lot_step__code", "lot_step__work_center__code")
     )
     for g in grouped:
         if scope.sees_work_center(g["lot_step__work_center_id"]):
             wc, eq = g["lot_step__work_center__code"], g["equipment__code"]
+            step, spec = g["lot_step__code"], g["spec_key"]
             rows.append(
                 SeriesRow(
-                    _series_key(g["quantity"], wc, eq), g["quantity"], wc, eq or "", g["n"], False
+                    _series_key(g["quantity"], step, wc, eq, spec),
+                    g["quantity"],
+                    wc,
+                    eq or "",
+                    g["n"],
+                    False,
+                    step,
+                    spec,
                 )
             )
     return rows
 
 
 def spc_detail(scope: Scope, key: str) -> SeriesDetail:
-    """Points, limits, rule breaks and capability of one series (newest SPC_POINTS)."""
+    """Points, limits, rule breaks and capability of one series (newest SPC_POINTS).
+
+    Limits come from the shared computation (`spc.compute_limits`, the one `spc evaluate`
+    uses) for the series' own chart: c-bar +- 3 sqrt(c-bar) for counts, never moving-range
+    limits; counts get defects per unit and a Poisson ppm instead of Cp/Cpk.
+    """
     from shopfloor.quality import spc
     from shopfloor.quality.models import SeriesState
 
@@ -847,31 +891,35 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
             stored.equipment.code if stored.equipment else "",
             stored.points,
             True,
+            stored.step_code,
+            stored.window_label,
         )
         wc_id = stored.work_center_id
+        qs = series_core.series_queryset(stored)
     else:
         parts = key.split("@")
-        if len(parts) not in (2, 3) or not all(parts):
+        if len(parts) != 5 or not all(parts[:3]):
             raise NotFound(f"No SPC series {key!r}. Pick one from the SPC list.")
         from shopfloor.plant.models import WorkCenter
 
-        wc = WorkCenter.objects.filter(code=parts[1]).first()
+        wc = WorkCenter.objects.filter(code=parts[2]).first()
         if wc is None:
-            raise NotFound(f"No SPC series {key!r}: work center {parts[1]!r} does not exist.")
+            raise NotFound(f"No SPC series {key!r}: work center {parts[2]!r} does not exist.")
         wc_id = wc.pk
-        row = SeriesRow(key, parts[0], parts[1], parts[2] if len(parts) == 3 else "", 0, False)
+        eq = "" if parts[3] == "-" else parts[3]
+        row = SeriesRow(key, parts[0], parts[2], eq, 0, False, parts[1], parts[4])
+        qs = Reading.objects.filter(
+            superseded_by__isnull=True,
+            quantity=row.quantity,
+            lot_step__work_center_id=wc_id,
+            lot_step__code=parts[1],
+            spec_key=parts[4],
+        )
+        qs = qs.filter(equipment__code=eq) if eq else qs.filter(equipment__isnull=True)
     if not scope.sees_work_center(wc_id):
         from shopfloor.errors import NotAllowed
 
         raise NotAllowed("This series belongs to a work center that is not yours.")
-    qs = Reading.objects.filter(
-        superseded_by__isnull=True, quantity=row.quantity, lot_step__work_center_id=wc_id
-    )
-    qs = (
-        qs.filter(equipment__code=row.equipment)
-        if row.equipment
-        else (qs.filter(equipment__isnull=True) if not stored else qs)
-    )
     chart = stored.chart if stored else "individuals"
     size = stored.subgroup_size if stored and chart in series_core.XBAR_CHARTS else 1
     recent = list(
@@ -883,32 +931,53 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
     readings = [v for v, *_ in recent]
     unit = recent[-1][1] if recent else ""
     window = dict(recent[-1][2]) if recent else {}
+    if stored is None and window.get("attribute"):
+        chart = "c"
+    if stored is not None and stored.window:
+        window = {**window, "criteria": stored.window}
     groups: list[list[float]] = []
+    spreads: list[float] = []
     if size > 1:
         groups = series_core.subgroups_of([(st, i, v) for v, _, _, st, i in recent], size)
         values = [statistics.fmean(g) for g in groups]
+        spreads = [(max(g) - min(g)) if chart == "xbar_r" else statistics.stdev(g) for g in groups]
     else:
         values = readings
     if not stored:
         row.points = len(values)
     rules = stored.rules if stored else "western_electric"
     limits, signals, cap, message = None, [], None, ""
+    attribute: dict[str, Any] | None = None
     try:
         if stored and stored.limits:
+            spread = stored.limits.get("range")
             limits = spc.fixed_limits(
                 stored.limits["centre"],
                 stored.limits["ucl"],
                 stored.limits["lcl"],
                 sigma=stored.limits.get("sigma"),
+                range=spc.Limits(
+                    float(spread["centre"]), float(spread["ucl"]), float(spread["lcl"]), 0.0
+                )
+                if spread
+                else None,
             )
         elif size > 1 and len(groups) >= spc.MIN_BASELINE_POINTS:
             limits = spc.compute_limits(chart, groups)  # type: ignore[arg-type]
         elif size == 1 and len(values) >= spc.MIN_BASELINE_POINTS:
-            limits = spc.compute_limits("individuals", values)
+            limits = spc.compute_limits("c" if chart == "c" else "individuals", values)
         if limits is not None:
             signals = spc.evaluate_rules(values, limits, rules)
         lsl, usl = window.get("min"), window.get("max")
-        if len(readings) >= 2 and (lsl is not None or usl is not None):
+        if chart in spc.ATTRIBUTE_CHARTS:
+            if readings:
+                mean = statistics.fmean(readings)
+                attribute = {
+                    "per_unit": mean,
+                    "limit": usl,
+                    "ppm": spc.poisson_ppm_above(mean, usl if usl is not None else 0.0),
+                }
+        elif len(readings) >= 2 and (lsl is not None or usl is not None):
             # subgrouped data: short-term sigma from within the subgroups (R-bar/d2, S-bar/c4)
             within = spc.within_sigma(chart, groups) if len(groups) >= 2 else None  # type: ignore[arg-type]
             cap = spc.capability(readings, lsl=lsl, usl=usl, within=within)
@@ -921,5 +990,18 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
             else "Too few readings to compute control limits yet."
         )
     return SeriesDetail(
-        row, values, unit, window, limits, signals, cap, message, rules, chart, size, readings
+        row,
+        values,
+        unit,
+        window,
+        limits,
+        signals,
+        cap,
+        message,
+        rules,
+        chart,
+        size,
+        readings,
+        spreads,
+        attribute,
     )

@@ -171,7 +171,11 @@ class Hold(models.Model):
 
 
 class SeriesState(models.Model):
-    """SPC state of one series (quantity at a work center, per equipment where given).
+    """SPC state of one series: a quantity at one operation (routing step code), work
+    center and equipment, judged against one window (its criteria, `spec_key`).
+
+    A series never mixes specifications: a class 2 lot never enters a class 3 series,
+    and capability is computed against the series' own window.
 
     Holds the control limits (from a baseline the quality engineer may fix or recompute)
     and the incremental rule state, so a new reading costs the same however long the
@@ -184,6 +188,12 @@ class SeriesState(models.Model):
     equipment = models.ForeignKey(
         "plant.Equipment", null=True, blank=True, on_delete=models.PROTECT
     )
+    # The operation (the lot step's routing code) and the window the points were judged
+    # against (shopfloor.core.judging.spec_key), with the criteria and words for people.
+    step_code = models.CharField(max_length=60, blank=True)
+    spec_key = models.CharField(max_length=64, blank=True)
+    window = models.JSONField(default=list, blank=True)
+    window_label = models.CharField(max_length=400, blank=True)
     chart = models.CharField(max_length=12, default="individuals")
     # Readings per subgroup for X-bar charts (the samples one lot takes at the step);
     # 1 for individuals and c charts.

@@ -39,6 +39,7 @@ from django.db import IntegrityError, transaction
 from django.db.models import Q, QuerySet
 from django.utils import timezone
 
+from shopfloor.core import judging
 from shopfloor.floor.models import Reading
 from shopfloor.quality import spc
 from shopfloor.quality.models import SeriesState
@@ -62,9 +63,22 @@ class DriftSignal:
     index: int
 
 
-def series_key(quantity: str, work_center_code: str, equipment_code: str | None) -> str:
-    """'hole_wall_copper|plating|EQ-12'; '-' when the reading names no equipment."""
-    return f"{quantity}|{work_center_code}|{equipment_code or '-'}"[:160]
+def series_key(
+    quantity: str,
+    work_center_code: str,
+    equipment_code: str | None,
+    step_code: str = "",
+    spec: str = "",
+) -> str:
+    """'hole_wall_copper|pattern_plate_copper|plating|EQ-12|each_reading20~;mean25~;n5':
+    quantity, operation, work center, equipment ('-' when none) and the window's identity
+    (`shopfloor.core.judging.spec_key`), so no series mixes specifications."""
+    return f"{quantity}|{step_code or '-'}|{work_center_code}|{equipment_code or '-'}|{spec}"[:160]
+
+
+def reading_spec_key(reading: Reading) -> str:
+    """The reading's window identity (stored at insert; derived for older rows)."""
+    return reading.spec_key or judging.spec_key(judging.criteria_of(reading.window or {}))
 
 
 XBAR_CHARTS = ("xbar_r", "xbar_s")
@@ -95,11 +109,20 @@ def chart_for(window: dict[str, Any]) -> tuple[str, int]:
 def _lock_series(reading: Reading) -> SeriesState:
     step = reading.lot_step
     equipment = reading.equipment or step.equipment
-    key = series_key(reading.quantity, step.work_center.code, equipment.code if equipment else None)
+    spec = reading_spec_key(reading)
+    key = series_key(
+        reading.quantity,
+        step.work_center.code,
+        equipment.code if equipment else None,
+        step.code,
+        spec,
+    )
     locked = SeriesState.objects.select_for_update(no_key=True)
     series = locked.filter(key=key).first()  # one query once the series exists
     if series is None:
-        chart, subgroup_size = chart_for(reading.window or {})
+        window = reading.window or {}
+        chart, subgroup_size = chart_for(window)
+        criteria = judging.criteria_of(window)
         try:
             with transaction.atomic():
                 SeriesState.objects.create(
@@ -107,6 +130,10 @@ def _lock_series(reading: Reading) -> SeriesState:
                     quantity=reading.quantity,
                     work_center_id=step.work_center_id,
                     equipment=equipment,
+                    step_code=step.code[:60],
+                    spec_key=spec,
+                    window=criteria,
+                    window_label=judging.describe_criteria(criteria)[:400],
                     chart=chart,
                     subgroup_size=subgroup_size,
                     baseline_size=DEFAULT_BASELINE,
@@ -300,6 +327,8 @@ def series_queryset(series: SeriesState) -> QuerySet[Reading]:
         lot_step__work_center_id=series.work_center_id,
         superseded_by__isnull=True,
     )
+    if series.spec_key:  # series made before keys named the window keep their filter
+        qs = qs.filter(spec_key=series.spec_key, lot_step__code=series.step_code)
     if series.equipment_id is None:
         return qs.filter(equipment__isnull=True, lot_step__equipment__isnull=True)
     return qs.filter(

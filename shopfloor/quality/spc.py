@@ -57,6 +57,7 @@ __all__ = [
     "fixed_limits",
     "normal_ppm_out_of_spec",
     "plotted_points",
+    "poisson_ppm_above",
     "step",
     "within_sigma",
 ]
@@ -227,8 +228,12 @@ def chart_constants(n: int) -> ChartConstants:
 # 2. Control limits
 # ---------------------------------------------------------------------------
 
-type ChartKind = Literal["individuals", "xbar_r", "xbar_s", "c", "p"]
-CHARTS: Final[tuple[str, ...]] = ("individuals", "xbar_r", "xbar_s", "c", "p")
+type ChartKind = Literal["individuals", "xbar_r", "xbar_s", "c", "u", "p", "np"]
+CHARTS: Final[tuple[str, ...]] = ("individuals", "xbar_r", "xbar_s", "c", "u", "p", "np")
+#: Charts of counts: no Cp/Cpk (show defects per unit and a Poisson or binomial ppm).
+ATTRIBUTE_CHARTS: Final[tuple[str, ...]] = ("c", "u", "p", "np")
+#: Charts whose points are counts out of a sample size n.
+SIZED_CHARTS: Final[tuple[str, ...]] = ("u", "p", "np")
 VARIABLES_CHARTS: Final[tuple[str, ...]] = ("individuals", "xbar_r", "xbar_s")
 
 #: Fewest baseline points (values, or subgroups) from which limits are computed: one
@@ -317,7 +322,9 @@ def _subgroups(data: object, minimum: int) -> list[list[float]]:
 
 def _sample_size(sample_size: object) -> int:
     if sample_size is None:
-        raise SpcInputError("the p chart needs sample_size (the number inspected per sample)")
+        raise SpcInputError(
+            "the u, p and np charts need sample_size (the number inspected per sample)"
+        )
     if isinstance(sample_size, bool) or not isinstance(sample_size, int | float):
         raise SpcInputError(f"sample_size must be a whole number of 1 or more, got {sample_size!r}")
     if not math.isfinite(sample_size) or sample_size < 1 or sample_size != int(sample_size):
@@ -391,6 +398,38 @@ def _c(counts: list[float]) -> Limits:
     return Limits(c_bar, c_bar + 3 * sigma, max(0.0, c_bar - 3 * sigma), sigma)
 
 
+def _u(counts: list[float], n: int) -> Limits:
+    """u chart (defects per unit, n units per sample): u-bar +- 3 sqrt(u-bar / n), LCL >= 0
+    (NIST/SEMATECH e-Handbook 6.3.3.1)."""
+    u_bar = sum(counts) / (n * len(counts))
+    sigma = math.sqrt(u_bar / n)
+    return Limits(u_bar, u_bar + 3 * sigma, max(0.0, u_bar - 3 * sigma), sigma)
+
+
+def _np(counts: list[float], n: int) -> Limits:
+    """np chart (defectives per sample of n): n p-bar +- 3 sqrt(n p-bar (1 - p-bar))."""
+    p_bar = sum(counts) / (n * len(counts))
+    sigma = math.sqrt(n * p_bar * (1.0 - p_bar))
+    centre = n * p_bar
+    return Limits(centre, min(float(n), centre + 3 * sigma), max(0.0, centre - 3 * sigma), sigma)
+
+
+def poisson_ppm_above(mean: float, limit: float) -> float:
+    """Expected parts per million of samples with more than `limit` defects when defects
+    are Poisson with this mean (1 - P(X <= limit)); used instead of Cpk for counts."""
+    if mean < 0 or not math.isfinite(mean):
+        raise SpcInputError(f"a defect rate must be a finite number of zero or more, got {mean!r}")
+    k_max = math.floor(limit)
+    if k_max < 0:
+        return 1e6
+    term = math.exp(-mean)
+    cdf = term
+    for k in range(1, k_max + 1):
+        term *= mean / k
+        cdf += term
+    return 1e6 * max(0.0, 1.0 - cdf)
+
+
 def _p(counts: list[float], n: int) -> Limits:
     p_bar = sum(counts) / (n * len(counts))
     sigma = math.sqrt(p_bar * (1.0 - p_bar) / n)
@@ -421,7 +460,9 @@ def compute_limits(
     * xbar_r: grand mean +- A2 * R-bar; R chart D3 * R-bar .. D4 * R-bar.
     * xbar_s: grand mean +- A3 * S-bar; S chart B3 * S-bar .. B4 * S-bar.
     * c: c-bar +- 3 sqrt(c-bar), LCL floored at 0.
+    * u: u-bar +- 3 sqrt(u-bar / n), LCL floored at 0 (n units per sample).
     * p: p-bar +- 3 sqrt(p-bar (1 - p-bar) / n), floored at 0 and capped at 1.
+    * np: n p-bar +- 3 sqrt(n p-bar (1 - p-bar)), floored at 0 and capped at n.
 
     The constants are the computed ones (:func:`chart_constants`), not the 3-4 digit
     table values, so results can differ from a hand calculation in the 4th digit.
@@ -436,6 +477,10 @@ def compute_limits(
     if kind == "c":
         return _c(_counts(data, "values", MIN_BASELINE_POINTS))
     n = _sample_size(sample_size)
+    if kind == "u":
+        return _u(_counts(data, "values", MIN_BASELINE_POINTS), n)
+    if kind == "np":
+        return _np(_counts(data, "values", MIN_BASELINE_POINTS, n), n)
     return _p(_counts(data, "values", MIN_BASELINE_POINTS, n), n)
 
 
@@ -487,6 +532,10 @@ def plotted_points(
     if kind == "c":
         return _counts(data, "values", 1)
     n = _sample_size(sample_size)
+    if kind == "u":
+        return [v / n for v in _counts(data, "values", 1)]
+    if kind == "np":
+        return _counts(data, "values", 1, n)
     return [v / n for v in _counts(data, "values", 1, n)]
 
 
@@ -910,10 +959,10 @@ def evaluate(data: object) -> dict[str, Any]:
         raise SpcInputError(f"the {chart} chart needs '{wanted}'")
     points: Sequence[Any] = data[wanted]
     sample_size = data.get("sample_size")
-    if chart == "p":
+    if chart in SIZED_CHARTS:
         sample_size = _sample_size(sample_size)
     elif sample_size is not None:
-        raise SpcInputError("sample_size applies only to the p chart")
+        raise SpcInputError("sample_size applies only to the u, p and np charts")
     ruleset = data.get("rules") or "western_electric"
     if not isinstance(ruleset, str) or ruleset not in RULESETS:
         raise SpcInputError(f"unknown rules {ruleset!r}; allowed are {', '.join(RULESETS)}")

@@ -28,6 +28,7 @@ from django.utils.http import urlencode
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
 from shopfloor import units
+from shopfloor.core import judging
 from shopfloor.core.yields import overall_yield as rolled_yield
 from shopfloor.errors import Conflict, DomainError, InvalidInput
 from shopfloor.orders import services as orders_services
@@ -35,6 +36,7 @@ from shopfloor.planning import services as planning
 from shopfloor.planning.services import PLANNING_ROLES
 from shopfloor.quality import access, board, charts, exports, history, services
 from shopfloor.quality.access import Scope, scope_for
+from shopfloor.windows import describe_window
 
 View = Callable[..., HttpResponse]
 
@@ -244,8 +246,14 @@ def spc_list(request: HttpRequest, scope: Scope) -> HttpResponse:
 
 def _spc_context(scope: Scope, key: str) -> dict[str, Any]:
     d = history.spc_detail(scope, key)
-    chart_svg = hist_svg = ""
+    chart_svg = spread_svg = hist_svg = ""
+
+    def fmt(v: float) -> str:
+        return judging.for_people(d.row.quantity, v, symbol=False)
+
+    where = f"{d.row.quantity} at {d.row.work_center}"
     if d.limits is not None:
+        what = f"subgroup means of {d.subgroup_size}" if d.subgroup_size > 1 else "points"
         chart_svg = charts.to_svg(
             charts.control_chart(
                 d.values,
@@ -253,26 +261,47 @@ def _spc_context(scope: Scope, key: str) -> dict[str, Any]:
                 d.limits.ucl,
                 d.limits.lcl,
                 [(s.index, s.rule) for s in d.signals],
-                title=f"{d.row.quantity} at {d.row.work_center} ({d.chart_label}"
-                + (f", subgroup means of {d.subgroup_size})" if d.subgroup_size > 1 else ")"),
+                title=f"{where}: {d.chart_label}, {what}",
                 unit=d.unit,
+                fmt=fmt,
             )
         )
-    if d.readings:
+        spread = d.limits.range
+        if d.spreads and spread is not None:
+            name = "range" if d.spread_label == "R" else "standard deviation"
+            spread_svg = charts.to_svg(
+                charts.control_chart(
+                    d.spreads,
+                    spread.centre,
+                    spread.ucl,
+                    spread.lcl,
+                    [],
+                    title=f"{d.spread_label} chart: each subgroup's {name} (same subgroups)",
+                    unit=d.unit,
+                    height=260,
+                    fmt=fmt,
+                )
+            )
+    if d.readings and d.attribute is None:
         hist_svg = charts.to_svg(
             charts.capability_histogram(
                 d.readings,
                 d.window.get("min"),
                 d.window.get("max"),
                 target=d.window.get("target"),
-                title=f"{d.row.quantity} against its window",
+                title=f"{d.row.quantity} readings against the each-reading window",
                 unit=d.unit,
             )
         )
     return {
         "d": d,
         "chart_svg": chart_svg,
+        "spread_svg": spread_svg,
         "hist_svg": hist_svg,
+        "limits_text": (
+            {k: fmt(getattr(d.limits, k)) for k in ("centre", "ucl", "lcl")} if d.limits else {}
+        ),
+        "window_words": describe_window(d.window) if d.window else "",
         "may_set_limits": "quality_engineer" in scope.roles and scope.person is not None,
         "rule_sets": list(services.RULESET_NAMES.items()),
         "rules_name": services.RULESET_NAMES.get(d.rules, d.rules),

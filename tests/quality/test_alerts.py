@@ -14,6 +14,7 @@ from django.core import mail
 from django.db import transaction
 
 from shopfloor.audit.models import AuditEntry
+from shopfloor.floor.models import Reading
 from shopfloor.plant.models import Lot
 from shopfloor.quality import outbox, services
 from shopfloor.quality.models import Alert, Hold, Nonconformance, OutboxEvent
@@ -79,7 +80,9 @@ def test_in_window_reading_no_alert_but_series_point(floor):
     assert Alert.objects.count() == 0
     assert Lot.objects.get(pk=floor.lot.pk).on_hold is False
     series = SeriesState.objects.get()
-    assert series.key == f"surface_copper|{step.work_center.code}|-"
+    # one series per quantity, operation, work center, equipment and window
+    assert series.key.startswith(f"surface_copper|{step.code}|{step.work_center.code}|-|")
+    assert series.spec_key == Reading.objects.get(pk=event.payload["reading"]).spec_key
     # The step samples surface copper several times per lot, so the series is an X-bar
     # chart and this first sample waits in the lot's open subgroup.
     samples = next(w for w in step.plan if w["quantity"] == "surface_copper")["samples"]

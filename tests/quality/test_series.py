@@ -189,9 +189,15 @@ def test_series_keyed_per_equipment(floor, step):
     services.handle_event(
         OutboxEvent.objects.create(kind="reading.recorded", payload={"reading": r2.pk}).pk
     )
+    from shopfloor.core import judging
+
     keys = set(SeriesState.objects.values_list("key", flat=True))
     wc = step.work_center.code
-    assert keys == {f"hole_wall_copper|{wc}|-", f"hole_wall_copper|{wc}|EQ-12"}
+    spec = judging.spec_key(judging.criteria_of(WINDOW))
+    assert keys == {
+        f"hole_wall_copper|{step.code}|{wc}|-|{spec}",
+        f"hole_wall_copper|{step.code}|{wc}|EQ-12|{spec}",
+    }
 
 
 # --- X-bar charts: the samples one lot takes at a step form a subgroup ----------------
