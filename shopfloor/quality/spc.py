@@ -323,7 +323,7 @@ def _subgroups(data: object, minimum: int) -> list[list[float]]:
 def _sample_size(sample_size: object) -> int:
     if sample_size is None:
         raise SpcInputError(
-            "the u, p and np charts need sample_size (the number inspected per sample)"
+            "a p chart needs sample_size (the number inspected per sample); so do u and np"
         )
     if isinstance(sample_size, bool) or not isinstance(sample_size, int | float):
         raise SpcInputError(f"sample_size must be a whole number of 1 or more, got {sample_size!r}")
@@ -962,7 +962,7 @@ def evaluate(data: object) -> dict[str, Any]:
     if chart in SIZED_CHARTS:
         sample_size = _sample_size(sample_size)
     elif sample_size is not None:
-        raise SpcInputError("sample_size applies only to the u, p and np charts")
+        raise SpcInputError("sample_size applies only to the p chart and the u and np charts")
     ruleset = data.get("rules") or "western_electric"
     if not isinstance(ruleset, str) or ruleset not in RULESETS:
         raise SpcInputError(f"unknown rules {ruleset!r}; allowed are {', '.join(RULESETS)}")

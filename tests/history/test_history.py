@@ -398,9 +398,9 @@ def test_busy_step_is_summarised_on_the_page_but_complete_in_exports(floor, clie
     text = page.content.decode()
     assert page.status_code == 200
     assert f"{count} copper_thickness readings at {step.name}" in text
-    assert "25 to 31.5 um" in text  # min and max come from the database aggregate
+    assert "25 to 31.5 µm" in text  # min and max come from the database aggregate
     assert "1 OUT OF WINDOW (listed)" in text
-    assert "= 31.5 um" in text  # the out-of-window reading is listed on its own
+    assert "= 31.5 µm" in text  # the out-of-window reading is listed on its own
     assert text.count("copper_thickness sample") == 1  # in-window ones are summarised
     csv_reply = client.get(f"/quality/lots/{floor.lot.code}/readings.csv")
     rows = list(csv.DictReader(io.StringIO(b"".join(csv_reply.streaming_content).decode())))

@@ -56,7 +56,10 @@ def test_spc_list_and_series_page(series, floor, client):
     values, wc = series
     client.force_login(floor.personas["quality_engineer"].user)
     html = client.get("/quality/spc/").content.decode()
-    key = f"copper_thickness@{wc}"
+    # quantity @ operation @ work center @ equipment @ window identity (none stored on
+    # these bulk-created rows): series never mix windows
+    code = Reading.objects.values_list("lot_step__code", flat=True).first()
+    key = f"copper_thickness@{code}@{wc}@-@"
     assert key in html and "computed from readings" in html
     page = client.get(f"/quality/spc/{key}/").content.decode()
     mean = sum(values) / len(values)

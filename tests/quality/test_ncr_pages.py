@@ -394,7 +394,8 @@ def test_fix_limits_is_audited_and_shown(floor, series):
     assert series.limits_fixed
     assert AuditEntry.objects.filter(action="spc.limits_fixed").count() == 1
     html = client.get(f"/quality/spc/{series.key}/").content.decode()
-    assert "UCL 56.0000" in html and "LCL 44.5000" in html
+    # shown rounded to the quantity's resolution (0.1 um for hole copper), stored exactly
+    assert "UCL 56 ·" in html and "LCL 44.5 " in html
 
 
 @pytest.mark.parametrize(
