@@ -304,8 +304,8 @@ def diff_table(old: dict[str, Any], new: dict[str, Any]) -> list[dict[str, str]]
 def _window_rows(new: dict[str, Any], old: dict[str, Any]) -> list[dict[str, str]]:
     rows: list[dict[str, str]] = []
     label = f"{new['seq']}. {new['name']} ({new['code']})"
-    before = {m["quantity"]: m for m in old.get("measurements", [])}
-    after = {m["quantity"]: m for m in new.get("measurements", [])}
+    before = {_entry_key(m): m for m in old.get("measurements", [])}
+    after = {_entry_key(m): m for m in new.get("measurements", [])}
 
     def limits(m: dict[str, Any]) -> str:
         unit = m.get("unit", "")

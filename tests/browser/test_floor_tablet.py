@@ -49,6 +49,9 @@ def test_operator_flow(page, live_url, login_as, floor, shoot, parked_outbox):
     record(page, f"{rid}-1", "20")
     expect(page.locator(f"#{rid}-1 .badge.ok")).to_have_text("✓ In window")
     record(page, f"{rid}-2", "80")
+    # out of window: the typo guard asks first; nothing is stored until confirmed
+    expect(page.locator(f"#{rid}-2 .confirm-box")).to_contain_text("80 µm is above 50 µm")
+    page.locator(f"#{rid}-2").get_by_role("button", name="Confirm 80").click()
     expect(page.locator(f"#{rid}-2 .badge.bad")).to_have_text("✗ OUT OF WINDOW")
     expect(page.locator(f"#{rid}-2")).to_contain_text("Quality will be alerted")
     shoot(page, "floor-03-readings")

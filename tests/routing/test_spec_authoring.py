@@ -184,9 +184,12 @@ def test_identical_revision_release_refused_and_diff_table(floor):
     drill = [r for r in rows if r["what"] == "drill diameter mm"]
     assert drill and drill[0]["old"] == "0.4 mm" and drill[0]["new"] == "0.35 mm"
     # IPC-6012 class 3 average hole copper 25 um against 20 um for class 2 (from memory)
-    hole = [r for r in rows if r["what"] == "hole_wall_copper min"]
+    # (the average is the "mean" entry; the thin area, each reading, goes 18 -> 20 um)
+    hole = [r for r in rows if r["what"] == "hole_wall_copper (mean) min"]
     assert hole and hole[0]["change"] == "window changed"
     assert hole[0]["old"] == "20 um" and hole[0]["new"] == "25 um"
+    thin = [r for r in rows if r["what"] == "hole_wall_copper min"]
+    assert thin and thin[0]["old"] == "18 um" and thin[0]["new"] == "20 um"
     services.release(person=engineer, revision_id=changed.pk, pin=PIN)
     client = Client()
     client.force_login(engineer.user)
