@@ -91,15 +91,24 @@ def _decimals(step: float) -> int:
     return max(0, -math.floor(math.log10(step) + 1e-9)) if step < 1 else 0
 
 
-def for_people(quantity: str, value: float | None, unit: str = "", *, symbol: bool = True) -> str:
+def for_people(
+    quantity: str,
+    value: float | None,
+    unit: str = "",
+    *,
+    symbol: bool = True,
+    extra_digits: int = 0,
+) -> str:
     """A number rounded to the quantity's resolution ('0.43 mm', '25 µm', '3').
 
     Stored values stay exact; only the text is rounded. Trailing zeros are dropped so a
-    window of 25 reads '25 µm', not '25.0 µm'.
+    window of 25 reads '25 µm', not '25.0 µm'. `extra_digits` is for statistics of the
+    readings (a mean, control limits), which are known finer than one reading: a c chart
+    of counts has c-bar 0.29, not 0 (common practice: one or two digits more).
     """
     if value is None:
         return "-"
-    step = resolution(quantity)
+    step = resolution(quantity) / (10**extra_digits)
     rounded = round(float(value) / step) * step
     text = f"{rounded:.{_decimals(step)}f}"
     if "." in text:
@@ -474,11 +483,7 @@ def guard_value(
         if inside and not _implausible(canonical, entries):
             suggestion = unit
             break
-    if suggestion:
-        text += f". Did you mean {entered} {suggestion}?"
-    else:
-        text += "."
-    text += " Confirm to store it as entered, or re-enter it."
+    text += f". Did you mean {entered} {suggestion}?" if suggestion else "."
     return Guard(text, implausible, suggestion)
 
 

@@ -248,8 +248,10 @@ def _spc_context(scope: Scope, key: str) -> dict[str, Any]:
     d = history.spc_detail(scope, key)
     chart_svg = spread_svg = hist_svg = ""
 
-    def fmt(v: float) -> str:
-        return judging.for_people(d.row.quantity, v, symbol=False)
+    extra = 2 if d.attribute is not None or d.chart in ("c", "u", "p", "np") else 1
+
+    def fmt(v: float) -> str:  # control limits: a digit or two finer than one reading
+        return judging.for_people(d.row.quantity, v, symbol=False, extra_digits=extra)
 
     where = f"{d.row.quantity} at {d.row.work_center}"
     if d.limits is not None:
