@@ -21,13 +21,13 @@ from django.db.models import Q
 
 from shopfloor import units
 from shopfloor.audit import services as audit
+from shopfloor.core import judging
 from shopfloor.errors import Conflict, DomainError, InvalidInput
 from shopfloor.floor import services
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Equipment, Person
 from shopfloor.quality import outbox
 from shopfloor.quality.models import OutboxEvent
-from shopfloor.windows import judge_window
 
 MAX_ITEMS = 1000
 
@@ -178,7 +178,7 @@ def _check_items(
             results.append(_duplicate(item, stored, step))
             continue
         try:
-            window, value, captured = services._parse_reading(step, data)
+            group, value, captured, confirmation = services._parse_reading(step, data)
             gauge = None
             if data.equipment_id is not None:
                 if data.equipment_id not in equipment:
@@ -207,7 +207,8 @@ def _check_items(
                 )
             )
             continue
-        judgement = judge_window(value, window)
+        judgement = judging.judge_each(value, group.entries)
+        window = group.window()
         reading = Reading(
             lot_step=step,
             quantity=data.quantity,
@@ -224,13 +225,41 @@ def _check_items(
             in_window=judgement.in_window,
             via=via,
             sample_key=item.sample_key,
+            confirmation=confirmation,
+            spec_key=judging.spec_key(group.entries),
         )
         reading._judgement_message = judgement.message  # type: ignore[attr-defined]
         taken[(data.quantity, data.sample_index)] = reading
         stored_by_key[item.sample_key] = reading
         new.append(reading)
         results.append(ItemResult(item.index, item.sample_key, "created", pending=reading))
+    _judge_sets(step, taken, new)
     return results, new
+
+
+def _judge_sets(step: LotStep, taken: dict[tuple[str, int], Reading], new: list[Reading]) -> None:
+    """A set completed by this batch is judged against its set criteria (mean, ...), the
+    verdict stored on the set's newest reading, as `record_reading` does one by one."""
+    for quantity in dict.fromkeys(r.quantity for r in new):
+        group = services.quantity_plan(step, quantity)
+        if not group.set_entries:
+            continue
+        members = {i: r for (q, i), r in taken.items() if q == quantity}
+        values = {i: r.value for i, r in members.items()}
+        verdict = judging.judge_set(values, group.set_entries, group.samples)
+        if not verdict.complete:
+            continue
+        last = [r for r in new if r.quantity == quantity][-1]
+        last.set_verdict = {
+            "in_window": verdict.in_window,
+            "message": verdict.message,
+            "figures": [
+                {"applies_to": v.applies_to, "figure": v.figure, "in_window": v.in_window}
+                for v in verdict.verdicts
+            ],
+            "values": {str(i): values[i] for i in sorted(values)},
+        }
+        last._set_members = [members[i] for i in sorted(members)]  # type: ignore[attr-defined]
 
 
 def _duplicate(item: BatchItem, stored: Reading, step: LotStep) -> ItemResult:
@@ -290,15 +319,27 @@ def _write(person: Person, step: LotStep, lot: Any, new: list[Reading]) -> None:
                     "lot_step": step.pk,
                     "in_window": r.in_window,
                     "message": r._judgement_message,  # type: ignore[attr-defined]
+                    **_set_payload(r),
                 },
             )
             for r in new
         ]
     )
     outbox.enqueue_many(
-        urgent=[e.pk for e, r in zip(events, new, strict=True) if not r.in_window],
-        batched=[e.pk for e, r in zip(events, new, strict=True) if r.in_window],
+        urgent=[e.pk for e, r in zip(events, new, strict=True) if not _passes(r)],
+        batched=[e.pk for e, r in zip(events, new, strict=True) if _passes(r)],
     )
+
+
+def _passes(r: Reading) -> bool:
+    return r.in_window and (r.set_verdict or {}).get("in_window") is not False
+
+
+def _set_payload(r: Reading) -> dict[str, Any]:
+    if r.set_verdict is None:
+        return {}
+    members = getattr(r, "_set_members", [])
+    return {"set": {**r.set_verdict, "readings": sorted(m.pk for m in members)}}
 
 
 def _reading_reply(reading: Reading, lot_code: str) -> dict[str, Any]:

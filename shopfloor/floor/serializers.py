@@ -210,6 +210,7 @@ def batch_items(
                     position=data.get("position") or "",
                     equipment_id=data.get("equipment"),
                     captured_at=data.get("captured_at"),
+                    confirm_out_of_window=bool(data.get("confirm_out_of_window")),
                 ),
             )
         )

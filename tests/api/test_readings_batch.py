@@ -200,7 +200,8 @@ def test_out_of_window_items_go_to_the_worker_at_once(floor, plating, client, mo
     monkeypatch.setattr(outbox, "publish_batch", lambda ids: sent.append(("batch", ids)))
     body = {
         "items": [
-            item(floor.lot, "O-1", value=10.0),  # below 33.75 µm: out of window
+            # below 33.75 µm: out of window, confirmed as entered (the typo guard)
+            item(floor.lot, "O-1", value=10.0, confirm_out_of_window=True),
             item(floor.lot, "O-2", sample=2, value=45.0),
         ]
     }
@@ -221,6 +222,15 @@ def test_out_of_window_items_go_to_the_worker_at_once(floor, plating, client, mo
     }
     assert Alert.objects.filter(event=out_event).count() == 1
     assert not OutboxEvent.objects.filter(processed_at__isnull=True).exists()
+
+
+def test_unconfirmed_out_of_window_item_is_refused_with_what_to_confirm(floor, plating, client):
+    body = {"items": [item(floor.lot, "G-1", value=10.0)]}
+    reply = client.post(URL, body, format="json").json()
+    (result,) = reply["items"]
+    assert result["status"] == "refused"
+    assert "10 µm is below 33.8 µm" in result["reason"]
+    assert '"confirm_out_of_window": true' in result["reason"]
 
 
 def test_a_failing_event_does_not_block_its_batch(floor, plating, client, monkeypatch):

@@ -111,7 +111,7 @@ class Migration(migrations.Migration):
 
     dependencies = [
         ('quality', '0003_ncr_recording_error'),
-        ('floor', '0003_reading_judging'),
+        ('floor', '0004_reading_judging'),
     ]
 
     operations = [
