@@ -58,6 +58,17 @@ def test_demo_loads_twice_without_duplicates(settings, django_capture_on_commit_
         verdict = judging.judge_set(values, group.set_entries, group.samples)
         assert not each_ok or verdict.in_window is False
     assert Alert.objects.filter(kind="out_of_window").count() == 2
+    # every SPC series of the demo holds readings judged against one window only
+    from shopfloor.quality.models import SeriesState
+    from shopfloor.quality.series import series_queryset
+
+    assert SeriesState.objects.exists()
+    for series in SeriesState.objects.all():
+        specs = set(series_queryset(series).values_list("spec_key", flat=True))
+        assert specs == {series.spec_key}, series.key
+        assert set(series_queryset(series).values_list("lot_step__code", flat=True)) == {
+            series.step_code
+        }
     _check_materials_and_shipping()
     with django_capture_on_commit_callbacks(execute=True):
         call_command("load_demo")

@@ -452,7 +452,12 @@ def _ncr_context(scope: Scope, number: str) -> dict[str, Any]:
         "scrap_reasons": list(ScrapReason.objects.filter(active=True)),
         "root_causes": list(RootCause.objects.filter(active=True)),
         "panel_actions": sorted((ncr.panel_actions or {}).items()),
-        "choices": DISPOSITION_CHOICES,
+        "choices": DISPOSITION_CHOICES
+        + (
+            [("recording_error", "Recording error (a correction brought the set back inside)")]
+            if ncr.correction_note
+            else []
+        ),
         "may_disposition": "quality_engineer" in scope.roles,
         "signer": scope.person.printed_name if scope.person else "",
         "entered": {},
