@@ -6,7 +6,7 @@ from django.db import migrations, models
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('quality', '0002_series_subgroup_size'),
+        ('quality', '0003_alert_bath_kinds'),
     ]
 
     operations = [

@@ -110,7 +110,7 @@ def rekey_series(apps, schema_editor):
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('quality', '0003_ncr_recording_error'),
+        ('quality', '0004_ncr_recording_error'),
         ('floor', '0004_reading_judging'),
     ]
 
