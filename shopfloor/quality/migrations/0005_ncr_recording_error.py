@@ -6,7 +6,7 @@ from django.db import migrations, models
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('quality', '0003_alert_bath_kinds'),
+        ('quality', '0004_ncr_root_cause'),
     ]
 
     operations = [

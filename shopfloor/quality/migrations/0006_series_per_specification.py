@@ -110,8 +110,8 @@ def rekey_series(apps, schema_editor):
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('quality', '0004_ncr_recording_error'),
-        ('floor', '0004_reading_judging'),
+        ('quality', '0005_ncr_recording_error'),
+        ('floor', '0005_reading_judging'),
     ]
 
     operations = [

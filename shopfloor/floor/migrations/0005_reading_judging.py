@@ -23,7 +23,7 @@ def fill_spec_keys(apps, schema_editor):
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('floor', '0003_reading_sample_key'),
+        ('floor', '0004_materials_scrap_acceptance'),
     ]
 
     operations = [
