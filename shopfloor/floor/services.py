@@ -24,8 +24,8 @@ from django.utils import timezone
 
 from shopfloor import throttle, units
 from shopfloor.audit import services as audit
-from shopfloor.core import materials as materials_core
 from shopfloor.core import judging
+from shopfloor.core import materials as materials_core
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
 from shopfloor.floor.models import (
     AcceptedQuantity,

@@ -23,6 +23,7 @@ from tests.worker import floorkit as kit
 
 pytestmark = pytest.mark.django_db
 
+CAUSE = {"root_cause": "measurement", "corrective_action": "re-read the gauge display"}
 WALK = [("1.1", "mil"), ("1050", "µin"), ("27.5", "um"), ("0.9", "mil"), ("26", "um")]
 
 
@@ -131,7 +132,7 @@ def test_correction_back_inside_lets_quality_close_it_as_a_recording_error(class
     ncr = Nonconformance.objects.get()
     qe = floor.personas["quality_engineer"]
     with pytest.raises(Conflict, match="no correction has brought its set back inside"):
-        services.disposition_ncr(qe, ncr.pk, "recording_error", "typing slip", PIN)
+        services.disposition_ncr(qe, ncr.pk, "recording_error", "typing slip", PIN, **CAUSE)
     # the held lot still accepts the correction (superseding, with a reason, audited)
     floor_services.correct_reading(
         person=floor.personas["operator"],
@@ -152,7 +153,7 @@ def test_correction_back_inside_lets_quality_close_it_as_a_recording_error(class
     page.force_login(qe.user)
     html = page.get(f"/quality/ncrs/{ncr.number}/").content.decode()
     assert 'id="correction-note"' in html and 'value="recording_error"' in html
-    services.disposition_ncr(qe, ncr.pk, "recording_error", "decimal slip corrected", PIN)
+    services.disposition_ncr(qe, ncr.pk, "recording_error", "decimal slip corrected", PIN, **CAUSE)
     ncr.refresh_from_db()
     assert ncr.disposition == "recording_error" and ncr.status == "closed"
     assert Signature.objects.get(pk=ncr.disposition_signature_id).meaning == "dispositioned_by"
