@@ -7,7 +7,6 @@ from typing import Any
 from drf_spectacular.types import OpenApiTypes
 from drf_spectacular.utils import OpenApiExample, extend_schema
 from rest_framework import serializers as drf_serializers
-from rest_framework.parsers import MultiPartParser
 from rest_framework.request import Request
 from rest_framework.response import Response
 from rest_framework.views import APIView
@@ -19,6 +18,7 @@ from routing.serializers import (
     PreviewRequestSerializer,
     PreviewSerializer,
 )
+from shopfloor.api_parsers import NulSafeMultiPartParser
 from shopfloor.errors import InvalidInput
 from shopfloor.floor.api import (
     IDEMPOTENCY_KEY,
@@ -119,7 +119,7 @@ class ImportDesignView(APIView):
     """Read an uploaded IPC-2581 file into a draft build spec; nothing is saved."""
 
     permission_classes = [CanImportDesigns]
-    parser_classes = [MultiPartParser]
+    parser_classes = [NulSafeMultiPartParser]
 
     @extend_schema(
         operation_id="routing_import_design",

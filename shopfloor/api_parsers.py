@@ -7,7 +7,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from rest_framework.exceptions import ParseError
-from rest_framework.parsers import JSONParser
+from rest_framework.parsers import FormParser, JSONParser, MultiPartParser
 
 from shopfloor import strict_json
 
@@ -31,3 +31,43 @@ class StrictJSONParser(JSONParser):
             return strict_json.loads(raw)
         except strict_json.StrictJSONError as exc:
             raise ParseError(f"The body is not acceptable JSON: {exc}.") from None
+
+
+def _refuse_nul(fields: Any) -> None:
+    for key in fields:
+        values = fields.getlist(key) if hasattr(fields, "getlist") else [fields[key]]
+        if "\x00" in str(key) or any("\x00" in str(v) for v in values):
+            raise ParseError(
+                "The request holds a NUL character (0x00) in a form field. Codes, names and "
+                "notes are printable text; scan or type the value again."
+            )
+
+
+class NulSafeFormParser(FormParser):
+    """Form bodies on the API: a NUL in a field is a 400, decided after authentication and
+    permissions (DRF parses lazily), so a caller who may not use the endpoint gets its 403."""
+
+    def parse(
+        self,
+        stream: Any,
+        media_type: str | None = None,
+        parser_context: Mapping[str, Any] | None = None,
+    ) -> Any:
+        data = super().parse(stream, media_type, parser_context)
+        _refuse_nul(data)
+        return data
+
+
+class NulSafeMultiPartParser(MultiPartParser):
+    """Multipart bodies on the API: as NulSafeFormParser for the text fields (file parts are
+    bytes and are read by the endpoint that takes them)."""
+
+    def parse(
+        self,
+        stream: Any,
+        media_type: str | None = None,
+        parser_context: Mapping[str, Any] | None = None,
+    ) -> Any:
+        result = super().parse(stream, media_type, parser_context)
+        _refuse_nul(result.data)
+        return result

@@ -186,8 +186,8 @@ REST_FRAMEWORK = {
     # Strict JSON: deep nesting, 1e400, NaN and NUL are a 400 (shopfloor.strict_json).
     "DEFAULT_PARSER_CLASSES": [
         "shopfloor.api_parsers.StrictJSONParser",
-        "rest_framework.parsers.FormParser",
-        "rest_framework.parsers.MultiPartParser",
+        "shopfloor.api_parsers.NulSafeFormParser",
+        "shopfloor.api_parsers.NulSafeMultiPartParser",
     ],
     "DEFAULT_PAGINATION_CLASS": "rest_framework.pagination.LimitOffsetPagination",
     "PAGE_SIZE": 100,

@@ -320,6 +320,8 @@ def spc_page(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
 def _number(raw: str, label: str) -> float:
     """A finite number from a form field, or InvalidInput naming the field."""
     text = (raw or "").strip().replace(",", ".")
+    if text.lower().lstrip("+-") in {"inf", "infinity", "nan"}:
+        raise InvalidInput(f"{label} must be a finite number; got {raw!r}.")
     try:
         value = units.parse_decimal(text)
     except ValueError:

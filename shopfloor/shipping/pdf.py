@@ -9,13 +9,15 @@ from __future__ import annotations
 import io
 from typing import Any
 
+from shopfloor import safe_output
+
 
 def certificate_pdf(c: dict[str, Any]) -> bytes:
     from reportlab.lib import colors
     from reportlab.lib.pagesizes import A4
     from reportlab.lib.styles import getSampleStyleSheet
     from reportlab.lib.units import mm
-    from reportlab.platypus import Paragraph, SimpleDocTemplate, Spacer, Table, TableStyle
+    from reportlab.platypus import SimpleDocTemplate, Spacer, Table, TableStyle
 
     styles = getSampleStyleSheet()
     body = styles["BodyText"]
@@ -58,8 +60,8 @@ def certificate_pdf(c: dict[str, Any]) -> bytes:
         ]
     )
     story: list[Any] = [
-        Paragraph("Certificate of conformance", styles["Title"]),
-        Paragraph(f"Certificate {c['number']} · issued {c['issued']}", body),
+        _para("Certificate of conformance", styles["Title"]),
+        _para(f"Certificate {_esc(c['number'])} · issued {_esc(c['issued'])}", body),
         Spacer(1, 3 * mm),
         Table(
             [
@@ -82,16 +84,16 @@ def certificate_pdf(c: dict[str, Any]) -> bytes:
             colWidths=[30 * mm, 60 * mm, 30 * mm, 60 * mm],
         ),
         Spacer(1, 3 * mm),
-        Paragraph(f"<b>Specification:</b> {_esc(c['specification'])}", body),
+        _para(f"<b>Specification:</b> {_esc(c['specification'])}", body),
         Spacer(1, 2 * mm),
-        Paragraph("<b>Lots in this shipment</b>", body),
+        _para("<b>Lots in this shipment</b>", body),
     ]
     lot_rows = [["Lot", "Boards", "Completed"]]
     lot_rows += [[lot["lot"], str(lot["boards"]), lot["completed"]] for lot in c["lots"]]
     story += [
         Table(lot_rows, style=grid, colWidths=[60 * mm, 25 * mm, 35 * mm], hAlign="LEFT"),
         Spacer(1, 3 * mm),
-        Paragraph("<b>Measured characteristics</b>", body),
+        _para("<b>Measured characteristics</b>", body),
     ]
     rows: list[list[Any]] = [
         ["Characteristic", "Requirement", "Standard", "n", "Lowest", "Highest", "Result"]
@@ -99,13 +101,13 @@ def certificate_pdf(c: dict[str, Any]) -> bytes:
     for r in c["characteristics"]:
         rows.append(
             [
-                Paragraph(_esc(r["characteristic"]), small),
-                Paragraph(_esc(r["requirement"]), small),
-                Paragraph(_esc(r["standard"]), small),
+                _para(_esc(r["characteristic"]), small),
+                _para(_esc(r["requirement"]), small),
+                _para(_esc(r["standard"]), small),
                 str(r["count"]),
                 r["lowest"],
                 r["highest"],
-                Paragraph(_esc(r["result"]), small),
+                _para(_esc(r["result"]), small),
             ]
         )
     if len(rows) == 1:
@@ -118,28 +120,33 @@ def certificate_pdf(c: dict[str, Any]) -> bytes:
             repeatRows=1,
         ),
         Spacer(1, 3 * mm),
-        Paragraph("<b>Deviations</b>", body),
+        _para("<b>Deviations</b>", body),
     ]
     if c["deviations"]:
         for d in c["deviations"]:
-            story.append(Paragraph(f"• {_esc(d)}", small))
+            story.append(_para(f"• {_esc(d)}", small))
     else:
-        story.append(Paragraph("None.", small))
+        story.append(_para("None.", small))
     sig = c["quality_signature"]
     story += [
         Spacer(1, 4 * mm),
-        Paragraph(_esc(c["statement"]), body),
+        _para(_esc(c["statement"]), body),
         Spacer(1, 3 * mm),
-        Paragraph(
+        _para(
             f"<b>Quality:</b> {_esc(sig['meaning'])} <b>{_esc(sig['name'] or '—')}</b>"
             f"{', ' + _esc(sig['signed']) if sig['signed'] else ''} (electronic signature).",
             body,
         ),
-        Paragraph(f"Certificate issued by {_esc(c['issued_by'])} on {_esc(c['issued'])}.", body),
+        _para(f"Certificate issued by {_esc(c['issued_by'])} on {_esc(c['issued'])}.", body),
     ]
     doc.build(story, onFirstPage=footer, onLaterPages=footer)
     return buf.getvalue()
 
 
 def _esc(text: Any) -> str:
-    return str(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+    return safe_output.pdf_text(text)
+
+
+def _para(markup: str, style: Any) -> Any:
+    """A paragraph of our own markup whose values went through `_esc` already."""
+    return safe_output.pdf_paragraph(safe_output.PdfMarkup(markup), style)

@@ -301,6 +301,7 @@ def seed(count: int) -> None:
 def _seed(count: int) -> None:
     from tests import factories
     from tests.api.helpers import advance_to, issue_token
+    from tests.floor.helpers import one_entry_per_quantity
 
     floor = factories.make_floor()
     operator = floor.personas["operator"]
@@ -311,7 +312,7 @@ def _seed(count: int) -> None:
     while len(readings) < count:
         step = advance_to(lot, STEP_CODE, operator)
         work_center = step.work_center.code
-        for m in step.plan:
+        for m in one_entry_per_quantity(step.plan):
             if m.get("attribute"):
                 continue
             for sample in range(1, int(m.get("samples") or 1) + 1):

@@ -160,3 +160,12 @@ def skip_to_measured_step(lot: Lot, *, attribute: bool = False) -> LotStep:
             step.save(update_fields=["arrived_at"])
             return step
     raise AssertionError("no measured step on this route")
+
+
+def one_entry_per_quantity(plan: list[dict]) -> list[dict]:
+    """A plan's entries, one per quantity: a quantity judged several ways (the set's mean
+    and each reading) is still sampled once per sample number."""
+    seen: dict[str, dict] = {}
+    for m in plan:
+        seen.setdefault(m["quantity"], m)
+    return list(seen.values())
