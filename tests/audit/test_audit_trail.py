@@ -100,6 +100,8 @@ def test_reading_of_minus_zero_keeps_the_trail_intact(floor, capsys):
             "value": "-0",
             "unit": "um",
             "sample_index": 1,
+            # -0 is far below the window: the typo guard wants it confirmed first
+            "confirm_out_of_window": True,
         },
         format="json",
     )
