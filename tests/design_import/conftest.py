@@ -23,7 +23,10 @@ def shared_dir() -> Path | None:
         candidate = parent / "shared" / "data" / "ipc2581"
         if candidate.is_dir():
             return candidate
-    return None
+    # a clone made elsewhere (CI may clone into a temporary directory): the workplace's
+    # shared data directory on these machines
+    fixed = Path("/work/shared/data/ipc2581")
+    return fixed if fixed.is_dir() else None
 
 
 @pytest.fixture(scope="session")
