@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import json
+import re
+
 import pytest
 from django.core.management import call_command
 
@@ -70,6 +73,11 @@ def test_demo_loads_twice_without_duplicates(settings, django_capture_on_commit_
             series.step_code
         }
     _check_materials_and_shipping()
+    from shopfloor.plant.models import Equipment
+
+    assert set(Equipment.objects.values_list("code", flat=True)) == {
+        e["code"] for e in _demo_file()["equipment"]
+    }
     with django_capture_on_commit_callbacks(execute=True):
         call_command("load_demo")
     assert _counts() == first
@@ -105,3 +113,39 @@ def _check_materials_and_shipping() -> None:
     }
     assert {n: orders.job_summary(n).status for n in stages} == stages
     assert Certificate.objects.filter(shipment__job=shipped).count() == 1
+
+
+def _demo_file() -> dict:
+    from shopfloor.plant.management.commands.load_demo import DEFAULT_FILE
+
+    return json.loads(DEFAULT_FILE.read_text(encoding="utf-8"))
+
+
+#: Demo equipment codes are invented and named after the measuring technique or the
+#: process (issue 15 item 8): the prefix says how the instrument measures, and the
+#: instrument's name spells that technique out. Abbreviations are our own.
+TECHNIQUE_PREFIXES = {
+    "ECG": "eddy-current",
+    "XRF": "x-ray fluorescence",
+    "MIC": "micrometer",
+    "OPT": "optical",
+    "VSD": "v-score depth",
+    "PLT": "plating",
+}
+
+
+def test_demo_equipment_codes_name_the_technique() -> None:
+    equipment = _demo_file()["equipment"]
+    assert equipment, "the demo has instruments to pick at the tablet"
+    codes = [e["code"] for e in equipment]
+    assert len(codes) == len(set(codes))
+    for e in equipment:
+        match = re.fullmatch(r"([A-Z]{3})-([0-9A-Z]{2})", e["code"])
+        assert match, f"{e['code']}: codes are a three-letter technique and a two-character number"
+        prefix = match.group(1)
+        assert prefix in TECHNIQUE_PREFIXES, f"{e['code']}: {prefix} is not a technique prefix"
+        assert TECHNIQUE_PREFIXES[prefix] in e["name"].lower(), (
+            f"{e['code']} ({e['name']}) should name its technique ({TECHNIQUE_PREFIXES[prefix]})"
+        )
+    # the hole-wall copper gauges measure by eddy current, as the issue's example names them
+    assert {"ECG-01", "ECG-02"} <= set(codes)
