@@ -54,14 +54,26 @@ READ_SCOPE_BY_ROLE: dict[str, Reach] = {
 }
 FULL_READ_ROLES = frozenset(r for r, reach in READ_SCOPE_BY_ROLE.items() if reach is Reach.ALL)
 READ_ROLES = frozenset(READ_SCOPE_BY_ROLE)
-REORDER_ROLES = frozenset({Role.SUPERVISOR, Role.ADMIN})
-#: Roles that may see and unlock locked badges (the unlock service checks the same).
-UNLOCK_ROLES = frozenset({Role.SUPERVISOR, Role.ADMIN})
+#: "Supervisor or administrator": reorders queues, releases queue-time warnings, sees and
+#: unlocks locked badges, records and signs at any work center. The one spelling of it.
+SUPERVISING_ROLES = frozenset({Role.SUPERVISOR, Role.ADMIN})
+REORDER_ROLES = SUPERVISING_ROLES
+UNLOCK_ROLES = SUPERVISING_ROLES
 
 
 def is_admin(user: Any) -> bool:
     """The one "is administrator" rule: a signed-in superuser or a member of ``admin``."""
     return Role.ADMIN in roles_of(user)
+
+
+def has_role(person: Person, roles: frozenset[str] | set[str]) -> bool:
+    """Whether a badge holds any of `roles` (a superuser counts as ``admin``)."""
+    return bool(roles_of(person.user) & roles)
+
+
+def is_supervising(person: Person) -> bool:
+    """Supervisor or administrator (SUPERVISING_ROLES), superusers included."""
+    return has_role(person, SUPERVISING_ROLES)
 
 
 def roles_of(user: Any) -> frozenset[str]:

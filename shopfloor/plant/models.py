@@ -271,6 +271,18 @@ class Job(models.Model):
         return self.part_revision.part.customer
 
 
+class LotQuerySet(models.QuerySet["Lot"]):
+    def with_code(self, code: str) -> LotQuerySet:
+        """The lot with this traveller code. Codes match case-insensitively (a scanner or
+        a keyboard may send either case), here and nowhere else; surrounding spaces are
+        ignored. The index plant_lot_code_upper serves this look-up."""
+        return self.filter(code__iexact=(code or "").strip())
+
+    def active(self) -> LotQuerySet:
+        """Lots still on the floor: not started or in process."""
+        return self.filter(status__in=Lot.ACTIVE_STATUSES)
+
+
 class Lot(models.Model):
     """Panels run together through one routing revision; carries the traveller code."""
 
@@ -294,6 +306,11 @@ class Lot(models.Model):
     created_at = models.DateTimeField(default=timezone.now)
     started_at = models.DateTimeField(null=True, blank=True)
     completed_at = models.DateTimeField(null=True, blank=True)
+
+    objects = LotQuerySet.as_manager()
+
+    # A lot still on the floor (the board, forecasts and due-date checks read these).
+    ACTIVE_STATUSES = (Status.NOT_STARTED, Status.IN_PROCESS)
 
     class Meta:
         ordering = ["priority", "created_at"]

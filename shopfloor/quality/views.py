@@ -34,8 +34,10 @@ from shopfloor.errors import Conflict, DomainError, InvalidInput
 from shopfloor.orders import services as orders_services
 from shopfloor.planning import services as planning
 from shopfloor.planning.services import PLANNING_ROLES
-from shopfloor.quality import access, board, charts, exports, history, services
+from shopfloor.quality import access, charts, exports, history, services
 from shopfloor.quality.access import Scope, scope_for
+from shopfloor.quality.read import board
+from shopfloor.quality.services import queue
 from shopfloor.windows import describe_window
 
 View = Callable[..., HttpResponse]
@@ -119,14 +121,14 @@ def queue_move(request: HttpRequest, scope: Scope, work_center_id: int) -> HttpR
     step_id = _int(step_raw or request.POST.get("lot_step"))
     if step_id is None:
         return _refusal(request, InvalidInput("Pick a lot to move (lot_step is missing)."))
-    board.move_in_queue(scope.actor, work_center_id, step_id, move)
+    queue.move_in_queue(scope.actor, work_center_id, step_id, move)
     return redirect(reverse("quality:board") + _back_query(request))
 
 
 @require_POST
 @reader
 def queue_release(request: HttpRequest, scope: Scope, lot_step_id: int) -> HttpResponse:
-    board.release_queue_warning(scope.actor, lot_step_id, request.POST.get("reason", ""))
+    services.release_queue_warning(scope.actor, lot_step_id, request.POST.get("reason", ""))
     return redirect(reverse("quality:board") + _back_query(request))
 
 

@@ -11,9 +11,10 @@ from shopfloor.audit.models import AuditEntry
 from shopfloor.errors import InvalidInput, NotAllowed
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Customer, Job, WorkCenter
-from shopfloor.quality import board
 from shopfloor.quality.access import scope_for
 from shopfloor.quality.models import Alert
+from shopfloor.quality.read import board
+from shopfloor.quality.services import queue as queue_moves
 from tests import factories
 from tests.board.kit import bulk_lots
 
@@ -162,11 +163,11 @@ def test_reorder_is_audited_and_only_for_supervisors(floor, client):
     assert r.status_code == 403 and b"supervisor" in r.content
     assert AuditEntry.objects.filter(action="queue.reordered").count() == 1
     with pytest.raises(NotAllowed):
-        board.reorder_queue(floor.personas["operator"], wc.pk, queue)
+        queue_moves.reorder_queue(floor.personas["operator"], wc.pk, queue)
     with pytest.raises(InvalidInput):
-        board.reorder_queue(floor.personas["supervisor"], wc.pk, [queue[0], queue[0]])
+        queue_moves.reorder_queue(floor.personas["supervisor"], wc.pk, [queue[0], queue[0]])
     with pytest.raises(InvalidInput, match="not waiting"):
-        board.reorder_queue(floor.personas["supervisor"], wc.pk, [floor.lot.steps.first().pk])
+        queue_moves.reorder_queue(floor.personas["supervisor"], wc.pk, [floor.lot.steps.first().pk])
     r = client.post(f"/board/queue/{wc.pk}/move/", {"lot_step": "x", "move": "up"})
     assert r.status_code == 400
     client.force_login(floor.personas["supervisor"].user)

@@ -13,7 +13,7 @@ from django.db import connection
 from django.test.utils import CaptureQueriesContext
 
 from shopfloor.plant.models import WorkCenter
-from shopfloor.quality.board import OVERVIEW_ROWS_PER_CENTER
+from shopfloor.quality.read.board import OVERVIEW_ROWS_PER_CENTER
 from tests.board.kit import bulk_lots
 
 BOARD_QUERIES = 15

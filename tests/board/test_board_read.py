@@ -22,9 +22,10 @@ from django.utils import timezone
 
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Lot, WorkCenter
-from shopfloor.quality import board
 from shopfloor.quality.access import scope_for
 from shopfloor.quality.models import Hold
+from shopfloor.quality.read import board
+from shopfloor.quality.services import queue as queue_moves
 from tests import factories
 from tests.board.kit import bulk_lots
 
@@ -190,9 +191,13 @@ def test_board_shows_a_queue_in_the_order_moves_act_on(floor, client):
         b = board.build_board(scope, board.parse_filters({"work_center": "drilling"}))
         return [x.lot_code for x in b.columns[0].queued]
 
-    assert shown() == [s.lot.code for s in board._queue(wc.pk)] == [older.code, newer.code]
+    assert (
+        shown()
+        == [s.lot.code for s in queue_moves.waiting_queue(wc.pk)]
+        == [older.code, newer.code]
+    )
     step = newer.steps.get(position=20)
-    board.move_in_queue(floor.personas["supervisor"], wc.pk, step.pk, "up")
+    queue_moves.move_in_queue(floor.personas["supervisor"], wc.pk, step.pk, "up")
     assert shown() == [newer.code, older.code]
 
 

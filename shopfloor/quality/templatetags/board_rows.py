@@ -16,7 +16,7 @@ from typing import Any
 from django import template
 from django.utils.safestring import SafeString, mark_safe
 
-from shopfloor.quality.board import BoardColumn, BoardLot
+from shopfloor.quality.read.board import BoardColumn, BoardLot
 
 register = template.Library()
 

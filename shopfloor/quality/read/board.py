@@ -14,8 +14,9 @@ worked out when first read, links come from one `reverse()` per URL pattern, and
 rows are written out by shopfloor/quality/templatetags/board_rows.py. Measured with
 bench/bench_board.py.
 
-Reordering a queue is the one state change here: `reorder_queue` writes
-LotStep.queue_priority for the lots waiting at a work center, with an audit entry.
+This module only reads. The board's writes (moving a lot in a queue, releasing a
+queue-time warning) are services: shopfloor/quality/services/queue.py and
+shopfloor/quality/services/__init__.py (release_queue_warning).
 """
 
 from __future__ import annotations
@@ -29,37 +30,31 @@ from typing import Any
 from urllib.parse import quote
 
 from django.conf import settings
-from django.db import transaction
 from django.db.models import (
     Exists,
     F,
-    IntegerField,
-    Min,
     OuterRef,
     Q,
     QuerySet,
     Subquery,
-    Sum,
     Window,
 )
-from django.db.models.functions import Coalesce, FirstValue
+from django.db.models.functions import FirstValue
 from django.urls import reverse
 from django.utils import timezone
 from django.utils.http import RFC3986_SUBDELIMS
 from django.utils.text import Truncator
 
 from shopfloor import schedule
-from shopfloor.audit import services as audit
-from shopfloor.errors import InvalidInput, NotAllowed, NotFound
+from shopfloor.errors import InvalidInput
 from shopfloor.floor.models import LotStep
 from shopfloor.planning.models import JobForecast, LotForecast
 from shopfloor.planning.services import fresh_runs
-from shopfloor.plant.models import Customer, IpcClass, Lot, PanelImage, Person, WorkCenter
+from shopfloor.plant.models import Customer, IpcClass, Lot, PanelImage, WorkCenter
 from shopfloor.quality.access import Scope
 from shopfloor.quality.models import Alert, Hold
 
-OPEN_STEP = (LotStep.Status.WAITING, LotStep.Status.IN_PROGRESS, LotStep.Status.PAUSED)
-ACTIVE_LOT = (Lot.Status.NOT_STARTED, Lot.Status.IN_PROCESS)
+ACTIVE_LOT = Lot.ACTIVE_STATUSES
 SORTS = {
     "queue": "queue order",
     "due": "earliest due date first",
@@ -486,30 +481,10 @@ def _due_end(day: dt.date) -> dt.datetime:
 
 
 def current_steps(scope: Scope | None = None) -> QuerySet[LotStep]:
-    """Each active lot's current step (first step not done/skipped), in one query.
-
-    Any filter may be chained (it applies to the current steps). The board reads the same
-    steps with `board_steps`, which is faster on many lots but takes its filters itself."""
-    first_open = (
-        LotStep.objects.filter(lot=OuterRef("lot_id"), status__in=OPEN_STEP)
-        .order_by("position")
-        .values("position")[:1]
-    )
-    remaining = (
-        LotStep.objects.filter(lot=OuterRef("lot_id"), status__in=OPEN_STEP)
-        .order_by()
-        .values("lot")
-        .annotate(total=Sum("standard_minutes"))
-        .values("total")
-    )
-    qs = (
-        LotStep.objects.filter(status__in=OPEN_STEP, lot__status__in=ACTIVE_LOT)
-        .annotate(
-            first_open=Subquery(first_open),
-            remaining=Coalesce(Subquery(remaining, output_field=IntegerField()), 0),
-        )
-        .filter(position=F("first_open"))
-    )
+    """Each active lot's current step (LotStep.objects.current()), limited to the work
+    centers `scope` sees. The board reads the same steps with `board_steps`, which is
+    faster on many lots but takes its filters itself."""
+    qs = LotStep.objects.current()
     if scope is not None and not scope.sees_all:
         qs = qs.filter(work_center_id__in=scope.work_center_ids)
     return qs
@@ -550,15 +525,7 @@ def board_steps(
     # The lot's finish is not read here but per routing revision (build_board): carrying
     # each build_spec through the window's sort made it spill to disk at 20,000 lots.
     per_lot = [F("lot_id")]
-    qs = (
-        LotStep.objects.filter(status__in=OPEN_STEP, lot__status__in=ACTIVE_LOT)
-        .annotate(
-            first_open=Window(Min("position"), partition_by=per_lot),
-            remaining=Window(Sum("standard_minutes"), partition_by=per_lot),
-        )
-        .filter(position=F("first_open"))
-        .order_by()
-    )
+    qs = LotStep.objects.current_by_window()
     center_ids: set[int] | None = None
     if not scope.sees_all:
         center_ids = set(scope.work_center_ids)
@@ -816,110 +783,3 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
         lot_count=len(steps),
         forecast_at=forecast_at,
     )
-
-
-# --- reordering a queue (the board's one write) -------------------------------------
-
-
-def _queue(work_center_id: int) -> list[LotStep]:
-    """The lots waiting at a work center, in the order the board shows them."""
-    steps = list(
-        current_steps()
-        .filter(work_center_id=work_center_id, status=LotStep.Status.WAITING, lot__on_hold=False)
-        .select_related("lot")
-    )
-    steps.sort(
-        key=lambda s: queue_order(
-            s.queue_priority, s.lot.priority, s.arrived_at, s.lot.created_at, s.lot.code
-        )
-    )
-    return steps
-
-
-def _require_reorder(person: Person) -> None:
-    if not person.roles() & {"supervisor", "admin"}:
-        raise NotAllowed("Only a supervisor or administrator can change the order of a queue.")
-
-
-@transaction.atomic
-def reorder_queue(
-    person: Person, work_center_id: int, ordered_lot_step_ids: list[int]
-) -> list[LotStep]:
-    """Put a work center's waiting lots in the order given (first runs first).
-
-    Lots named come first, in the order named; lots not named keep their order after
-    them. Priorities are written as -n..-1, so lots that arrive later (priority 0) queue
-    behind the order a supervisor set rather than jumping ahead of it.
-    """
-    _require_reorder(person)
-    center = WorkCenter.objects.filter(pk=work_center_id).first()
-    if center is None:
-        raise NotFound(f"No work center {work_center_id}.")
-    if len(set(ordered_lot_step_ids)) != len(ordered_lot_step_ids):
-        raise InvalidInput("A lot appears twice in the new order; name each lot once.")
-    # Lock the queue's rows so two supervisors reordering at once apply one after the other.
-    list(
-        LotStep.objects.select_for_update(no_key=True).filter(
-            work_center_id=work_center_id, status=LotStep.Status.WAITING
-        )
-    )
-    queue = _queue(work_center_id)
-    by_id = {s.pk: s for s in queue}
-    unknown = [i for i in ordered_lot_step_ids if i not in by_id]
-    if unknown:
-        raise InvalidInput(
-            f"Lot step(s) {unknown} are not waiting in the queue at {center.name}; "
-            "reload the board and try again.",
-            problems=[{"field": "ordered_lot_step_ids", "value": unknown}],
-        )
-    before = [s.lot.code for s in queue]
-    named = [by_id[i] for i in ordered_lot_step_ids]
-    rest = [s for s in queue if s.pk not in set(ordered_lot_step_ids)]
-    new_order = named + rest
-    n = len(new_order)
-    for i, step in enumerate(new_order):
-        step.queue_priority = i - n
-    LotStep.objects.bulk_update(new_order, ["queue_priority"])
-    audit.record(
-        actor=person.user,
-        action="queue.reordered",
-        object_type="work_center",
-        object_id=center.pk,
-        before={"order": before},
-        after={"order": [s.lot.code for s in new_order]},
-    )
-    return new_order
-
-
-MOVES = ("up", "down", "top")
-
-
-def move_in_queue(
-    person: Person, work_center_id: int, lot_step_id: int, move: str
-) -> list[LotStep]:
-    """Move one lot up, down or to the top of its work center's queue."""
-    if move not in MOVES:
-        raise InvalidInput(f"Move {move!r} is not known; allowed: {', '.join(MOVES)}.")
-    _require_reorder(person)
-    ids = [s.pk for s in _queue(work_center_id)]
-    if lot_step_id not in ids:
-        raise InvalidInput(
-            "That lot is not waiting in this queue any more (it may have started or moved "
-            "on); reload the board."
-        )
-    i = ids.index(lot_step_id)
-    ids.pop(i)
-    target = {"top": 0, "up": max(i - 1, 0), "down": min(i + 1, len(ids))}[move]
-    ids.insert(target, lot_step_id)
-    return reorder_queue(person, work_center_id, ids)
-
-
-def release_queue_warning(person: Person, lot_step_id: int, reason: str) -> Any:
-    """Hand a queue-time release to the quality service that owns it (signature + audit)."""
-    reason = (reason or "").strip()
-    if len(reason) < 3:
-        raise InvalidInput("Releasing a queue-time warning needs a reason (why it may wait).")
-    from shopfloor.quality import services as quality_services
-
-    release = quality_services.release_queue_warning
-    return release(person, lot_step_id, reason)

@@ -32,7 +32,7 @@ from django.db import IntegrityError, InterfaceError, OperationalError, transact
 from django.db.models import F, Q, Sum
 from django.utils import timezone
 
-from shopfloor import schedule
+from shopfloor import access, schedule
 from shopfloor.audit import services as audit
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
 from shopfloor.floor.models import LotStep, Reading
@@ -57,8 +57,7 @@ RENOTIFY_HORIZON = timedelta(days=1)
 CHECK_BATCH = 1000
 CRITICAL_FRACTION = 0.10
 
-OPEN_STEP = [LotStep.Status.WAITING, LotStep.Status.IN_PROGRESS, LotStep.Status.PAUSED]
-ACTIVE_LOT = [Lot.Status.NOT_STARTED, Lot.Status.IN_PROCESS]
+ACTIVE_LOT = Lot.ACTIVE_STATUSES
 
 
 @dataclass(frozen=True)
@@ -651,7 +650,7 @@ def release_queue_warning(person: Person, lot_step_id: int, reason: str) -> LotS
     It does not lift the limit itself: if the step still has not started when the limit
     passes, the lot is held as usual, because the limit protects the product.
     """
-    if not person.roles() & {"supervisor", "admin"}:
+    if not access.is_supervising(person):
         raise NotAllowed("Only a supervisor can release a queue-time warning.")
     reason = (reason or "").strip()
     if len(reason) < 3:
@@ -700,7 +699,8 @@ def job_remaining_minutes(job: Job) -> float | None:
     if not lots.exists():
         return None
     per_lot = (
-        LotStep.objects.filter(lot__in=lots, status__in=OPEN_STEP)
+        LotStep.objects.filter(lot__in=lots)
+        .open()
         .values("lot")
         .annotate(total=Sum("standard_minutes"))
     )
