@@ -19,11 +19,10 @@ from typing import Any
 from django.db import transaction
 from django.db.models import Q
 
-from shopfloor import units
 from shopfloor.audit import services as audit
 from shopfloor.core import judging
 from shopfloor.errors import Conflict, DomainError, InvalidInput
-from shopfloor.floor import services
+from shopfloor.floor import readings, services
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Equipment, Person
 from shopfloor.quality import outbox
@@ -138,9 +137,9 @@ def _record_step(
     """One lot step's items in one transaction: check all, then three INSERTs."""
     try:
         with transaction.atomic():
-            step, lot = services._lock_step(target.pk)
+            step, lot = services.lock_step(target.pk)
             services.check_assigned(person, step.work_center_id)
-            services._require_workable(step, lot)
+            services.require_workable(step, lot)
             if step.status != LotStep.Status.IN_PROGRESS:
                 raise Conflict(f"Start '{step.name}' before recording readings.")
             results, new = _check_items(person, step, items, via)
@@ -178,12 +177,12 @@ def _check_items(
             results.append(_duplicate(item, stored, step))
             continue
         try:
-            group, value, captured, confirmation = services._parse_reading(step, data)
+            group, value, captured, confirmation = services.parse_reading(step, data)
             gauge = None
             if data.equipment_id is not None:
                 if data.equipment_id not in equipment:
                     try:
-                        equipment[data.equipment_id] = services._usable_equipment(
+                        equipment[data.equipment_id] = services.usable_equipment(
                             data.equipment_id, step.work_center_id
                         )
                     except DomainError as exc:
@@ -207,28 +206,19 @@ def _check_items(
                 )
             )
             continue
-        judgement = judging.judge_each(value, group.entries)
-        window = group.window()
-        reading = Reading(
-            lot_step=step,
-            quantity=data.quantity,
-            entered_value=str(data.value)[:40],
-            entered_unit=data.unit[:20],
+        reading, message = readings.build_reading(
+            step=step,
+            person=person,
+            data=data,
+            group=group,
             value=value,
-            unit=units.canonical_unit(data.quantity),
-            sample_index=data.sample_index,
-            position=(data.position or "")[:60],
+            captured=captured,
             equipment=gauge,
-            operator=person,
-            captured_at=captured,
-            window=window,
-            in_window=judgement.in_window,
             via=via,
-            sample_key=item.sample_key,
             confirmation=confirmation,
-            spec_key=judging.spec_key(group.entries),
+            sample_key=item.sample_key,
         )
-        reading._judgement_message = judgement.message  # type: ignore[attr-defined]
+        reading._judgement_message = message  # type: ignore[attr-defined]
         taken[(data.quantity, data.sample_index)] = reading
         stored_by_key[item.sample_key] = reading
         new.append(reading)
@@ -250,15 +240,7 @@ def _judge_sets(step: LotStep, taken: dict[tuple[str, int], Reading], new: list[
         if not verdict.complete:
             continue
         last = [r for r in new if r.quantity == quantity][-1]
-        last.set_verdict = {
-            "in_window": verdict.in_window,
-            "message": verdict.message,
-            "figures": [
-                {"applies_to": v.applies_to, "figure": v.figure, "in_window": v.in_window}
-                for v in verdict.verdicts
-            ],
-            "values": {str(i): values[i] for i in sorted(values)},
-        }
+        last.set_verdict = readings.set_verdict_record(verdict, values)
         last._set_members = [members[i] for i in sorted(members)]  # type: ignore[attr-defined]
 
 
