@@ -1,7 +1,7 @@
 """Benchmark: cost per reading of the incremental run-rule evaluation.
 
 Builds a rule state from 100 and from 100,000 readings of history, then times the same
-batch of further readings from each. Because :func:`shopfloor.quality.spc.step` keeps
+batch of further readings from each. Because :func:`shopfloor.core.spc.step` keeps
 only bounded bit masks and counters, the two figures should be the same within noise.
 
     python bench/bench_spc.py            # prints JSON
@@ -18,7 +18,7 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from shopfloor.quality.spc import RuleState, fixed_limits, step
+from shopfloor.core.spc import RuleState, fixed_limits, step
 
 LIMITS = fixed_limits(10.0, 13.0, 7.0, sigma=1.0)
 TIMED_READINGS = 20_000

@@ -23,7 +23,8 @@ from routing.builder import render as routing_render
 from routing.builder import spec as spec_core
 from routing.builder.design_import import ImportResult, cross_section_svg
 from routing.models import RoutingRevision
-from shopfloor import strict_json, units
+from shopfloor import strict_json
+from shopfloor.core import units
 from shopfloor.errors import DomainError
 from shopfloor.floor.permissions import READ_ROLES, roles_of
 from shopfloor.plant.models import Lot, PartRevision

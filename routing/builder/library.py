@@ -20,7 +20,7 @@ from dataclasses import dataclass
 from functools import cache
 from typing import Any, Final
 
-from shopfloor.units import canonical_unit
+from shopfloor.core.units import canonical_unit
 
 from .windows import QUANTITIES
 

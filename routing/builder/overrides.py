@@ -6,7 +6,7 @@ means shipping something the default would reject; that needs a named process
 engineer's approval, and the traveller must show it as a deviation with its reason.
 
 Override values are in the quantity's canonical unit (convert at the edge with
-`shopfloor.units.to_canonical`). A `None` limit means "keep the default on that side".
+`shopfloor.core.units.to_canonical`). A `None` limit means "keep the default on that side".
 """
 
 from __future__ import annotations
@@ -16,7 +16,7 @@ import math
 from dataclasses import dataclass
 from typing import Literal
 
-from shopfloor.units import UnitError, canonical_unit, to_canonical
+from shopfloor.core.units import UnitError, canonical_unit, to_canonical
 
 from .build import Routing, Step
 from .windows import Window

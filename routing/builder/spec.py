@@ -147,7 +147,7 @@ _NUMBER_AND_UNIT: Final = re.compile(r"^\s*([0-9]+(?:\.[0-9]*)?|\.[0-9]+)\s*(\S*
 
 def _thickness_text(text: str, copper: bool) -> float | str:
     """Text like "1 oz" as um, or the reason it is not a thickness."""
-    from shopfloor import units
+    from shopfloor.core import units
 
     match = _NUMBER_AND_UNIT.match(text)
     if match is None:
@@ -371,7 +371,7 @@ class _Collector:
     def thickness(self, field_: str, value: Any, *, high: float, copper: bool) -> float | None:
         """A thickness in um, or text with a unit: "35 um", "1.4 mil", "1 oz", "0.5oz".
 
-        The conversion is shopfloor.units (the one conversion module; 1 oz/ft² of copper
+        The conversion is shopfloor.core.units (the one conversion module; 1 oz/ft² of copper
         = 34.79 um, common practice); copper weight is accepted only for copper.
         """
         if isinstance(value, str):

@@ -7,7 +7,7 @@ than looked up in the standard are marked "from memory" so a process engineer kn
 confirm them against the revision named in the purchase order. Where no standard fixes
 a number the source says "shop practice".
 
-All values are in the canonical unit of `shopfloor.units` (µm, mm, percent, count).
+All values are in the canonical unit of `shopfloor.core.units` (µm, mm, percent, count).
 """
 
 from __future__ import annotations
@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from enum import StrEnum
 from typing import TYPE_CHECKING, Final
 
-from shopfloor.units import canonical_unit
+from shopfloor.core.units import canonical_unit
 
 if TYPE_CHECKING:
     from routing.builder.spec import BuildSpec

@@ -21,7 +21,6 @@ from typing import Any
 
 from django.utils import timezone
 
-from shopfloor import units
 from shopfloor.chemistry import services
 from shopfloor.chemistry.models import (
     Analysis,
@@ -31,6 +30,7 @@ from shopfloor.chemistry.models import (
     Tank,
     TankEvent,
 )
+from shopfloor.core import units
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import PartRevision, Person, WorkCenter
 

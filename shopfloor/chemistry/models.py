@@ -3,7 +3,7 @@
 Why: every wet step runs in a bath whose chemistry drifts. To answer "which lots ran
 through this bath while it was out of window" the service must know the tanks, what is
 analysed in each and when, and which tank each wet lot step used. Values are stored in
-the canonical unit of their measure (shopfloor.units.BATH_MEASURES); what the person typed
+the canonical unit of their measure (shopfloor.core.units.BATH_MEASURES); what the person typed
 is kept beside it. Nothing here is edited after the fact: a wrong analysis is followed by
 a new one, and additions are events with who confirmed them and when.
 """

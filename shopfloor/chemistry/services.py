@@ -19,7 +19,6 @@ from django.db.models import QuerySet
 from django.utils import timezone
 from django.utils.dateparse import parse_datetime
 
-from shopfloor import units
 from shopfloor.audit import services as audit
 from shopfloor.chemistry.models import (
     Analysis,
@@ -30,6 +29,7 @@ from shopfloor.chemistry.models import (
     TankEvent,
     TankUse,
 )
+from shopfloor.core import units
 from shopfloor.core.chemistry import bath, plating
 from shopfloor.core.chemistry import schedule as due_rules
 from shopfloor.core.chemistry.errors import ChemistryInputError, non_negative

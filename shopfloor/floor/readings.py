@@ -13,9 +13,8 @@ from typing import Any
 from django.db import transaction
 from django.utils import timezone
 
-from shopfloor import units
 from shopfloor.audit import services as audit
-from shopfloor.core import judging
+from shopfloor.core import judging, units
 from shopfloor.errors import Conflict, InvalidInput, NotFound
 from shopfloor.floor.lookups import (
     MAX_CAPTURE_AGE,

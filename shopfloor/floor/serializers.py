@@ -16,8 +16,7 @@ from django.utils import timezone
 from drf_spectacular.utils import extend_schema_field
 from rest_framework import serializers
 
-from shopfloor import units
-from shopfloor.core import judging
+from shopfloor.core import judging, units
 from shopfloor.floor.models import LotStep, Reading
 
 MAX_ID = 2**63 - 1
@@ -78,7 +77,7 @@ class NumberOrTextField(serializers.Field):
     """A reading value as typed: a JSON number or numeric text ("12.5"), never a bool.
 
     The text is kept as entered (it is stored beside the converted value); the unit
-    conversion in shopfloor.units decides what is plausible for the quantity.
+    conversion in shopfloor.core.units decides what is plausible for the quantity.
     """
 
     default_error_messages = {

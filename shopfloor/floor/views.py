@@ -27,8 +27,8 @@ from django.urls import reverse
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
 from shopfloor import access as read_scope
-from shopfloor import throttle, units
-from shopfloor.core import judging
+from shopfloor import throttle
+from shopfloor.core import judging, units
 from shopfloor.errors import DomainError, InvalidInput, NotFound
 from shopfloor.floor import batch, csv_upload, forms, idempotency, services, traveller
 from shopfloor.floor.api import problems_from

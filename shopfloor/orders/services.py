@@ -21,9 +21,8 @@ from django.db.models import Q, QuerySet
 from django.utils import timezone
 
 from routing.models import RoutingRevision
-from shopfloor import units
 from shopfloor.audit import services as audit
-from shopfloor.core import panelise
+from shopfloor.core import panelise, units
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
 from shopfloor.orders.models import PanelLayout, PartPlanning, PlanningSettings
 from shopfloor.plant import services as plant

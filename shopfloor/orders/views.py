@@ -18,8 +18,8 @@ from django.shortcuts import redirect, render
 from django.utils import timezone
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
-from shopfloor import units
 from shopfloor.access import require_lot_visible, scope_for
+from shopfloor.core import units
 from shopfloor.errors import DomainError
 from shopfloor.floor import idempotency
 from shopfloor.floor.permissions import PLAN_ROLES, READ_ROLES, roles_of

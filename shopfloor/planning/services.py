@@ -27,7 +27,7 @@ from django.utils import timezone
 
 from routing.builder import SpecInvalid, build_routing, parse_spec
 from routing.services import current_library, spec_problems
-from shopfloor import schedule
+from shopfloor.core import schedule
 from shopfloor.core.planning import calendar as cal_core
 from shopfloor.core.planning import forecast as fc
 from shopfloor.core.planning.steptimes import MAX_HISTORY, StepStats, credibility, median

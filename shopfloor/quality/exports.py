@@ -18,12 +18,12 @@ from collections.abc import Iterator
 from typing import Any
 
 from shopfloor.core import judging
+from shopfloor.core.judging import describe_window
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Lot
 from shopfloor.quality import charts, history
 from shopfloor.quality.models import Alert, Hold, Nonconformance
 from shopfloor.safe_output import csv_writer, pdf_paragraph
-from shopfloor.windows import describe_window
 
 CHUNK = 2000
 CSV_HEADER = [

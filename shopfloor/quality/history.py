@@ -22,13 +22,13 @@ from django.db.models import Avg, Count, Max, Min, Prefetch, Q, QuerySet
 
 from shopfloor.audit.models import AuditEntry, Signature
 from shopfloor.core import judging
+from shopfloor.core.judging import describe_window
 from shopfloor.errors import InvalidInput, NotFound
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Equipment, Job, Lot, MaterialLot, Panel, PanelImage
 from shopfloor.quality import series as series_core
 from shopfloor.quality.access import Scope, require_lot_visible, visible_lots
 from shopfloor.quality.models import Alert, Hold, Nonconformance
-from shopfloor.windows import describe_window
 
 TRACEABILITY_CLAIM = {
     "material": "M2",
@@ -879,7 +879,7 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
     uses) for the series' own chart: c-bar +- 3 sqrt(c-bar) for counts, never moving-range
     limits; counts get defects per unit and a Poisson ppm instead of Cp/Cpk.
     """
-    from shopfloor.quality import spc
+    from shopfloor.core import spc
     from shopfloor.quality.models import SeriesState
 
     stored = SeriesState.objects.select_related("work_center", "equipment").filter(key=key).first()

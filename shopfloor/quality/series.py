@@ -3,7 +3,7 @@
 Why a stored state: a reading must be judged against the run rules the moment it is
 processed, and the cost of that must not grow with the series' history. So each series
 keeps (a) its control limits and (b) the bounded rule state of
-:class:`shopfloor.quality.spc.RuleState`, and each new reading costs one row lock, one
+:class:`shopfloor.core.spc.RuleState`, and each new reading costs one row lock, one
 ``spc.step`` and one row update.
 
 Life of a series:
@@ -39,9 +39,8 @@ from django.db import IntegrityError, transaction
 from django.db.models import Q, QuerySet
 from django.utils import timezone
 
-from shopfloor.core import judging
+from shopfloor.core import judging, spc
 from shopfloor.floor.models import Reading
-from shopfloor.quality import spc
 from shopfloor.quality.models import SeriesState
 
 log = logging.getLogger("shopfloor.spc")

@@ -27,8 +27,8 @@ from django.urls import reverse
 from django.utils.http import urlencode
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
-from shopfloor import units
-from shopfloor.core import judging
+from shopfloor.core import judging, units
+from shopfloor.core.judging import describe_window
 from shopfloor.core.yields import overall_yield as rolled_yield
 from shopfloor.errors import Conflict, DomainError, InvalidInput
 from shopfloor.orders import services as orders_services
@@ -38,7 +38,6 @@ from shopfloor.quality import access, charts, exports, history, services
 from shopfloor.quality.access import Scope, scope_for
 from shopfloor.quality.read import board
 from shopfloor.quality.services import queue
-from shopfloor.windows import describe_window
 
 View = Callable[..., HttpResponse]
 

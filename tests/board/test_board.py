@@ -41,7 +41,7 @@ def test_lot_shows_at_work_center_of_first_open_step(floor, client):
 
 
 def test_queue_time_warning_and_exceeded(floor):
-    # Warn at 80 % of the limit (shop practice, shopfloor.schedule); exceeded past 100 %.
+    # Warn at 80 % of the limit (shop practice, shopfloor.core.schedule); exceeded past 100 %.
     wc = list(WorkCenter.objects.order_by("code")[:1])
     warn = bulk_lots(floor.routing, floor.job, 1, wc, prefix="W", arrived_minutes_ago=55)[0]
     over = bulk_lots(floor.routing, floor.job, 1, wc, prefix="X", arrived_minutes_ago=75)[0]

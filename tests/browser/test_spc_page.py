@@ -12,9 +12,8 @@ import pytest
 from django.utils import timezone
 from playwright.sync_api import expect
 
-from shopfloor.core import judging
+from shopfloor.core import judging, spc
 from shopfloor.floor.models import LotStep, Reading
-from shopfloor.quality import spc
 from shopfloor.quality.models import SeriesState
 from shopfloor.quality.series import limits_to_dict, series_key
 from tests.worker import floorkit as kit

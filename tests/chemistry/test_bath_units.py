@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from shopfloor import units
+from shopfloor.core import units
 
 
 def test_oz_per_gallon_is_7_489_g_per_l():

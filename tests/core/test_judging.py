@@ -13,8 +13,7 @@ import pytest
 from routing.builder import build_routing, parse_spec
 from routing.builder.render import routing_to_dict
 from routing.builder.spec import EXAMPLE_SPECS
-from shopfloor import units
-from shopfloor.core import judging
+from shopfloor.core import judging, units
 
 # 1 mil = 25.4 um and 1 uin = 0.0254 um exactly (the inch is 25.4 mm by definition).
 WALK = [(1.1, "mil"), (1050, "µin"), (27.5, "um"), (0.9, "mil")]

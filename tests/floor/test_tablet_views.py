@@ -20,11 +20,11 @@ from django.utils import timezone
 
 from shopfloor.audit.models import Signature
 from shopfloor.context import SAFETY_CAUTION
+from shopfloor.core.judging import describe_window
 from shopfloor.floor import traveller
 from shopfloor.floor.models import IdempotencyRecord, LotStep, Reading
 from shopfloor.plant.models import Equipment, Person, WorkCenter
 from shopfloor.quality.models import Hold
-from shopfloor.windows import describe_window
 from tests import factories
 from tests.factories import PIN
 from tests.floor import helpers

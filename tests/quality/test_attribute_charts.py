@@ -15,8 +15,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from shopfloor.core import judging
-from shopfloor.quality import spc
+from shopfloor.core import judging, spc
 from shopfloor.quality.charts import spread_labels
 from shopfloor.quality.series import series_key
 

@@ -2,7 +2,7 @@
 
 The bond-treatment step of the library routing has a 480 min queue-time limit before
 lamination (oxide/bond film ages; shop practice). Warning at 80 % of the limit and the
-3x flow factor for due dates are the planning rules of shopfloor.schedule (common
+3x flow factor for due dates are the planning rules of shopfloor.core.schedule (common
 practice: plan with a queue allowance on top of run time).
 """
 

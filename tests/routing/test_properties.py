@@ -9,7 +9,7 @@ from hypothesis import strategies as st
 
 from routing.builder import SpecInvalid, build_routing, parse_spec, routing_to_dict
 from routing.builder.spec import FINISHES
-from shopfloor.units import canonical_unit
+from shopfloor.core.units import canonical_unit
 
 SETTINGS = settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 

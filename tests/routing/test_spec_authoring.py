@@ -40,7 +40,7 @@ def test_readme_example_previews_cleanly():
     assert preview["steps"], preview
     stored = services.validate_spec(spec)
     assert stored["finish"] == "enig"
-    # 1 oz/ft² = 34.79 um: the factor of shopfloor/units.py (common practice, 1.37 mil)
+    # 1 oz/ft² = 34.79 um: the factor of shopfloor/core/units.py (common practice, 1.37 mil)
     assert stored["inner_copper_um"] == pytest.approx(34.79)
 
 
@@ -60,7 +60,7 @@ def test_enums_in_any_case(given, stored):
 @pytest.mark.parametrize(
     ("text", "um"),
     [
-        ("1 oz", 34.79),  # shopfloor.units: 1 oz/ft² = 34.79 um (1.37 mil, common practice)
+        ("1 oz", 34.79),  # shopfloor.core.units: 1 oz/ft² = 34.79 um (1.37 mil, common practice)
         ("0.5oz", 17.39),  # half of it, rounded to 0.01 um
         ("35 um", 35.0),
         ("1.4 mil", 35.56),  # 1 mil = 25.4 um exactly (inch = 25.4 mm by definition)

@@ -13,7 +13,7 @@ import pytest
 from routing.builder import build_routing, parse_spec
 from routing.builder.spec import EXAMPLE_SPECS
 from routing.builder.windows import QUANTITIES, Provenance, window_rule
-from shopfloor.units import canonical_unit
+from shopfloor.core.units import canonical_unit
 
 
 def board(**changes):

@@ -19,7 +19,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from routing.builder import spec as spec_module
-from shopfloor import strict_json, units
+from shopfloor import strict_json
+from shopfloor.core import units
 from tests.api.helpers import advance_to
 
 pytestmark = pytest.mark.django_db

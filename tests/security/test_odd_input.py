@@ -15,7 +15,7 @@ import pytest
 from django.test import Client
 from django.urls import URLPattern, URLResolver, get_resolver
 
-from shopfloor import units
+from shopfloor.core import units
 from tests.api.helpers import advance_to
 
 pytestmark = pytest.mark.django_db

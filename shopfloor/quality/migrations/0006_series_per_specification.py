@@ -7,7 +7,7 @@ from django.db.models import Q
 from django.utils import timezone
 
 from shopfloor.core import judging
-from shopfloor.quality import spc
+from shopfloor.core import spc
 
 
 def _chart_for(window):

@@ -45,7 +45,7 @@ from django.utils import timezone
 from django.utils.http import RFC3986_SUBDELIMS
 from django.utils.text import Truncator
 
-from shopfloor import schedule
+from shopfloor.core import schedule
 from shopfloor.errors import InvalidInput
 from shopfloor.floor.models import LotStep
 from shopfloor.planning.models import JobForecast, LotForecast

@@ -32,12 +32,13 @@ from django.db import IntegrityError, InterfaceError, OperationalError, transact
 from django.db.models import F, Q, Sum
 from django.utils import timezone
 
-from shopfloor import access, schedule
+from shopfloor import access
 from shopfloor.audit import services as audit
+from shopfloor.core import schedule, spc
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Job, Lot, Person
-from shopfloor.quality import outbox, spc
+from shopfloor.quality import outbox
 from shopfloor.quality import series as series_core
 from shopfloor.quality.models import Alert, Hold, Nonconformance, OutboxEvent, SeriesState
 
@@ -708,7 +709,7 @@ def job_remaining_minutes(job: Job) -> float | None:
 
 
 def check_due_dates(now: datetime | None = None) -> dict[str, int]:
-    """Raise one alert per job and state (at risk, late) using shopfloor.schedule: from the
+    """Raise one alert per job and state (at risk, late) using shopfloor.core.schedule: from the
     job's finish forecast where a fresh one exists, else from the flow-factor rule."""
     now = now or timezone.now()
     jobs = list(

@@ -14,7 +14,7 @@ from typing import Any
 
 from django.core.management.base import BaseCommand, CommandError
 
-from shopfloor import units
+from shopfloor.core import units
 from shopfloor.core.chemistry import bath, plating
 from shopfloor.core.chemistry.constants import METALS
 from shopfloor.core.chemistry.errors import ChemistryInputError

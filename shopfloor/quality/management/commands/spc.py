@@ -1,6 +1,6 @@
 """`manage.py spc evaluate DATA.json` (or `-` for stdin): chart a data set, print JSON.
 
-A thin wrapper around shopfloor.quality.spc.evaluate. Bad input (unreadable file, not
+A thin wrapper around shopfloor.core.spc.evaluate. Bad input (unreadable file, not
 JSON, or data the SPC core refuses) exits with status 2 and one message on stderr;
 never a traceback.
 """
@@ -15,7 +15,7 @@ from typing import Any
 
 from django.core.management.base import BaseCommand, CommandError
 
-from shopfloor.quality import spc
+from shopfloor.core import spc
 
 EXIT_BAD_INPUT = 2
 

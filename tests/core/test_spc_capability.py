@@ -8,7 +8,7 @@ import statistics
 
 import pytest
 
-from shopfloor.quality.spc import (
+from shopfloor.core.spc import (
     SpcInputError,
     capability,
     capability_indices,

@@ -14,7 +14,7 @@ import math
 
 import pytest
 
-from shopfloor.quality.spc import (
+from shopfloor.core.spc import (
     MAX_SUBGROUP_SIZE,
     MIN_SUBGROUP_SIZE,
     SpcInputError,

@@ -11,7 +11,7 @@ import math
 
 import pytest
 
-from shopfloor.quality.spc import (
+from shopfloor.core.spc import (
     SpcInputError,
     compute_limits,
     evaluate_rules,

@@ -1,4 +1,4 @@
-"""shopfloor.units against outside facts; each check names where the fact comes from."""
+"""shopfloor.core.units against outside facts; each check names where the fact comes from."""
 
 from __future__ import annotations
 
@@ -6,8 +6,8 @@ import math
 
 import pytest
 
-from shopfloor import units
-from shopfloor.units import (
+from shopfloor.core import units
+from shopfloor.core.units import (
     COPPER_OZ_UM,
     ImplausibleValue,
     NegativeValue,

@@ -8,7 +8,7 @@ from typing import Any
 
 import pytest
 
-from shopfloor.quality.spc import SpcInputError, evaluate
+from shopfloor.core.spc import SpcInputError, evaluate
 
 from .test_spc_charts import MONTGOMERY_C_COUNTS, MONTGOMERY_P_COUNTS, NIST_INDIVIDUALS
 

@@ -19,7 +19,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from shopfloor.quality.spc import (
+from shopfloor.core.spc import (
     RULES,
     RULESETS,
     Limits,
