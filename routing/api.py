@@ -12,6 +12,7 @@ from rest_framework.response import Response
 from rest_framework.views import APIView
 
 from routing import services
+from routing.builder.spec import EXAMPLE_SPEC
 from routing.serializers import (
     DesignImportRequestSerializer,
     DesignImportSerializer,
@@ -32,20 +33,6 @@ from shopfloor.floor.api import (
 )
 from shopfloor.floor.permissions import CanEngineer, CanRead, _RolePermission
 from shopfloor.floor.services import person_for
-
-EXAMPLE_SPEC = {
-    "layers": 4,
-    "ipc_class": 2,
-    "board_thickness_mm": 1.6,
-    "outer_copper_base_um": 17.5,
-    "inner_copper_um": 35,
-    "finish": "enig",
-    "solder_mask": {"sides": "both", "colour": "green"},
-    "legend": {"sides": "both"},
-    "profile": "route",
-    "electrical_test": "flying_probe",
-    "min_hole_mm": 0.3,
-}
 
 
 def split_preview_body(data: Any) -> tuple[Any, list[dict[str, Any]]]:

@@ -18,10 +18,11 @@ from django.utils.safestring import mark_safe
 from django.views.decorators.http import require_http_methods, require_POST
 
 from routing import services, spec_form
-from routing.api import EXAMPLE_SPEC, split_preview_body
+from routing.api import split_preview_body
 from routing.builder import render as routing_render
 from routing.builder import spec as spec_core
 from routing.builder.design_import import ImportResult, cross_section_svg
+from routing.builder.spec import EXAMPLE_SPEC
 from routing.models import RoutingRevision
 from shopfloor import strict_json
 from shopfloor.core import units

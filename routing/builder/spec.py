@@ -20,6 +20,7 @@ from dataclasses import dataclass, field
 from typing import Any, Final
 
 __all__ = [
+    "EXAMPLE_SPEC",
     "EXAMPLE_SPECS",
     "FINISHES",
     "BuildSpec",
@@ -1102,6 +1103,22 @@ def _hdi24_stackup() -> list[dict[str, Any]]:
     diel("prepreg", 60)
     cu(17.5)
     return out
+
+
+#: The example spec of the API docs and the engineering page (invented).
+EXAMPLE_SPEC: Final[dict[str, Any]] = {
+    "layers": 4,
+    "ipc_class": 2,
+    "board_thickness_mm": 1.6,
+    "outer_copper_base_um": 17.5,
+    "inner_copper_um": 35,
+    "finish": "enig",
+    "solder_mask": {"sides": "both", "colour": "green"},
+    "legend": {"sides": "both"},
+    "profile": "route",
+    "electrical_test": "flying_probe",
+    "min_hole_mm": 0.3,
+}
 
 
 #: Invented example specs, for the API docs, tests and the benchmark.

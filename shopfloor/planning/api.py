@@ -7,7 +7,7 @@ from rest_framework import serializers
 from rest_framework.request import Request
 from rest_framework.response import Response
 
-from routing.api import EXAMPLE_SPEC
+from routing.builder.spec import EXAMPLE_SPEC
 from shopfloor.floor.api import READ_ERRORS, JsonAPIView, error
 from shopfloor.floor.permissions import _RolePermission, roles_of
 from shopfloor.planning import services
