@@ -398,14 +398,6 @@ def spc_limits(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
 
 # --- nonconformances ------------------------------------------------------------------
 
-#: The form's choices: "scrap all" and "scrap some" are both the service's "scrap".
-DISPOSITION_CHOICES = [
-    ("use_as_is", "Use as is"),
-    ("rework", "Rework"),
-    ("scrap_all", "Scrap the whole lot"),
-    ("scrap_some", "Scrap some panels (split them off)"),
-]
-
 
 def _rework_lines(text: str) -> list[dict[str, Any]] | None:
     """'Name' or 'Name | WORK-CENTER-CODE' per line; None (the default step) when empty."""
@@ -455,12 +447,6 @@ def _ncr_context(scope: Scope, number: str) -> dict[str, Any]:
         "scrap_reasons": list(ScrapReason.objects.filter(active=True)),
         "root_causes": list(RootCause.objects.filter(active=True)),
         "panel_actions": sorted((ncr.panel_actions or {}).items()),
-        "choices": DISPOSITION_CHOICES
-        + (
-            [("recording_error", "Recording error (a correction brought the set back inside)")]
-            if ncr.correction_note
-            else []
-        ),
         "may_disposition": "quality_engineer" in scope.roles,
         "signer": scope.person.printed_name if scope.person else "",
         "entered": {},
@@ -485,6 +471,19 @@ def _disposition_input(request: HttpRequest) -> dict[str, Any]:
         "corrective_action": post.get("corrective_action", ""),
         "scrap_reason": post.get("scrap_reason", ""),
     }
+    choice = post.get("disposition", "")
+    if choice == "recording_error":
+        # Offered when a correction brought the set back inside: every panel stays.
+        marked = sorted(k for k, v in panel_actions.items() if v != "use_as_is")
+        if marked or post.getlist("panels") or route:
+            raise InvalidInput(
+                "A recording error keeps every panel as it is, so it takes no rework or "
+                f"scrap{' (marked: ' + ', '.join(marked) + ')' if marked else ''}. Clear "
+                "those, or choose 'Decide per panel'."
+            )
+        return {**common, "disposition": "recording_error", "scrap_reason": ""}
+    if choice == "per_panel":
+        choice = ""
     if panel_actions:
         return {
             **common,
@@ -492,7 +491,6 @@ def _disposition_input(request: HttpRequest) -> dict[str, Any]:
             "panel_actions": panel_actions,
             "rework_route": route if "rework" in panel_actions.values() and route else None,
         }
-    choice = post.get("disposition", "")
     ticked = post.getlist("panels")
     if ticked and choice not in ("scrap_some", "scrap_all"):
         raise InvalidInput(

@@ -546,3 +546,71 @@ def test_unlock_refused_to_others_with_reason(floor, who):
 def test_unlock_unknown_badge_is_404(floor):
     reply = _client(floor.personas["supervisor"]).post("/floor/people/999999/unlock/")
     assert reply.status_code == 404 and "No badge with id" in reply.content.decode()
+
+
+def _corrected_back_inside(floor, reading) -> None:
+    floor_services.correct_reading(
+        person=floor.personas["operator"],
+        reading_id=reading.pk,
+        value="41.5",
+        unit="um",
+        reason="typed 70 for 41.5",
+    )
+    for event in OutboxEvent.objects.filter(processed_at__isnull=True).order_by("pk"):
+        services.handle_event(event.pk)
+
+
+def test_recording_error_offered_only_once_a_correction_brings_the_set_back(floor, held):
+    _step, ncr, reading = held
+    qe = _client(floor.personas["quality_engineer"])
+    assert 'value="recording_error"' not in qe.get(_url(ncr)).content.decode()
+    _corrected_back_inside(floor, reading)
+    page = qe.get(_url(ncr)).content.decode()
+    assert "Back in window after a correction" in page
+    assert 'value="recording_error"' in page
+    response = qe.post(
+        _url(ncr),
+        {"disposition": "recording_error", "note": "typing slip", "pin": PIN, **QA},
+    )
+    assert response.status_code == 302
+    ncr.refresh_from_db()
+    assert ncr.disposition == "recording_error" and ncr.status == "closed"
+    assert not Lot.objects.get(pk=floor.lot.pk).on_hold
+
+
+def test_recording_error_that_also_scraps_a_panel_is_refused(floor, held):
+    """Without the page's script the panel choices are still sent: refused, nothing saved."""
+    _step, ncr, reading = held
+    _corrected_back_inside(floor, reading)
+    serial = floor.lot.panels.order_by("serial").first().serial
+    response = _client(floor.personas["quality_engineer"]).post(
+        _url(ncr),
+        {"disposition": "recording_error", f"action-{serial}": "scrap", "note": "slip", "pin": PIN}
+        | QA,
+    )
+    assert response.status_code == 400
+    assert "keeps every panel as it is" in response.content.decode()
+    _still_open(floor, ncr)
+
+
+def test_a_later_reading_out_again_withdraws_the_back_in_window_note(floor, held):
+    step, ncr, reading = held
+    _corrected_back_inside(floor, reading)
+    ncr.refresh_from_db()
+    assert ncr.correction_note
+    current = Reading.objects.get(lot_step=step, quantity="surface_copper", superseded_by=None)
+    floor_services.correct_reading(
+        person=floor.personas["operator"],
+        reading_id=current.pk,
+        value="75",
+        unit="um",
+        reason="re-measured: the first value was right",
+        confirm_out_of_window=True,
+    )
+    for event in OutboxEvent.objects.filter(processed_at__isnull=True).order_by("pk"):
+        services.handle_event(event.pk)
+    ncr.refresh_from_db()
+    assert ncr.correction_note == ""
+    assert 'value="recording_error"' not in (
+        _client(floor.personas["quality_engineer"]).get(_url(ncr)).content.decode()
+    )

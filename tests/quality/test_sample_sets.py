@@ -144,7 +144,10 @@ def test_correction_back_inside_lets_quality_close_it_as_a_recording_error(class
     )
     _handle_all()
     ncr.refresh_from_db()
-    assert "brought the hole_wall_copper" in ncr.correction_note
+    assert "brought the hole wall copper" in ncr.correction_note
+    assert "Sample 4 was corrected from 0.09 mil (decimal point slipped) to 0.9 mil" in (
+        ncr.correction_note
+    )
     assert ncr.readings.count() == 5  # 4 samples plus the correction
     assert Lot.objects.get(pk=lot.pk).on_hold  # the hold stays until a disposition
     services.disposition_ncr(qe, ncr.pk, "recording_error", "decimal slip corrected", PIN, **CAUSE)

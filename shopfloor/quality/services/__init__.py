@@ -192,6 +192,7 @@ def _handle_reading(event: OutboxEvent) -> list[Alert]:
     set_failed = set_info is not None and set_info.get("in_window") is False
     alerts: list[Alert] = []
     if not reading.in_window or set_failed:
+        _withdraw_correction_note(reading)
         alert = _out_of_window(event, reading, set_info if set_failed else None)
         if alert is not None:
             alerts.append(alert)
@@ -238,10 +239,18 @@ def _cite_on_open_ncr(reading: Reading, payload: dict[str, Any]) -> None:
         return
     _members, text = _set_text(step, reading.quantity)
     complete = "complete set" if isinstance(set_info, dict) else "samples recorded so far"
+    old = Reading.objects.filter(pk=payload["corrects"]).first()
+    was = (
+        f" from {old.entered_value} {old.entered_unit}"
+        + (f" ({old.correction_reason})" if old.correction_reason else "")
+        if old is not None
+        else ""
+    )
     note = (
-        f"A correction (reading {payload['corrects']} -> {reading.pk}) brought the "
-        f"{reading.quantity} {complete} back inside ({reading.window.get('in_words', '')}): "
-        f"samples {text}. Quality may close this NCR as a recording error."
+        f"Sample {reading.sample_index} was corrected{was} to {reading.entered_value} "
+        f"{reading.entered_unit}, which brought the {reading.quantity.replace('_', ' ')} "
+        f"{complete} back inside ({reading.window.get('in_words', '')}): samples {text}. "
+        "Quality may close this NCR as a recording error."
     )
     ncr.correction_note = note[:2000]
     ncr.save(update_fields=["correction_note"])
@@ -251,6 +260,33 @@ def _cite_on_open_ncr(reading: Reading, payload: dict[str, Any]) -> None:
         object_type="ncr",
         object_id=ncr.pk,
         after={"number": ncr.number, "reading": reading.pk, "note": note},
+    )
+
+
+def _withdraw_correction_note(reading: Reading) -> None:
+    """A later reading took the set out again: the NCR no longer says it is back inside
+    (so it can no longer be closed as a recording error)."""
+    ncr = (
+        Nonconformance.objects.filter(
+            lot_step=reading.lot_step,
+            status=Nonconformance.Status.OPEN,
+            readings__quantity=reading.quantity,
+        )
+        .exclude(correction_note="")
+        .first()
+    )
+    if ncr is None:
+        return
+    before = ncr.correction_note
+    ncr.correction_note = ""
+    ncr.save(update_fields=["correction_note"])
+    audit.record(
+        actor=None,
+        action="ncr.correction_withdrawn",
+        object_type="ncr",
+        object_id=ncr.pk,
+        before={"note": before},
+        after={"number": ncr.number, "reading": reading.pk},
     )
 
 
