@@ -72,6 +72,8 @@ MIDDLEWARE = [
     # A NUL in the URL, query or a form field is a 400 before any view (PostgreSQL refuses it).
     "shopfloor.input_guard.RejectNulMiddleware",
     "shopfloor.floor.middleware.IdleTimeoutMiddleware",
+    # After auth and the idle logout: the person's language on /floor/ pages.
+    "shopfloor.floor.language.PersonLanguageMiddleware",
     "django.contrib.messages.middleware.MessageMiddleware",
     "django.middleware.clickjacking.XFrameOptionsMiddleware",
     "django_htmx.middleware.HtmxMiddleware",
@@ -113,8 +115,15 @@ PASSWORD_HASHERS = [
 LOGIN_URL = "/floor/login/"
 LOGIN_REDIRECT_URL = "/"
 
-LANGUAGE_CODE = "en-gb"
-USE_I18N = False
+# Languages (README "Languages"): the tablet pages and the traveller are translated; a
+# person's language is `Person.language` (shopfloor.floor.middleware.PersonLanguageMiddleware
+# turns it on for /floor/ pages only). English formats are ISO dates and a decimal point
+# (shopfloor/formats/en); Spanish uses Django's own formats (dd/mm/yyyy, decimal comma).
+LANGUAGE_CODE = "en"
+LANGUAGES = [("en", "English"), ("es", "Español")]
+USE_I18N = True
+LOCALE_PATHS = [BASE_DIR / "locale"]
+FORMAT_MODULE_PATH = ["shopfloor.formats"]
 USE_TZ = True
 TIME_ZONE = "UTC"  # stored and processed in UTC
 SITE_TIME_ZONE = env_str("SITE_TIME_ZONE", "UTC") or "UTC"  # shown to people

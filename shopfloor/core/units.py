@@ -34,7 +34,9 @@ __all__ = [
     "WrongDimension",
     "allowed_units",
     "canonical_unit",
+    "entry_units",
     "format_value",
+    "from_canonical",
     "quantities",
     "to_canonical",
 ]
@@ -485,3 +487,58 @@ def bath_from_canonical(measure: str, value: float, unit: str) -> float:
             .magnitude
         )
     return value / one
+
+
+# --- what the reading-entry form offers -----------------------------------------------
+
+#: Units a person may pick on the tablet, per quantity, in the order the trade reads them
+#: (common practice: plating and finish thickness in µm, or mil for copper and µin for
+#: thin finishes on inch drawings; board-level dimensions in mm, mil or inch). Only units
+#: of the quantity's own dimension, and only those a gauge or drawing actually uses: the
+#: API still accepts every spelling in `allowed_units`.
+_ENTRY_UNITS: Final[dict[str, tuple[str, ...]]] = {
+    "hole_wall_copper": ("µm", "mil"),
+    "surface_copper": ("µm", "mil"),
+    "nickel_thickness": ("µm", "µin"),
+    "gold_thickness": ("µm", "µin"),
+    "palladium_thickness": ("µm", "µin"),
+    "silver_thickness": ("µm", "µin"),
+    "tin_thickness": ("µm", "µin"),
+    "osp_thickness": ("µm", "µin"),
+    "mask_registration": ("µm", "mil"),
+    "mask_thickness": ("µm", "mil"),
+    "conductor_width": ("µm", "mil", "mm"),
+    "board_thickness": ("mm", "mil", "in"),
+    "vscore_web": ("mm", "mil", "in"),
+    "vscore_depth": ("mm", "mil", "in"),
+    "finished_hole_diameter": ("mm", "mil", "in"),
+    "bow_twist": ("%",),
+    "aoi_defects": (),
+    "etest_opens": (),
+    "etest_shorts": (),
+}
+
+
+def entry_units(quantity: str) -> list[str]:
+    """The units the reading form offers for `quantity`, its stored unit first.
+
+    Empty for counts (a count has no unit to choose). Each is a spelling `to_canonical`
+    accepts, so what the form sends is stored as typed.
+    """
+    _spec(quantity)
+    return list(_ENTRY_UNITS.get(quantity, ()))
+
+
+def from_canonical(quantity: str, value: float, unit: str) -> float:
+    """A stored value in another unit of the quantity's dimension (for showing a window
+    in the unit a person types in). No plausibility check: 1 in is 25,400 µm."""
+    q = _spec(quantity)
+    if q.family != _LENGTH:
+        return float(value)
+    name = _lookup(_LENGTH_UNITS, unit.strip())
+    if name is None:
+        raise UnknownUnit(
+            f"{quantity}: unknown unit {unit!r}; allowed: "
+            f"{', '.join(repr(u) for u in entry_units(quantity))}"
+        )
+    return float(UREG.Quantity(float(value), _pint_name(q.unit)).to(name).magnitude)

@@ -16,6 +16,7 @@ from django.utils import timezone
 from drf_spectacular.utils import extend_schema_field
 from rest_framework import serializers
 
+from routing.builder import labels
 from shopfloor.core import judging, units
 from shopfloor.floor.models import LotStep, Reading
 
@@ -291,6 +292,7 @@ class WindowSerializer(serializers.Serializer):
     """A tolerance window in the canonical unit, always with its source."""
 
     quantity = serializers.CharField()
+    label = serializers.CharField(help_text="The quantity as people read it (display only)")
     unit = serializers.CharField()
     min = serializers.FloatField(allow_null=True)
     max = serializers.FloatField(allow_null=True)
@@ -361,6 +363,24 @@ class LotStepSerializer(serializers.ModelSerializer):
     completed_by = serializers.CharField(
         source="completed_by.printed_name", allow_null=True, read_only=True
     )
+    parameters_display = serializers.SerializerMethodField(
+        help_text="The step's parameters as people read them: label and value with unit"
+    )
+
+    @extend_schema_field(
+        {
+            "type": "array",
+            "items": {
+                "type": "object",
+                "properties": {"label": {"type": "string"}, "value": {"type": "string"}},
+            },
+        }
+    )
+    def get_parameters_display(self, step: LotStep) -> list[dict[str, str]]:
+        return [
+            {"label": label, "value": value}
+            for label, value in labels.parameter_rows(step.parameters or {})
+        ]
 
     class Meta:
         model = LotStep
@@ -379,6 +399,7 @@ class LotStepSerializer(serializers.ModelSerializer):
             "started_by",
             "completed_at",
             "completed_by",
+            "parameters_display",
         ]
         read_only_fields = fields
 
@@ -413,6 +434,7 @@ def window_dict(m: dict[str, Any]) -> dict[str, Any]:
     """A plan entry as the window contract (missing keys become null/false)."""
     return {
         "quantity": m.get("quantity", ""),
+        "label": labels.quantity_label(str(m.get("quantity", ""))),
         "unit": m.get("unit", ""),
         "min": m.get("min"),
         "max": m.get("max"),

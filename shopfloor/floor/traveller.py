@@ -20,6 +20,7 @@ from django.conf import settings
 from django.utils import timezone
 
 from shopfloor.core import judging
+from shopfloor.floor import words
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Job, Lot
 from shopfloor.safe_output import pdf_paragraph
@@ -181,7 +182,7 @@ def traveller_pdf(lot: Lot, paper: str = "a4") -> bytes:
             lines.append(
                 p(
                     "Parameters: "
-                    + ", ".join(f"{k.replace('_', ' ')} {v}" for k, v in step.parameters.items()),
+                    + ", ".join(f"{k}: {v}" for k, v in words.parameter_rows(step.parameters)),
                     small,
                 )
             )
@@ -189,7 +190,7 @@ def traveller_pdf(lot: Lot, paper: str = "a4") -> bytes:
             sources = "; ".join(dict.fromkeys(window_source(e) for e in group.entries))
             lines.append(
                 p(
-                    f"{group.quantity.replace('_', ' ')}: {group.words}, "
+                    f"{words.quantity_label(group.quantity)}: {group.words}, "
                     f"{group.samples} sample{'s' if group.samples != 1 else ''} — source: "
                     f"{sources}",
                     small,

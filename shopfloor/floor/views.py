@@ -28,9 +28,19 @@ from django.views.decorators.http import require_GET, require_http_methods, requ
 
 from shopfloor import access as read_scope
 from shopfloor import throttle
+from shopfloor.core import entry as entry_words
 from shopfloor.core import judging, units
 from shopfloor.errors import DomainError, InvalidInput, NotFound
-from shopfloor.floor import batch, csv_upload, forms, idempotency, services, traveller
+from shopfloor.floor import (
+    batch,
+    csv_upload,
+    forms,
+    idempotency,
+    preferences,
+    services,
+    traveller,
+    words,
+)
 from shopfloor.floor.api import problems_from
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.floor.permissions import FLOOR_ROLES, check_work_center, roles_of
@@ -195,6 +205,8 @@ class SampleRow:
     # Lines for the running set figure ("mean so far 26.2 µm, needs ≥ 25 µm"), sent with
     # a row so the measurement's summary refreshes when one sample is recorded (htmx oob).
     running: list[str] | None = None
+    # The unit and gauge this person last recorded the quantity with (preferences).
+    last: dict[str, Any] = field(default_factory=dict)
 
     @property
     def quantity(self) -> str:
@@ -217,10 +229,36 @@ class SampleRow:
 
     @property
     def units(self) -> list[str]:
+        """The units the form offers: only the quantity's own dimension (none for counts)."""
         try:
-            return units.allowed_units(self.quantity)
+            offered = units.entry_units(self.quantity)
         except units.UnitError:
-            return [str(self.measurement.get("unit", ""))]
+            offered = [str(self.measurement.get("unit", ""))]
+        if self.current is not None and self.current.entered_unit not in offered and offered:
+            offered.append(self.current.entered_unit)  # a correction keeps the stored unit
+        return offered
+
+    @property
+    def unit(self) -> str:
+        """The unit selected: what was typed, else the reading's, else the person's last."""
+        offered = self.units
+        for choice in (
+            self.entered.get("unit"),
+            self.current.entered_unit if self.current is not None else None,
+            self.last.get("unit"),
+        ):
+            if choice and choice in offered:
+                return str(choice)
+        return offered[0] if offered else ""
+
+    @property
+    def gauge(self) -> str:
+        """The gauge selected (its id as text): what was typed, else the person's last."""
+        if self.entered.get("equipment"):
+            return str(self.entered["equipment"])
+        last = self.last.get("equipment")
+        ids = {e.pk for e in self.equipment if e.is_gauge and e.calibration_current}
+        return str(last) if last in ids else ""
 
 
 @dataclass
@@ -230,14 +268,27 @@ class PlanItem:
     source: str
     rows: list[SampleRow]
     running: list[str] = field(default_factory=list)
+    # The window in each other unit the form offers: [(unit, words)], shown for the
+    # unit selected (floor/entry.js), so "≥ 25 µm" also reads "≥ 0.98 mil".
+    window_in: list[tuple[str, str]] = field(default_factory=list)
 
     @property
     def running_id(self) -> str:
         return self.rows[0].running_id if self.rows else ""
 
     @property
+    def quantity(self) -> str:
+        return str(self.measurement["quantity"])
+
+    @property
     def label(self) -> str:
-        return str(self.measurement["quantity"]).replace("_", " ")
+        return words.quantity_label(self.quantity)
+
+    @property
+    def unit(self) -> str:
+        """The unit the first empty sample offers (the window line follows it)."""
+        empty = [r for r in self.rows if r.current is None]
+        return (empty or self.rows)[0].unit if self.rows else ""
 
 
 def _equipment(step: LotStep) -> list[Equipment]:
@@ -278,27 +329,42 @@ def _sample_row(
 
 def _running(step: LotStep, group: judging.QuantityPlan, readings: list[Reading]) -> list[str]:
     values = {r.sample_index: r.value for r in readings if r.superseded_by_id is None}
-    return judging.running_text(values, group.set_entries, group.samples)
+    return entry_words.running_text(values, group.set_entries, group.samples, words.speech())
+
+
+def _window_in_units(group: judging.QuantityPlan) -> list[tuple[str, str]]:
+    say = words.speech()
+    try:
+        offered = units.entry_units(group.quantity)
+    except units.UnitError:
+        return []
+    return [
+        (u, entry_words.describe_criteria(group.entries, u, say))
+        for u in offered
+        if u != entry_words.unit_symbol(group.quantity)
+    ]
 
 
 def _of_quantity(grouped: dict[tuple[str, int], list[Reading]], quantity: str) -> list[Reading]:
     return [r for (q, _), rs in grouped.items() if q == quantity for r in rs]
 
 
-def _plan(step: LotStep) -> list[PlanItem]:
+def _plan(step: LotStep, person: Person | None = None) -> list[PlanItem]:
     equipment = _equipment(step)
     grouped = _readings_by_sample(step)
     items = []
     for group in judging.group_plan(step.plan):
         m = group.window()
+        last = preferences.defaults_for(person, group.quantity)
         rows = [
-            _sample_row(step, m, s, grouped.get((group.quantity, s), []), equipment)
+            _sample_row(step, m, s, grouped.get((group.quantity, s), []), equipment, last=last)
             for s in range(1, group.samples + 1)
         ]
         items.append(
             PlanItem(
                 measurement=m,
-                window_text=group.words,
+                window_text=entry_words.describe_criteria(group.entries, say=words.speech()),
+                window_in=_window_in_units(group),
                 source="; ".join(dict.fromkeys(traveller.window_source(e) for e in group.entries)),
                 rows=rows,
                 running=_running(
@@ -311,10 +377,13 @@ def _plan(step: LotStep) -> list[PlanItem]:
     return items
 
 
-def _single_row(step: LotStep, quantity: str, sample: int, **extra: Any) -> SampleRow | None:
+def _single_row(
+    step: LotStep, quantity: str, sample: int, person: Person | None = None, **extra: Any
+) -> SampleRow | None:
     group = next((g for g in judging.group_plan(step.plan) if g.quantity == quantity), None)
     if group is None:
         return None
+    extra.setdefault("last", preferences.defaults_for(person, quantity))
     readings = list(
         Reading.objects.filter(lot_step=step, quantity=quantity)
         .select_related("equipment", "operator")
@@ -380,10 +449,8 @@ def _lot_context(lot: Lot, person: Person) -> dict[str, Any]:
         "jobs": data.jobs,
         "route": data.steps,
         "step": step,
-        "step_params": [(str(k).replace("_", " "), v) for k, v in (step.parameters or {}).items()]
-        if step
-        else [],
-        "plan": _plan(step) if step else [],
+        "step_params": words.parameter_rows(step.parameters) if step else [],
+        "plan": _plan(step, person) if step else [],
         "equipment": _equipment(step) if step else [],
         "holds": list(lot.holds.filter(released_at__isnull=True).order_by("opened_at")),
         "qr_svg": traveller.qr_svg(lot.code),
@@ -666,13 +733,17 @@ def record_reading(request: HttpRequest, step_id: int) -> HttpResponse:
 
         outcome = _run(request, form, action)
     except DomainError as exc:
-        row = _single_row(step, quantity, sample, **_refusal_fields(exc, entered))
+        row = _single_row(step, quantity, sample, person, **_refusal_fields(exc, entered))
         if row is None:
             return _refuse_page(request, person, step.lot, exc.detail, exc.status)
         return _row_response(request, row, step.lot, exc.status)
     reading = Reading.objects.get(pk=outcome.body["reading"])
+    preferences.remember_entry(person, reading.quantity, reading.entered_unit, reading.equipment_id)
     return _row_response(
-        request, _single_row(step, reading.quantity, reading.sample_index), step.lot, outcome.status
+        request,
+        _single_row(step, reading.quantity, reading.sample_index, person),
+        step.lot,
+        outcome.status,
     )
 
 
@@ -716,10 +787,12 @@ def correct_reading(request: HttpRequest, reading_id: int) -> HttpResponse:
 
         outcome = _run(request, form, action)
     except DomainError as exc:
-        row = _single_row(step, old.quantity, old.sample_index, **_refusal_fields(exc, entered))
+        row = _single_row(
+            step, old.quantity, old.sample_index, person, **_refusal_fields(exc, entered)
+        )
         return _row_response(request, row, step.lot, exc.status)
     return _row_response(
-        request, _single_row(step, old.quantity, old.sample_index), step.lot, outcome.status
+        request, _single_row(step, old.quantity, old.sample_index, person), step.lot, outcome.status
     )
 
 

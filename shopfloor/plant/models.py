@@ -198,6 +198,17 @@ class Person(models.Model):
     pin_failures = models.PositiveSmallIntegerField(default=0)
     locked_at = models.DateTimeField(null=True, blank=True)
     work_centers = models.ManyToManyField(WorkCenter, blank=True, related_name="people")
+    language = models.CharField(
+        max_length=10,
+        blank=True,
+        default="",
+        choices=settings.LANGUAGES,
+        help_text="Language of the tablet pages and the traveller for this person "
+        "(empty: the site's language). The person can change it on the tablet.",
+    )
+    # {quantity: {"unit": "mil", "equipment": 12}}: the unit and gauge this person last
+    # recorded each quantity with, offered first on the next sample (floor.views).
+    entry_defaults = models.JSONField(default=dict, blank=True, editable=False)
 
     class Meta:
         ordering = ["badge_number"]

@@ -20,6 +20,7 @@ from typing import Any
 
 from django.db.models import Avg, Count, Max, Min, Prefetch, Q, QuerySet
 
+from routing.builder.labels import quantity_label
 from shopfloor.audit.models import AuditEntry, Signature
 from shopfloor.core import judging
 from shopfloor.core.judging import describe_window
@@ -345,7 +346,7 @@ def _reading_event(r: Reading, step: LotStep) -> TimelineEvent:
     return TimelineEvent(
         r.captured_at,
         "reading",
-        f"{r.quantity} sample {r.sample_index} = {shown} at {step.name}",
+        f"{quantity_label(r.quantity)} sample {r.sample_index} = {shown} at {step.name}",
         detail,
         _person(r.operator),
         superseded=bool(r.superseded_by_id),
@@ -366,7 +367,7 @@ def _reading_events(
             TimelineEvent(
                 row["last"],
                 "reading",
-                f"{row['n']} {row['quantity']} readings at {step.name}: "
+                f"{row['n']} {quantity_label(row['quantity'])} readings at {step.name}: "
                 f"{judging.for_people(row['quantity'], row['lo'], symbol=False)} to "
                 f"{judging.for_people(row['quantity'], row['hi'], row['unit'])}, mean "
                 f"{judging.for_people(row['quantity'], row['mean'], row['unit'])}",

@@ -397,7 +397,7 @@ def test_busy_step_is_summarised_on_the_page_but_complete_in_exports(floor, clie
     page = _qe(client, floor).get(f"/quality/lots/{floor.lot.code}/")
     text = page.content.decode()
     assert page.status_code == 200
-    assert f"{count} copper_thickness readings at {step.name}" in text
+    assert f"{count} Copper thickness readings at {step.name}" in text  # its label
     assert "25 to 31.5 µm" in text  # min and max come from the database aggregate
     assert "1 OUT OF WINDOW (listed)" in text
     assert "= 31.5 µm" in text  # the out-of-window reading is listed on its own
