@@ -292,7 +292,10 @@ class WindowSerializer(serializers.Serializer):
     """A tolerance window in the canonical unit, always with its source."""
 
     quantity = serializers.CharField()
-    label = serializers.CharField(help_text="The quantity as people read it (display only)")
+    label = serializers.CharField(
+        required=False,
+        help_text="The quantity as people read it (display only; on readings and lot windows)",
+    )
     unit = serializers.CharField()
     min = serializers.FloatField(allow_null=True)
     max = serializers.FloatField(allow_null=True)

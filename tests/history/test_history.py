@@ -401,7 +401,7 @@ def test_busy_step_is_summarised_on_the_page_but_complete_in_exports(floor, clie
     assert "25 to 31.5 µm" in text  # min and max come from the database aggregate
     assert "1 OUT OF WINDOW (listed)" in text
     assert "= 31.5 µm" in text  # the out-of-window reading is listed on its own
-    assert text.count("copper_thickness sample") == 1  # in-window ones are summarised
+    assert text.count("Copper thickness sample") == 1  # in-window ones are summarised
     csv_reply = client.get(f"/quality/lots/{floor.lot.code}/readings.csv")
     rows = list(csv.DictReader(io.StringIO(b"".join(csv_reply.streaming_content).decode())))
     assert sum(1 for x in rows if x["record"] == "reading") == count
