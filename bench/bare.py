@@ -1,6 +1,6 @@
 """The reference endpoint for the ingest benchmark: DRF parses JSON and does one INSERT.
 
-Only routed when BENCH_ENDPOINTS=1 (bench/run sets it); never in production.
+Only routed when BENCH_ENDPOINTS=1 (`./dev bench` sets it); never in production.
 """
 
 from __future__ import annotations

@@ -537,7 +537,7 @@ def write_report(results: dict[str, Any]) -> None:
     lines = [
         "# Benchmarks",
         "",
-        f"Measured {results['date']} on {results['machine']} by `bash bench/run`.",
+        f"Measured {results['date']} on {results['machine']} by `./dev bench`.",
         "Run-to-run noise on these shared machines is 20-60 %: compare ratios measured in the",
         "same run, not absolute figures across runs.",
         "",

@@ -131,6 +131,8 @@ SITE_TIME_ZONE = env_str("SITE_TIME_ZONE", "UTC") or "UTC"  # shown to people
 STATIC_URL = "/static/"
 STATIC_ROOT = VAR_DIR / "static"
 STATICFILES_DIRS = [BASE_DIR / "shopfloor" / "static"]
+# Files served at the site root (the favicon browsers ask for at /favicon.ico).
+WHITENOISE_ROOT = BASE_DIR / "shopfloor" / "root_files"
 STORAGES = {
     "default": {"BACKEND": "django.core.files.storage.FileSystemStorage"},
     "staticfiles": {
@@ -239,7 +241,7 @@ CELERY_BROKER_TRANSPORT_OPTIONS = {
 CELERY_DB_REUSE_MAX = 200
 # The relay re-publishes an event published this long ago but still not processed.
 OUTBOX_REPUBLISH_AFTER_SECONDS = env_int("OUTBOX_REPUBLISH_AFTER_SECONDS", 120, minimum=5)
-BENCH_ENDPOINTS = env_bool("BENCH_ENDPOINTS", False)  # bench/run only
+BENCH_ENDPOINTS = env_bool("BENCH_ENDPOINTS", False)  # ./dev bench only
 OUTBOX_RELAY_SECONDS = env_int("OUTBOX_RELAY_SECONDS", 15, minimum=1)
 # The sealing task chains new audit entries this often; `audit verify` reports entries
 # left unsealed for longer than the bound (a stopped beat or a transaction left open).
@@ -296,6 +298,8 @@ if _mail_backend.endswith("smtp.EmailBackend"):
         "use_tls": env_bool("MAIL_USE_TLS", True),
         "timeout": 10,
     }
+elif _mail_backend.endswith("filebased.EmailBackend"):  # the demo: one file per message
+    _mail_options = {"file_path": env_str("MAIL_FILE_PATH", str(VAR_DIR / "mail"))}
 MAILERS = {"default": {"BACKEND": _mail_backend, "OPTIONS": _mail_options}}
 DEFAULT_FROM_EMAIL = env_str("DEFAULT_FROM_EMAIL", "shopfloor@localhost")
 ALERT_WEBHOOK_URL = env_str("ALERT_WEBHOOK_URL", "") or ""
@@ -307,7 +311,13 @@ LOGGING = {
     "formatters": {"plain": {"format": "%(asctime)s %(levelname)s %(name)s: %(message)s"}},
     "handlers": {"console": {"class": "logging.StreamHandler", "formatter": "plain"}},
     "root": {"handlers": ["console"], "level": env_str("LOG_LEVEL", "INFO")},
-    "loggers": {"django.db.backends": {"level": "WARNING"}},
+    "loggers": {
+        "django.db.backends": {"level": "WARNING"},
+        # runserver's request lines follow LOG_LEVEL too (the demo keeps only 4xx/5xx).
+        "django.server": {"level": env_str("LOG_LEVEL", "INFO")},
+        # Eager tasks (no REDIS_URL) never reach a broker; kombu's "no hostname" note is noise.
+        "kombu.connection": {"level": "ERROR" if not REDIS_URL else "WARNING"},
+    },
 }
 
 if CELERY_TASK_ALWAYS_EAGER:

@@ -1,5 +1,5 @@
 # Image for web, worker and beat (see docker-compose.yml). Build from the repository root:
-#   docker build -f .ci/Dockerfile -t shopfloor .
+#   docker build -t shopfloor .
 FROM python:3.12-slim
 ENV PYTHONDONTWRITEBYTECODE=1 PYTHONUNBUFFERED=1
 WORKDIR /app
