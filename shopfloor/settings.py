@@ -27,7 +27,8 @@ if not _secret:
             "SECRET_KEY is not set. Production (DEBUG off) needs a long random value; "
             "for a local first run set DEBUG=1 to use the development key."
         )
-    _secret = "dev-only-insecure-key-do-not-use-in-production-0123456789abcdef"
+    # The development key, only ever with DEBUG on (production refuses to start above).
+    _secret = "dev-only-insecure-key-do-not-use-in-production-0123456789abcdef"  # noqa: S105
 SECRET_KEY: str = _secret
 
 ALLOWED_HOSTS = env_list("ALLOWED_HOSTS", ["localhost", "127.0.0.1", "[::1]"] if DEBUG else [])

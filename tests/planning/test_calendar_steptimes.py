@@ -60,7 +60,8 @@ def test_calendar_input_is_checked():
     with pytest.raises(ValueError, match="0 \\(Monday\\) to 6"):
         ShiftCalendar(weekdays=frozenset({7}))
     with pytest.raises(ValueError, match="time zone"):
-        compile_calendar(ShiftCalendar(weekdays=frozenset({1})), dt.datetime(2030, 1, 1))
+        # a naive datetime on purpose: the calendar must refuse it
+        compile_calendar(ShiftCalendar(weekdays=frozenset({1})), dt.datetime(2030, 1, 1))  # noqa: DTZ001
 
 
 def test_credibility_weight_rule():
