@@ -95,6 +95,7 @@ TEMPLATES = [
                 "django.contrib.auth.context_processors.auth",
                 "django.contrib.messages.context_processors.messages",
                 "shopfloor.context.site",
+                "shopfloor.display.context",
             ],
         },
     }

@@ -664,10 +664,13 @@ def parse_filter(raw: Mapping[str, Any]) -> JobFilter:
     due: dt.date | None = None
     due_text = _text(raw.get("due_before"))
     if due_text:
+        from shopfloor.display import read_date
+
         try:
-            due = dt.date.fromisoformat(due_text)
-        except ValueError:
-            problems.append(_problem("due_before", due_text, "not a date", "YYYY-MM-DD"))
+            due = read_date("due_before", due_text)
+        except InvalidInput as exc:
+            allowed = exc.problems[0]["allowed"] if exc.problems else "YYYY-MM-DD"
+            problems.append(_problem("due_before", due_text, "not a date", allowed))
     customer = _text(raw.get("customer"))[:40]
     if problems:
         raise InvalidInput("The filter has problems.", problems=problems)

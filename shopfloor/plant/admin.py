@@ -14,6 +14,7 @@ from shopfloor.plant.models import (
     PartRevision,
     Person,
     Qualification,
+    SiteSettings,
     WorkCenter,
 )
 
@@ -128,3 +129,18 @@ class LotAdmin(admin.ModelAdmin):
 
     def has_add_permission(self, request, obj=None) -> bool:  # type: ignore[no-untyped-def]
         return False  # lots start through plant.services.create_lot (steps are copied)
+
+
+@admin.register(SiteSettings)
+class SiteSettingsAdmin(admin.ModelAdmin):
+    list_display = ["__str__", "date_format", "paper_size", "wall_page_seconds"]
+
+    def has_add_permission(self, request):  # type: ignore[no-untyped-def]
+        return False  # one row, made on first use: edit it, never add a second
+
+    def has_delete_permission(self, request, obj=None):  # type: ignore[no-untyped-def]
+        return False
+
+    def changelist_view(self, request, extra_context=None):  # type: ignore[no-untyped-def]
+        SiteSettings.current()  # so the one row is always there to edit
+        return super().changelist_view(request, extra_context)

@@ -12,6 +12,7 @@ from typing import Any
 
 from django.conf import settings
 from django.contrib.auth.hashers import check_password, make_password
+from django.core.validators import MaxValueValidator, MinValueValidator
 from django.db import models
 from django.db.models.functions import Upper
 from django.utils import timezone
@@ -209,6 +210,17 @@ class Person(models.Model):
     # {quantity: {"unit": "mil", "equipment": 12}}: the unit and gauge this person last
     # recorded each quantity with, offered first on the next sample (floor.views).
     entry_defaults = models.JSONField(default=dict, blank=True, editable=False)
+    theme = models.CharField(
+        max_length=12,
+        blank=True,
+        default="",
+        choices=[
+            ("", "as the device is set"),
+            ("standard", "standard"),
+            ("contrast", "high contrast"),
+        ],
+        help_text="Screen colours for this person; blank follows the device's own setting",
+    )
 
     class Meta:
         ordering = ["badge_number"]
@@ -374,3 +386,59 @@ class LoginThrottle(models.Model):
 
     def __str__(self) -> str:
         return f"{self.key}: {self.failures}"
+
+
+class SiteSettings(models.Model):
+    """How the site shows and prints things (one row; the admin edits it).
+
+    The date format is used by every page and the traveller (shopfloor/core/dates.py);
+    the paper size is the traveller's default; the wall board's page length and lots per
+    work center size the wall screen (a URL parameter may override them per screen)."""
+
+    class Paper(models.TextChoices):
+        A4 = "a4", "A4 (210 × 297 mm)"
+        LETTER = "letter", "US Letter (8.5 × 11 in)"
+
+    class DateStyle(models.TextChoices):
+        ISO = "iso", "YYYY-MM-DD (ISO 8601)"
+        DMY_SLASH = "dmy_slash", "DD/MM/YYYY"
+        MDY_SLASH = "mdy_slash", "MM/DD/YYYY"
+        DMY_DOT = "dmy_dot", "DD.MM.YYYY"
+
+    paper_size = models.CharField(
+        max_length=10,
+        choices=Paper.choices,
+        default=Paper.A4,
+        help_text="The traveller prints on this paper unless the print link asks for another",
+    )
+    date_format = models.CharField(
+        max_length=12,
+        choices=DateStyle.choices,
+        default=DateStyle.ISO,
+        help_text="How every page, filter and traveller writes a date",
+    )
+    wall_page_seconds = models.PositiveSmallIntegerField(
+        default=20,
+        validators=[MinValueValidator(5), MaxValueValidator(600)],
+        help_text="The wall board shows each page this long when the floor does not fit "
+        "one screen (5-600 s)",
+    )
+    wall_lots_per_center = models.PositiveSmallIntegerField(
+        default=6,
+        validators=[MinValueValidator(1), MaxValueValidator(40)],
+        help_text="Lots the wall board lists per work center; the rest show as '+N more'",
+    )
+
+    class Meta:
+        verbose_name = "site settings"
+        verbose_name_plural = "site settings"
+
+    def __str__(self) -> str:
+        return f"dates {self.get_date_format_display()}, traveller on {self.paper_size.upper()}"
+
+    @classmethod
+    def current(cls) -> SiteSettings:
+        row = cls.objects.filter(pk=1).first()
+        if row is None:
+            row, _ = cls.objects.get_or_create(pk=1)
+        return row

@@ -32,7 +32,7 @@ def test_board_shows_the_forecast(browser, live_server, floor, size):
     )
     page.goto(f"{live_server.url}/board/")
     row = page.locator(f'tr[data-lot="{floor.lot.code}"]')
-    forecast = row.locator(".due .forecast")
+    forecast = row.locator("td.forecast")
     assert forecast.inner_text().startswith("P50 ")
     assert "P90 " in forecast.inner_text()
     # the P50 / P90 line stays inside its cell (no overflow past the table)

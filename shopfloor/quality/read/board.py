@@ -46,6 +46,8 @@ from django.utils.http import RFC3986_SUBDELIMS
 from django.utils.text import Truncator
 
 from shopfloor.core import schedule
+from shopfloor.core.dates import FORMATS, ISO, DateFormat
+from shopfloor.display import carried_settings, read_date, with_site_settings
 from shopfloor.errors import InvalidInput
 from shopfloor.floor.models import LotStep
 from shopfloor.planning.models import JobForecast, LotForecast
@@ -103,23 +105,12 @@ class BoardFilters:
         return {k: v for k, v in raw.items() if v}
 
 
-def _parse_date(name: str, value: str) -> dt.date | None:
-    value = (value or "").strip()
-    if not value:
-        return None
-    try:
-        return dt.date.fromisoformat(value)
-    except ValueError as exc:
-        raise InvalidInput(
-            f"{name} {value!r} is not a date; use YYYY-MM-DD (for example 2030-01-31).",
-            problems=[{"field": name, "value": value, "allowed": "YYYY-MM-DD"}],
-        ) from exc
-
-
 def parse_filters(params: Any) -> BoardFilters:
-    """Read the board's query string; a bad value raises InvalidInput saying what is allowed."""
-    due_from = _parse_date("due_from", params.get("due_from", ""))
-    due_to = _parse_date("due_to", params.get("due_to", ""))
+    """Read the board's query string; a bad value raises InvalidInput saying what is allowed.
+
+    Dates are read in ISO 8601 (links carry it) or the site's format (what people type)."""
+    due_from = read_date("due_from", params.get("due_from", ""))
+    due_to = read_date("due_to", params.get("due_to", ""))
     if due_from and due_to:
         if due_to < due_from:
             raise InvalidInput("The due date range ends before it starts; swap the two dates.")
@@ -247,6 +238,7 @@ class BoardLot:
     now: dt.datetime
     links: BoardLinks
     hold_reason: str = ""
+    date_format: DateFormat = ISO
     # None until read: build_board reads the jobs of the rows it shows (of every lot
     # when sorting by due date), so the lots behind "... and N more" have none.
     jobs: list[JobOnLot] | None = None
@@ -354,7 +346,8 @@ class BoardLot:
         """'P50 Thu 14:05 · P90 Fri 09:40' in the site's time zone, '' without a forecast."""
         if self.p50 is None or self.p90 is None:
             return ""
-        return f"P50 {_when(self.p50, self.now)} · P90 {_when(self.p90, self.now)}"
+        fmt = self.date_format
+        return f"P50 {_when(self.p50, self.now, fmt)} · P90 {_when(self.p90, self.now, fmt)}"
 
     @property
     def due_word(self) -> str:
@@ -369,8 +362,9 @@ class BoardLot:
         if self.earliest_due is None:
             return ""
         if any(j.p90 is not None for j in self.job_list):
-            return f"due {self.earliest_due.isoformat()} · forecast"
-        return f"{self.earliest_due.isoformat()} · {self.remaining_minutes} std min left"
+            return f"due {self.date_format.format(self.earliest_due)} · forecast"
+        due = self.date_format.format(self.earliest_due)
+        return f"{due} · {self.remaining_minutes} std min left"
 
     @property
     def hold_summary(self) -> str:
@@ -378,7 +372,12 @@ class BoardLot:
 
     @property
     def alert_words(self) -> list[str]:
-        return [str(a.get_kind_display()) for a in self.alerts]
+        """Each kind of open alert once ('Reading out of window ×3' when repeated)."""
+        counts: dict[str, int] = {}
+        for a in self.alerts:
+            word = str(a.get_kind_display())
+            counts[word] = counts.get(word, 0) + 1
+        return [f"{w} ×{n}" if n > 1 else w for w, n in counts.items()]
 
     @property
     def lot_url(self) -> str:
@@ -447,11 +446,23 @@ class Board:
     # When the finish forecast the rows use was made; None: due-date risk comes from the
     # flow-factor fallback (no fresh forecast yet).
     forecast_at: dt.datetime | None = None
+    # The site's settings (date format, wall board sizes), read with the work centers.
+    site: Any = None
+    # True when a filter narrows the lots (alerts then follow the lots shown).
+    filtered: bool = False
+
+    @property
+    def date_format(self) -> DateFormat:
+        return _format_of(self.site)
 
 
-def _when(moment: dt.datetime, now: dt.datetime) -> str:
+def _format_of(site: Any) -> DateFormat:
+    return FORMATS.get(site.date_format if site is not None else "iso", ISO)
+
+
+def _when(moment: dt.datetime, now: dt.datetime, date_format: DateFormat = ISO) -> str:
     """A forecast moment for a wall screen: '14:05' today, 'Thu 14:05' within a week,
-    '2030-01-31' further out (site time zone)."""
+    the date in the site's format further out (site time zone)."""
     tz = zoneinfo.ZoneInfo(settings.SITE_TIME_ZONE)
     local, today = moment.astimezone(tz), now.astimezone(tz).date()
     days = (local.date() - today).days
@@ -459,7 +470,7 @@ def _when(moment: dt.datetime, now: dt.datetime) -> str:
         return local.strftime("%H:%M")
     if 0 < days < 7:
         return local.strftime("%a %H:%M")
-    return local.date().isoformat()
+    return date_format.format(local.date())
 
 
 def duration_text(minutes: float) -> str:
@@ -653,11 +664,43 @@ def _read_jobs(
     return forecast_at
 
 
+def lot_filters_set(f: BoardFilters) -> bool:
+    """Whether a filter on the lots themselves (customer, due dates, class, finish) is set."""
+    return bool(f.customer or f.due_from or f.due_to or f.ipc_class or f.finish)
+
+
+_CENTER = _STEP_COLUMNS.index("work_center_id")
+
+
+def _alerts_for_filters(
+    alerts: QuerySet[Alert], f: BoardFilters, steps: list[Any], centers: list[WorkCenter]
+) -> QuerySet[Alert]:
+    """The open alerts that belong to what the filters show.
+
+    No filter: every open alert. A work center alone: alerts raised there and alerts on
+    the lots waiting or in work there. A filter on lots (customer, due dates, class,
+    finish): alerts on the lots shown, and alerts with no lot (a bath, an instrument) at
+    a work center where one of those lots is now."""
+    lot_filtered = lot_filters_set(f)
+    if not lot_filtered and not f.work_center:
+        return alerts
+    lot_ids = [s[_LOT_ID] for s in steps]
+    if lot_filtered:
+        where = {s[_CENTER] for s in steps}
+        return alerts.filter(
+            Q(lot_id__in=lot_ids) | Q(lot__isnull=True, work_center_id__in=sorted(where))
+        )
+    wanted = [c.pk for c in centers if c.code == f.work_center]
+    return alerts.filter(Q(lot_id__in=lot_ids) | Q(work_center_id__in=wanted))
+
+
 def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = None) -> Board:
     """Everything the board shows, in a number of queries that does not grow with lots."""
     now = now or timezone.now()
     links = BoardLinks()
-    centers = list(WorkCenter.objects.order_by("code"))
+    centers = list(with_site_settings(WorkCenter.objects.order_by("code")))
+    site = carried_settings(centers[0] if centers else None)
+    date_format = _format_of(site)
     # Plain tuples, not model instances: the board reads thousands of them every poll.
     steps = list(board_steps(scope, filters, centers))
     lot_ids = [s[_LOT_ID] for s in steps]
@@ -676,6 +719,7 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
         open_alerts = open_alerts.filter(
             Q(work_center_id__in=scope.work_center_ids) | Q(lot_id__in=lot_ids)
         )
+    open_alerts = _alerts_for_filters(open_alerts, filters, steps, centers)
     alerts = list(
         open_alerts.select_related("lot", "work_center", "job").order_by("-created_at")[
             :ALERT_LIMIT
@@ -740,6 +784,7 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
             now=now,
             links=links,
             hold_reason=hold_reasons.get(lot_id, ""),
+            date_format=date_format,
             alerts=alerts_by_lot.get(lot_id, no_alerts),
         )
         lots.append(item)
@@ -782,4 +827,6 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
         now=now,
         lot_count=len(steps),
         forecast_at=forecast_at,
+        site=site,
+        filtered=bool(filters.as_query().keys() - {"sort"}),
     )

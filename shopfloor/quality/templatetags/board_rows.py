@@ -62,9 +62,7 @@ def _row(lot: BoardLot, may_reorder: bool, form_id: str, back: str, csrf: str) -
     due = f"<strong>{_e(lot.due_word)}</strong>"
     if lot.job_list:
         due += f'<div class="muted">{_e(lot.due_detail)}</div>'
-    if lot.forecast_text:
-        p50, _, p90 = lot.forecast_text.partition(" · ")
-        due += f'<div class="forecast"><span>{_e(p50)}</span> · <span>{_e(p90)}</span></div>'
+    finish_cell = projected_finish(lot)
     order = ""
     if may_reorder:
         buttons = ""
@@ -86,8 +84,18 @@ def _row(lot: BoardLot, may_reorder: bool, form_id: str, back: str, csrf: str) -
         f"<td>{_e(lot.wip_text)}</td>"
         f'<td class="queue-time">{queue}</td>'
         f'<td class="due">{due}</td>'
+        f'<td class="forecast">{finish_cell}</td>'
         f"{order}</tr>\n"
     )
+
+
+def projected_finish(lot: BoardLot) -> str:
+    """The projected-finish cell: the lot's P50 and P90 from the planning forecast, one
+    per line, or a muted 'no forecast' while there is no fresh run."""
+    if not lot.forecast_text:
+        return '<span class="muted">no forecast</span>'
+    p50, _, p90 = lot.forecast_text.partition(" · ")
+    return f"<span>{_e(p50)}</span><br><span>{_e(p90)}</span>"
 
 
 _MOVES = (("top", "to the top", "Top"), ("up", "up", "Up"), ("down", "down", "Down"))
