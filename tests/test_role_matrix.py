@@ -370,6 +370,19 @@ ROWS: dict[str, Row] = {
         api=False,
         body=lambda c: {f"accepted-{c['job'].number}": "1"},
     ),
+    # The scan field of a lot page whose step consumes materials: an unknown code is a
+    # 404 for every person (a material lot goes through the material row's rule above).
+    "POST tablet scan at step": Row(
+        "POST",
+        lambda c: f"/floor/steps/{c['step'].pk}/scan/",
+        PEOPLE,
+        api=False,
+        body=lambda c: {"code": "NO-SUCH-CODE"},
+        lab=A,  # a lot, panel or job scan opens a page; nothing is recorded
+    ),
+    # The offline tablet's service worker and offline page hold no one's data.
+    "GET tablet service worker": Row("GET", lambda c: "/floor/sw.js", (A,) * 8, api=False),
+    "GET tablet offline page": Row("GET", lambda c: "/floor/offline/", (A,) * 8, api=False),
     "GET locked badges": Row("GET", lambda c: "/floor/people/locked/", SUP_ADMIN, api=False),
     "POST unlock badge": Row(
         "POST", lambda c: f"/floor/people/{c['locked'].pk}/unlock/", SUP_ADMIN, api=False

@@ -45,7 +45,6 @@ from shopfloor.floor.api import problems_from
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.floor.permissions import FLOOR_ROLES, check_work_center, roles_of
 from shopfloor.floor.serializers import batch_items
-from shopfloor.orders.services import lots_for_scan
 from shopfloor.plant.models import Equipment, Lot, Person, WorkCenter
 from shopfloor.quality import access
 
@@ -166,25 +165,6 @@ def queue(request: HttpRequest, code: str) -> HttpResponse:
     wc = _work_center_for(person, code)
     request.session["work_center"] = wc.code
     return render(request, "floor/queue.html", {"wc": wc, "rows": _queue(wc)})
-
-
-@login_required
-@require_GET
-def scan(request: HttpRequest) -> HttpResponse:
-    _person(request)
-    form = forms.ScanForm(request.GET)
-    code = request.GET.get("code", "")
-    try:
-        if not form.is_valid():
-            raise InvalidInput("Scan or type a lot code, panel serial or job number.")
-        lots = lots_for_scan(form.cleaned_data["code"])
-    except DomainError as exc:
-        return render(
-            request, "floor/scan.html", {"error": exc.detail, "code": code}, status=exc.status
-        )
-    if len(lots) > 1:  # a job number with several lots on the floor: let the person pick
-        return render(request, "floor/scan.html", {"choices": lots, "code": code})
-    return redirect("floor:lot", code=lots[0].code)
 
 
 # --- the lot page ---------------------------------------------------------------------

@@ -32,6 +32,11 @@
     if (key && (fresh || !key.value)) { key.value = uuid(); }
     if (at && (fresh || !at.value)) { at.value = isoWithOffset(new Date()); }
   }
+  // For the offline queue (offline.js): the same key and time stamping.
+  window.floorTablet = {
+    stamp: stamp,
+    now: function () { return isoWithOffset(new Date()); }
+  };
   document.addEventListener("change", function (e) {
     var form = e.target.form;
     if (form && form.hasAttribute("data-idempotent") && e.target.name === "value") {
@@ -44,11 +49,20 @@
       stamp(e.target, false);
     }
   }, true);
+  // The scan field: a scanner types the whole code then Enter, so whatever the field
+  // still shows (the last scan) is selected and the next scan replaces it.
+  function selectScan(field) {
+    if (field && field.id === "lot-code" && field.value) { field.select(); }
+  }
+  document.addEventListener("focusin", function (e) { selectScan(e.target); });
+  selectScan(document.activeElement);
   // After a swap, put the cursor where the next reading goes (scanner/keyboard flow).
   document.addEventListener("htmx:afterSwap", function (e) {
-    var next = document.querySelector(".sample-row form input[name=value]");
-    if (next && e.detail && e.detail.target && !e.detail.target.querySelector(".error")) {
-      next.focus({ preventScroll: false });
+    if (!e.detail || !e.detail.target || e.detail.target.querySelector(".error, .confirm-box")) {
+      return;
     }
+    var next = document.querySelector(".sample-row form:not([hidden]) input[name=value]");
+    // Every sample recorded: back to the scan field for the next lot or material.
+    (next || document.getElementById("lot-code") || document.body).focus({ preventScroll: false });
   });
 })();
