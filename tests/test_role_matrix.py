@@ -35,8 +35,8 @@ from django.utils import timezone
 from rest_framework.test import APIClient
 
 from shopfloor.plant.models import MaterialLot, Panel, Person, Qualification, Role, WorkCenter
-from shopfloor.quality import services as quality_services
 from shopfloor.quality.models import Nonconformance, SeriesState
+from shopfloor.quality.services import alerts
 from tests.api.helpers import advance_to, issue_token
 from tests.factories import PIN, make_person
 from tests.worker import floorkit as kit
@@ -705,7 +705,7 @@ def world(floor):
     held_lot = kit.new_lot(floor, code="LMATRIX2")
     held_step = kit.start_at(floor, held_lot)
     bad = kit.record(floor, held_step, "surface_copper", 70.0)
-    quality_services.handle_event(kit.event_for(bad).pk)
+    alerts.handle_event(kit.event_for(bad).pk)
     locked = make_person(Role.OPERATOR, "1008", "Lee Locked")
     Person.objects.filter(pk=locked.pk).update(locked_at=timezone.now(), pin_failures=5)
     from tests.factories import SPEC_4L_ENIG

@@ -298,8 +298,8 @@ def record_analysis(
     parameter's due and overdue alerts close.
     """
     _require(person, LAB_ROLES, "enter bath analyses")
-    from shopfloor.quality import services as quality
     from shopfloor.quality.models import Alert
+    from shopfloor.quality.services import alerts
 
     tank = get_tank(tank_code)
     now = timezone.now()
@@ -377,7 +377,7 @@ def record_analysis(
         else:
             exposed = exposure(analysis)
             side = "below" if value < param.low else "above"
-            quality.raise_alert(
+            alerts.raise_alert(
                 {"tank": tank.code, "analysis": analysis.pk, "lots_exposed": len(exposed.lots)},
                 kind=Alert.Kind.BATH_OUT_OF_WINDOW,
                 severity=Alert.Severity.WARNING,
@@ -396,8 +396,8 @@ def _drift_alert(analysis: Analysis) -> None:
     """An in-window analysis that breaks a run rule on its tank x parameter chart raises a
     drift warning (never a hold), as readings do; an out-of-window one already alerted."""
     from shopfloor.chemistry.spc_view import parameter_chart
-    from shopfloor.quality import services as quality
     from shopfloor.quality.models import Alert
+    from shopfloor.quality.services import alerts
 
     param = analysis.parameter
     if param.last_analysis_id != analysis.pk:
@@ -410,7 +410,7 @@ def _drift_alert(analysis: Analysis) -> None:
     fired = [s for s in chart.signals if s.index == newest and s.rule not in before]
     if not fired:
         return
-    quality.raise_alert(
+    alerts.raise_alert(
         {"tank": analysis.tank.code, "parameter": param.code, "rule": fired[0].rule},
         kind=Alert.Kind.DRIFT,
         severity=Alert.Severity.WARNING,
@@ -499,8 +499,8 @@ def hold_exposed_lots(*, person: Person, analysis_id: int) -> list[Lot]:
     """Hold every exposed lot (not scrapped, not already held for this analysis) with an
     NCR each, so quality reviews them; returns the lots newly held."""
     _require(person, HOLD_ROLES, "hold the lots a bath touched")
-    from shopfloor.quality import services as quality
     from shopfloor.quality.models import Alert
+    from shopfloor.quality.services import alerts
 
     analysis = get_analysis(analysis_id)
     if analysis.in_window:
@@ -520,7 +520,7 @@ def hold_exposed_lots(*, person: Person, analysis_id: int) -> list[Lot]:
                 f"{param.name} was {fmt(param, analysis.value)} (window {window_text(param)}, "
                 f"analysis {analysis.pk}). Held for quality review of the bath exposure."
             )
-            alert = quality.raise_alert(
+            alert = alerts.raise_alert(
                 {"lot": lot.code, "analysis": analysis.pk, "by": person.badge_number},
                 kind=Alert.Kind.BATH_OUT_OF_WINDOW,
                 severity=Alert.Severity.WARNING,
@@ -532,7 +532,7 @@ def hold_exposed_lots(*, person: Person, analysis_id: int) -> list[Lot]:
             )
             if alert is None:
                 continue  # already held for this analysis
-            quality.hold_for_review(
+            alerts.hold_for_review(
                 lot=lot,
                 lot_step=step,
                 alert=alert,
@@ -1049,8 +1049,8 @@ def check_analyses(now: datetime | None = None) -> dict[str, int]:
     id), so reruns of the beat task change nothing; recording the analysis closes it.
     Analyses that are merely due show on the lab page and the board's lab strip.
     """
-    from shopfloor.quality import services as quality
     from shopfloor.quality.models import Alert
+    from shopfloor.quality.services import alerts
 
     now = now or timezone.now()
     counts = {"checked": 0, "due": 0, "overdue": 0, "alerts": 0}
@@ -1070,7 +1070,7 @@ def check_analyses(now: datetime | None = None) -> dict[str, int]:
                 else f"is {-(prow.due.amp_hours_left or 0):.0f} Ah past its interval"
             )
             with transaction.atomic():
-                alert = quality.raise_alert(
+                alert = alerts.raise_alert(
                     {"tank": row.tank.code, "parameter": p.code},
                     kind=Alert.Kind.ANALYSIS_OVERDUE,
                     severity=Alert.Severity.WARNING,

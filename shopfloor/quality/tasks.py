@@ -14,7 +14,8 @@ import time
 from celery import shared_task
 from django.db import InterfaceError, OperationalError
 
-from shopfloor.quality import notify, services
+from shopfloor.quality import notify
+from shopfloor.quality.services import alerts, deadlines, notifications
 
 log = logging.getLogger("shopfloor.tasks")
 
@@ -35,7 +36,7 @@ _DB_ERRORS = (OperationalError, InterfaceError)
     retry_jitter=True,
 )
 def process_event(event_id: int) -> None:
-    outcome = services.handle_event(event_id)
+    outcome = alerts.handle_event(event_id)
     pause = os.environ.get(PAUSE_ENV)
     if pause and outcome.acted:
         time.sleep(float(pause))
@@ -51,12 +52,12 @@ def process_event(event_id: int) -> None:
 )
 def process_events(event_ids: list[int]) -> dict[str, int]:
     """In-window events of a batch post, processed together (one transaction)."""
-    return services.handle_events(event_ids)
+    return alerts.handle_events(event_ids)
 
 
 @shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
 def relay_outbox() -> dict[str, int]:
-    return services.relay_outbox()
+    return notifications.relay_outbox()
 
 
 @shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
@@ -69,12 +70,12 @@ def seal_audit() -> int:
 
 @shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
 def check_queue_times() -> dict[str, int]:
-    return services.check_queue_times()
+    return deadlines.check_queue_times()
 
 
 @shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
 def check_due_dates() -> dict[str, int]:
-    return services.check_due_dates()
+    return deadlines.check_due_dates()
 
 
 @shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
@@ -93,7 +94,7 @@ def check_bath_analyses() -> dict[str, int]:
     retry_backoff_max=300,
 )
 def notify_alert(alert_id: int) -> bool:
-    return services.notify_alert(alert_id)
+    return notifications.notify_alert(alert_id)
 
 
 @shared_task(
@@ -105,7 +106,7 @@ def notify_alert(alert_id: int) -> bool:
     retry_jitter=True,
 )
 def deliver_webhook(alert_id: int) -> None:
-    services.deliver_webhook(alert_id)
+    notifications.deliver_webhook(alert_id)
 
 
 @shared_task(acks_late=True)

@@ -34,10 +34,10 @@ from shopfloor.errors import Conflict, DomainError, InvalidInput
 from shopfloor.orders import services as orders_services
 from shopfloor.planning import services as planning
 from shopfloor.planning.services import PLANNING_ROLES
-from shopfloor.quality import access, charts, exports, history, services
+from shopfloor.quality import access, charts, exports, history
 from shopfloor.quality.access import Scope, scope_for
 from shopfloor.quality.read import board
-from shopfloor.quality.services import queue
+from shopfloor.quality.services import deadlines, dispositions, limits, queue
 
 View = Callable[..., HttpResponse]
 
@@ -127,7 +127,7 @@ def queue_move(request: HttpRequest, scope: Scope, work_center_id: int) -> HttpR
 @require_POST
 @reader
 def queue_release(request: HttpRequest, scope: Scope, lot_step_id: int) -> HttpResponse:
-    services.release_queue_warning(scope.actor, lot_step_id, request.POST.get("reason", ""))
+    deadlines.release_queue_warning(scope.actor, lot_step_id, request.POST.get("reason", ""))
     return redirect(reverse("quality:board") + _back_query(request))
 
 
@@ -306,8 +306,8 @@ def _spc_context(scope: Scope, key: str) -> dict[str, Any]:
         ),
         "window_words": describe_window(d.window) if d.window else "",
         "may_set_limits": "quality_engineer" in scope.roles and scope.person is not None,
-        "rule_sets": list(services.RULESET_NAMES.items()),
-        "rules_name": services.RULESET_NAMES.get(d.rules, d.rules),
+        "rule_sets": list(limits.RULESET_NAMES.items()),
+        "rules_name": limits.RULESET_NAMES.get(d.rules, d.rules),
         "entered": {},
     }
 
@@ -357,7 +357,7 @@ def spc_limits(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
     try:
         series = access.access_series(scope, key)
         if action == "fix":
-            services.fix_limits(
+            limits.fix_limits(
                 scope.actor,
                 series.pk,
                 centre=_number(request.POST.get("centre", ""), "Centre line"),
@@ -366,7 +366,7 @@ def spc_limits(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
             )
             messages.success(request, "Control limits fixed; the change is in the audit trail.")
         elif action == "recompute":
-            services.recompute_limits(
+            limits.recompute_limits(
                 scope.actor,
                 series.pk,
                 _site_day(request.POST.get("start", ""), "the baseline's first day", end=False),
@@ -376,7 +376,7 @@ def spc_limits(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
                 request, "Control limits recomputed from the baseline; the change is audited."
             )
         elif action == "rules":
-            services.set_series_rules(scope.actor, series.pk, request.POST.get("rules", ""))
+            limits.set_series_rules(scope.actor, series.pk, request.POST.get("rules", ""))
             messages.success(request, "Run rules changed; the change is in the audit trail.")
         else:
             raise InvalidInput(f"Unknown action {action!r}; use fix, recompute or rules.")
@@ -420,12 +420,11 @@ def _panel_ids(raw: list[str]) -> list[Any]:
 
 def _ncr_context(scope: Scope, number: str) -> dict[str, Any]:
     from shopfloor.floor.models import ScrapReason
-    from shopfloor.quality import disposition
     from shopfloor.quality.models import RootCause
 
     ncr = access.access_ncr(scope, number)
     held = ncr.lot_step
-    default_route = disposition.default_rework(held) if held else []
+    default_route = dispositions.default_rework(held) if held else []
     route_rows = max(len(default_route) + 2, 4)
     return {
         "ncr": ncr,
@@ -439,7 +438,7 @@ def _ncr_context(scope: Scope, number: str) -> dict[str, Any]:
         "panel_rows": [(p, "") for p in ncr.lot.panels.filter(scrapped=False).order_by("serial")],
         "panel_choices": PANEL_CHOICES,
         "rework_steps": list(ncr.rework_steps.select_related("work_center").order_by("position")),
-        "rework_library": disposition.rework_choices(held) if held else [],
+        "rework_library": dispositions.rework_choices(held) if held else [],
         "default_route": default_route,
         "route_slots": [
             default_route[i] if i < len(default_route) else "" for i in range(route_rows)
@@ -516,7 +515,7 @@ def ncr_page(request: HttpRequest, scope: Scope, number: str) -> HttpResponse:
     try:
         args = _disposition_input(request)
         disposition = args.pop("disposition")
-        services.disposition_ncr(
+        dispositions.disposition_ncr(
             scope.actor,
             ncr.pk,
             disposition,

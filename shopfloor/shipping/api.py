@@ -34,7 +34,7 @@ from shopfloor.floor.permissions import (
     _RolePermission,
     access_step,
 )
-from shopfloor.quality import services as quality
+from shopfloor.quality.services import dispositions
 from shopfloor.shipping import services
 
 SHIP_ROLES = frozenset({"planner", "admin"})
@@ -373,7 +373,7 @@ class DispositionView(JsonAPIView):
             raise NotFound(f"No NCR {number!r}.")
 
         def action() -> tuple[int, Any]:
-            done = quality.disposition_ncr(
+            done = dispositions.disposition_ncr(
                 person,
                 ncr.pk,
                 data.get("disposition") or "",

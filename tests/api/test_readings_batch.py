@@ -18,8 +18,8 @@ from shopfloor.audit import services as audit
 from shopfloor.audit.models import AuditEntry
 from shopfloor.floor.models import Reading
 from shopfloor.quality import outbox
-from shopfloor.quality import services as quality_services
 from shopfloor.quality.models import Alert, OutboxEvent
+from shopfloor.quality.services import alerts
 from tests.api.helpers import issue_token
 from tests.worker import floorkit as kit
 
@@ -213,9 +213,9 @@ def test_out_of_window_items_go_to_the_worker_at_once(floor, plating, client, mo
     in_event = OutboxEvent.objects.get(payload__in_window=True)
     assert sent == [("one", [out_event.pk]), ("batch", [in_event.pk])]
     # The worker: the urgent event alerts exactly once; the batch path marks the other.
-    quality_services.handle_event(out_event.pk)
-    quality_services.handle_event(out_event.pk)
-    assert quality_services.handle_events([in_event.pk, in_event.pk]) == {
+    alerts.handle_event(out_event.pk)
+    alerts.handle_event(out_event.pk)
+    assert alerts.handle_events([in_event.pk, in_event.pk]) == {
         "claimed": 1,
         "processed": 1,
         "failed": 0,
@@ -237,15 +237,15 @@ def test_a_failing_event_does_not_block_its_batch(floor, plating, client, monkey
     body = {"items": [item(floor.lot, f"F-{i}", sample=i, value=45.0) for i in (1, 2, 3)]}
     client.post(URL, body, format="json")
     events = list(OutboxEvent.objects.order_by("pk"))
-    real = quality_services._dispatch
+    real = alerts._dispatch
 
     def flaky(event):
         if event.pk == events[1].pk:
             raise RuntimeError("broken reading")
         return real(event)
 
-    monkeypatch.setattr(quality_services, "_dispatch", flaky)
-    outcome = quality_services.handle_events([e.pk for e in events])
+    monkeypatch.setattr(alerts, "_dispatch", flaky)
+    outcome = alerts.handle_events([e.pk for e in events])
     assert outcome == {"claimed": 3, "processed": 2, "failed": 1}
     failed = OutboxEvent.objects.get(pk=events[1].pk)
     assert failed.processed_at is None and "broken reading" in failed.last_error

@@ -8,8 +8,8 @@ from __future__ import annotations
 import pytest
 
 from shopfloor.floor.models import LotStep
-from shopfloor.quality import services
 from shopfloor.quality.models import Nonconformance
+from shopfloor.quality.services import alerts
 from tests.factories import PIN
 from tests.worker import floorkit as kit
 
@@ -21,7 +21,7 @@ OFFICE = {"width": 1280, "height": 800}
 def test_quality_engineer_dispositions_rework_and_hold_banner_goes(persona_page, floor, shoot):
     step = kit.start_at(floor, floor.lot)
     reading = kit.record(floor, step, "surface_copper", 70.0)  # window 33.75-57.5 um
-    services.handle_event(kit.event_for(reading).pk)
+    alerts.handle_event(kit.event_for(reading).pk)
     ncr = Nonconformance.objects.get(lot=floor.lot)
 
     tablet = persona_page("operator")

@@ -16,8 +16,8 @@ from playwright.sync_api import expect
 from shopfloor.audit.models import Signature
 from shopfloor.floor import services as floor_services
 from shopfloor.plant.models import Lot
-from shopfloor.quality import services
 from shopfloor.quality.models import Hold, Nonconformance, OutboxEvent
+from shopfloor.quality.services import alerts
 from tests import factories
 from tests.browser.conftest import TABLET
 from tests.factories import PIN
@@ -31,7 +31,7 @@ DESK = {"width": 1366, "height": 768}
 def _handle_all() -> None:
     """What the alert worker does with the outbox (it has its own tests)."""
     for event in OutboxEvent.objects.filter(processed_at__isnull=True).order_by("pk"):
-        services.handle_event(event.pk)
+        alerts.handle_event(event.pk)
 
 
 def _held_class3_lot(floor):

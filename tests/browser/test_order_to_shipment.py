@@ -27,8 +27,8 @@ from playwright.sync_api import expect
 
 from shopfloor.floor import services as floor_services
 from shopfloor.plant.models import Job, Lot, MaterialLot, PartRevision
-from shopfloor.quality import services as quality
 from shopfloor.quality.models import Nonconformance
+from shopfloor.quality.services import alerts
 from tests.factories import PIN
 from tests.floor import helpers
 from tests.worker import floorkit as kit
@@ -156,7 +156,7 @@ def test_order_to_shipment_in_the_browser(persona_page, floor, shoot, tmp_path):
     aoi = _finish_until(lot, operator, "outer_aoi")
     floor_services.start_step(person=operator, lot_step_id=aoi.pk)
     bad = kit.record(floor, aoi, "aoi_defects", 2, unit="count")
-    quality.handle_event(kit.event_for(bad).pk)
+    alerts.handle_event(kit.event_for(bad).pk)
     ncr = Nonconformance.objects.get(lot=lot)
     qe = persona_page("quality_engineer", viewport=OFFICE)
     qe.goto(f"/quality/ncrs/{ncr.number}/")

@@ -18,8 +18,9 @@ from http.server import BaseHTTPRequestHandler, HTTPServer
 import pytest
 import redis
 
-from shopfloor.quality import services, tasks
+from shopfloor.quality import tasks
 from shopfloor.quality.models import Alert, Hold, Nonconformance, OutboxEvent
+from shopfloor.quality.services import notifications
 from tests import factories
 from tests.worker import floorkit as kit
 from tests.worker.procs import broker_at, private_redis, wait_for, workers  # noqa: F401
@@ -90,7 +91,7 @@ def test_redis_down_then_relay_delivers_every_alert_once(workers, broker_at, rec
     assert Alert.objects.count() == 0
 
     broker_at.start()  # an empty Redis: everything in flight was lost with the old one
-    result = services.relay_outbox()
+    result = notifications.relay_outbox()
     assert result["published"] == 3
 
     def all_done() -> bool:

@@ -271,16 +271,16 @@ def test_jobs_api_and_job_page_carry_the_forecast(floor, client):
 
 
 def test_due_date_alert_follows_the_forecast(floor):
-    from shopfloor.quality import services as quality_services
     from shopfloor.quality.models import Alert
+    from shopfloor.quality.services import deadlines
 
     # on time by the flow factor (due in 10 days), late by the forecast (shop shut 30 days)
-    assert quality_services.check_due_dates()["at_risk"] == 0
+    assert deadlines.check_due_dates()["at_risk"] == 0
     today = timezone.localdate()
     Holiday.objects.bulk_create(
         [Holiday(date=today + dt.timedelta(days=k), name="shutdown") for k in range(31)]
     )
     _run()
-    assert quality_services.check_due_dates()["at_risk"] == 1
+    assert deadlines.check_due_dates()["at_risk"] == 1
     alert = Alert.objects.get(job=floor.job, kind=Alert.Kind.DUE_RISK)
     assert "forecast P90 finish" in alert.message

@@ -2,7 +2,7 @@
 
 Windows come from the routing library (pattern plate surface copper 33.75-57.5 um, hole
 wall copper >= 20 um per IPC-6012 class 2, from memory). The severity rule (critical
-beyond 10 % of the window's span) is the shop rule stated in shopfloor.quality.services.
+beyond 10 % of the window's span) is the shop rule stated in shopfloor.quality.services.alerts.
 """
 
 from __future__ import annotations
@@ -16,8 +16,9 @@ from django.db import transaction
 from shopfloor.audit.models import AuditEntry
 from shopfloor.floor.models import Reading
 from shopfloor.plant.models import Lot
-from shopfloor.quality import outbox, services
+from shopfloor.quality import outbox
 from shopfloor.quality.models import Alert, Hold, Nonconformance, OutboxEvent
+from shopfloor.quality.services import alerts, notifications
 from tests.worker import floorkit as kit
 
 pytestmark = pytest.mark.django_db
@@ -29,7 +30,7 @@ def test_out_of_window_reading_makes_one_alert_hold_and_ncr(floor):
     assert reading.in_window is False
     event = kit.event_for(reading)
 
-    outcome = services.handle_event(event.pk)
+    outcome = alerts.handle_event(event.pk)
 
     assert outcome.acted and len(outcome.alert_ids) == 1
     alert = Alert.objects.get()
@@ -54,8 +55,8 @@ def test_out_of_window_reading_makes_one_alert_hold_and_ncr(floor):
 def test_same_event_twice_still_one_alert(floor):
     step = kit.start_at(floor, floor.lot)
     event = kit.event_for(kit.record(floor, step, "surface_copper", 70.0))
-    services.handle_event(event.pk)
-    second = services.handle_event(event.pk)
+    alerts.handle_event(event.pk)
+    second = alerts.handle_event(event.pk)
     assert second.acted is False
     assert Alert.objects.count() == 1 and Hold.objects.count() == 1
     assert Nonconformance.objects.count() == 1
@@ -65,9 +66,9 @@ def test_claim_lost_still_one_alert_by_unique_constraint(floor):
     """Even if the processed flag were cleared, Alert.event / dedupe_key keep one alert."""
     step = kit.start_at(floor, floor.lot)
     event = kit.event_for(kit.record(floor, step, "surface_copper", 70.0))
-    services.handle_event(event.pk)
+    alerts.handle_event(event.pk)
     OutboxEvent.objects.filter(pk=event.pk).update(processed_at=None)
-    services.handle_event(event.pk)
+    alerts.handle_event(event.pk)
     assert Alert.objects.count() == 1 and Hold.objects.count() == 1
 
 
@@ -76,7 +77,7 @@ def test_in_window_reading_no_alert_but_series_point(floor):
 
     step = kit.start_at(floor, floor.lot)
     event = kit.event_for(kit.record(floor, step, "surface_copper", 41.5))
-    services.handle_event(event.pk)
+    alerts.handle_event(event.pk)
     assert Alert.objects.count() == 0
     assert Lot.objects.get(pk=floor.lot.pk).on_hold is False
     series = SeriesState.objects.get()
@@ -99,7 +100,7 @@ def test_two_bad_samples_of_one_set_make_one_alert_and_share_one_ncr(floor):
         kit.event_for(kit.record(floor, step, "surface_copper", 30.0, sample=n)) for n in (1, 2)
     ]
     for e in events:
-        services.handle_event(e.pk)
+        alerts.handle_event(e.pk)
     assert Alert.objects.count() == 1 and Hold.objects.count() == 1
     ncr = Nonconformance.objects.get()
     assert ncr.readings.count() == 2
@@ -121,13 +122,13 @@ def test_two_bad_samples_of_one_set_make_one_alert_and_share_one_ncr(floor):
     ],
 )
 def test_severity_rule(value, window, expected):
-    assert services.severity_for(value, window) == expected
+    assert alerts.severity_for(value, window) == expected
 
 
 def test_attribute_defect_is_critical(floor):
     step = kit.start_at(floor, floor.lot, code="inner_aoi_c1")
     event = kit.event_for(kit.record(floor, step, "aoi_defects", 2, unit="count"))
-    services.handle_event(event.pk)
+    alerts.handle_event(event.pk)
     assert Alert.objects.get().severity == Alert.Severity.CRITICAL
 
 
@@ -146,9 +147,9 @@ def test_failing_event_records_error_and_attempts(floor, monkeypatch):
     def broken(_event):
         raise ValueError("simulated bug")
 
-    monkeypatch.setattr(services, "_dispatch", broken)
+    monkeypatch.setattr(alerts, "_dispatch", broken)
     with pytest.raises(ValueError):
-        services.handle_event(event.pk)
+        alerts.handle_event(event.pk)
     event.refresh_from_db()
     assert event.processed_at is None and event.attempts == 1
     assert "simulated bug" in event.last_error
@@ -163,7 +164,7 @@ def _alert(floor, value=70.0):
     step.work_center.notify_emails = "plating-lead@example.test, quality@example.test"
     step.work_center.save()
     event = kit.event_for(kit.record(floor, step, "surface_copper", value))
-    services.handle_event(event.pk)
+    alerts.handle_event(event.pk)
     return Alert.objects.get()
 
 
@@ -171,11 +172,11 @@ def test_notify_sends_mail_once(floor, settings):
     settings.ALERT_WEBHOOK_URL = ""
     alert = _alert(floor)
     mail.outbox.clear()
-    assert services.notify_alert(alert.pk) is True
+    assert notifications.notify_alert(alert.pk) is True
     assert len(mail.outbox) == 1
     assert set(mail.outbox[0].to) == {"plating-lead@example.test", "quality@example.test"}
     assert floor.lot.code in mail.outbox[0].subject
-    assert services.notify_alert(alert.pk) is False
+    assert notifications.notify_alert(alert.pk) is False
     assert len(mail.outbox) == 1 and Alert.objects.count() == 1
     alert.refresh_from_db()
     assert alert.notified_at is not None
@@ -185,14 +186,14 @@ def test_failing_webhook_does_not_block_or_duplicate(floor, settings):
     settings.ALERT_WEBHOOK_URL = "http://127.0.0.1:9/alerts"  # discard port: nothing listens
     settings.ALERT_WEBHOOK_SECRET = "s3cret"
     alert = _alert(floor)
-    assert services.notify_alert(alert.pk) is True
+    assert notifications.notify_alert(alert.pk) is True
     alert.refresh_from_db()
     assert alert.notified_at is not None
     assert Lot.objects.get(pk=floor.lot.pk).on_hold is True
     from shopfloor.quality import notify
 
     with pytest.raises(notify.WebhookFailed):
-        services.deliver_webhook(alert.pk)
+        notifications.deliver_webhook(alert.pk)
     assert Alert.objects.count() == 1
 
 
@@ -208,14 +209,14 @@ def test_relay_publishes_unpublished_and_skips_processed(floor, monkeypatch):
     step = kit.start_at(floor, floor.lot)
     pending = kit.event_for(kit.record(floor, step, "surface_copper", 41.0, sample=1))
     done = kit.event_for(kit.record(floor, step, "surface_copper", 42.0, sample=2))
-    services.handle_event(done.pk)
+    alerts.handle_event(done.pk)
 
-    result = services.relay_outbox()
+    result = notifications.relay_outbox()
 
     assert sent == [pending.pk] and result["published"] == 1
     pending.refresh_from_db()
     assert pending.published_at is not None
-    assert services.relay_outbox()["published"] == 0  # published just now: not again
+    assert notifications.relay_outbox()["published"] == 0  # published just now: not again
 
 
 def test_publish_with_broker_down_leaves_event_for_relay(floor, monkeypatch):
@@ -230,4 +231,4 @@ def test_publish_with_broker_down_leaves_event_for_relay(floor, monkeypatch):
     assert outbox.publish(event.pk) is False
     event.refresh_from_db()
     assert event.published_at is None
-    assert services.relay_outbox()["published"] == 0
+    assert notifications.relay_outbox()["published"] == 0

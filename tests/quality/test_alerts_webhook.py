@@ -12,8 +12,8 @@ from http.server import BaseHTTPRequestHandler, HTTPServer
 
 import pytest
 
-from shopfloor.quality import services
 from shopfloor.quality.models import Alert
+from shopfloor.quality.services import alerts, notifications
 from tests.worker import floorkit as kit
 
 pytestmark = pytest.mark.django_db
@@ -46,11 +46,11 @@ def test_webhook_signed_and_sent_once(floor, settings, receiver):
     settings.ALERT_WEBHOOK_URL = url
     settings.ALERT_WEBHOOK_SECRET = "shared-secret-for-test"
     step = kit.start_at(floor, floor.lot)
-    services.handle_event(kit.event_for(kit.record(floor, step, "hole_wall_copper", 15.0)).pk)
+    alerts.handle_event(kit.event_for(kit.record(floor, step, "hole_wall_copper", 15.0)).pk)
     alert = Alert.objects.get()
 
-    services.notify_alert(alert.pk)
-    services.notify_alert(alert.pk)
+    notifications.notify_alert(alert.pk)
+    notifications.notify_alert(alert.pk)
 
     assert len(received) == 1
     headers, body = received[0]

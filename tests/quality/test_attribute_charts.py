@@ -148,8 +148,8 @@ def test_no_series_holds_points_judged_against_two_windows(a, b, step):
 def test_class_2_and_class_3_lots_feed_separate_series(floor, client):
     from shopfloor.floor import services as floor_services
     from shopfloor.quality import series as series_core
-    from shopfloor.quality import services
     from shopfloor.quality.models import OutboxEvent, SeriesState
+    from shopfloor.quality.services import alerts
     from tests import factories
     from tests.worker import floorkit as kit
 
@@ -169,7 +169,7 @@ def test_class_2_and_class_3_lots_feed_separate_series(floor, client):
                 ),
             )
     for event in OutboxEvent.objects.order_by("pk"):
-        services.handle_event(event.pk)
+        alerts.handle_event(event.pk)
     series = list(SeriesState.objects.filter(quantity="hole_wall_copper"))
     assert len(series) == 2
     for s in series:

@@ -12,8 +12,8 @@ from shopfloor.errors import Conflict, InvalidInput, NotAllowed
 from shopfloor.floor import services as floor_services
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Lot, Panel
-from shopfloor.quality import services
 from shopfloor.quality.models import Alert, Hold, Nonconformance
+from shopfloor.quality.services import alerts, dispositions
 from tests.factories import PIN
 from tests.worker import floorkit as kit
 
@@ -23,7 +23,7 @@ pytestmark = pytest.mark.django_db
 def _held(floor, lot=None):
     lot = lot or floor.lot
     step = kit.start_at(floor, lot)
-    services.handle_event(kit.event_for(kit.record(floor, step, "surface_copper", 70.0)).pk)
+    alerts.handle_event(kit.event_for(kit.record(floor, step, "surface_copper", 70.0)).pk)
     return step, Nonconformance.objects.get(lot=lot)
 
 
@@ -38,7 +38,7 @@ def test_use_as_is_releases_hold_with_signature(floor):
     # the whole set on the NCR)
     kit.record(floor, step, "surface_copper", 41.0, sample=2)
 
-    services.disposition_ncr(
+    dispositions.disposition_ncr(
         qe,
         ncr.pk,
         "use_as_is",
@@ -58,7 +58,7 @@ def test_use_as_is_releases_hold_with_signature(floor):
     assert AuditEntry.objects.filter(action="ncr.dispositioned").count() == 1
     kit.record(floor, step, "surface_copper", 41.0, sample=3)  # workable again
     with pytest.raises(Conflict):
-        services.disposition_ncr(
+        dispositions.disposition_ncr(
             qe,
             ncr.pk,
             "scrap",
@@ -76,7 +76,7 @@ def test_rework_inserts_step_after_held_step(floor):
         .order_by("position")
         .first()
     )
-    services.disposition_ncr(
+    dispositions.disposition_ncr(
         floor.personas["quality_engineer"],
         ncr.pk,
         "rework",
@@ -102,7 +102,7 @@ def test_rework_inserts_step_after_held_step(floor):
 
 def test_operator_sees_the_rework_step_marked_with_its_ncr(floor, client):
     step, ncr = _held(floor)
-    services.disposition_ncr(
+    dispositions.disposition_ncr(
         floor.personas["quality_engineer"],
         ncr.pk,
         "rework",
@@ -135,7 +135,7 @@ def test_rework_with_more_steps_than_gap_moves_later_steps(floor):
         .values_list("pk", flat=True)
     )
     steps = [{"name": f"Rework pass {i}"} for i in range(1, 11)]
-    services.disposition_ncr(
+    dispositions.disposition_ncr(
         floor.personas["quality_engineer"],
         ncr.pk,
         "rework",
@@ -156,7 +156,7 @@ def test_rework_with_more_steps_than_gap_moves_later_steps(floor):
 
 def test_scrap_all(floor):
     _, ncr = _held(floor)
-    services.disposition_ncr(
+    dispositions.disposition_ncr(
         floor.personas["quality_engineer"],
         ncr.pk,
         "scrap",
@@ -174,7 +174,7 @@ def test_scrap_some_panels_splits_lot(floor):
     _step, ncr = _held(floor)
     steps_before = LotStep.objects.filter(lot=floor.lot).count()
     bad = Panel.objects.filter(lot=floor.lot).order_by("serial").first()
-    services.disposition_ncr(
+    dispositions.disposition_ncr(
         floor.personas["quality_engineer"],
         ncr.pk,
         "scrap",
@@ -200,7 +200,7 @@ def test_refusals_save_nothing(floor):
     _, ncr = _held(floor)
     qe = floor.personas["quality_engineer"]
     with pytest.raises(NotAllowed):
-        services.disposition_ncr(
+        dispositions.disposition_ncr(
             floor.personas["supervisor"],
             ncr.pk,
             "use_as_is",
@@ -210,7 +210,7 @@ def test_refusals_save_nothing(floor):
             corrective_action="Plating controls tightened",
         )
     with pytest.raises(NotAllowed):
-        services.disposition_ncr(
+        dispositions.disposition_ncr(
             qe,
             ncr.pk,
             "use_as_is",
@@ -220,7 +220,7 @@ def test_refusals_save_nothing(floor):
             corrective_action="Plating controls tightened",
         )
     with pytest.raises(InvalidInput, match="use_as_is, rework, scrap"):
-        services.disposition_ncr(
+        dispositions.disposition_ncr(
             qe,
             ncr.pk,
             "bin_it",
@@ -230,7 +230,7 @@ def test_refusals_save_nothing(floor):
             corrective_action="Plating controls tightened",
         )
     with pytest.raises(InvalidInput, match="note"):
-        services.disposition_ncr(
+        dispositions.disposition_ncr(
             qe,
             ncr.pk,
             "use_as_is",
@@ -240,7 +240,7 @@ def test_refusals_save_nothing(floor):
             corrective_action="Plating controls tightened",
         )
     with pytest.raises(InvalidInput, match="not live panels"):
-        services.disposition_ncr(
+        dispositions.disposition_ncr(
             qe,
             ncr.pk,
             "scrap",
@@ -251,7 +251,7 @@ def test_refusals_save_nothing(floor):
             corrective_action="Plating controls tightened",
         )
     with pytest.raises(InvalidInput, match="problem"):
-        services.disposition_ncr(
+        dispositions.disposition_ncr(
             qe,
             ncr.pk,
             "rework",
@@ -269,7 +269,7 @@ def test_refusals_save_nothing(floor):
 
 def test_signature_binds_disposition_content(floor):
     _, ncr = _held(floor)
-    services.disposition_ncr(
+    dispositions.disposition_ncr(
         floor.personas["quality_engineer"],
         ncr.pk,
         "use_as_is",

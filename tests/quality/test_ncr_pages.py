@@ -2,7 +2,7 @@
 Django test client on PostgreSQL.
 
 The NCR comes from the real path: an out-of-window reading is recorded through the floor
-service and its outbox event is handled by shopfloor.quality.services.handle_event.
+service and its outbox event is handled by shopfloor.quality.services.alerts.handle_event.
 Use as is / rework / scrap are the trade's standard material-review dispositions
 (common practice; IPC-6012 leaves the decision to the material review board). Control
 limits of an individuals chart: NIST/SEMATECH e-Handbook of Statistical Methods 6.3.2.2
@@ -23,8 +23,8 @@ from shopfloor.audit.models import AuditEntry, Signature
 from shopfloor.floor import services as floor_services
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Lot, Panel, Person, Role
-from shopfloor.quality import services
 from shopfloor.quality.models import Hold, Nonconformance, OutboxEvent, SeriesState
+from shopfloor.quality.services import alerts
 from tests.factories import PIN, make_person
 from tests.worker import floorkit as kit
 
@@ -43,7 +43,7 @@ def held(floor):
     """Surface copper 70 um at pattern plating (window 33.75-57.5 um) -> alert, hold, NCR."""
     step = kit.start_at(floor, floor.lot)
     reading = kit.record(floor, step, "surface_copper", 70.0)
-    services.handle_event(kit.event_for(reading).pk)
+    alerts.handle_event(kit.event_for(reading).pk)
     ncr = Nonconformance.objects.get(lot=floor.lot)
     return step, ncr, reading
 
@@ -368,7 +368,7 @@ def series(floor):
         event = OutboxEvent.objects.create(
             kind="reading.recorded", payload={"reading": reading.pk, "message": "test"}
         )
-        services.handle_event(event.pk)
+        alerts.handle_event(event.pk)
     return SeriesState.objects.get(quantity="hole_wall_copper")
 
 
@@ -557,7 +557,7 @@ def _corrected_back_inside(floor, reading) -> None:
         reason="typed 70 for 41.5",
     )
     for event in OutboxEvent.objects.filter(processed_at__isnull=True).order_by("pk"):
-        services.handle_event(event.pk)
+        alerts.handle_event(event.pk)
 
 
 def test_recording_error_offered_only_once_a_correction_brings_the_set_back(floor, held):
@@ -608,7 +608,7 @@ def test_a_later_reading_out_again_withdraws_the_back_in_window_note(floor, held
         confirm_out_of_window=True,
     )
     for event in OutboxEvent.objects.filter(processed_at__isnull=True).order_by("pk"):
-        services.handle_event(event.pk)
+        alerts.handle_event(event.pk)
     ncr.refresh_from_db()
     assert ncr.correction_note == ""
     assert 'value="recording_error"' not in (

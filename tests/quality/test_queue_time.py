@@ -17,8 +17,8 @@ from django.utils import timezone
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Job, Lot
-from shopfloor.quality import services
 from shopfloor.quality.models import Alert, Hold, Nonconformance
+from shopfloor.quality.services import deadlines
 from tests.worker import floorkit as kit
 
 pytestmark = pytest.mark.django_db
@@ -32,16 +32,16 @@ def test_queue_time_warns_then_holds_once(floor):
         step = kit.advance_to(floor.lot, BOND)
         assert step.queue_time_limit_minutes == 480
         clock.shift(dt.timedelta(minutes=380))  # 79 % of 480: nothing yet
-        assert services.check_queue_times()["warnings"] == 0
+        assert deadlines.check_queue_times()["warnings"] == 0
         clock.shift(dt.timedelta(minutes=5))  # 385 min >= 384 (80 %)
-        assert services.check_queue_times()["warnings"] == 1
-        services.check_queue_times()
+        assert deadlines.check_queue_times()["warnings"] == 1
+        deadlines.check_queue_times()
         warning = Alert.objects.get(kind="queue_time_warning")
         assert warning.severity == "warning" and warning.lot_step_id == step.pk
         assert not Lot.objects.get(pk=floor.lot.pk).on_hold
         clock.shift(dt.timedelta(minutes=96))  # 481 min > 480
-        assert services.check_queue_times()["exceeded"] == 1
-        services.check_queue_times()
+        assert deadlines.check_queue_times()["exceeded"] == 1
+        deadlines.check_queue_times()
         exceeded = Alert.objects.get(kind="queue_time_exceeded")
         assert exceeded.severity == "critical"
         assert Lot.objects.get(pk=floor.lot.pk).on_hold
@@ -54,7 +54,7 @@ def test_started_step_is_not_checked(floor):
         step = kit.advance_to(floor.lot, BOND)
         LotStep.objects.filter(pk=step.pk).update(status="in_progress", started_at=timezone.now())
         clock.shift(dt.timedelta(hours=10))
-        assert services.check_queue_times()["checked"] == 0
+        assert deadlines.check_queue_times()["checked"] == 0
         assert Alert.objects.count() == 0
 
 
@@ -63,20 +63,20 @@ def test_supervisor_releases_warning_with_reason(floor):
     with time_machine.travel(T0, tick=False) as clock:
         step = kit.advance_to(floor.lot, BOND)
         clock.shift(dt.timedelta(minutes=400))
-        services.check_queue_times()
+        deadlines.check_queue_times()
         with pytest.raises(NotAllowed):
-            services.release_queue_warning(floor.personas["operator"], step.pk, "fine")
+            deadlines.release_queue_warning(floor.personas["operator"], step.pk, "fine")
         with pytest.raises(InvalidInput):
-            services.release_queue_warning(supervisor, step.pk, "  ")
-        services.release_queue_warning(supervisor, step.pk, "Press loads in 30 min")
+            deadlines.release_queue_warning(supervisor, step.pk, "  ")
+        deadlines.release_queue_warning(supervisor, step.pk, "Press loads in 30 min")
         step.refresh_from_db()
         assert step.queue_warning_released_reason == "Press loads in 30 min"
         assert Alert.objects.get(kind="queue_time_warning").closed_at is not None
         with pytest.raises(Conflict):
-            services.release_queue_warning(supervisor, step.pk, "again")
+            deadlines.release_queue_warning(supervisor, step.pk, "again")
         # The limit itself still protects the product.
         clock.shift(dt.timedelta(minutes=100))
-        assert services.check_queue_times()["exceeded"] == 1
+        assert deadlines.check_queue_times()["exceeded"] == 1
 
 
 def test_due_dates_at_risk_then_late(floor):
@@ -84,7 +84,7 @@ def test_due_dates_at_risk_then_late(floor):
     Job.objects.filter(pk=job.pk).update(due_date=dt.date(2026, 3, 12))
     with time_machine.travel(T0, tick=False) as clock:
         kit.advance_to(floor.lot, "pattern_plate_copper")
-        remaining = services.job_remaining_minutes(job)
+        remaining = deadlines.job_remaining_minutes(job)
         expected = sum(
             LotStep.objects.filter(lot=floor.lot, position__gte=200).values_list(
                 "standard_minutes", flat=True
@@ -93,12 +93,12 @@ def test_due_dates_at_risk_then_late(floor):
         assert remaining == expected
         # due end of 12 March (UTC site); at risk once now + 3 x remaining passes it
         due = dt.datetime(2026, 3, 13, tzinfo=dt.UTC)
-        assert services.check_due_dates()["at_risk"] == 0
+        assert deadlines.check_due_dates()["at_risk"] == 0
         clock.move_to(due - dt.timedelta(minutes=3 * remaining - 1))
-        assert services.check_due_dates()["at_risk"] == 1
-        services.check_due_dates()
+        assert deadlines.check_due_dates()["at_risk"] == 1
+        deadlines.check_due_dates()
         assert Alert.objects.filter(kind="due_date_risk", job=job).count() == 1
         clock.move_to(due + dt.timedelta(minutes=1))
-        assert services.check_due_dates()["late"] == 1
-        services.check_due_dates()
+        assert deadlines.check_due_dates()["late"] == 1
+        deadlines.check_due_dates()
         assert Alert.objects.get(kind="late").severity == "critical"

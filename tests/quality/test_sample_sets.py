@@ -15,8 +15,8 @@ from shopfloor.errors import Conflict
 from shopfloor.floor import services as floor_services
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Lot
-from shopfloor.quality import services
 from shopfloor.quality.models import Alert, Hold, Nonconformance, OutboxEvent
+from shopfloor.quality.services import alerts, dispositions
 from tests import factories
 from tests.factories import PIN
 from tests.worker import floorkit as kit
@@ -53,7 +53,7 @@ def _record(floor, step, sample, value, unit, *, confirm=False, quantity="hole_w
 
 def _handle_all():
     for event in OutboxEvent.objects.filter(processed_at__isnull=True).order_by("pk"):
-        services.handle_event(event.pk)
+        alerts.handle_event(event.pk)
 
 
 def _surface_copper(floor, step):
@@ -132,7 +132,7 @@ def test_correction_back_inside_lets_quality_close_it_as_a_recording_error(class
     ncr = Nonconformance.objects.get()
     qe = floor.personas["quality_engineer"]
     with pytest.raises(Conflict, match="no correction has brought its set back inside"):
-        services.disposition_ncr(qe, ncr.pk, "recording_error", "typing slip", PIN, **CAUSE)
+        dispositions.disposition_ncr(qe, ncr.pk, "recording_error", "typing slip", PIN, **CAUSE)
     # the held lot still accepts the correction (superseding, with a reason, audited)
     floor_services.correct_reading(
         person=floor.personas["operator"],
@@ -150,7 +150,9 @@ def test_correction_back_inside_lets_quality_close_it_as_a_recording_error(class
     )
     assert ncr.readings.count() == 5  # 4 samples plus the correction
     assert Lot.objects.get(pk=lot.pk).on_hold  # the hold stays until a disposition
-    services.disposition_ncr(qe, ncr.pk, "recording_error", "decimal slip corrected", PIN, **CAUSE)
+    dispositions.disposition_ncr(
+        qe, ncr.pk, "recording_error", "decimal slip corrected", PIN, **CAUSE
+    )
     ncr.refresh_from_db()
     assert ncr.disposition == "recording_error" and ncr.status == "closed"
     assert Signature.objects.get(pk=ncr.disposition_signature_id).meaning == "dispositioned_by"

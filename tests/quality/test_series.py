@@ -21,8 +21,8 @@ from django.utils import timezone
 from shopfloor.errors import InvalidInput, NotAllowed
 from shopfloor.floor.models import Reading
 from shopfloor.plant.models import Lot
-from shopfloor.quality import services
 from shopfloor.quality.models import Alert, OutboxEvent, SeriesState
+from shopfloor.quality.services import alerts, limits
 from tests.worker import floorkit as kit
 
 pytestmark = pytest.mark.django_db
@@ -58,7 +58,7 @@ def _feed(floor, step, value, *, window=WINDOW, when=None, sample=1):
     event = OutboxEvent.objects.create(
         kind="reading.recorded", payload={"reading": reading.pk, "message": "test"}
     )
-    services.handle_event(event.pk)
+    alerts.handle_event(event.pk)
     return reading
 
 
@@ -112,7 +112,7 @@ def test_nelson_rules_once_chosen(floor, step):
     # Nelson (1984), rule 2: nine points in a row on one side of the centre line (from
     # memory); Western Electric's run rule (8 in a row) is then no longer reported.
     _baselined(floor, step)
-    services.set_series_rules(floor.personas["quality_engineer"], _series().pk, "nelson")
+    limits.set_series_rules(floor.personas["quality_engineer"], _series().pk, "nelson")
     for n in range(9):
         _feed(floor, step, 51.5)  # just above the centre line 50.81, inside 1 sigma
         fired = set(Alert.objects.values_list("rule", flat=True))
@@ -138,16 +138,16 @@ def test_fix_and_recompute_limits(floor, step):
         _feed(floor, step, v, when=start + dt.timedelta(minutes=i))
     s = _series()
     with pytest.raises(NotAllowed):
-        services.fix_limits(floor.personas["operator"], s.pk, 50, 56, 44)
+        limits.fix_limits(floor.personas["operator"], s.pk, 50, 56, 44)
     with pytest.raises(InvalidInput, match="lcl <= centre <= ucl"):
-        services.fix_limits(qe, s.pk, 50, 44, 56)
-    services.fix_limits(qe, s.pk, 50.0, 56.0, 44.0)
+        limits.fix_limits(qe, s.pk, 50, 44, 56)
+    limits.fix_limits(qe, s.pk, 50.0, 56.0, 44.0)
     assert _series().limits["ucl"] == 56.0 and _series().limits_fixed
 
-    services.recompute_limits(qe, s.pk, start, start + dt.timedelta(minutes=30))
+    limits.recompute_limits(qe, s.pk, start, start + dt.timedelta(minutes=30))
     assert _series().limits["ucl"] == pytest.approx(55.80, abs=0.01)
     with pytest.raises(InvalidInput, match="at least"):
-        services.recompute_limits(
+        limits.recompute_limits(
             qe, s.pk, start - dt.timedelta(days=2), start - dt.timedelta(days=1)
         )
     from shopfloor.audit.models import AuditEntry
@@ -158,7 +158,7 @@ def test_fix_and_recompute_limits(floor, step):
 def test_capability_against_definitions(floor, step):
     for v in NIST:
         _feed(floor, step, v)
-    result = services.series_capability(_series().pk)
+    result = limits.series_capability(_series().pk)
     sigma = 1.87778 / 1.128
     cap = result["capability"]
     assert result["n"] == 10 and result["lsl"] == 45.0 and result["usl"] == 58.0
@@ -186,7 +186,7 @@ def test_series_keyed_per_equipment(floor, step):
         window=WINDOW,
         in_window=True,
     )
-    services.handle_event(
+    alerts.handle_event(
         OutboxEvent.objects.create(kind="reading.recorded", payload={"reading": r2.pk}).pk
     )
     from shopfloor.core import judging
@@ -313,8 +313,8 @@ def test_xbar_recompute_uses_complete_subgroups(floor):
     qe = floor.personas["quality_engineer"]
     start = timezone.now() - dt.timedelta(minutes=5)
     series = _xbar_baselined(floor)
-    services.fix_limits(qe, series.pk, 50.0, 60.0, 40.0)
-    services.recompute_limits(qe, series.pk, start, timezone.now())
+    limits.fix_limits(qe, series.pk, 50.0, 60.0, 40.0)
+    limits.recompute_limits(qe, series.pk, start, timezone.now())
     recomputed = _series().limits
     r_bar = sum(max(g) - min(g) for g in GROUPS) / 5
     assert recomputed["range"]["centre"] == pytest.approx(r_bar)
@@ -335,6 +335,6 @@ def test_xbar_capability_uses_within_subgroup_sigma(floor):
     # (ASTM E2587 Table 1 / Montgomery Appendix VI, from memory).
     series = _xbar_baselined(floor)
     r_bar = sum(max(g) - min(g) for g in GROUPS) / 5
-    cap = services.series_capability(series.pk)["capability"]
+    cap = limits.series_capability(series.pk)["capability"]
     assert cap["within_sigma"] == pytest.approx(r_bar / 2.326, rel=1e-3)
     assert cap["cp"] == pytest.approx((58 - 45) / (6 * r_bar / 2.326), rel=1e-3)

@@ -23,8 +23,8 @@ from django.test import Client
 
 from shopfloor.floor import services as floor_services
 from shopfloor.plant.models import Customer, Equipment, Part, Person
-from shopfloor.quality import services as quality_services
 from shopfloor.quality.models import Hold, Nonconformance
+from shopfloor.quality.services import alerts, dispositions
 from shopfloor.safe_output import FORMULA_STARTS, csv_cell, pdf_text
 from tests.factories import PIN
 from tests.worker import floorkit as kit
@@ -109,11 +109,11 @@ def hostile(floor):
         reason=f"{FORMULA} {IMG_TAG}",
     )
     bad = kit.record(floor, step, "surface_copper", 80.0)
-    quality_services.handle_event(kit.event_for(bad).pk)
+    alerts.handle_event(kit.event_for(bad).pk)
     ncr = Nonconformance.objects.get(lot=lot)
     Nonconformance.objects.filter(pk=ncr.pk).update(description=f"@SUM(1) {BROKEN}")
     Hold.objects.filter(lot=lot).update(reason=f"+{IMG_TAG}")
-    quality_services.disposition_ncr(
+    dispositions.disposition_ncr(
         floor.personas["quality_engineer"],
         ncr.pk,
         "use_as_is",

@@ -23,8 +23,8 @@ from rest_framework.test import APIClient
 
 from shopfloor.floor import services as floor_services
 from shopfloor.plant.models import MaterialLot
-from shopfloor.quality import services as quality
 from shopfloor.quality.models import Nonconformance, OutboxEvent
+from shopfloor.quality.services import alerts
 from tests.api.helpers import issue_token
 from tests.factories import PIN, SPEC_4L_ENIG
 from tests.floor.helpers import in_window_value, one_entry_per_quantity
@@ -204,7 +204,7 @@ def test_order_to_shipment_through_the_api(floor, materials, tmp_path):
             )
             assert bad["in_window"] is False
             event = OutboxEvent.objects.get(kind="reading.recorded", payload__reading=bad["id"])
-            quality.handle_event(event.pk)  # what the worker does
+            alerts.handle_event(event.pk)  # what the worker does
             ncr = Nonconformance.objects.get(lot=lot)
             # shipping now is refused with every reason
             early = planner.post(

@@ -16,8 +16,8 @@ from rest_framework.test import APIClient
 
 from shopfloor.floor.models import MaterialUse
 from shopfloor.plant.models import MaterialLot, Panel
-from shopfloor.quality import services as quality
 from shopfloor.quality.models import Nonconformance
+from shopfloor.quality.services import alerts
 from shopfloor.shipping.models import Shipment
 from tests.factories import SPEC_4L_ENIG, make_part_revision, release_routing
 from tests.floor.helpers import out_of_window_value
@@ -53,7 +53,7 @@ def test_shipping_with_an_open_ncr_is_refused(floor):
     step = kit.start_at(floor, floor.lot)
     window = next(m for m in step.plan if m["quantity"] == "surface_copper")
     bad = kit.record(floor, step, "surface_copper", out_of_window_value(window))
-    quality.handle_event(kit.event_for(bad).pk)
+    alerts.handle_event(kit.event_for(bad).pk)
     ncr = Nonconformance.objects.get(lot=floor.lot)
     reply = _client(floor.personas["planner"]).post(
         "/api/v1/shipments/",

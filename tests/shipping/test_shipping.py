@@ -19,8 +19,8 @@ from shopfloor.errors import Conflict, NotAllowed
 from shopfloor.floor import services as floor_services
 from shopfloor.floor.models import LotStep, ScrapRecord
 from shopfloor.plant.models import Lot, Role
-from shopfloor.quality import services as quality
 from shopfloor.quality.models import Nonconformance
+from shopfloor.quality.services import alerts, dispositions
 from shopfloor.shipping import services
 from shopfloor.shipping.models import Shipment
 from tests import factories
@@ -123,7 +123,7 @@ def test_open_ncr_and_unfinished_steps_refuse_the_certificate(floor, small_job, 
     floor_services.start_step(person=op, lot_step_id=step.pk)
     window = next(m for m in step.plan if m["quantity"] == "surface_copper")
     reading = kit.record(floor, step, "surface_copper", out_of_window_value(window))
-    quality.handle_event(kit.event_for(reading).pk)
+    alerts.handle_event(kit.event_for(reading).pk)
     ncr = Nonconformance.objects.get(lot=lot)
     with pytest.raises(Conflict) as exc:
         services.ship(person=planner, job_number=job.number, quantity=1, lot_codes=[lot.code])
@@ -155,10 +155,10 @@ def test_mixed_disposition_applies_every_panel_action(floor, planner, tmp_path):
     aoi = advance_to(lot, op, lambda s: s.code == "outer_aoi")
     floor_services.start_step(person=op, lot_step_id=aoi.pk)
     reading = kit.record(floor, aoi, "aoi_defects", 2, unit="count")
-    quality.handle_event(kit.event_for(reading).pk)
+    alerts.handle_event(kit.event_for(reading).pk)
     ncr = Nonconformance.objects.get(lot=lot)
     p1, p2 = lot.panels.order_by("serial")
-    quality.disposition_ncr(
+    dispositions.disposition_ncr(
         qe,
         ncr.pk,
         "",

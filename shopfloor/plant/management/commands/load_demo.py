@@ -147,12 +147,12 @@ class Command(BaseCommand):
         # Capacities and a first finish forecast (beat re-runs it every few minutes), so
         # the board shows P50 / P90 and forecast-based due-date risk on first start.
         from shopfloor.planning import services as planning_services
-        from shopfloor.quality import services as quality_services
+        from shopfloor.quality.services import deadlines
 
         planning_services.ensure_demo_capacity()
         planning_services.run_forecast("demo")
-        quality_services.check_due_dates()
-        quality_services.check_queue_times()
+        deadlines.check_due_dates()
+        deadlines.check_queue_times()
         lab = next((p for p in people.values() if Role.LAB_TECHNICIAN in p.roles()), engineer)
         baths.history(lab, engineer, data["pin"])
         baths.after_jobs(lab, engineer, data["pin"])
