@@ -46,7 +46,7 @@ def set_spec(*, person: Person, part_revision_id: int, spec: Any) -> PartRevisio
     revision's spec changes nothing on the floor until a new revision is released.
     """
     _require_role(person, "process_engineer", "author build specs")
-    from shopfloor.orders.services import refuse_nul
+    from shopfloor.parsing import refuse_nul
 
     refuse_nul(spec, "build spec")
     stored = validate_spec(spec)
@@ -218,7 +218,7 @@ def create_draft(
     "deviation approved by" bound to the revision, and the window is marked as a deviation.
     """
     _require_role(person, "process_engineer", "create routing revisions")
-    from shopfloor.orders.services import refuse_nul
+    from shopfloor.parsing import refuse_nul
 
     refuse_nul([reason, overrides or []], "draft")
     overrides = [dict(o) if isinstance(o, dict) else o for o in (overrides or [])]

@@ -36,11 +36,11 @@ def test_demo_loads_twice_without_duplicates(settings, django_capture_on_commit_
     # one released by the planner's release (45 boards at 6 per panel, 8 % allowance:
     # ceil(8.1) = 9 panels, 1 lot)
     assert first["jobs"] == 15 and first["lots"] == 14
-    from shopfloor.orders import services as orders
+    from shopfloor.orders import read
 
-    assert orders.job_summary("WO-24113").status == "entered"
-    assert orders.job_summary("WO-24114").status == "released"
-    assert orders.job_summary("WO-24114").quantities.on_panels == 54
+    assert read.job_summary("WO-24113").status == "entered"
+    assert read.job_summary("WO-24114").status == "released"
+    assert read.job_summary("WO-24114").quantities.on_panels == 54
     # the lots meant to be held were held by real out-of-window readings
     assert set(Lot.objects.filter(on_hold=True).values_list("code", flat=True)) == {
         "LOT-24105-1",
@@ -101,7 +101,7 @@ def _check_materials_and_shipping() -> None:
     shipped = Job.objects.get(number="WO-24115")
     assert shipping.job_closed(shipped)
     # one job at each stage of an order's life (issue 12's demo)
-    from shopfloor.orders import services as orders
+    from shopfloor.orders import read
 
     stages = {
         "WO-24113": "entered",
@@ -111,7 +111,7 @@ def _check_materials_and_shipping() -> None:
         "WO-24112": "ready_to_ship",
         "WO-24115": "shipped",
     }
-    assert {n: orders.job_summary(n).status for n in stages} == stages
+    assert {n: read.job_summary(n).status for n in stages} == stages
     assert Certificate.objects.filter(shipment__job=shipped).count() == 1
 
 

@@ -13,7 +13,7 @@ from rest_framework import serializers
 from rest_framework.request import Request
 from rest_framework.response import Response
 
-from shopfloor.chemistry import services
+from shopfloor.chemistry import read, services
 from shopfloor.chemistry.models import Analysis, Tank
 from shopfloor.floor.api import (
     ID_IN_PATH,
@@ -83,7 +83,7 @@ class AnalysisSerializer(serializers.Serializer):
     def get_lots_exposed(self, obj: Analysis) -> list[str]:
         if obj.in_window:
             return []
-        return [lot.code for lot in services.exposure(obj).lots]
+        return [lot.code for lot in read.exposure(obj).lots]
 
 
 class ParameterStateSerializer(serializers.Serializer):
@@ -96,8 +96,8 @@ class ParameterStateSerializer(serializers.Serializer):
     due = serializers.CharField(source="due.state", help_text="ok, due or overdue")
     due_at = serializers.DateTimeField(source="due.due_at", allow_null=True)
 
-    def get_window(self, obj: services.ParameterRow) -> str:
-        return services.window_text(obj.parameter)
+    def get_window(self, obj: read.ParameterRow) -> str:
+        return read.window_text(obj.parameter)
 
 
 class TankStateSerializer(serializers.Serializer):
@@ -138,7 +138,7 @@ class TankListView(JsonAPIView):
         responses={200: TankStateSerializer(many=True), **READ_ERRORS},
     )
     def get(self, request: Request) -> Response:
-        return Response(TankStateSerializer(services.tank_rows(), many=True).data)
+        return Response(TankStateSerializer(read.tank_rows(), many=True).data)
 
 
 class TankDetailView(JsonAPIView):
@@ -151,8 +151,8 @@ class TankDetailView(JsonAPIView):
         responses={200: TankStateSerializer, **READ_ERRORS},
     )
     def get(self, request: Request, code: str) -> Response:
-        tank = services.get_tank(code)
-        rows = services.tank_rows(tanks=Tank.objects.filter(pk=tank.pk))
+        tank = read.get_tank(code)
+        rows = read.tank_rows(tanks=Tank.objects.filter(pk=tank.pk))
         return Response(TankStateSerializer(rows[0]).data)
 
 
@@ -202,4 +202,4 @@ class ExposureView(JsonAPIView):
         responses={200: ExposureSerializer, **READ_ERRORS},
     )
     def get(self, request: Request, pk: int) -> Response:
-        return Response(ExposureSerializer(services.exposure(services.get_analysis(pk))).data)
+        return Response(ExposureSerializer(read.exposure(read.get_analysis(pk))).data)

@@ -2,7 +2,7 @@
 
 Why not a stored SeriesState: analyses come a few a day per parameter, so the chart is
 computed from the latest analyses on each view (bounded), with the same limits, run rules
-and capability code (shopfloor.core.spc) and the same drawing (shopfloor.quality.charts).
+and capability code (shopfloor.core.spc) and the same drawing (shopfloor.quality.read.charts).
 Limits come from the first BASELINE analyses of the window shown, as for readings.
 """
 
@@ -13,7 +13,7 @@ from typing import Any
 
 from shopfloor.chemistry.models import PlanParameter
 from shopfloor.core import spc, units
-from shopfloor.quality import charts
+from shopfloor.quality.read import charts
 
 BASELINE = 25
 MAX_POINTS = 200

@@ -16,7 +16,7 @@ from django.urls import reverse
 from django.views.decorators.http import require_GET, require_POST
 
 from shopfloor.access import Scope, require_lot_visible
-from shopfloor.chemistry import services, spc_view
+from shopfloor.chemistry import read, services, spc_view
 from shopfloor.chemistry.models import Frequency, TankEvent
 from shopfloor.core.chemistry import plating
 from shopfloor.core.chemistry.constants import METALS
@@ -43,7 +43,7 @@ def _ctx(scope: Scope, **extra: Any) -> dict[str, Any]:
 @require_GET
 @reader
 def lab_home(request: HttpRequest, scope: Scope) -> HttpResponse:
-    rows = services.tank_rows()
+    rows = read.tank_rows()
     return render(request, "chemistry/lab.html", _ctx(scope, tanks=rows))
 
 
@@ -52,15 +52,15 @@ def lab_home(request: HttpRequest, scope: Scope) -> HttpResponse:
 def board_strip(request: HttpRequest, scope: Scope) -> HttpResponse:
     """The board's bath line (loaded by htmx beside the board, so it adds no board query):
     tanks out of window and analyses due or overdue."""
-    rows = [t for t in services.tank_rows() if t.flagged or t.due or t.overdue]
+    rows = [t for t in read.tank_rows() if t.flagged or t.due or t.overdue]
     return render(request, "chemistry/_board_strip.html", {"tanks": rows})
 
 
 def _tank_context(scope: Scope, code: str, **extra: Any) -> dict[str, Any]:
-    tank = services.get_tank(code)
+    tank = read.get_tank(code)
     from shopfloor.chemistry.models import Tank
 
-    row = services.tank_rows(tanks=Tank.objects.filter(pk=tank.pk))[0]
+    row = read.tank_rows(tanks=Tank.objects.filter(pk=tank.pk))[0]
     out_of_window = list(tank.analyses.filter(in_window=False).select_related("parameter")[:10])
     pending = list(
         tank.events.filter(kind=TankEvent.Kind.ADDITION, confirmed_at__isnull=True)
@@ -71,13 +71,13 @@ def _tank_context(scope: Scope, code: str, **extra: Any) -> dict[str, Any]:
         scope,
         tank=tank,
         row=row,
-        history=services.tank_history(tank, limit=HISTORY_ROWS),
+        history=read.tank_history(tank, limit=HISTORY_ROWS),
         history_rows=HISTORY_ROWS,
         sources=sorted({r.parameter.source for r in row.rows}),
         out_of_window=out_of_window,
         pending=pending,
-        turnovers=services.turnovers(tank),
-        doses=services.doses_due(tank),
+        turnovers=read.turnovers(tank),
+        doses=read.doses_due(tank),
         event_kinds=[(k.value, k.label) for k in TankEvent.Kind if k != TankEvent.Kind.ADDITION],
         frequencies=dict(Frequency.choices),
         **extra,
@@ -109,13 +109,13 @@ def analysis_create(request: HttpRequest, scope: Scope, code: str) -> HttpRespon
     if analysis.in_window:
         messages.success(
             request,
-            f"{analysis.parameter.name}: {services.fmt(analysis.parameter, analysis.value)} "
+            f"{analysis.parameter.name}: {read.fmt(analysis.parameter, analysis.value)} "
             "recorded, in window.",
         )
         return redirect("chemistry:tank", code=analysis.tank.code)
     messages.warning(
         request,
-        f"{analysis.parameter.name}: {services.fmt(analysis.parameter, analysis.value)} is OUT "
+        f"{analysis.parameter.name}: {read.fmt(analysis.parameter, analysis.value)} is OUT "
         "of window. The tank is flagged; these are the lots that ran in it since its last "
         "in-window analysis.",
     )
@@ -125,7 +125,7 @@ def analysis_create(request: HttpRequest, scope: Scope, code: str) -> HttpRespon
 @require_GET
 @reader
 def addition_page(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
-    tank = services.get_tank(code)
+    tank = read.get_tank(code)
     param_code = request.GET.get("parameter", "")
     concentrations = [
         p
@@ -137,9 +137,9 @@ def addition_page(request: HttpRequest, scope: Scope, code: str) -> HttpResponse
     if chosen is not None:  # the defaults a blank field takes, in the parameter's unit
         last = chosen.last_analysis
         ctx["defaults"] = {
-            "measured": services.fmt(chosen, last.value) if last else "",
-            "target": services.fmt(chosen, chosen.target),
-            "stock": services.fmt(chosen, chosen.stock_strength)
+            "measured": read.fmt(chosen, last.value) if last else "",
+            "target": read.fmt(chosen, chosen.target),
+            "stock": read.fmt(chosen, chosen.stock_strength)
             if chosen.stock_strength is not None
             else "",
         }
@@ -205,8 +205,8 @@ def event_confirm(request: HttpRequest, scope: Scope, event_id: int) -> HttpResp
 @reader
 def analysis_page(request: HttpRequest, scope: Scope, analysis_id: int) -> HttpResponse:
     services.require_sees_all_lots(scope)
-    analysis = services.get_analysis(analysis_id)
-    found = services.exposure(analysis) if not analysis.in_window else None
+    analysis = read.get_analysis(analysis_id)
+    found = read.exposure(analysis) if not analysis.in_window else None
     return render(
         request,
         "chemistry/analysis.html",
@@ -214,8 +214,8 @@ def analysis_page(request: HttpRequest, scope: Scope, analysis_id: int) -> HttpR
             scope,
             analysis=analysis,
             exposure=found,
-            window=services.window_text(analysis.parameter),
-            shown=services.fmt(analysis.parameter, analysis.value),
+            window=read.window_text(analysis.parameter),
+            shown=read.fmt(analysis.parameter, analysis.value),
         ),
     )
 
@@ -237,8 +237,8 @@ def hold_exposed(request: HttpRequest, scope: Scope, analysis_id: int) -> HttpRe
 @require_GET
 @reader
 def parameter_spc(request: HttpRequest, scope: Scope, code: str, parameter: str) -> HttpResponse:
-    tank = services.get_tank(code)
-    param = services.get_parameter(tank, parameter)
+    tank = read.get_tank(code)
+    param = read.get_parameter(tank, parameter)
     return render(
         request,
         "chemistry/spc.html",
@@ -246,7 +246,7 @@ def parameter_spc(request: HttpRequest, scope: Scope, code: str, parameter: str)
             scope,
             tank=tank,
             param=param,
-            window=services.window_short(param),
+            window=read.window_short(param),
             d=spc_view.parameter_chart(param),
         ),
     )
@@ -306,7 +306,7 @@ def plating_step(request: HttpRequest, scope: Scope, lot_step_id: int) -> HttpRe
         scope,
         step=step,
         may_set=scope.person is not None and bool(scope.roles & services.PLATING_ROLES),
-        design=services.design_area(step),
+        design=read.design_area(step),
         defaults=services.PLATING_STEPS.get(services.base_code(step.code)),
     )
     status = 200

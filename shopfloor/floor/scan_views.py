@@ -22,7 +22,7 @@ from django.views.decorators.http import require_GET, require_POST
 from shopfloor.errors import DomainError, InvalidInput, NotFound
 from shopfloor.floor import forms, services, views
 from shopfloor.floor.models import LotStep
-from shopfloor.orders.services import lots_for_scan
+from shopfloor.orders.read import lots_for_scan
 from shopfloor.plant.models import Lot, MaterialLot, Person
 
 

@@ -28,8 +28,8 @@ from shopfloor.floor.api import (
     parse,
 )
 from shopfloor.floor.permissions import CanPlan, CanRead
+from shopfloor.orders import read, services
 from shopfloor.orders import serializers as s
-from shopfloor.orders import services
 
 JOB_NUMBER_IN_PATH = OpenApiParameter(
     "number",
@@ -72,7 +72,7 @@ class JobListView(JsonAPIView):
         operation_id="jobs_list",
         summary="Jobs by due date, filtered by status, customer and due date",
         parameters=[
-            OpenApiParameter("status", OpenApiTypes.STR, enum=list(services.STATUSES)),
+            OpenApiParameter("status", OpenApiTypes.STR, enum=list(read.STATUSES)),
             OpenApiParameter(
                 "customer",
                 {"type": "string", "pattern": "^[^\\u0000]*$", "maxLength": 40},
@@ -87,8 +87,8 @@ class JobListView(JsonAPIView):
         },
     )
     def get(self, request: Request) -> Response:
-        flt = services.parse_filter(request.query_params)
-        return Response([s.job_dict(row) for row in services.list_jobs(flt)])
+        flt = read.parse_filter(request.query_params)
+        return Response([s.job_dict(row) for row in read.list_jobs(flt)])
 
     @extend_schema(
         operation_id="jobs_create",
@@ -104,7 +104,7 @@ class JobListView(JsonAPIView):
 
         def action() -> tuple[int, Any]:
             job = services.enter_job(person=person, data=data)
-            return 201, s.job_dict(services.summaries([job])[0])
+            return 201, s.job_dict(read.summaries([job])[0])
 
         return idempotent(request, action)
 
@@ -119,7 +119,7 @@ class JobDetailView(APIView):
         responses={200: s.JobSerializer, **READ_ERRORS},
     )
     def get(self, request: Request, number: str) -> Response:
-        return Response(s.job_dict(services.job_summary(number, scope_for(request.user))))
+        return Response(s.job_dict(read.job_summary(number, scope_for(request.user))))
 
 
 class JobReleaseView(JsonAPIView):

@@ -11,7 +11,7 @@ from typing import Any
 
 from rest_framework import serializers
 
-from shopfloor.orders import services
+from shopfloor.orders import read, services
 
 
 class OverrideSerializer(serializers.Serializer):
@@ -72,7 +72,7 @@ class JobSerializer(serializers.Serializer):
     has_spec = serializers.BooleanField(help_text="False until a build spec is authored")
     ipc_class = serializers.IntegerField()
     due_date = serializers.DateField()
-    status = serializers.ChoiceField(choices=list(services.STATUSES))
+    status = serializers.ChoiceField(choices=list(read.STATUSES))
     status_label = serializers.CharField()
     quantities = QuantitiesSerializer()
     lots = LotLineSerializer(many=True)
@@ -94,7 +94,7 @@ class JobSerializer(serializers.Serializer):
     customer_overrides = serializers.ListField(child=serializers.DictField())
 
 
-def job_dict(summary: services.JobSummary) -> dict[str, Any]:
+def job_dict(summary: read.JobSummary) -> dict[str, Any]:
     job = summary.job
     part = job.part_revision.part
     return {

@@ -10,28 +10,27 @@ from __future__ import annotations
 
 import datetime as dt
 import re
-from collections import defaultdict
-from collections.abc import Iterable, Mapping
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from decimal import Decimal
 from typing import Any
 
 from django.db import IntegrityError, transaction
-from django.db.models import Q, QuerySet
 from django.utils import timezone
 
 from routing.models import RoutingRevision
+from shopfloor import parsing
 from shopfloor.audit import services as audit
 from shopfloor.core import panelise, units
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
 from shopfloor.orders.models import PanelLayout, PartPlanning, PlanningSettings
+from shopfloor.orders.read import job_queryset, summaries
 from shopfloor.plant import services as plant
 from shopfloor.plant.models import (
     Customer,
     Job,
     Lot,
     Panel,
-    PanelImage,
     Part,
     PartRevision,
     Person,
@@ -46,34 +45,6 @@ CODE_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._ -]{0,59}$")
 OVERRIDE_KEYS = ("quantity", "step_code", "min", "max", "target", "reason")
 
 #: Job statuses, in the order a job passes through them (plain English, our own words).
-STATUSES: dict[str, str] = {
-    "entered": "Entered (not released)",
-    "released": "Released to the floor",
-    "in_process": "In process",
-    "held": "On hold",
-    "ready_to_ship": "Ready to ship",
-    "shipped": "Shipped",
-}
-
-
-def has_nul(value: Any) -> bool:
-    """True when any text inside `value` holds a NUL character, which PostgreSQL cannot
-    store in text or jsonb: such input is refused with a reason instead of a 500."""
-    if isinstance(value, str):
-        return "\x00" in value
-    if isinstance(value, Mapping):
-        return any(has_nul(k) or has_nul(v) for k, v in value.items())
-    if isinstance(value, list | tuple):
-        return any(has_nul(v) for v in value)
-    return False
-
-
-def refuse_nul(value: Any, what: str = "body") -> None:
-    if has_nul(value):
-        raise InvalidInput(
-            f"The {what} contains a NUL character (\\0), which cannot be stored.",
-            problems=[_problem(what, None, "contains a NUL character", "text without \\0")],
-        )
 
 
 def require_planner(person: Person | None) -> Person:
@@ -84,12 +55,6 @@ def require_planner(person: Person | None) -> Person:
     if not roles & PLANNER_ROLES:
         raise NotAllowed("Only a planner (or an administrator) can enter and release jobs.")
     return person
-
-
-def _problem(field_: str, value: Any, problem: str, allowed: Any = None) -> dict[str, Any]:
-    if value is not None and not isinstance(value, str | int | float | bool | list | dict):
-        value = str(value)
-    return {"field": field_, "value": value, "problem": problem, "allowed": allowed}
 
 
 # --- job entry --------------------------------------------------------------------------
@@ -127,25 +92,23 @@ class _CleanJob:
     number: str
 
 
-def _text(value: Any) -> str:
-    return value.strip() if isinstance(value, str) else ""
-
-
 def check_job_input(data: JobInput, *, today: dt.date | None = None) -> _CleanJob:
     """Every problem with a job entry at once (InvalidInput), or the cleaned values."""
     today = today or timezone.localdate()
-    refuse_nul(data.__dict__, "job")
+    parsing.refuse_nul(data.__dict__, "job")
     problems: list[dict[str, Any]] = []
 
     def text_field(name: str, value: Any, *, required: bool, what: str) -> str:
         if value is not None and not isinstance(value, str):
-            problems.append(_problem(name, value, "must be text", what))
+            problems.append(parsing.problem(name, value, "must be text", what))
             return ""
-        text = _text(value)
+        text = parsing.text(value)
         if required and not text:
-            problems.append(_problem(name, value, "is required", what))
+            problems.append(parsing.problem(name, value, "is required", what))
         elif text and not CODE_RE.match(text):
-            problems.append(_problem(name, value, "has characters a label cannot print", what))
+            problems.append(
+                parsing.problem(name, value, "has characters a label cannot print", what)
+            )
         return text
 
     customer = text_field(
@@ -158,9 +121,11 @@ def check_job_input(data: JobInput, *, today: dt.date | None = None) -> _CleanJo
         "part_revision", data.part_revision, required=True, what="a revision such as A or 02"
     )
     if revision and len(revision) > 10:
-        problems.append(_problem("part_revision", revision, "too long", "at most 10 characters"))
-    customer_name = _text(data.customer_name)[:200]
-    description = _text(data.part_description)[:200]
+        problems.append(
+            parsing.problem("part_revision", revision, "too long", "at most 10 characters")
+        )
+    customer_name = parsing.text(data.customer_name)[:200]
+    description = parsing.text(data.part_description)[:200]
 
     quantity = 0
     q = data.quantity
@@ -168,10 +133,12 @@ def check_job_input(data: JobInput, *, today: dt.date | None = None) -> _CleanJo
         q = int(q.strip())
     if isinstance(q, bool) or not isinstance(q, int):
         problems.append(
-            _problem("quantity", q, "must be a whole number of boards", f"1 to {MAX_QUANTITY}")
+            parsing.problem(
+                "quantity", q, "must be a whole number of boards", f"1 to {MAX_QUANTITY}"
+            )
         )
     elif not 1 <= q <= MAX_QUANTITY:
-        problems.append(_problem("quantity", q, "out of range", f"1 to {MAX_QUANTITY}"))
+        problems.append(parsing.problem("quantity", q, "out of range", f"1 to {MAX_QUANTITY}"))
     else:
         quantity = q
 
@@ -185,13 +152,17 @@ def check_job_input(data: JobInput, *, today: dt.date | None = None) -> _CleanJo
             due = dt.date.fromisoformat(data.due_date.strip())
         except ValueError:
             problems.append(
-                _problem("due_date", data.due_date, "not a date", "YYYY-MM-DD, e.g. 2027-03-01")
+                parsing.problem(
+                    "due_date", data.due_date, "not a date", "YYYY-MM-DD, e.g. 2027-03-01"
+                )
             )
     else:
-        problems.append(_problem("due_date", data.due_date, "is required", "YYYY-MM-DD"))
+        problems.append(parsing.problem("due_date", data.due_date, "is required", "YYYY-MM-DD"))
     if due is not None and due < today:
         problems.append(
-            _problem("due_date", due.isoformat(), "is in the past", f"{today.isoformat()} or later")
+            parsing.problem(
+                "due_date", due.isoformat(), "is in the past", f"{today.isoformat()} or later"
+            )
         )
 
     ipc = data.ipc_class
@@ -199,7 +170,7 @@ def check_job_input(data: JobInput, *, today: dt.date | None = None) -> _CleanJo
         ipc = int(ipc.strip())
     if isinstance(ipc, bool) or ipc not in (1, 2, 3):
         problems.append(
-            _problem("ipc_class", data.ipc_class, "IPC class must be 1, 2 or 3", [1, 2, 3])
+            parsing.problem("ipc_class", data.ipc_class, "IPC class must be 1, 2 or 3", [1, 2, 3])
         )
         ipc = 0
 
@@ -207,11 +178,11 @@ def check_job_input(data: JobInput, *, today: dt.date | None = None) -> _CleanJo
     if notes is None:
         notes = ""
     if not isinstance(notes, str):
-        problems.append(_problem("customer_spec_notes", notes, "must be text", None))
+        problems.append(parsing.problem("customer_spec_notes", notes, "must be text", None))
         notes = ""
     elif len(notes) > MAX_NOTES:
         problems.append(
-            _problem(
+            parsing.problem(
                 "customer_spec_notes",
                 f"{len(notes)} characters",
                 "too long",
@@ -221,12 +192,12 @@ def check_job_input(data: JobInput, *, today: dt.date | None = None) -> _CleanJo
 
     overrides = _check_overrides(data.customer_overrides, problems)
 
-    number = _text(data.number)
+    number = parsing.text(data.number)
     if data.number not in (None, "") and not isinstance(data.number, str):
-        problems.append(_problem("number", data.number, "must be text", "e.g. WO-24120"))
+        problems.append(parsing.problem("number", data.number, "must be text", "e.g. WO-24120"))
     elif number and not JOB_NUMBER_RE.match(number):
         problems.append(
-            _problem(
+            parsing.problem(
                 "number",
                 number,
                 "not a usable job number",
@@ -234,7 +205,9 @@ def check_job_input(data: JobInput, *, today: dt.date | None = None) -> _CleanJo
             )
         )
     elif number and Job.objects.filter(number__iexact=number).exists():
-        problems.append(_problem("number", number, "a job with this number already exists", None))
+        problems.append(
+            parsing.problem("number", number, "a job with this number already exists", None)
+        )
 
     if (
         customer
@@ -242,7 +215,7 @@ def check_job_input(data: JobInput, *, today: dt.date | None = None) -> _CleanJo
         and not Customer.objects.filter(code__iexact=customer).exists()
     ):
         problems.append(
-            _problem(
+            parsing.problem(
                 "customer",
                 customer,
                 "no customer with this code; give customer_name to add it",
@@ -275,7 +248,7 @@ def _check_overrides(raw: Any, problems: list[dict[str, Any]]) -> list[dict[str,
         return []
     if not isinstance(raw, list):
         problems.append(
-            _problem(
+            parsing.problem(
                 "customer_overrides",
                 raw,
                 "must be a list of objects",
@@ -288,18 +261,18 @@ def _check_overrides(raw: Any, problems: list[dict[str, Any]]) -> list[dict[str,
     for i, item in enumerate(raw):
         where = f"customer_overrides[{i}]"
         if not isinstance(item, Mapping):
-            problems.append(_problem(where, item, "must be an object", list(OVERRIDE_KEYS)))
+            problems.append(parsing.problem(where, item, "must be an object", list(OVERRIDE_KEYS)))
             continue
         before = len(problems)
         for key in item:
             if key not in OVERRIDE_KEYS:
                 problems.append(
-                    _problem(f"{where}.{key}", item[key], "unknown key", list(OVERRIDE_KEYS))
+                    parsing.problem(f"{where}.{key}", item[key], "unknown key", list(OVERRIDE_KEYS))
                 )
         quantity = item.get("quantity")
         if quantity not in known:
             problems.append(
-                _problem(f"{where}.quantity", quantity, "not a measured quantity", known)
+                parsing.problem(f"{where}.quantity", quantity, "not a measured quantity", known)
             )
         values: dict[str, float] = {}
         for key in ("min", "max", "target"):
@@ -307,20 +280,22 @@ def _check_overrides(raw: Any, problems: list[dict[str, Any]]) -> list[dict[str,
             if v is None or v == "":
                 continue
             if isinstance(v, bool) or not isinstance(v, int | float):
-                problems.append(_problem(f"{where}.{key}", v, "must be a number", None))
+                problems.append(parsing.problem(f"{where}.{key}", v, "must be a number", None))
             else:
                 values[key] = float(v)
         if not values:
             problems.append(
-                _problem(where, None, "gives no limit", "at least one of min, max, target")
+                parsing.problem(where, None, "gives no limit", "at least one of min, max, target")
             )
         if "min" in values and "max" in values and values["min"] > values["max"]:
             problems.append(
-                _problem(f"{where}.min", values["min"], "is above max", f"<= {values['max']:g}")
+                parsing.problem(
+                    f"{where}.min", values["min"], "is above max", f"<= {values['max']:g}"
+                )
             )
-        if not _text(item.get("reason")):
+        if not parsing.text(item.get("reason")):
             problems.append(
-                _problem(
+                parsing.problem(
                     f"{where}.reason",
                     item.get("reason"),
                     "is required",
@@ -406,293 +381,6 @@ def enter_job(*, person: Person | None, data: JobInput) -> Job:
 # --- status and quantities ----------------------------------------------------------------
 
 
-@dataclass
-class Quantities:
-    """Boards of one job at each stage (a board is one image on a production panel)."""
-
-    ordered: int
-    on_panels: int = 0
-    in_process: int = 0
-    finished: int = 0
-    scrapped: int = 0
-    shipped: int = 0
-
-    @property
-    def good_remaining(self) -> int:
-        """Boards that can still reach the customer: started, not scrapped (shipped included)."""
-        return self.on_panels - self.scrapped
-
-    @property
-    def shortfall(self) -> int:
-        """Boards missing even if every remaining good board passes: make-up is needed."""
-        return max(0, self.ordered - self.good_remaining)
-
-    def as_dict(self) -> dict[str, int]:
-        return {
-            "ordered": self.ordered,
-            "on_panels": self.on_panels,
-            "in_process": self.in_process,
-            "finished": self.finished,
-            "scrapped": self.scrapped,
-            "shipped": self.shipped,
-            "good_remaining": self.good_remaining,
-            "shortfall": self.shortfall,
-        }
-
-
-@dataclass
-class LotLine:
-    code: str
-    status: str
-    status_label: str
-    on_hold: bool
-    panels: int
-    boards: int
-    current_step: str = ""
-
-
-@dataclass
-class JobSummary:
-    job: Job
-    status: str
-    quantities: Quantities
-    lots: list[LotLine]
-    #: When the job is expected to finish: the P50 and P90 of the newest fresh finish
-    #: forecast (shopfloor/planning), its due-date state from P90; None while no fresh
-    #: forecast knows the job ("not known yet").
-    projected_finish: dt.datetime | None = None
-    projected_finish_p90: dt.datetime | None = None
-    forecast_due_state: str | None = None
-
-    @property
-    def status_label(self) -> str:
-        return STATUSES[self.status]
-
-    @property
-    def released(self) -> bool:
-        return self.status != "entered"
-
-
-def shipped_quantities(job_ids: Iterable[int]) -> dict[int, int]:
-    """Boards shipped per job, from the shipment records (shopfloor.shipping)."""
-    from shopfloor.shipping.services import shipped_by_job
-
-    return shipped_by_job(job_ids)
-
-
-def boards_scrapped_on_live_panels(job_ids: Iterable[int]) -> dict[int, int]:
-    """Boards scrapped on panels that are themselves still running (crossed-out images,
-    boards final inspection did not accept), from the per-step scrap records."""
-    from shopfloor.floor.services import boards_scrapped_on_live_panels as scrapped
-
-    return scrapped(job_ids)
-
-
-def short_jobs(limit: int = 12) -> list[dict[str, Any]]:
-    """Released jobs whose boards on live panels no longer cover the order, in ONE query
-    (the supervisor board's budget is fixed): number, ordered, good boards, shortfall.
-
-    Counts whole scrapped panels and scrapped lots; boards scrapped on live panels are on
-    the job page (`summaries`), which the board links to.
-    """
-    from django.db.models import Count, F, Sum
-    from django.db.models.functions import Coalesce
-
-    good = Sum(
-        "images__count",
-        filter=Q(images__panel__scrapped=False)
-        & ~Q(images__panel__lot__status=Lot.Status.SCRAPPED),
-    )
-    rows = (
-        Job.objects.annotate(started=Count("images"), good=Coalesce(good, 0))
-        .filter(started__gt=0, good__lt=F("quantity"))
-        .order_by("due_date", "number")
-        .values_list("number", "quantity", "good")[:limit]
-    )
-    return [{"number": n, "ordered": q, "good": g, "shortfall": q - g} for n, q, g in rows]
-
-
-def projected_finishes(job_ids: list[int]) -> dict[int, Any]:
-    """The jobs' finish forecasts (shopfloor/planning), by job id, in one query."""
-    from shopfloor.planning.services import job_projections
-
-    return job_projections(job_ids)
-
-
-def summaries(jobs: Iterable[Job]) -> list[JobSummary]:
-    """Status, quantities and lots of many jobs in a fixed number of queries."""
-    jobs = list(jobs)
-    ids = [j.pk for j in jobs]
-    images = (
-        PanelImage.objects.filter(job_id__in=ids)
-        .values("job_id", "count", "panel__scrapped", "panel__lot_id")
-        .order_by()
-    )
-    lots = {
-        lot.pk: lot
-        for lot in Lot.objects.filter(panels__images__job_id__in=ids).distinct().order_by("code")
-    }
-    per_job_lots: dict[int, dict[int, list[int]]] = defaultdict(lambda: defaultdict(lambda: [0, 0]))
-    quantities = {j.pk: Quantities(ordered=j.quantity) for j in jobs}
-    for row in images:
-        q = quantities[row["job_id"]]
-        lot = lots[row["panel__lot_id"]]
-        count = row["count"]
-        q.on_panels += count
-        panel_line = per_job_lots[row["job_id"]][lot.pk]
-        panel_line[0] += 1
-        panel_line[1] += count
-        if row["panel__scrapped"] or lot.status == Lot.Status.SCRAPPED:
-            q.scrapped += count
-        elif lot.status == Lot.Status.COMPLETE:
-            q.finished += count
-        else:
-            q.in_process += count
-    shipped = shipped_quantities(ids)
-    crossed = boards_scrapped_on_live_panels(ids)
-    out: list[JobSummary] = []
-    current = _current_steps(list(lots))
-    forecasts = projected_finishes(ids)
-    for job in jobs:
-        q = quantities[job.pk]
-        q.shipped = shipped.get(job.pk, 0)
-        extra = crossed.get(job.pk, 0)
-        q.scrapped += extra
-        q.finished = max(0, q.finished - q.shipped)
-        lines = [
-            LotLine(
-                code=lots[lot_id].code,
-                status=lots[lot_id].status,
-                status_label=lots[lot_id].get_status_display(),
-                on_hold=lots[lot_id].on_hold,
-                panels=counts[0],
-                boards=counts[1],
-                current_step=current.get(lot_id, ""),
-            )
-            for lot_id, counts in sorted(
-                per_job_lots[job.pk].items(), key=lambda kv: lots[kv[0]].code
-            )
-        ]
-        out.append(
-            JobSummary(
-                job=job,
-                status=_status(q, [lots[i] for i in per_job_lots[job.pk]]),
-                quantities=q,
-                lots=lines,
-                projected_finish=forecasts[job.pk].p50 if job.pk in forecasts else None,
-                projected_finish_p90=forecasts[job.pk].p90 if job.pk in forecasts else None,
-                forecast_due_state=forecasts[job.pk].state if job.pk in forecasts else None,
-            )
-        )
-    return out
-
-
-def _current_steps(lot_ids: list[int]) -> dict[int, str]:
-    from shopfloor.floor.models import LotStep
-
-    out: dict[int, str] = {}
-    for lot_id, name in (
-        LotStep.objects.filter(
-            lot_id__in=lot_ids,
-            status__in=[LotStep.Status.WAITING, LotStep.Status.IN_PROGRESS, LotStep.Status.PAUSED],
-        )
-        .order_by("lot_id", "position")
-        .values_list("lot_id", "name")
-    ):
-        out.setdefault(lot_id, name)
-    return out
-
-
-def _status(q: Quantities, lots: list[Lot]) -> str:
-    if q.shipped >= q.ordered:
-        return "shipped"
-    live = [lot for lot in lots if lot.status != Lot.Status.SCRAPPED]
-    if not lots:
-        return "entered"
-    if any(lot.on_hold for lot in live if lot.status != Lot.Status.COMPLETE):
-        return "held"
-    if live and all(lot.status == Lot.Status.NOT_STARTED for lot in live):
-        return "released"
-    if live and all(lot.status == Lot.Status.COMPLETE for lot in live):
-        return "ready_to_ship"
-    return "in_process"
-
-
-def job_queryset() -> QuerySet[Job]:
-    return Job.objects.select_related("part_revision__part__customer", "routing_revision")
-
-
-def find_job(number: str) -> Job:
-    number = (number or "").strip()
-    ok = number and not has_nul(number)
-    job = job_queryset().filter(number__iexact=number).first() if ok else None
-    if job is None:
-        raise NotFound(f"No job numbered {number!r}.")
-    return job
-
-
-def job_summary(number: str, scope: Any = None) -> JobSummary:
-    """One job's summary; with a read scope (shopfloor.access.Scope), only the lots that
-    reader may see are listed (an operator sees the lots that reached their centers)."""
-    summary = summaries([find_job(number)])[0]
-    if scope is not None and not scope.sees_all:
-        from shopfloor.access import visible_lots
-
-        seen = set(
-            visible_lots(
-                scope, Lot.objects.filter(code__in=[lot.code for lot in summary.lots])
-            ).values_list("code", flat=True)
-        )
-        summary.lots = [lot for lot in summary.lots if lot.code in seen]
-    return summary
-
-
-@dataclass(frozen=True)
-class JobFilter:
-    status: str = ""
-    customer: str = ""
-    due_before: dt.date | None = None
-
-
-def parse_filter(raw: Mapping[str, Any]) -> JobFilter:
-    """Query-string filters, every problem at once."""
-    refuse_nul({k: raw.get(k) for k in ("status", "customer", "due_before")}, "filter")
-    problems: list[dict[str, Any]] = []
-    status = _text(raw.get("status"))
-    if status and status not in STATUSES:
-        problems.append(_problem("status", status, "not a job status", list(STATUSES)))
-    due: dt.date | None = None
-    due_text = _text(raw.get("due_before"))
-    if due_text:
-        from shopfloor.display import read_date
-
-        try:
-            due = read_date("due_before", due_text)
-        except InvalidInput as exc:
-            allowed = exc.problems[0]["allowed"] if exc.problems else "YYYY-MM-DD"
-            problems.append(_problem("due_before", due_text, "not a date", allowed))
-    customer = _text(raw.get("customer"))[:40]
-    if problems:
-        raise InvalidInput("The filter has problems.", problems=problems)
-    return JobFilter(status=status, customer=customer, due_before=due)
-
-
-def list_jobs(flt: JobFilter, *, limit: int = 500) -> list[JobSummary]:
-    """Jobs by due date; status is derived from lots, so it is filtered after counting."""
-    qs = job_queryset().order_by("due_date", "number")
-    if flt.customer:
-        qs = qs.filter(
-            Q(part_revision__part__customer__code__iexact=flt.customer)
-            | Q(part_revision__part__customer__name__icontains=flt.customer)
-        )
-    if flt.due_before:
-        qs = qs.filter(due_date__lt=flt.due_before)
-    rows = summaries(qs[: limit * 4] if flt.status else qs[:limit])
-    if flt.status:
-        rows = [r for r in rows if r.status == flt.status]
-    return rows[:limit]
-
-
 # --- release to the floor ------------------------------------------------------------------
 
 
@@ -727,7 +415,7 @@ def _whole(value: Any, name: str, low: int, high: int, problems: list[dict[str, 
     if isinstance(value, str) and value.strip().isdigit():
         value = int(value.strip())
     if isinstance(value, bool) or not isinstance(value, int) or not low <= value <= high:
-        problems.append(_problem(name, value, "must be a whole number", f"{low} to {high}"))
+        problems.append(parsing.problem(name, value, "must be a whole number", f"{low} to {high}"))
         return 0
     return value
 
@@ -783,7 +471,7 @@ def release_job(
     """
     require_planner(person)
     assert person is not None
-    refuse_nul([number, share_with or []], "release")
+    parsing.refuse_nul([number, share_with or []], "release")
     problems: list[dict[str, Any]] = []
     bpp = _whole(boards_per_panel, "boards_per_panel", 1, panelise.MAX_BOARDS_PER_PANEL, problems)
     partners: list[tuple[str, int]] = []
@@ -791,9 +479,11 @@ def release_job(
         n = _whole(
             count, f"share_with[{i}].boards_per_panel", 1, panelise.MAX_BOARDS_PER_PANEL, problems
         )
-        other_number = _text(other)
+        other_number = parsing.text(other)
         if not other_number:
-            problems.append(_problem(f"share_with[{i}].job", other, "is required", "a job number"))
+            problems.append(
+                parsing.problem(f"share_with[{i}].job", other, "is required", "a job number")
+            )
         partners.append((other_number, n))
     if problems:
         raise InvalidInput("The release has problems; nothing was released.", problems=problems)
@@ -856,7 +546,7 @@ def release_job(
         if reasons:
             raise Conflict(
                 "Not released: " + " ".join(reasons),
-                problems=[_problem("job", None, r, None) for r in reasons],
+                problems=[parsing.problem("job", None, r, None) for r in reasons],
             )
         strictest = max(jobs, key=lambda j: (routings[j.pk].ipc_class, j is main))
         routing = routings[strictest.pk]
@@ -1028,33 +718,3 @@ def shareable_jobs(job: Job) -> list[Job]:
 
 
 # --- scanning ---------------------------------------------------------------------------
-
-
-def lots_for_scan(code: str) -> list[Lot]:
-    """The lots a scanned code names: a lot code, a panel serial or a job number.
-
-    A lot code or panel serial names one lot; a job number names its lots still on the
-    floor (all of them when none is left). Raises NotFound naming what was tried.
-    """
-    code = (code or "").strip()
-    if not code or has_nul(code):
-        raise InvalidInput("Scan or type a lot code, panel serial or job number.")
-    lot = Lot.objects.filter(code__iexact=code).first()
-    if lot is not None:
-        return [lot]
-    panel = Panel.objects.select_related("lot").filter(serial__iexact=code).first()
-    if panel is not None:
-        return [panel.lot]
-    job = Job.objects.filter(number__iexact=code).first()
-    if job is not None:
-        lots = list(Lot.objects.filter(panels__images__job=job).distinct().order_by("code"))
-        open_lots = [
-            lot for lot in lots if lot.status in (Lot.Status.NOT_STARTED, Lot.Status.IN_PROCESS)
-        ]
-        if lots:
-            return open_lots or lots
-        raise NotFound(f"Job {job.number} is not released to the floor yet, so it has no lots.")
-    raise NotFound(
-        f"No lot with code {code!r}, and no panel serial or job number like it either. "
-        "Check the label and scan again."
-    )

@@ -24,7 +24,7 @@ from shopfloor.errors import DomainError
 from shopfloor.floor import idempotency
 from shopfloor.floor.permissions import PLAN_ROLES, READ_ROLES, roles_of
 from shopfloor.floor.services import person_for
-from shopfloor.orders import labels, services
+from shopfloor.orders import labels, read, services
 from shopfloor.plant.models import Customer, Lot, Part, Person
 
 OVERRIDE_ROWS = 3
@@ -69,8 +69,8 @@ def job_list(request: HttpRequest) -> HttpResponse:
     roles = _reader(request)
     error, problems, rows = "", [], []
     try:
-        flt = services.parse_filter(request.GET)
-        rows = services.list_jobs(flt)
+        flt = read.parse_filter(request.GET)
+        rows = read.list_jobs(flt)
     except DomainError as exc:
         error, problems = exc.detail, exc.problems
     return render(
@@ -78,7 +78,7 @@ def job_list(request: HttpRequest) -> HttpResponse:
         "orders/list.html",
         {
             "rows": rows,
-            "statuses": services.STATUSES,
+            "statuses": read.STATUSES,
             "q": request.GET,
             "error": error,
             "problems": _shown(problems),
@@ -181,7 +181,7 @@ def _job_page(
 ) -> HttpResponse:
     roles = _reader(request)
     try:
-        summary = services.job_summary(number, scope_for(request.user))
+        summary = read.job_summary(number, scope_for(request.user))
     except DomainError as exc:
         return render(request, "404.html", {"reason": exc.detail}, status=exc.status)
     job = summary.job

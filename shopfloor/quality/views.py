@@ -7,7 +7,6 @@ Every refusal is a DomainError turned into a page (or JSON) with its status and 
 from __future__ import annotations
 
 import datetime as dt
-import math
 from collections.abc import Callable
 from functools import wraps
 from typing import Any
@@ -27,16 +26,17 @@ from django.urls import reverse
 from django.utils.http import urlencode
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
-from shopfloor.core import judging, units
+from shopfloor import parsing
+from shopfloor.core import judging
 from shopfloor.core.judging import describe_window
 from shopfloor.core.yields import overall_yield as rolled_yield
 from shopfloor.errors import Conflict, DomainError, InvalidInput
-from shopfloor.orders import services as orders_services
+from shopfloor.orders import read as orders_read
 from shopfloor.planning import services as planning
 from shopfloor.planning.services import PLANNING_ROLES
-from shopfloor.quality import access, charts, exports, history
+from shopfloor.quality import access
 from shopfloor.quality.access import Scope, scope_for
-from shopfloor.quality.read import board
+from shopfloor.quality.read import board, charts, exports, genealogy, history, search, spc_series
 from shopfloor.quality.services import deadlines, dispositions, limits, queue
 
 View = Callable[..., HttpResponse]
@@ -83,7 +83,7 @@ def _board_context(request: HttpRequest, scope: Scope) -> dict[str, Any]:
         "scope": scope,
         "may_plan": bool(scope.roles & PLANNING_ROLES),
         # jobs whose remaining good boards no longer cover the order (one query)
-        "short_jobs": orders_services.short_jobs() if scope.sees_all else [],
+        "short_jobs": orders_read.short_jobs() if scope.sees_all else [],
         "sorts": board.SORTS,
         "raw": request.GET,
     }
@@ -104,20 +104,13 @@ def board_body(request: HttpRequest, scope: Scope) -> HttpResponse:
     return render(request, "board/board.html#board_body", ctx, status=400 if ctx["error"] else 200)
 
 
-def _int(value: Any) -> int | None:
-    try:
-        return int(value)
-    except (TypeError, ValueError):
-        return None
-
-
 @require_POST
 @reader
 def queue_move(request: HttpRequest, scope: Scope, work_center_id: int) -> HttpResponse:
     """Move one lot in a queue: move=top|up|down with lot_step=<id>, or move=<move>:<id>
     (the board has one form per work center; each row's buttons carry their lot)."""
     move, _, step_raw = request.POST.get("move", "").partition(":")
-    step_id = _int(step_raw or request.POST.get("lot_step"))
+    step_id = parsing.whole_or_none(step_raw or request.POST.get("lot_step"))
     if step_id is None:
         return _refusal(request, InvalidInput("Pick a lot to move (lot_step is missing)."))
     queue.move_in_queue(scope.actor, work_center_id, step_id, move)
@@ -142,13 +135,13 @@ def _back_query(request: HttpRequest) -> str:
 @require_GET
 @reader
 def overview(request: HttpRequest, scope: Scope) -> HttpResponse:
-    return render(request, "quality/overview.html", {"data": history.overview(scope)})
+    return render(request, "quality/overview.html", {"data": search.overview(scope)})
 
 
 @require_GET
 @reader
 def lot_page(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
-    from shopfloor.chemistry.services import bath_coverage
+    from shopfloor.chemistry.read import bath_coverage
     from shopfloor.floor.services import lot_yields
     from shopfloor.shipping.models import Certificate
 
@@ -208,27 +201,29 @@ def lot_pdf(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
 @require_GET
 @reader
 def job_page(request: HttpRequest, scope: Scope, number: str) -> HttpResponse:
-    g = history.job_genealogy(scope, number)
+    g = genealogy.job_genealogy(scope, number)
     return render(request, "quality/job.html", {"g": g, "forecast": planning.job_projection(g.job)})
 
 
 @require_GET
 @reader
 def panel_page(request: HttpRequest, scope: Scope, serial: str) -> HttpResponse:
-    return render(request, "quality/panel.html", {"panel": history.panel_genealogy(scope, serial)})
+    return render(
+        request, "quality/panel.html", {"panel": genealogy.panel_genealogy(scope, serial)}
+    )
 
 
 @require_GET
 @reader
 def material_page(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
-    return render(request, "quality/material.html", {"r": history.material_recall(scope, code)})
+    return render(request, "quality/material.html", {"r": genealogy.material_recall(scope, code)})
 
 
 @require_GET
 @reader
 def search_page(request: HttpRequest, scope: Scope) -> HttpResponse:
     try:
-        result = history.search(scope, request.GET) if request.GET else None
+        result = search.search(scope, request.GET) if request.GET else None
     except DomainError as exc:
         return render(
             request,
@@ -242,11 +237,11 @@ def search_page(request: HttpRequest, scope: Scope) -> HttpResponse:
 @require_GET
 @reader
 def spc_list(request: HttpRequest, scope: Scope) -> HttpResponse:
-    return render(request, "quality/spc_list.html", {"series": history.spc_series(scope)})
+    return render(request, "quality/spc_list.html", {"series": spc_series.spc_series(scope)})
 
 
 def _spc_context(scope: Scope, key: str) -> dict[str, Any]:
-    d = history.spc_detail(scope, key)
+    d = spc_series.spc_detail(scope, key)
     chart_svg = spread_svg = hist_svg = ""
 
     extra = 2 if d.attribute is not None or d.chart in ("c", "u", "p", "np") else 1
@@ -318,23 +313,6 @@ def spc_page(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
     return render(request, "quality/spc_series.html", _spc_context(scope, key))
 
 
-def _number(raw: str, label: str) -> float:
-    """A finite number from a form field, or InvalidInput naming the field."""
-    text = (raw or "").strip().replace(",", ".")
-    if text.lower().lstrip("+-") in {"inf", "infinity", "nan"}:
-        raise InvalidInput(f"{label} must be a finite number; got {raw!r}.")
-    try:
-        value = units.parse_decimal(text)
-    except ValueError:
-        shown = f"{raw!r}" if text else "nothing"
-        raise InvalidInput(
-            f"{label} must be a number (for example 45.2); got {shown}. {units.DECIMAL_RULE}."
-        ) from None
-    if not math.isfinite(value):
-        raise InvalidInput(f"{label} must be a finite number; got {raw!r}.")
-    return value
-
-
 def _site_day(raw: str, label: str, *, end: bool) -> dt.datetime:
     """A date field as the start (or end) of that day in the site's time zone."""
     try:
@@ -360,9 +338,9 @@ def spc_limits(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
             limits.fix_limits(
                 scope.actor,
                 series.pk,
-                centre=_number(request.POST.get("centre", ""), "Centre line"),
-                ucl=_number(request.POST.get("ucl", ""), "UCL"),
-                lcl=_number(request.POST.get("lcl", ""), "LCL"),
+                centre=parsing.finite_number(request.POST.get("centre", ""), "Centre line"),
+                ucl=parsing.finite_number(request.POST.get("ucl", ""), "UCL"),
+                lcl=parsing.finite_number(request.POST.get("lcl", ""), "LCL"),
             )
             messages.success(request, "Control limits fixed; the change is in the audit trail.")
         elif action == "recompute":

@@ -7,7 +7,7 @@ import datetime as dt
 import pytest
 from django.utils import timezone
 
-from shopfloor.chemistry import services
+from shopfloor.chemistry import read, services
 from shopfloor.chemistry.models import Analysis, TankEvent, TankUse
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
 from shopfloor.floor import services as floor_services
@@ -38,7 +38,7 @@ def test_analysis_in_oz_per_gallon_is_stored_in_g_per_l_and_judged(floor):
     # 31 mg/L chloride = 0.031 g/L, below the 0.040 g/L floor: out, the tank is flagged
     b = analyse(lab, tank, "chloride", "31", "mg/L")
     assert not b.in_window
-    assert services.tank_rows()[0].flagged
+    assert read.tank_rows()[0].flagged
     assert Alert.objects.filter(kind=Alert.Kind.BATH_OUT_OF_WINDOW, dedupe_key=f"bath_oow:{b.pk}")
 
 
@@ -90,7 +90,7 @@ def test_impact_query_on_a_constructed_history(floor):
     # the other parameter's analyses do not bound this parameter's exposure
     analyse(lab, tank, "chloride", "60", "mg/L", taken_at=t0 + 2.5 * h)
 
-    found = services.exposure(bad)
+    found = read.exposure(bad)
     assert [lot.code for lot in found.lots] == [b.code, c.code, d.code]
     assert found.since == t0 and found.until == t0 + 5 * h
     assert a_before.code not in {lot.code for lot in found.lots}
@@ -117,7 +117,7 @@ def test_starting_a_wet_step_records_its_tank_and_the_lot_history_shows_the_cove
     step = floorkit.start_at(floor, floor.lot)  # pattern_plate_copper at the plating line
     use = TankUse.objects.get(lot_step=step)
     assert use.tank == tank
-    coverage = services.bath_coverage(floor.lot)
+    coverage = read.bath_coverage(floor.lot)
     assert coverage[0].tank == tank
     assert dict((p.code, a) for p, a in coverage[0].analyses)["copper_sulfate"] == covering
     client.force_login(floor.personas["quality_engineer"].user)
@@ -153,7 +153,7 @@ def test_addition_advice_record_and_engineer_confirmation(floor):
     assert confirmed.confirmed_by == engineer and confirmed.confirmed_at is not None
     with pytest.raises(Conflict, match="already confirmed"):
         services.confirm_event(person=engineer, event_id=event.pk, pin=PIN)
-    rows = services.tank_history(tank)
+    rows = read.tank_history(tank)
     assert any("confirmed by Pat Engineer" in r.who for r in rows)
 
 
@@ -188,11 +188,11 @@ def test_make_up_restarts_the_electroless_nickel_age(floor):
             person=engineer, tank_code="T-NI", kind="addition", pin=PIN, parameter="nickel",
             add_l=12,
         )  # fmt: skip
-    age = services.turnovers(tank)
+    age = read.turnovers(tank)
     assert age.turnovers == pytest.approx(4.0) and not age.dump_due
     services.record_event(person=engineer, tank_code="T-NI", kind="make_up", pin=PIN)
     tank.refresh_from_db()
-    assert services.turnovers(tank).turnovers == 0.0
+    assert read.turnovers(tank).turnovers == 0.0
 
 
 def test_plating_step_parameters_from_current_density_and_area(floor):

@@ -16,7 +16,8 @@ from shopfloor.errors import Conflict, InvalidInput
 from shopfloor.floor import services
 from shopfloor.floor.models import MaterialUse
 from shopfloor.plant.models import MaterialLot
-from shopfloor.quality import access, history
+from shopfloor.quality import access
+from shopfloor.quality.read import genealogy
 from tests.factories import PIN
 from tests.worker import floorkit as kit
 
@@ -83,7 +84,7 @@ def test_recall_from_a_prepreg_lot_finds_lot_job_and_customer(floor, layup):
         services.record_material(person=op, lot_step_id=layup.pk, code=code)
     services.complete_step(person=op, lot_step_id=layup.pk, pin=PIN)
     scope = access.scope_for(floor.personas["quality_engineer"].user)
-    recall = history.material_recall(scope, "PP-2")
+    recall = genealogy.material_recall(scope, "PP-2")
     (row,) = recall.rows
     assert row.lot == floor.lot
     assert [j.number for j in row.jobs] == [floor.job.number]

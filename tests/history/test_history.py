@@ -15,8 +15,8 @@ from shopfloor.audit import services as audit
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant import services as plant_services
 from shopfloor.plant.models import Equipment, MaterialLot, WorkCenter
-from shopfloor.quality import history
 from shopfloor.quality.models import Alert, Hold, Nonconformance
+from shopfloor.quality.read import history
 from tests import factories
 
 pytestmark = pytest.mark.django_db
@@ -211,7 +211,7 @@ def test_ipc_1782_fields_present_in_json(rich, floor, client):
     """From memory of IPC-1782: material level M2 needs the material lots (with their
     supplier identity) tied to the production lot; process level P2 needs each process
     step of the lot with when, who, which equipment and its measurements. Check every
-    field the claim in shopfloor.quality.history relies on is in the JSON history."""
+    field the claim in shopfloor.quality.read.history relies on is in the JSON history."""
     data = _qe(client, floor).get(f"/quality/api/lots/{rich['lot'].code}/history.json").json()
     assert data["traceability"]["material"] == "M2"
     assert data["traceability"]["process"] == "P2"
@@ -355,7 +355,7 @@ def test_pdf_lot_record_contains_part_source_and_class(rich, floor, client, tmp_
 
 def test_reading_summary_against_window(rich):
     from shopfloor.quality.access import scope_for
-    from shopfloor.quality.exports import reading_summary
+    from shopfloor.quality.read.exports import reading_summary
 
     h = history.lot_history(scope_for(_qe_user(rich)), rich["lot"].code)
     (s,) = reading_summary(h)

@@ -9,7 +9,7 @@ import pytest
 from django.utils import timezone
 
 from shopfloor.floor.models import Reading
-from shopfloor.quality import charts
+from shopfloor.quality.read import charts
 
 # Individuals chart limits are mean +- 3 * MRbar / d2, d2 = 1.128 for n = 2, i.e.
 # mean +- 2.66 MRbar (Montgomery, Introduction to Statistical Quality Control, ch. 6).

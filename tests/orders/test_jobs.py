@@ -12,7 +12,7 @@ from rest_framework.test import APIClient
 
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed
 from shopfloor.floor.models import LotStep
-from shopfloor.orders import services
+from shopfloor.orders import read, services
 from shopfloor.orders.models import PartPlanning, PlanningSettings
 from shopfloor.plant.models import Job, Lot, Panel, PartRevision
 from tests.factories import SPEC_4L_ENIG, make_part_revision, release_routing
@@ -97,7 +97,7 @@ def test_entry_creates_customer_part_and_revision(floor):
     assert job.part_revision.part.customer.name == "New Customer (invented)"
     assert job.part_revision.build_spec == {}
     assert job.customer_overrides[0]["min"] == 25
-    summary = services.job_summary(job.number)
+    summary = read.job_summary(job.number)
     assert summary.status == "entered"
     assert summary.quantities.on_panels == 0
 
@@ -153,7 +153,7 @@ def test_release_makes_panels_and_lots_and_is_idempotent(floor):
     assert again.status_code == 200 and again.json()["created"] is False
     assert again.json()["panels"] == body["panels"]
     assert Panel.objects.filter(images__job=job).count() == 72
-    summary = services.job_summary(job.number)
+    summary = read.job_summary(job.number)
     assert summary.status == "released"
     assert summary.quantities.on_panels == 432 and summary.quantities.shortfall == 0
 
@@ -228,7 +228,7 @@ def test_shortfall_and_makeup(floor):
         services.release_makeup(person=planner, number=job.number)
     # Three panels scrapped: 12 boards lost; 11 x 4 = 44 - 12 = 32 good remain for 40.
     Panel.objects.filter(pk__in=[p.pk for p in result.panels[:3]]).update(scrapped=True)
-    summary = services.job_summary(job.number)
+    summary = read.job_summary(job.number)
     assert summary.quantities.shortfall == 8
     page = Client()
     page.force_login(planner.user)
@@ -236,7 +236,7 @@ def test_shortfall_and_makeup(floor):
     assert "Short by 8 boards" in html
     made = services.release_makeup(person=planner, number=job.number)
     assert len(made.panels) == 3  # ceil(8 / 4 x 1.08) = 3
-    assert services.job_summary(job.number).quantities.shortfall == 0
+    assert read.job_summary(job.number).quantities.shortfall == 0
 
 
 def test_scan_finds_lot_by_serial_and_job_number(floor):
@@ -317,7 +317,7 @@ def test_board_shows_a_short_job(floor):
     job = services.enter_job(person=planner, data=services.JobInput(**_entry(floor, quantity=40)))
     result = services.release_job(person=planner, number=job.number, boards_per_panel=4)
     Panel.objects.filter(pk__in=[p.pk for p in result.panels[:3]]).update(scrapped=True)
-    short = {j["number"]: j for j in services.short_jobs()}
+    short = {j["number"]: j for j in read.short_jobs()}
     assert short[job.number]["shortfall"] == 8  # 40 ordered, (11 - 3) x 4 = 32 good
     client = Client()
     client.force_login(floor.personas["supervisor"].user)

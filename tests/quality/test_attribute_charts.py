@@ -16,7 +16,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from shopfloor.core import judging, spc
-from shopfloor.quality.charts import spread_labels
+from shopfloor.quality.read.charts import spread_labels
 from shopfloor.quality.series import series_key
 
 # NIST/SEMATECH e-Handbook 6.3.3.2 p chart example: 30 samples of 50, number

@@ -6,7 +6,7 @@ quantity against the window and names the window's source, the IPC class applied
 signatures, and carries the control charts drawn from the same shapes as the pages.
 
 Traceability claim in the PDF footer: material level M2, process level P2 (IPC-1782,
-from memory; see shopfloor.quality.history): records are per lot and per panel, not per
+from memory; see shopfloor.quality.read.history): records are per lot and per panel, not per
 board.
 """
 
@@ -21,8 +21,8 @@ from shopfloor.core import judging
 from shopfloor.core.judging import describe_window
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Lot
-from shopfloor.quality import charts, history
 from shopfloor.quality.models import Alert, Hold, Nonconformance
+from shopfloor.quality.read import charts, history
 from shopfloor.safe_output import csv_writer, pdf_paragraph
 
 CHUNK = 2000
