@@ -2,13 +2,15 @@
 
 from django.urls import path
 
-from shopfloor.quality import views
+from shopfloor.quality import views, wall_views
 
 app_name = "quality"
 
 urlpatterns = [
     path("board/", views.board_page, name="board"),
     path("board/body/", views.board_body, name="board_body"),
+    path("board/wall/", wall_views.wall_page, name="wall"),
+    path("board/wall/body/", wall_views.wall_body, name="wall_body"),
     path("board/queue/<int:work_center_id>/move/", views.queue_move, name="queue_move"),
     path(
         "board/steps/<int:lot_step_id>/release-queue-warning/",

@@ -24,6 +24,7 @@ from __future__ import annotations
 import datetime as dt
 import zoneinfo
 from collections import defaultdict
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from functools import cached_property
 from typing import Any
@@ -348,6 +349,14 @@ class BoardLot:
             return ""
         fmt = self.date_format
         return f"P50 {_when(self.p50, self.now, fmt)} · P90 {_when(self.p90, self.now, fmt)}"
+
+    @property
+    def forecast_lines(self) -> tuple[str, str] | None:
+        """('P50 Thu 14:05', 'P90 Fri 09:40'), or None without a forecast."""
+        if not self.forecast_text:
+            return None
+        p50, _, p90 = self.forecast_text.partition(" · ")
+        return p50, p90
 
     @property
     def due_word(self) -> str:
@@ -694,8 +703,17 @@ def _alerts_for_filters(
     return alerts.filter(Q(lot_id__in=lot_ids) | Q(work_center_id__in=wanted))
 
 
-def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = None) -> Board:
-    """Everything the board shows, in a number of queries that does not grow with lots."""
+def build_board(
+    scope: Scope,
+    filters: BoardFilters,
+    now: dt.datetime | None = None,
+    *,
+    rows_per_center: int | Callable[[Any], int] | None = None,
+) -> Board:
+    """Everything the board shows, in a number of queries that does not grow with lots.
+
+    `rows_per_center` caps the rows each work center lists (the wall board's own cap; a
+    function of the site settings when the cap is the site's); counts stay exact."""
     now = now or timezone.now()
     links = BoardLinks()
     centers = list(with_site_settings(WorkCenter.objects.order_by("code")))
@@ -800,6 +818,8 @@ def build_board(scope: Scope, filters: BoardFilters, now: dt.datetime | None = N
         forecast_at = _read_jobs(lots, links, now, every_active_lot=True)
     key = _sort_key(filters.sort)
     limit = MAX_ROWS_PER_CENTER if filters.work_center else OVERVIEW_ROWS_PER_CENTER
+    if rows_per_center is not None:
+        limit = rows_per_center if isinstance(rows_per_center, int) else rows_per_center(site)
     for column in by_center.values():
         column.limit = limit
         column.queued.sort(key=key)
