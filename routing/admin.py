@@ -72,7 +72,7 @@ class ProcessLibraryVersionAdmin(admin.ModelAdmin):
 class RoutingStepInline(admin.TabularInline):
     model = RoutingStep
     extra = 0
-    fields = ["seq", "code", "name", "work_center", "queue_time_limit_minutes", "standard_minutes"]
+    fields = ("seq", "code", "name", "work_center", "queue_time_limit_minutes", "standard_minutes")
     readonly_fields = fields
     can_delete = False
 

@@ -111,4 +111,4 @@ class DesignImportSerializer(serializers.Serializer):
     spec = serializers.DictField(help_text="Build spec keys stated by the file")
     to_fill = serializers.ListField(child=serializers.CharField())
     warnings = serializers.ListField(child=serializers.CharField())
-    source = DesignImportSourceSerializer()
+    source = DesignImportSourceSerializer()  # type: ignore[assignment]  # DRF collects declared fields; the name clashes only in the stubs

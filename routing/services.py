@@ -111,14 +111,14 @@ def _build(spec: Any, overrides: list[dict[str, Any]], library: ProcessLibrary) 
     routing = builder.build_routing(parsed, library)
     if overrides:
         try:
-            parsed_overrides = [_override(o) for o in overrides]
+            parsed_overrides = [parse_override(o) for o in overrides]
             routing = overrides_core.apply_overrides(routing, parsed_overrides)
         except (overrides_core.OverrideRefused, ValueError, TypeError, KeyError) as exc:
             raise InvalidInput(f"Customer override refused: {exc}") from exc
     return render.routing_to_dict(routing)
 
 
-def _override(raw: Any) -> overrides_core.Override:
+def parse_override(raw: Any) -> overrides_core.Override:
     if not isinstance(raw, dict) or "quantity" not in raw:
         raise ValueError("each override is an object with at least 'quantity' and 'reason'")
     allowed = {

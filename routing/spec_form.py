@@ -60,6 +60,16 @@ class FormState:
         return {_input_for(p) for p in self.to_fill}
 
 
+def _mapping(value: Any) -> Mapping[str, Any]:
+    """A nested spec object, or an empty one when the key is missing or not an object."""
+    return value if isinstance(value, Mapping) else {}
+
+
+def _list(value: Any) -> list[Any]:
+    """A spec list (stack-up rows, vias), or an empty one when missing or not a list."""
+    return value if isinstance(value, list) else []
+
+
 def _text(value: Any) -> str:
     if value is None:
         return ""
@@ -82,9 +92,9 @@ def form_values(
     "solder_mask.colour"); the form marks those inputs so the engineer checks them.
     """
     spec = spec or {}
-    mask = spec.get("solder_mask") if isinstance(spec.get("solder_mask"), Mapping) else {}
-    legend = spec.get("legend") if isinstance(spec.get("legend"), Mapping) else {}
-    outline = spec.get("outline") if isinstance(spec.get("outline"), Mapping) else {}
+    mask = _mapping(spec.get("solder_mask"))
+    legend = _mapping(spec.get("legend"))
+    outline = _mapping(spec.get("outline"))
     values = {
         "layers": _text(spec.get("layers")),
         "ipc_class": _text(spec.get("ipc_class")),
@@ -102,8 +112,8 @@ def form_values(
         "outline_width_mm": _text(outline.get("width_mm")),
         "outline_height_mm": _text(outline.get("height_mm")),
     }
-    stack = spec.get("stackup") if isinstance(spec.get("stackup"), list) else []
-    vias = spec.get("vias") if isinstance(spec.get("vias"), list) else []
+    stack = _list(spec.get("stackup"))
+    vias = _list(spec.get("vias"))
     state = FormState(
         values=values,
         stackup=[

@@ -28,12 +28,13 @@ from shopfloor import strict_json
 from shopfloor.core import units
 from shopfloor.errors import DomainError
 from shopfloor.floor.permissions import READ_ROLES, roles_of
+from shopfloor.htmx import is_htmx
 from shopfloor.plant.models import Lot, PartRevision
 
 CHANGE_ROLES = frozenset({"process_engineer", "admin"})
 
 
-def _require_reader(request: HttpRequest) -> set[str]:
+def _require_reader(request: HttpRequest) -> frozenset[str]:
     roles = roles_of(request.user)
     if not roles & READ_ROLES:
         raise PermissionDenied(
@@ -87,9 +88,9 @@ def preview(request: HttpRequest) -> HttpResponse:
             context["error"] = f"The text is not valid JSON: {exc}"
         except DomainError as exc:
             context["error"], context["problems"] = exc.detail, _shown(exc.problems)
-        if context["error"] and not request.htmx:
+        if context["error"] and not is_htmx(request):
             status = 400
-    template = "engineering/preview.html#panel" if request.htmx else "engineering/preview.html"
+    template = "engineering/preview.html#panel" if is_htmx(request) else "engineering/preview.html"
     return render(request, template, context, status=status)
 
 
@@ -260,7 +261,11 @@ def _movable_lots(rev: RoutingRevision) -> list[Lot]:
 
 
 def _revision_page(
-    request: HttpRequest, rev: RoutingRevision, roles: set[str], error: str = "", status: int = 200
+    request: HttpRequest,
+    rev: RoutingRevision,
+    roles: frozenset[str],
+    error: str = "",
+    status: int = 200,
 ) -> HttpResponse:
     return render(
         request,

@@ -490,7 +490,8 @@ _ENTRY_FIELDS = (
 
 def _stream(queryset: Any, chunk: int = 2000) -> Iterator[Any]:
     """Rows over a server-side cursor on PostgreSQL (Django's iterator), in chunks."""
-    return queryset.iterator(chunk_size=chunk)
+    rows: Iterator[Any] = queryset.iterator(chunk_size=chunk)
+    return rows
 
 
 def json_same(a: Any, b: Any) -> bool:

@@ -9,8 +9,8 @@ from __future__ import annotations
 import hashlib
 from typing import Any
 
-from django.http import HttpRequest
 from rest_framework import authentication, exceptions
+from rest_framework.request import Request
 
 
 def hash_token(raw: str) -> str:
@@ -20,7 +20,7 @@ def hash_token(raw: str) -> str:
 class InstrumentTokenAuthentication(authentication.BaseAuthentication):
     keyword = "Token"
 
-    def authenticate(self, request: HttpRequest) -> tuple[Any, Any] | None:
+    def authenticate(self, request: Request) -> tuple[Any, Any] | None:
         header = authentication.get_authorization_header(request).decode(errors="replace")
         if not header:
             return None
@@ -40,5 +40,5 @@ class InstrumentTokenAuthentication(authentication.BaseAuthentication):
             raise exceptions.AuthenticationFailed("Unknown or withdrawn instrument token")
         return (token.user, token)
 
-    def authenticate_header(self, request: HttpRequest) -> str:
+    def authenticate_header(self, request: Request) -> str:
         return self.keyword

@@ -122,9 +122,10 @@ def _resolve(
         else:
             lot = services.find_lot(lot_code)
             found = LotStep.objects.select_related("work_center").filter(pk=step_id, lot=lot)
-            step = found.first()  # type: ignore[assignment]
-            if step is None:
+            named = found.first()
+            if named is None:
                 return InvalidInput(f"Lot {lot.code} has no step with id {step_id}.")
+            step = named
         check_access(step)
     except DomainError as exc:
         return exc
@@ -260,7 +261,7 @@ def _duplicate(item: BatchItem, stored: Reading, step: LotStep) -> ItemResult:
             f"reading ({stored.quantity} sample {stored.sample_index}, {stored.entered_value} "
             f"{stored.entered_unit}). Give each measurement its own key.",
         )
-    if stored.pk is None:  # a repeat inside this very batch: it is created once
+    if stored._state.adding:  # a repeat inside this very batch (not saved yet): created once
         return ItemResult(item.index, item.sample_key, "duplicate", pending=stored)
     return ItemResult(
         item.index, item.sample_key, "duplicate", reading=_reading_reply(stored, step.lot.code)

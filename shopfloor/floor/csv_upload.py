@@ -82,7 +82,7 @@ def read(data: bytes) -> ParsedFile:
                     f"The file has more than {batch.MAX_ITEMS:,} readings; upload at most "
                     f"{batch.MAX_ITEMS:,} at a time."
                 )
-            row = {
+            row: dict[str, Any] = {
                 name: (cells[i].strip() if i < len(cells) else "") for i, name in enumerate(header)
             }
             row["_line"] = number

@@ -292,7 +292,7 @@ class WindowSerializer(serializers.Serializer):
     """A tolerance window in the canonical unit, always with its source."""
 
     quantity = serializers.CharField()
-    label = serializers.CharField(
+    label = serializers.CharField(  # type: ignore[assignment]  # DRF collects declared fields; the name clashes only in the stubs
         required=False,
         help_text="The quantity as people read it (display only; on readings and lot windows)",
     )
@@ -301,7 +301,7 @@ class WindowSerializer(serializers.Serializer):
     max = serializers.FloatField(allow_null=True)
     target = serializers.FloatField(allow_null=True)
     samples = serializers.IntegerField(allow_null=True, help_text="null means every board")
-    source = serializers.CharField(help_text="Standard and clause, shop practice or customer")
+    source = serializers.CharField(help_text="Standard and clause, shop practice or customer")  # type: ignore[assignment]  # DRF collects declared fields; the name clashes only in the stubs
     attribute = serializers.BooleanField()
     deviation = serializers.BooleanField()
     applies_to = serializers.ChoiceField(

@@ -45,6 +45,7 @@ from shopfloor.floor.api import problems_from
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.floor.permissions import FLOOR_ROLES, check_work_center, roles_of
 from shopfloor.floor.serializers import batch_items
+from shopfloor.htmx import is_htmx
 from shopfloor.plant.models import Equipment, Lot, Person, WorkCenter
 from shopfloor.quality import access
 
@@ -237,7 +238,7 @@ class SampleRow:
         if self.entered.get("equipment"):
             return str(self.entered["equipment"])
         last = self.last.get("equipment")
-        ids = {e.pk for e in self.equipment if e.is_gauge and e.calibration_current}
+        ids = {e.pk for e in self.equipment if e.is_gauge and e.calibration_current()}
         return str(last) if last in ids else ""
 
 
@@ -653,7 +654,7 @@ def record_acceptance(request: HttpRequest, step_id: int) -> HttpResponse:
 def _row_response(
     request: HttpRequest, row: SampleRow | None, lot: Lot, status: int = 200
 ) -> HttpResponse:
-    if row is None or not request.htmx:
+    if row is None or not is_htmx(request):
         if status >= 400:
             return _refuse_page(request, _person(request), lot, row.error if row else "", status)
         return redirect("floor:lot", code=lot.code)

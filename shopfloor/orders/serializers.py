@@ -159,7 +159,7 @@ class ReleaseLotSerializer(serializers.Serializer):
     panels = serializers.IntegerField()
     routing_revision = serializers.IntegerField()
     traveller = serializers.CharField(help_text="Traveller PDF link")
-    label = serializers.CharField(help_text="Lot label PDF link")
+    label = serializers.CharField(help_text="Lot label PDF link")  # type: ignore[assignment]  # DRF collects declared fields; the name clashes only in the stubs
 
 
 class ReleaseSerializer(serializers.Serializer):

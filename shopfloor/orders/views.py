@@ -40,7 +40,7 @@ def _shown(problems: list[dict[str, Any]]) -> list[dict[str, Any]]:
     return out
 
 
-def _reader(request: HttpRequest) -> set[str]:
+def _reader(request: HttpRequest) -> frozenset[str]:
     roles = roles_of(request.user)
     if not roles & READ_ROLES:
         raise PermissionDenied(
@@ -136,7 +136,7 @@ def job_new(request: HttpRequest) -> HttpResponse:
     if request.method == "GET":
         return render(request, "orders/new.html", _entry_context({"ipc_class": "2"}, []))
     post = request.POST
-    values = {k: post.get(k, "") for k in services.JobInput.__dataclass_fields__}
+    values: dict[str, Any] = {k: post.get(k, "") for k in services.JobInput.__dataclass_fields__}
     typed, overrides = _override_rows(post)
     values["override_rows"] = typed
     values["idempotency_key"] = post.get("idempotency_key", "")

@@ -21,6 +21,7 @@ from django.http import (
     JsonResponse,
     StreamingHttpResponse,
 )
+from django.http.response import HttpResponseBase
 from django.shortcuts import redirect, render
 from django.urls import reverse
 from django.utils.http import urlencode
@@ -39,7 +40,7 @@ from shopfloor.quality.access import Scope, scope_for
 from shopfloor.quality.read import board, charts, exports, genealogy, history, search, spc_series
 from shopfloor.quality.services import deadlines, dispositions, limits, queue
 
-View = Callable[..., HttpResponse]
+View = Callable[..., HttpResponseBase]
 
 
 def _refusal(request: HttpRequest, exc: DomainError) -> HttpResponse:
@@ -49,11 +50,11 @@ def _refusal(request: HttpRequest, exc: DomainError) -> HttpResponse:
     )
 
 
-def reader(view: Callable[..., HttpResponse]) -> View:
+def reader(view: View) -> View:
     """Sign-in required; the reader's scope is passed in; domain errors become pages."""
 
     @wraps(view)
-    def wrapped(request: HttpRequest, *args: Any, **kwargs: Any) -> HttpResponse:
+    def wrapped(request: HttpRequest, *args: Any, **kwargs: Any) -> HttpResponseBase:
         if not request.user.is_authenticated:
             return redirect_to_login(request.get_full_path())
         try:
@@ -175,7 +176,7 @@ def lot_history_json(request: HttpRequest, scope: Scope, code: str) -> HttpRespo
 
 @require_GET
 @reader
-def lot_csv(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
+def lot_csv(request: HttpRequest, scope: Scope, code: str) -> HttpResponseBase:
     lot = history.find_lot_for(scope, code)
     response = StreamingHttpResponse(exports.stream_lot_csv(lot), content_type="text/csv")
     response["Content-Disposition"] = f'attachment; filename="lot-{lot.code}.csv"'

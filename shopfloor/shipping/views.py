@@ -74,7 +74,8 @@ def index(request: HttpRequest, person: Person, roles: set[str]) -> HttpResponse
             "part_revision__part__customer"
         )
     }
-    ready, done = [], []
+    ready: list[dict[str, Any]] = []
+    done: list[dict[str, Any]] = []
     for job_id, n in accepted:
         job = jobs[job_id]
         sent = int(shipped.get(job_id, 0))

@@ -86,3 +86,28 @@ def test_invalid_json_exits_2(tmp_path, content):
 def test_unreadable_file_exits_2(tmp_path):
     code, _, err = run("preview", str(tmp_path / "missing.json"))
     assert code == 2 and "Cannot read" in err
+
+
+def test_text_preview_applies_a_customer_override(tmp_path):
+    # ENIG nickel defaults to 3-6 µm (IPC-4552A, from memory); a customer asks for 4-6 µm.
+    body = {
+        "spec": SPEC_4L_ENIG,
+        "overrides": [
+            {"quantity": "nickel_thickness", "min": 4.0, "max": 6.0, "reason": "customer drawing"}
+        ],
+    }
+    path = tmp_path / "spec.json"
+    path.write_text(json.dumps(body))
+    code, out, err = run("preview", str(path), "--format", "text")
+    assert code == 0, err
+    nickel = [line for line in out.splitlines() if "nickel_thickness" in line]
+    assert nickel and all("4" in line and "6" in line for line in nickel)
+    code_json, out_json, _ = run("preview", str(path), "--format", "json")
+    assert code_json == 0
+    window = next(
+        m
+        for s in json.loads(out_json)["steps"]
+        for m in s["measurements"]
+        if m["quantity"] == "nickel_thickness"
+    )
+    assert (window["min"], window["max"]) == (4.0, 6.0)

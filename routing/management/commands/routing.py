@@ -180,6 +180,6 @@ def _text(spec: Any, overrides: list[dict[str, Any]]) -> str:
     routing = builder.build_routing(spec_core.parse_spec(spec), library)
     if overrides:
         routing = overrides_core.apply_overrides(
-            routing, [overrides_core.Override.from_dict(o) for o in overrides]
+            routing, [services.parse_override(o) for o in overrides]
         )
     return render.routing_to_text(routing)

@@ -173,10 +173,10 @@ class Command(BaseCommand):
             user.groups.add(Group.objects.get(name=Role.ADMIN))
             # the administrator also gets a badge, so the floor, board and quality pages
             # (which sign and scope by badge) work for the admin login too
-            person = Person(user=user, badge_number=admin["badge"], printed_name="Site admin")
-            person.set_pin(data["pin"])
-            person.save()
-            person.work_centers.add(*all_centers)
+            site_admin = Person(user=user, badge_number=admin["badge"], printed_name="Site admin")
+            site_admin.set_pin(data["pin"])
+            site_admin.save()
+            site_admin.work_centers.add(*all_centers)
         people: dict[str, Person] = {}
         for p in data["people"]:
             person = Person.objects.filter(badge_number=p["badge"]).first()
