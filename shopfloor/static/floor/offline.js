@@ -37,6 +37,7 @@
   } catch (err) { /* storage refused: the panel still works for this page */ }
   var running = false;
   var sentSomething = false;
+  var replayedHere = false;  // this page sent or was refused something: keep the report
 
   // --- IndexedDB -------------------------------------------------------------------
 
@@ -82,26 +83,67 @@
 
   // --- what the page shows -----------------------------------------------------------
 
-  var STATE_WORDS = {
-    waiting: "waiting to send",
-    sending: "sending…",
-    sent: "sent",
-    refused: "refused",
-    confirm: "needs your check",
-    signin: "log in again to send",
-    failed: "not sent: server problem",
-    other: "waiting for its operator"
+  // The words come from the page (templates/floor/_offline.html, through Django's
+  // translation machinery); the English here is only a fallback.
+  var WORDS = {
+    state_waiting: "waiting to send",
+    state_sending: "sending…",
+    state_sent: "sent",
+    state_refused: "refused",
+    state_confirm: "needs your check",
+    state_signin: "log in again to send",
+    state_failed: "not sent: server problem",
+    state_other: "waiting for its operator",
+    reading_one: "{n} reading", reading_many: "{n} readings",
+    start_one: "{n} start", start_many: "{n} starts",
+    pause_one: "{n} pause", pause_many: "{n} pauses",
+    offline_waiting: "offline: {items} waiting",
+    offline_nothing: "offline: nothing waiting",
+    offline_kept: "Readings, starts and pauses are kept on this tablet and sent when the network is back.",
+    sending_waiting: "sending: {items} waiting",
+    online_waiting: "online: {items} waiting",
+    online_nothing: "online: nothing waiting",
+    attention_one: "{n} needs your attention (below)",
+    attention_many: "{n} need your attention (below)",
+    made_at: "made {time}",
+    other_badge: "Made by badge {badge}: sent when that person logs in on this tablet.",
+    confirm_send: "Confirm and send",
+    send_again: "Send again",
+    clear: "Clear",
+    remove: "Remove from this tablet",
+    row_note: "{value} — {state} (taken {time})",
+    step_note: "{action} — {state} (pressed {time})",
+    start: "Start",
+    pause: "Pause",
+    reading_label: "{quantity}, sample {sample}: {value}",
+    step_label: "{action} '{step}'",
+    on_lot: "(lot {lot})",
+    needs_network: "This needs the network, which is down: try again when the tablet is back online. Readings, starts and pauses are kept on the tablet meanwhile.",
+    logged_out: "You were logged out; log in again on this tablet and press Send again.",
+    server_problem: "The server could not take it (error {status}). Press Send again, or tell a supervisor.",
+    sign_in_changed: "The tablet's sign-in has changed; reload the page and press Send again.",
+    refused_status: "Refused by the server ({status}).",
+    lot: "Lot {code}",
+    none_kept: "None kept yet.",
+    send_now: "Send now"
   };
-  var KIND_WORDS = {
-    reading: ["reading", "readings"],
-    start: ["start", "starts"],
-    pause: ["pause", "pauses"]
-  };
+  var wordsBox = document.getElementById("offline-words");
+  if (wordsBox && wordsBox.content) {
+    wordsBox.content.querySelectorAll("[data-k]").forEach(function (w) {
+      WORDS[w.getAttribute("data-k")] = w.textContent.trim();
+    });
+  }
+  function t(key, vars) {
+    var text = WORDS[key] || key;
+    return text.replace(/\{(\w+)\}/g, function (all, name) {
+      return vars && name in vars ? String(vars[name]) : all;
+    });
+  }
+  function stateWord(state) { return WORDS["state_" + state] ? t("state_" + state) : state; }
 
   function mine(item) { return item.person === me; }
   function plural(n, kind) {
-    var w = KIND_WORDS[kind] || [kind, kind + "s"];
-    return n + " " + (n === 1 ? w[0] : w[1]);
+    return t(kind + (n === 1 ? "_one" : "_many"), { n: n });
   }
   function summary(items) {
     var counts = { reading: 0, start: 0, pause: 0 };
@@ -121,16 +163,18 @@
       if (counts[k]) { parts.push(plural(counts[k], k)); }
     });
     var text;
+    var note = "";
+    var items = parts.join(", ");
     if (!navigator.onLine) {
-      text = "offline: " + (parts.length ? parts.join(", ") + " waiting" : "nothing waiting") +
-        ". Readings, starts and pauses are kept on this tablet and sent when the network is back.";
+      text = (parts.length ? t("offline_waiting", { items: items }) : t("offline_nothing")) + ".";
+      note = t("offline_kept");
     } else if (waiting) {
-      text = (running ? "sending: " : "online: ") + parts.join(", ") + " waiting";
+      text = t(running ? "sending_waiting" : "online_waiting", { items: items });
     } else {
-      text = "online: nothing waiting";
+      text = t("online_nothing");
     }
-    if (stuck) { text += " · " + stuck + " need" + (stuck === 1 ? "s" : "") + " your attention (below)"; }
-    return { text: text, waiting: waiting, stuck: stuck };
+    if (stuck) { text += " · " + t(stuck === 1 ? "attention_one" : "attention_many", { n: stuck }); }
+    return { text: text, note: note, waiting: waiting, stuck: stuck };
   }
 
   function el(tag, cls, text) {
@@ -148,12 +192,31 @@
       var s = summary(items);
       var status = panel.querySelector(".offline-summary");
       status.textContent = s.text;
+      if (s.note) { status.appendChild(el("span", "offline-note", " " + s.note)); }
       panel.setAttribute("data-online", navigator.onLine ? "yes" : "no");
       panel.setAttribute("data-waiting", String(s.waiting));
       panel.setAttribute("data-stuck", String(s.stuck));
       panel.setAttribute("data-state", running ? "sending" : (s.waiting && navigator.onLine ? "waiting" : "idle"));
       var visible = items.filter(function (it) { return mine(it) || it.state !== "sent"; });
-      panel.hidden = navigator.onLine && !visible.length;
+      // Online with nothing to do, the panel only stays to report a replay just made.
+      panel.hidden = navigator.onLine && !visible.length ||
+        navigator.onLine && !s.waiting && !s.stuck && !replayedHere;
+      var sendNow = panel.querySelector(".offline-send-now");
+      if (s.waiting && navigator.onLine && !running && me) {
+        if (!sendNow) {
+          sendNow = button(t("send_now"), "send-all", { seq: 0 }, "btn primary offline-send-now");
+          status.parentNode.insertBefore(sendNow, status.nextSibling);
+        }
+      } else if (sendNow) {
+        sendNow.remove();
+      }
+      // The list folds away so the lot stays in view; items that need the operator open it.
+      var details = panel.querySelector(".offline-details");
+      if (details && s.stuck && !details.hasAttribute("data-opened")) {
+        details.open = true;
+        details.setAttribute("data-opened", "");
+      }
+      if (details) { details.hidden = !visible.length; }
       var list = panel.querySelector(".offline-items");
       list.textContent = "";
       visible.forEach(function (it) {
@@ -162,20 +225,20 @@
         li.setAttribute("data-key", it.key);
         li.setAttribute("data-state", state);
         li.appendChild(el("span", "oi-label", it.label));
-        li.appendChild(el("span", "oi-time", "made " + timeOf(it.capturedAt)));
-        li.appendChild(el("strong", "oi-state", STATE_WORDS[state] || state));
+        li.appendChild(el("span", "oi-time", t("made_at", { time: timeOf(it.capturedAt) })));
+        li.appendChild(el("strong", "oi-state", stateWord(state)));
         if (!mine(it)) {
-          li.appendChild(el("span", "oi-reason", "Made by badge " + (it.badge || "?") + ": sent when that person logs in on this tablet."));
+          li.appendChild(el("span", "oi-reason", t("other_badge", { badge: it.badge || "?" })));
         }
         if (it.reason && mine(it)) { li.appendChild(el("span", "oi-reason", it.reason)); }
         if (mine(it) && it.state === "confirm") {
-          li.appendChild(button("Confirm and send", "confirm", it, "btn warn"));
+          li.appendChild(button(t("confirm_send"), "confirm", it, "btn warn"));
         }
         if (mine(it) && (it.state === "failed" || it.state === "signin")) {
-          li.appendChild(button("Send again", "retry", it, "btn primary"));
+          li.appendChild(button(t("send_again"), "retry", it, "btn primary"));
         }
         if (mine(it) && ["refused", "confirm", "failed", "sent"].indexOf(it.state) >= 0) {
-          li.appendChild(button(it.state === "sent" ? "Clear" : "Remove from this tablet", "remove", it, "btn"));
+          li.appendChild(button(t(it.state === "sent" ? "clear" : "remove"), "remove", it, "btn"));
         }
         list.appendChild(li);
       });
@@ -223,8 +286,8 @@
         form.parentNode.insertBefore(note, form);
       }
       note.setAttribute("data-state", it.state);
-      note.textContent = it.value + " — " + (STATE_WORDS[it.state] || it.state) +
-        " (taken " + timeOf(it.capturedAt) + ")" + (it.reason ? ": " + it.reason : "");
+      note.textContent = t("row_note", { value: it.value, state: stateWord(it.state), time: timeOf(it.capturedAt) }) +
+        (it.reason ? ": " + it.reason : "");
     });
     document.querySelectorAll("form[data-offline=start], form[data-offline=pause]").forEach(function (form) {
       var note = form.parentNode.querySelector(".queued-note");
@@ -239,9 +302,9 @@
         form.parentNode.insertBefore(note, form);
       }
       note.setAttribute("data-state", stepAction.state);
-      note.textContent = (stepAction.kind === "start" ? "Start" : "Pause") + " — " +
-        (STATE_WORDS[stepAction.state] || stepAction.state) + " (pressed " + timeOf(stepAction.capturedAt) + ")" +
-        (stepAction.reason ? ": " + stepAction.reason : "");
+      note.textContent = t("step_note", {
+        action: t(stepAction.kind), state: stateWord(stepAction.state), time: timeOf(stepAction.capturedAt)
+      }) + (stepAction.reason ? ": " + stepAction.reason : "");
     });
   }
 
@@ -265,11 +328,13 @@
     if (kind === "reading") {
       var article = form.closest("article.measure");
       var title = article ? article.querySelector("h3").textContent.trim() : field(fields, "quantity");
-      return title + ", sample " + field(fields, "sample_index") + ": " +
-        field(fields, "value") + " " + field(fields, "unit") + (lot ? " (lot " + lot + ")" : "");
+      return t("reading_label", {
+        quantity: title, sample: field(fields, "sample_index"),
+        value: (field(fields, "value") + " " + field(fields, "unit")).trim()
+      }) + (lot ? " " + t("on_lot", { lot: lot }) : "");
     }
     var step = form.getAttribute("data-step-name") || "";
-    return (kind === "start" ? "Start" : "Pause") + " '" + step + "'" + (lot ? " on lot " + lot : "");
+    return t("step_label", { action: t(kind), step: step }) + (lot ? " " + t("on_lot", { lot: lot }) : "");
   }
 
   function keep(form, submitter) {
@@ -349,15 +414,13 @@
       keep(form, e.submitter);
       return;
     }
-    say(form, form.getAttribute("data-needs-network") ||
-      "This needs the network, which is down: try again when the tablet is back online. " +
-      "Readings, starts and pauses are kept on the tablet meanwhile.");
+    say(form, form.getAttribute("data-needs-network") || t("needs_network"));
   }, true);
 
   // Online by the browser's account, but the request never reached the server.
   document.addEventListener("htmx:sendError", function (e) {
     var form = e.detail && e.detail.elt && e.detail.elt.closest ? e.detail.elt.closest("form[data-offline]") : null;
-    if (form) { keep(form, null); }
+    if (form) { keep(form, null).then(later); }
   });
 
   // --- sending what was kept -----------------------------------------------------------
@@ -400,14 +463,14 @@
       return resp.text().then(function (html) {
         var landed = new URL(resp.url || item.url, location.href).pathname;
         if (landed.indexOf("/floor/login/") === 0 || resp.headers.get("HX-Redirect")) {
-          return { state: "signin", reason: "You were logged out; log in again on this tablet and press Send again." };
+          return { state: "signin", reason: t("logged_out") };
         }
         if (resp.status >= 200 && resp.status < 300) {
           return { state: "sent", reason: "" };
         }
         var found = reasonIn(html);
         if (resp.status >= 500) {
-          return { state: "failed", reason: "The server could not take it (error " + resp.status + "). Press Send again, or tell a supervisor." };
+          return { state: "failed", reason: t("server_problem", { status: resp.status }) };
         }
         if (resp.status === 409 && /still being processed/.test(found.text)) {
           return { state: "waiting", reason: "", busy: true };
@@ -416,17 +479,24 @@
           return { state: "confirm", reason: found.text };
         }
         if (resp.status === 403 && /CSRF/i.test(html)) {
-          return { state: "signin", reason: "The tablet's sign-in has changed; reload the page and press Send again." };
+          return { state: "signin", reason: t("sign_in_changed") };
         }
-        return { state: "refused", reason: found.text || ("Refused by the server (" + resp.status + ").") };
+        return { state: "refused", reason: found.text || t("refused_status", { status: resp.status }) };
       });
     });
+  }
+
+  var laterTimer = 0;
+  function later() {
+    if (laterTimer) { return; }
+    laterTimer = window.setTimeout(function () { laterTimer = 0; replay(); }, 15000);
   }
 
   function replay() {
     if (running || !navigator.onLine) { return Promise.resolve(); }
     running = true;
     var busy = false;
+    var unreachable = false;
     return render().then(allItems).then(function (items) {
       var queue = items.filter(function (it) { return mine(it) && it.state === "waiting"; });
       var chain = Promise.resolve(true);
@@ -438,7 +508,10 @@
             item.state = answer.state;
             item.reason = answer.reason;
             if (answer.state === "sent") { item.sentAt = new Date().toISOString(); }
-            if (answer.state === "sent" || answer.state === "refused") { sentSomething = true; }
+            if (answer.state === "sent" || answer.state === "refused") {
+              sentSomething = true;
+              replayedHere = true;
+            }
             if (answer.busy) { busy = true; }
             return putItem(item).then(function () {
               // Later items wait when the session is gone or the server is busy with this one.
@@ -446,6 +519,7 @@
             });
           }, function () {
             item.state = "waiting";  // the network dropped again: keep it, stop here
+            unreachable = true;
             return putItem(item).then(function () { return false; });
           });
         });
@@ -454,6 +528,9 @@
     }).then(function () {
       running = false;
       if (busy) { window.setTimeout(replay, 3000); }
+      // The browser says online but the server was out of reach (Wi-Fi up, network
+      // down): try again a little later; only waiting items are ever sent.
+      if (unreachable) { later(); }
       return afterReplay();
     }, function (err) {
       running = false;
@@ -483,6 +560,10 @@
           if (freshPanel) { freshPanel.replaceWith(panel); }
           main.replaceWith(fresh);
           if (window.htmx) { window.htmx.process(fresh); }
+          // The kept copy for a reload offline must show what was just sent.
+          if (navigator.serviceWorker && navigator.serviceWorker.controller) {
+            navigator.serviceWorker.controller.postMessage({ type: "keep", url: pageUrl(), fresh: true });
+          }
           return render();
         });
       }, function () { return s; });
@@ -497,6 +578,7 @@
     if (!b) { return; }
     var seq = Number(b.getAttribute("data-seq"));
     var action = b.getAttribute("data-queue-action");
+    if (action === "send-all") { replay(); return; }
     allItems().then(function (items) {
       var item = items.filter(function (it) { return it.seq === seq; })[0];
       if (!item || !mine(item)) { return null; }
@@ -562,12 +644,12 @@
         if (!m || seen[m[1]]) { return; }
         seen[m[1]] = true;
         var li = el("li");
-        var a = el("a", "tile", "Lot " + decodeURIComponent(m[1]));
+        var a = el("a", "tile", t("lot", { code: decodeURIComponent(m[1]) }));
         a.href = new URL(r.url).pathname;
         li.appendChild(a);
         list.appendChild(li);
       });
-      if (!reqs.length) { list.appendChild(el("li", "muted", "None kept yet.")); }
+      if (!reqs.length) { list.appendChild(el("li", "muted", t("none_kept"))); }
     });
   }
   listKeptLots();

@@ -131,7 +131,9 @@ self.addEventListener("message", function (event) {
   var d = event.data || {};
   if (d.type !== "keep" || !event.source) { return; }
   var url = d.url;
-  var done = Promise.resolve(writes[url]).then(function () { return fromPages(url); }).then(function (hit) {
+  var done = Promise.resolve(writes[url]).then(function () {
+    return d.fresh ? null : fromPages(url);
+  }).then(function (hit) {
     if (hit) { return true; }
     return fetch(url, { credentials: "same-origin" }).then(function (resp) {
       if (!keepable(resp) || resp.url !== url) { return false; }
