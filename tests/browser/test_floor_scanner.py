@@ -150,7 +150,7 @@ def test_touch_targets_and_keyboard(
             page.goto(f"{live_url}{url}")
             expect(page.locator("#offline-panel")).to_have_attribute("data-ready", "yes")
             # open the folded parts so their controls are measured too
-            for summary in page.locator("main details:not([open]) > summary").all():
+            for summary in page.locator("main details:not([open]) > summary:visible").all():
                 summary.click()
             found = small_targets(page)
             if found:
