@@ -20,7 +20,7 @@ from django.conf import settings
 from django.utils import timezone
 
 from shopfloor.core import judging
-from shopfloor.floor import words
+from shopfloor.floor import traveller_steps, words
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Job, Lot
 from shopfloor.safe_output import pdf_paragraph
@@ -90,8 +90,9 @@ def _fonts() -> tuple[str, str]:
 PAPER_SIZES = ("a4", "letter")
 
 
-def traveller_pdf(lot: Lot, paper: str = "a4") -> bytes:
-    """Render the traveller as a PDF on A4 or US Letter (reportlab platypus)."""
+def traveller_pdf(lot: Lot, paper: str | None = None) -> bytes:
+    """Render the traveller as a PDF on A4 or US Letter (reportlab platypus); without a
+    paper asked for, on the site's paper (SiteSettings.paper_size)."""
     from reportlab.lib import colors
     from reportlab.lib.pagesizes import A4, LETTER
     from reportlab.lib.styles import ParagraphStyle
@@ -107,6 +108,10 @@ def traveller_pdf(lot: Lot, paper: str = "a4") -> bytes:
 
     from shopfloor.context import SAFETY_CAUTION
 
+    if paper not in PAPER_SIZES:
+        from shopfloor.plant.models import SiteSettings
+
+        paper = SiteSettings.current().paper_size
     data = traveller_data(lot)
     font, bold = _fonts()
     body = ParagraphStyle("body", fontName=font, fontSize=9, leading=11)
@@ -174,6 +179,8 @@ def traveller_pdf(lot: Lot, paper: str = "a4") -> bytes:
     story += [p("Panels", h2), p(panels or "none recorded", small)]
 
     story.append(p("Route", h2))
+    signatures = traveller_steps.signatures_by_step(data.steps)
+    hazards = traveller_steps.HazardNotes()
     for step in data.steps:
         lines = [p(f"{step.position} · {step.name} — {step.work_center.name}", body)]
         if step.instructions:
@@ -188,30 +195,13 @@ def traveller_pdf(lot: Lot, paper: str = "a4") -> bytes:
             )
         for group in judging.group_plan(step.plan):
             sources = "; ".join(dict.fromkeys(window_source(e) for e in group.entries))
-            lines.append(
-                p(
-                    f"{words.quantity_label(group.quantity)}: {group.words}, "
-                    f"{group.samples} sample{'s' if group.samples != 1 else ''} — source: "
-                    f"{sources}",
-                    small,
-                )
+            lines += traveller_steps.reading_cells(
+                group, words.quantity_label(group.quantity), sources, p, small
             )
         if step.hazard:
-            lines.append(p(f"HAZARD: {step.hazard}", caution))
-        sign = Table(
-            [[p("Performed by", small), ""], [p("Date", small), ""]],
-            colWidths=[25 * mm, 33 * mm],
-            rowHeights=[9 * mm, 7 * mm],
-        )
-        sign.setStyle(
-            TableStyle(
-                [
-                    ("BOX", (1, 0), (1, 0), 0.6, colors.black),
-                    ("BOX", (1, 1), (1, 1), 0.6, colors.black),
-                    ("VALIGN", (0, 0), (-1, -1), "MIDDLE"),
-                ]
-            )
-        )
+            text, full = hazards.line(step, step.hazard)
+            lines.append(p(text, caution if full else small))
+        sign = traveller_steps.sign_off_block(signatures.get(step.pk, []), p, small)
         row = Table([[lines, sign]], colWidths=[118 * mm, 60 * mm])
         row.setStyle(
             TableStyle(

@@ -487,9 +487,15 @@ def traveller_pdf(request: HttpRequest, code: str) -> HttpResponse:
     if lot is None:
         return _missing_lot(request, code)
     _require_readable(request, lot)
-    paper = request.GET.get("paper", "a4").lower()
-    if paper not in traveller.PAPER_SIZES:
-        paper = "a4"
+    # No paper asked for: the site's (Site settings); an unknown one is refused, not guessed.
+    paper = request.GET.get("paper", "").strip().lower() or None
+    if paper is not None and paper not in traveller.PAPER_SIZES:
+        return HttpResponse(
+            f"Paper {paper[:20]!r} is not offered; use paper=a4 or paper=letter, or leave it "
+            "out for the site's paper.",
+            status=400,
+            content_type="text/plain; charset=utf-8",
+        )
     response = HttpResponse(traveller.traveller_pdf(lot, paper), content_type="application/pdf")
     response["Content-Disposition"] = f'inline; filename="traveller-{lot.code}.pdf"'
     return response
