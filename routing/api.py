@@ -32,7 +32,7 @@ from shopfloor.floor.api import (
     parse,
 )
 from shopfloor.floor.permissions import CanEngineer, CanRead, _RolePermission
-from shopfloor.floor.services import person_for
+from shopfloor.plant.people import person_for
 
 
 def split_preview_body(data: Any) -> tuple[Any, list[dict[str, Any]]]:

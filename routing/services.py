@@ -224,7 +224,7 @@ def create_draft(
     overrides = [dict(o) if isinstance(o, dict) else o for o in (overrides or [])]
     approving = bool(overrides and deviation_pin)
     if approving:
-        from shopfloor.floor.services import verify_pin
+        from shopfloor.plant.people import verify_pin
 
         verify_pin(person, deviation_pin or "")
         approver = f"{person.printed_name} ({person.badge_number})"
@@ -323,7 +323,7 @@ def revision_content(revision: RoutingRevision) -> dict[str, Any]:
 
 def release(*, person: Person, revision_id: int, pin: str) -> RoutingRevision:
     """Release a draft with the process engineer's e-signature; it never changes again."""
-    from shopfloor.floor.services import verify_pin
+    from shopfloor.plant.people import verify_pin
 
     _require_role(person, "process_engineer", "release routings")
     verify_pin(person, pin)

@@ -26,7 +26,7 @@ from shopfloor.floor.api import (
     parse,
 )
 from shopfloor.floor.permissions import READ_ROLES, _RolePermission
-from shopfloor.floor.services import person_for
+from shopfloor.plant.people import person_for
 
 
 class CanReadBaths(_RolePermission):

@@ -116,7 +116,7 @@ def require_sees_all_lots(scope: Any) -> None:
 
 
 def _verify_pin(person: Person, pin: str) -> None:
-    from shopfloor.floor.services import verify_pin
+    from shopfloor.plant.people import verify_pin
 
     if not pin:
         raise InvalidInput("Enter your PIN to sign this entry.")

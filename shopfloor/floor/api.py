@@ -52,6 +52,7 @@ from shopfloor.floor.serializers import (
     lot_status,
     window_dict,
 )
+from shopfloor.plant import people
 
 
 class InstrumentTokenScheme(OpenApiAuthenticationExtension):  # type: ignore[no-untyped-call]
@@ -252,7 +253,7 @@ class ReadingCreateView(JsonAPIView):
     )
     def post(self, request: Request) -> Response:
         data = parse(ReadingInputSerializer, request.data)
-        person = services.person_for(request.user)
+        person = people.person_for(request.user)
         if data.get("step") is None:
             step = services.find_current_step(data["lot"])
             check_work_center(request, step)
@@ -300,7 +301,7 @@ class ReadingBatchView(JsonAPIView):
     )
     def post(self, request: Request) -> Response:
         raw = parse(BatchInputSerializer, request.data)["items"]
-        person = services.person_for(request.user)
+        person = people.person_for(request.user)
         items, invalid = batch_items(raw, problems_from)
         via = "instrument" if is_instrument(request) else "api"
 
@@ -329,7 +330,7 @@ class ReadingCorrectView(JsonAPIView):
     )
     def post(self, request: Request, pk: int) -> Response:
         data = parse(CorrectionInputSerializer, request.data)
-        person = services.person_for(request.user)
+        person = people.person_for(request.user)
         reading = access_reading(request, pk)
 
         def action() -> tuple[int, Any]:
@@ -366,7 +367,7 @@ class StepStartView(JsonAPIView):
     @_step_schema("Start (or resume) the lot's current step", StepStartSerializer)
     def post(self, request: Request, pk: int) -> Response:
         data = parse(StepStartSerializer, request.data)
-        person = services.person_for(request.user)
+        person = people.person_for(request.user)
         step = access_step(request, pk)
 
         def action() -> tuple[int, Any]:
@@ -387,7 +388,7 @@ class StepPauseView(JsonAPIView):
     @_step_schema("Pause a step in progress", StepPauseSerializer)
     def post(self, request: Request, pk: int) -> Response:
         data = parse(StepPauseSerializer, request.data)
-        person = services.person_for(request.user)
+        person = people.person_for(request.user)
         step = access_step(request, pk)
 
         def action() -> tuple[int, Any]:
@@ -405,7 +406,7 @@ class StepCompleteView(JsonAPIView):
     @_step_schema("Sign off the step with the PIN (e-signature)", StepCompleteSerializer)
     def post(self, request: Request, pk: int) -> Response:
         data = parse(StepCompleteSerializer, request.data)
-        person = services.person_for(request.user)
+        person = people.person_for(request.user)
         step = access_step(request, pk)
 
         def action() -> tuple[int, Any]:

@@ -24,6 +24,7 @@ from shopfloor.core import judging
 from shopfloor.errors import Conflict, DomainError, InvalidInput
 from shopfloor.floor import readings, services
 from shopfloor.floor.models import LotStep, Reading
+from shopfloor.plant import people
 from shopfloor.plant.models import Equipment, Person
 from shopfloor.quality import outbox
 from shopfloor.quality.models import OutboxEvent
@@ -139,7 +140,7 @@ def _record_step(
     try:
         with transaction.atomic():
             step, lot = services.lock_step(target.pk)
-            services.check_assigned(person, step.work_center_id)
+            people.check_assigned(person, step.work_center_id)
             services.require_workable(step, lot)
             if step.status != LotStep.Status.IN_PROGRESS:
                 raise Conflict(f"Start '{step.name}' before recording readings.")

@@ -20,11 +20,11 @@ from shopfloor.floor.models import (
     MaterialUse,
     ShelfLife,
 )
-from shopfloor.floor.people import check_assigned
 from shopfloor.plant.models import (
     MaterialLot,
     Person,
 )
+from shopfloor.plant.people import check_assigned
 
 log = logging.getLogger("shopfloor.floor")
 

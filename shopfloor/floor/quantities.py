@@ -17,7 +17,6 @@ from shopfloor.floor.models import (
     ScrapReason,
     ScrapRecord,
 )
-from shopfloor.floor.people import check_assigned
 from shopfloor.plant.models import (
     Job,
     Lot,
@@ -25,6 +24,7 @@ from shopfloor.plant.models import (
     PanelImage,
     Person,
 )
+from shopfloor.plant.people import check_assigned
 
 log = logging.getLogger("shopfloor.floor")
 

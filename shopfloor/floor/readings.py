@@ -27,12 +27,12 @@ from shopfloor.floor.models import (
     LotStep,
     Reading,
 )
-from shopfloor.floor.people import check_assigned
 from shopfloor.plant.models import (
     Equipment,
     Lot,
     Person,
 )
+from shopfloor.plant.people import check_assigned
 from shopfloor.quality import outbox
 from shopfloor.quality.models import OutboxEvent
 

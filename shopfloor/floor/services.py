@@ -17,7 +17,8 @@ from shopfloor.audit import services as audit
 from shopfloor.errors import Conflict, InvalidInput
 
 # The floor's use cases live in small modules; this module keeps the step use cases and
-# re-exports the rest, so `services.X` stays the one name callers use.
+# re-exports the rest, so `services.X` stays the one name callers use. People (badge,
+# PIN, qualification) live with the plant app: shopfloor.plant.people.
 from shopfloor.floor.lookups import (
     MAX_CAPTURE_AGE,
     MAX_CLOCK_SKEW,
@@ -40,16 +41,6 @@ from shopfloor.floor.materials import (
 from shopfloor.floor.models import (
     LotStep,
     Reading,
-)
-from shopfloor.floor.people import (
-    ANYWHERE_ROLES,
-    LOGIN_REFUSED,
-    badge_login,
-    check_assigned,
-    check_qualified,
-    person_for,
-    unlock_person,
-    verify_pin,
 )
 from shopfloor.floor.quantities import (
     FINAL_INSPECTION,
@@ -79,19 +70,15 @@ from shopfloor.plant.models import (
     MaterialLot,
     Person,
 )
+from shopfloor.plant.people import check_assigned, check_qualified, verify_pin
 
 __all__ = [
-    "ANYWHERE_ROLES",
     "FINAL_INSPECTION",
-    "LOGIN_REFUSED",
     "MAX_CAPTURE_AGE",
     "MAX_CLOCK_SKEW",
     "ConfirmationNeeded",
     "ReadingInput",
-    "badge_login",
     "boards_scrapped_on_live_panels",
-    "check_assigned",
-    "check_qualified",
     "complete_step",
     "correct_reading",
     "current_step",
@@ -108,7 +95,6 @@ __all__ = [
     "panel_good_boards",
     "parse_reading",
     "pause_step",
-    "person_for",
     "quantity_plan",
     "record_acceptance",
     "record_material",
@@ -121,11 +107,9 @@ __all__ = [
     "start_step",
     "step_content",
     "step_state",
-    "unlock_person",
     "usable_equipment",
     "usable_material_lots",
     "use_material",
-    "verify_pin",
     "window_for",
 ]
 

@@ -46,6 +46,7 @@ from shopfloor.floor.models import LotStep, Reading
 from shopfloor.floor.permissions import FLOOR_ROLES, check_work_center, roles_of
 from shopfloor.floor.serializers import batch_items
 from shopfloor.htmx import is_htmx
+from shopfloor.plant import people
 from shopfloor.plant.models import Equipment, Lot, Person, WorkCenter
 from shopfloor.quality import access
 
@@ -62,7 +63,7 @@ def login_view(request: HttpRequest) -> HttpResponse:
     retry_after = 0
     if request.method == "POST":
         try:
-            person = services.badge_login(
+            person = people.badge_login(
                 request.POST.get("badge", ""),
                 request.POST.get("pin", ""),
                 client_ip=throttle.client_ip(request),
@@ -98,7 +99,7 @@ def logout_view(request: HttpRequest) -> HttpResponse:
 
 def _person(request: HttpRequest) -> Person:
     try:
-        return services.person_for(request.user)
+        return people.person_for(request.user)
     except DomainError as exc:
         raise PermissionDenied(exc.detail) from exc
 
@@ -532,7 +533,7 @@ def _require_assigned(person: Person, step: LotStep) -> None:
     """Refuse work on a step at a work center the person is not assigned to, before the
     use case runs, so the refusal does not depend on the step's state (the API does the
     same in shopfloor.floor.permissions.check_work_center)."""
-    services.check_assigned(person, step.work_center_id)
+    people.check_assigned(person, step.work_center_id)
 
 
 def _refuse_page(
@@ -808,7 +809,7 @@ def unlock_badge(request: HttpRequest, person_id: int) -> HttpResponse:
     try:
         scope = access.scope_for(request.user)
         person = access.access_locked_person(scope, person_id)
-        services.unlock_person(by=scope.actor, person_id=person.pk)
+        people.unlock_person(by=scope.actor, person_id=person.pk)
     except DomainError as exc:
         return _domain_page(request, exc)
     messages.success(request, f"Badge {person.badge_number} ({person.printed_name}) unlocked.")

@@ -16,7 +16,6 @@ from rest_framework.views import APIView
 
 from shopfloor.access import scope_for
 from shopfloor.errors import InvalidInput
-from shopfloor.floor import services as floor_services
 from shopfloor.floor.api import (
     IDEMPOTENCY_KEY,
     READ_ERRORS,
@@ -30,6 +29,7 @@ from shopfloor.floor.api import (
 from shopfloor.floor.permissions import CanPlan, CanRead
 from shopfloor.orders import read, services
 from shopfloor.orders import serializers as s
+from shopfloor.plant import people
 
 JOB_NUMBER_IN_PATH = OpenApiParameter(
     "number",
@@ -100,7 +100,7 @@ class JobListView(JsonAPIView):
     )
     def post(self, request: Request) -> Response:
         data = _job_input(_body(request))
-        person = floor_services.person_for(request.user)
+        person = people.person_for(request.user)
 
         def action() -> tuple[int, Any]:
             job = services.enter_job(person=person, data=data)
@@ -141,7 +141,7 @@ class JobReleaseView(JsonAPIView):
     )
     def post(self, request: Request, number: str) -> Response:
         data = parse(s.ReleaseInputSerializer, _body(request))
-        person = floor_services.person_for(request.user)
+        person = people.person_for(request.user)
         share = [(x["job"], x["boards_per_panel"]) for x in data.get("share_with") or []]
 
         def action() -> tuple[int, Any]:
@@ -168,7 +168,7 @@ class JobMakeupView(JsonAPIView):
     )
     def post(self, request: Request, number: str) -> Response:
         data = parse(s.MakeupInputSerializer, _body(request))
-        person = floor_services.person_for(request.user)
+        person = people.person_for(request.user)
 
         def action() -> tuple[int, Any]:
             result = services.release_makeup(

@@ -23,9 +23,9 @@ from shopfloor.core import units
 from shopfloor.errors import DomainError
 from shopfloor.floor import idempotency
 from shopfloor.floor.permissions import PLAN_ROLES, READ_ROLES, roles_of
-from shopfloor.floor.services import person_for
 from shopfloor.orders import labels, read, services
 from shopfloor.plant.models import Customer, Lot, Part, Person
+from shopfloor.plant.people import person_for
 
 OVERRIDE_ROWS = 3
 

@@ -42,8 +42,12 @@ from shopfloor.planning.models import (
     parse_shifts,
 )
 from shopfloor.plant.models import Job, Lot, PanelImage, WorkCenter
+from shopfloor.quality import outbox
 
 log = logging.getLogger("shopfloor.planning")
+
+#: The forecast task, queued by name (services never import tasks; see quality.outbox).
+RUN_FORECAST = "shopfloor.planning.tasks.run_forecast"
 
 ACTIVE_LOT = (Lot.Status.NOT_STARTED, Lot.Status.IN_PROCESS)
 OPEN_STEP = (LotStep.Status.WAITING, LotStep.Status.IN_PROGRESS, LotStep.Status.PAUSED)
@@ -359,9 +363,9 @@ def require_planning(roles: set[str] | frozenset[str], what: str) -> None:
 def request_forecast(roles: set[str] | frozenset[str], user_id: int) -> str:
     """Queue a forecast run now (the page does not wait for it)."""
     require_planning(roles, "ask for a forecast run")
-    from shopfloor.planning import tasks
-
-    tasks.run_forecast.delay(trigger=ForecastRun.Trigger.ON_DEMAND, user_id=user_id)
+    outbox.queue_task(
+        RUN_FORECAST, kwargs={"trigger": ForecastRun.Trigger.ON_DEMAND, "user_id": user_id}
+    )
     return "A forecast run was asked for; the board shows it when it finishes."
 
 

@@ -1,20 +1,82 @@
-"""Hand committed outbox events to Celery.
+"""Hand committed outbox events to Celery: the services' one door to the workers.
 
 Services write an OutboxEvent inside their transaction and call `enqueue(event)`.
 Publishing happens only after commit; if the broker is down the event simply stays
 unpublished and the relay task (Celery beat) publishes it later, so nothing is lost.
+
+Services never import a tasks module (tasks import services, so that would be a circle):
+they queue a task by its registered name with `queue_task`. One task, `process_event`,
+acts on every event: it looks the event's kind up among the handlers each app registers
+in its AppConfig.ready() (`register`).
 """
 
 from __future__ import annotations
 
 import logging
+from collections.abc import Callable, Sequence
+from typing import Any
 
+from celery import Task
 from django.db import transaction
 from django.utils import timezone
 
+from shopfloor.celery import app as celery_app
 from shopfloor.quality.models import OutboxEvent
 
 log = logging.getLogger("shopfloor.outbox")
+
+# Task names (Celery registers each task under its module path; settings' beat schedule
+# uses the same names).
+PROCESS_EVENT = "shopfloor.quality.tasks.process_event"
+PROCESS_EVENTS = "shopfloor.quality.tasks.process_events"
+NOTIFY_ALERT = "shopfloor.quality.tasks.notify_alert"
+DELIVER_WEBHOOK = "shopfloor.quality.tasks.deliver_webhook"
+
+#: What an event handler returns: the alerts it raised (notified after commit).
+Handler = Callable[[OutboxEvent], Sequence[Any]]
+_HANDLERS: dict[str, Handler] = {}
+
+
+def register(kind: str, handler: Handler) -> None:
+    """Route events of `kind` to `handler` (called from an AppConfig.ready())."""
+    existing = _HANDLERS.get(kind)
+    if existing is not None and existing is not handler:
+        raise ValueError(f"outbox event kind {kind!r} already has a handler: {existing!r}")
+    _HANDLERS[kind] = handler
+
+
+def handler_for(kind: str) -> Handler | None:
+    return _HANDLERS.get(kind)
+
+
+def queue_task(
+    name: str,
+    *,
+    args: Sequence[Any] = (),
+    kwargs: dict[str, Any] | None = None,
+    countdown: float | None = None,
+    retry_policy: dict[str, Any] | None = None,
+) -> None:
+    """Send the task registered as `name` to the broker (or run it now in eager mode).
+
+    Raises what the broker client raises when it is unreachable; callers decide whether
+    the relay picks the work up later.
+    """
+    options: dict[str, Any] = {}
+    if countdown is not None:
+        options["countdown"] = countdown
+    if retry_policy is not None:
+        options["retry_policy"] = retry_policy
+    _task(name).apply_async(args=list(args), kwargs=kwargs or {}, **options)
+
+
+def _task(name: str) -> Task:
+    """The registered task; the first call in a web process loads every app's tasks.py
+    (Celery's autodiscovery, which a worker runs when it starts)."""
+    if name not in celery_app.tasks:
+        celery_app.loader.import_default_modules()
+    return celery_app.tasks[name]
+
 
 # Give up on a dead broker quickly: a request must not hang on it, and the relay
 # publishes the event later anyway.
@@ -30,10 +92,8 @@ def publish(event_id: int, *, republish: bool = False) -> bool:
     re-sends one (`republish`), so a lost message is sent again at most once per
     OUTBOX_REPUBLISH_AFTER_SECONDS.
     """
-    from shopfloor.quality import tasks
-
     try:
-        tasks.process_event.apply_async(args=[event_id], retry_policy=RETRY_POLICY)
+        queue_task(PROCESS_EVENT, args=[event_id], retry_policy=RETRY_POLICY)
     except Exception as exc:  # broker unreachable: the relay will retry
         log.warning("outbox event %s left for the relay: %s", event_id, exc)
         return False
@@ -66,10 +126,8 @@ def enqueue_many(*, urgent: list[int], batched: list[int]) -> None:
 
 def publish_batch(event_ids: list[int]) -> bool:
     """Send in-window events to the worker as one task; True when the broker took it."""
-    from shopfloor.quality import tasks
-
     try:
-        tasks.process_events.apply_async(args=[event_ids], retry_policy=RETRY_POLICY)
+        queue_task(PROCESS_EVENTS, args=[event_ids], retry_policy=RETRY_POLICY)
     except Exception as exc:  # broker unreachable: the relay will retry
         log.warning("outbox events %s.. left for the relay: %s", event_ids[:3], exc)
         return False

@@ -34,6 +34,7 @@ from shopfloor.floor.permissions import (
     _RolePermission,
     access_step,
 )
+from shopfloor.plant import people
 from shopfloor.quality.services import dispositions
 from shopfloor.shipping import services
 
@@ -129,7 +130,7 @@ class ShipmentCreateView(JsonAPIView):
     )
     def post(self, request: Request) -> Response:
         data = parse(ShipmentInputSerializer, request.data)
-        person = floor.person_for(request.user)
+        person = people.person_for(request.user)
 
         def action() -> tuple[int, Any]:
             cert = services.ship(
@@ -196,7 +197,7 @@ class MaterialUseView(JsonAPIView):
     )
     def post(self, request: Request, pk: int) -> Response:
         data = parse(MaterialInputSerializer, request.data)
-        person = floor.person_for(request.user)
+        person = people.person_for(request.user)
         step = access_step(request, pk)
 
         def action() -> tuple[int, Any]:
@@ -245,7 +246,7 @@ class ScrapView(JsonAPIView):
     )
     def post(self, request: Request, pk: int) -> Response:
         data = parse(ScrapInputSerializer, request.data)
-        person = floor.person_for(request.user)
+        person = people.person_for(request.user)
         step = access_step(request, pk)
 
         def action() -> tuple[int, Any]:
@@ -294,7 +295,7 @@ class AcceptanceView(JsonAPIView):
     )
     def post(self, request: Request, pk: int) -> Response:
         data = parse(AcceptanceInputSerializer, request.data)
-        person = floor.person_for(request.user)
+        person = people.person_for(request.user)
         step = access_step(request, pk)
 
         def action() -> tuple[int, Any]:
@@ -367,7 +368,7 @@ class DispositionView(JsonAPIView):
         from shopfloor.quality.models import Nonconformance
 
         data = parse(DispositionInputSerializer, request.data)
-        person = floor.person_for(request.user)
+        person = people.person_for(request.user)
         ncr = Nonconformance.objects.filter(number=number).first()
         if ncr is None:
             raise NotFound(f"No NCR {number!r}.")

@@ -18,8 +18,8 @@ from django.views.decorators.http import require_GET, require_http_methods
 from shopfloor.errors import DomainError, InvalidInput, NotAllowed
 from shopfloor.floor.models import AcceptedQuantity
 from shopfloor.floor.permissions import roles_of
-from shopfloor.floor.services import person_for
 from shopfloor.plant.models import Job, Person
+from shopfloor.plant.people import person_for
 from shopfloor.shipping import services
 from shopfloor.shipping.models import Certificate, Shipment
 

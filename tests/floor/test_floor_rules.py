@@ -24,6 +24,7 @@ from shopfloor.audit.models import AuditEntry
 from shopfloor.errors import Conflict, NotAllowed
 from shopfloor.floor import services
 from shopfloor.floor.models import LotStep, Reading
+from shopfloor.plant import people
 from shopfloor.plant.models import Equipment, Person, Qualification
 from tests import factories
 from tests.factories import PIN
@@ -162,15 +163,15 @@ def test_attribute_count_with_max_zero(floor, operator):
 def test_five_wrong_pins_lock_the_badge(floor, operator):
     for n in range(1, settings.PIN_MAX_FAILURES):
         with pytest.raises(NotAllowed, match=f"{settings.PIN_MAX_FAILURES - n} more wrong"):
-            services.verify_pin(operator, "0000")
+            people.verify_pin(operator, "0000")
     with pytest.raises(NotAllowed, match="now locked"):
-        services.verify_pin(operator, "0000")
+        people.verify_pin(operator, "0000")
     operator.refresh_from_db()
     assert operator.is_locked
     entry = AuditEntry.objects.get(action="person.locked", object_id=str(operator.pk))
     assert entry.after["failures"] == settings.PIN_MAX_FAILURES
     with pytest.raises(NotAllowed, match="is locked"):
-        services.badge_login(operator.badge_number, PIN)  # the right PIN no longer helps
+        people.badge_login(operator.badge_number, PIN)  # the right PIN no longer helps
 
 
 def test_idle_session_times_out(floor, operator):

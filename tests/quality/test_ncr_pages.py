@@ -22,6 +22,7 @@ from django.utils import timezone
 from shopfloor.audit.models import AuditEntry, Signature
 from shopfloor.floor import services as floor_services
 from shopfloor.floor.models import LotStep, Reading
+from shopfloor.plant import people
 from shopfloor.plant.models import Lot, Panel, Person, Role
 from shopfloor.quality.models import Hold, Nonconformance, OutboxEvent, SeriesState
 from shopfloor.quality.services import alerts
@@ -505,7 +506,7 @@ def test_quality_engineer_chooses_the_run_rules(floor, series):
 def _lock(person: Person) -> None:
     for _ in range(settings.PIN_MAX_FAILURES):
         with pytest.raises(Exception, match="Wrong PIN"):
-            floor_services.verify_pin(person, "0000")
+            people.verify_pin(person, "0000")
     person.refresh_from_db()
     assert person.is_locked
 

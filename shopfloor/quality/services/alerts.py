@@ -148,13 +148,16 @@ def handle_events(event_ids: list[int]) -> dict[str, int]:
 
 
 def _dispatch(event: OutboxEvent) -> list[Alert]:
-    if event.kind == "reading.recorded":
-        return _handle_reading(event)
-    log.warning("outbox event %s has unknown kind %r; marked processed", event.pk, event.kind)
-    return []
+    """Hand the event to the handler its app registered (QualityConfig.ready() and others)."""
+    handler = outbox.handler_for(event.kind)
+    if handler is None:
+        log.warning("outbox event %s has unknown kind %r; marked processed", event.pk, event.kind)
+        return []
+    return list(handler(event))
 
 
-def _handle_reading(event: OutboxEvent) -> list[Alert]:
+def handle_reading(event: OutboxEvent) -> list[Alert]:
+    """A recorded reading: judge it and its set, hold and raise alerts, feed its SPC series."""
     reading_id = (event.payload or {}).get("reading")
     if not isinstance(reading_id, int):
         return []
@@ -445,10 +448,10 @@ def _drift_alert(reading: Reading, signal: series_core.DriftSignal) -> Alert | N
 
 def notify_after_commit(alert_id: int) -> None:
     def queue() -> None:
-        from shopfloor.quality import tasks
-
         try:
-            tasks.notify_alert.apply_async(args=[alert_id], retry_policy=outbox.RETRY_POLICY)
+            outbox.queue_task(
+                outbox.NOTIFY_ALERT, args=[alert_id], retry_policy=outbox.RETRY_POLICY
+            )
         except Exception as exc:  # broker down: relay_outbox re-queues it
             log.warning("notification of alert %s left for the relay: %s", alert_id, exc)
 

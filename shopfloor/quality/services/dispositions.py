@@ -507,7 +507,7 @@ def disposition_ncr(
     use_as_is | rework | scrap) decides per panel. Rework runs `rework_route` (library
     step codes), or `rework_steps` (named steps), or the held step's library default.
     """
-    from shopfloor.floor.services import verify_pin
+    from shopfloor.plant.people import verify_pin
 
     _require_quality(person, "disposition a nonconformance")
     # A recording error (only when a correction brought the set back inside, see

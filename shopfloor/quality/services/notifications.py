@@ -45,8 +45,6 @@ def relay_outbox(now: datetime | None = None, batch: int = RELAY_BATCH) -> dict[
     processed once, the second message finds it claimed) and stamps it, so it is sent
     again only after REPUBLISH_AFTER.
     """
-    from shopfloor.quality import tasks
-
     now = now or timezone.now()
     ids = list(
         OutboxEvent.objects.filter(processed_at__isnull=True, attempts__lt=MAX_EVENT_ATTEMPTS)
@@ -80,7 +78,9 @@ def relay_outbox(now: datetime | None = None, batch: int = RELAY_BATCH) -> dict[
     )
     for alert_id in alert_ids:
         try:
-            tasks.notify_alert.apply_async(args=[alert_id], retry_policy=outbox.RETRY_POLICY)
+            outbox.queue_task(
+                outbox.NOTIFY_ALERT, args=[alert_id], retry_policy=outbox.RETRY_POLICY
+            )
         except Exception as exc:
             log.warning("relay could not queue notification of alert %s: %s", alert_id, exc)
             break
@@ -128,16 +128,17 @@ def notify_alert(alert_id: int) -> bool:
             "alert %s notified (%s e-mail(s), webhook %s)",
             alert.pk,
             sent,
-            "ok" if webhook_ok else "retrying" if notify.webhook_configured() else "off",
+            ("ok" if webhook_ok else "retrying") if notify.webhook_configured() else "off",
         )
         if not webhook_ok:
 
             def retry() -> None:
-                from shopfloor.quality import tasks
-
                 try:
-                    tasks.deliver_webhook.apply_async(
-                        args=[alert_id], countdown=2, retry_policy=outbox.RETRY_POLICY
+                    outbox.queue_task(
+                        outbox.DELIVER_WEBHOOK,
+                        args=[alert_id],
+                        countdown=2,
+                        retry_policy=outbox.RETRY_POLICY,
                     )
                 except Exception as exc:
                     log.warning("could not queue webhook retry for alert %s: %s", alert_id, exc)
