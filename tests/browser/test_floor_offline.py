@@ -23,6 +23,11 @@ from tests.floor import helpers
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 
 QUANTITY = "mask_registration"
+#: Bound (ms) for waits that span server round trips: the worker's install (the static
+#: files), a replay (one POST per item, then the page fetched again). Still a wait on the
+#: page's state, never a sleep; it is generous because a loaded CI machine is slow, and
+#: Playwright's 5 s default made one run in 20 fail on a machine at load 11.
+SLOW = 30_000
 
 
 def panel(page):
@@ -32,8 +37,8 @@ def panel(page):
 def ready_for_offline(page) -> None:
     """The panel has loaded, the service worker controls the page and has kept a copy."""
     expect(panel(page)).to_have_attribute("data-ready", "yes")
-    expect(panel(page)).to_have_attribute("data-worker-ready", "yes")
-    expect(panel(page)).to_have_attribute("data-page-saved", "yes")
+    expect(panel(page)).to_have_attribute("data-worker-ready", "yes", timeout=SLOW)
+    expect(panel(page)).to_have_attribute("data-page-saved", "yes", timeout=SLOW)
 
 
 def record(page, row_id: str, value: str) -> None:
@@ -82,11 +87,12 @@ def offline_walk(page, live_url, lot, step: LotStep, shoot=None) -> None:
     )
 
     context.set_offline(False)
-    expect(panel(page)).to_have_attribute("data-replayed", "yes")
-    expect(panel(page)).to_have_attribute("data-waiting", "0")
-    expect(panel(page).locator(".offline-item[data-state=sent]")).to_have_count(6)
+    expect(panel(page)).to_have_attribute("data-replayed", "yes", timeout=SLOW)
+    expect(panel(page)).to_have_attribute("data-waiting", "0", timeout=SLOW)
+    expect(panel(page).locator(".offline-item[data-state=sent]")).to_have_count(6, timeout=SLOW)
     # the page shows the server's truth: each sample stored and in window
-    expect(page.locator(f"[id^={rid}-] .badge.ok")).to_have_count(5)
+    expect(page.locator(f"[id^={rid}-] .badge.ok")).to_have_count(5, timeout=SLOW)
+    expect(summary).to_contain_text("online: nothing waiting · 6 sent")
 
 
 def check_stored_once(floor, step: LotStep, keys_before: int = 0) -> None:
@@ -117,7 +123,7 @@ def test_offline_readings_replay_once(page, live_url, login_as, floor, shoot, pa
     expect(panel(page)).to_have_attribute("data-online", "yes")
     page.reload()
     expect(panel(page)).to_have_attribute("data-ready", "yes")
-    expect(panel(page)).to_have_attribute("data-waiting", "0")
+    expect(panel(page)).to_have_attribute("data-waiting", "0", timeout=SLOW)
     check_stored_once(floor, step)
 
 
@@ -140,7 +146,7 @@ def test_refused_replay_shows_its_reason(page, live_url, login_as, floor, shoot,
     floor.lot.save(update_fields=["on_hold"])
 
     page.context.set_offline(False)
-    expect(panel(page)).to_have_attribute("data-replayed", "yes")
+    expect(panel(page)).to_have_attribute("data-replayed", "yes", timeout=SLOW)
     refused = panel(page).locator(".offline-item[data-state=refused]")
     expect(refused).to_have_count(2)
     expect(refused.first).to_contain_text("is on hold")
@@ -157,11 +163,11 @@ def test_refused_replay_shows_its_reason(page, live_url, login_as, floor, shoot,
     page.context.set_offline(False)
     page.reload()
     expect(panel(page)).to_have_attribute("data-ready", "yes")
-    expect(panel(page).locator(".offline-item[data-state=refused]")).to_have_count(2)
+    expect(panel(page).locator(".offline-item[data-state=refused]")).to_have_count(2, timeout=SLOW)
     assert Reading.objects.filter(lot_step=step).count() == 0
     # The operator removes them from the tablet.
     panel(page).get_by_role("button", name="Remove from this tablet").first.click()
-    expect(panel(page).locator(".offline-item[data-state=refused]")).to_have_count(1)
+    expect(panel(page).locator(".offline-item[data-state=refused]")).to_have_count(1, timeout=SLOW)
 
 
 def test_out_of_window_reading_kept_offline_asks_to_confirm(
@@ -179,10 +185,10 @@ def test_out_of_window_reading_kept_offline_asks_to_confirm(
     expect(panel(page)).to_have_attribute("data-waiting", "1")
     page.context.set_offline(False)
     item = panel(page).locator(".offline-item[data-state=confirm]")
-    expect(item).to_contain_text("80 µm is above 50 µm")
+    expect(item).to_contain_text("80 µm is above 50 µm", timeout=SLOW)
     assert Reading.objects.filter(lot_step=step).count() == 0
     item.get_by_role("button", name="Confirm and send").click()
-    expect(panel(page).locator(".offline-item[data-state=sent]")).to_have_count(1)
+    expect(panel(page).locator(".offline-item[data-state=sent]")).to_have_count(1, timeout=SLOW)
     reading = Reading.objects.get(lot_step=step)
     assert not reading.in_window and reading.confirmation
 
@@ -193,7 +199,7 @@ def test_scan_while_offline_opens_the_kept_lot(page, live_url, login_as, floor, 
     page.goto(f"{live_url}/floor/lots/{floor.lot.code}/")
     ready_for_offline(page)
     page.goto(f"{live_url}/floor/")
-    expect(panel(page)).to_have_attribute("data-worker-ready", "yes")
+    expect(panel(page)).to_have_attribute("data-worker-ready", "yes", timeout=SLOW)
     page.context.set_offline(True)
     page.locator("#lot-code").fill(floor.lot.code.lower())
     page.locator("#lot-code").press("Enter")
@@ -274,8 +280,8 @@ def test_offline_panel_at_other_sizes(viewport, browser, live_url, login_as, flo
         page.locator(f"#{rid}-3").scroll_into_view_if_needed()
         shoot(page, f"offline-06-{name}-rows", full_page=False)
         context.set_offline(False)
-        expect(panel(page)).to_have_attribute("data-replayed", "yes")
-        expect(panel(page).locator(".offline-item[data-state=sent]")).to_have_count(3)
+        expect(panel(page)).to_have_attribute("data-replayed", "yes", timeout=SLOW)
+        expect(panel(page).locator(".offline-item[data-state=sent]")).to_have_count(3, timeout=SLOW)
         page.evaluate("window.scrollTo(0, 0)")
         shoot(page, f"offline-07-{name}-sent", full_page=False)
     finally:
@@ -301,6 +307,6 @@ def test_server_out_of_reach_while_online_keeps_the_reading(
     assert Reading.objects.filter(lot_step=step).count() == 0
     page.unroute("**/readings/")
     panel(page).get_by_role("button", name="Send now").click()
-    expect(panel(page).locator(".offline-item[data-state=sent]")).to_have_count(1)
+    expect(panel(page).locator(".offline-item[data-state=sent]")).to_have_count(1, timeout=SLOW)
     expect(page.locator(f"#{rid}-1 .badge.ok")).to_be_visible()
     assert Reading.objects.filter(lot_step=step).count() == 1

@@ -125,6 +125,7 @@
     refused_status: "Refused by the server ({status}).",
     lot: "Lot {code}",
     none_kept: "None kept yet.",
+    sent_count: "{n} sent",
     send_now: "Send now"
   };
   var wordsBox = document.getElementById("offline-words");
@@ -149,6 +150,7 @@
     var counts = { reading: 0, start: 0, pause: 0 };
     var waiting = 0;
     var stuck = 0;
+    var sent = 0;
     items.forEach(function (it) {
       if (!mine(it)) { return; }
       if (it.state === "waiting" || it.state === "sending") {
@@ -156,6 +158,8 @@
         waiting += 1;
       } else if (it.state !== "sent") {
         stuck += 1;
+      } else {
+        sent += 1;
       }
     });
     var parts = [];
@@ -173,6 +177,7 @@
     } else {
       text = t("online_nothing");
     }
+    if (sent && replayedHere) { text += " · " + t("sent_count", { n: sent }); }
     if (stuck) { text += " · " + t(stuck === 1 ? "attention_one" : "attention_many", { n: stuck }); }
     return { text: text, note: note, waiting: waiting, stuck: stuck };
   }
