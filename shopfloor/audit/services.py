@@ -219,6 +219,33 @@ def _new_entry(
 def _insert_rows(entries: list[AuditEntry]) -> list[int]:
     """One INSERT for all entries (arrays unnested in order); the jsonb copies are parsed
     from the same canonical text as the body."""
+    sql, params = insert_statement(entries)
+    with connection.cursor() as cursor:
+        cursor.execute(sql + " RETURNING id", params)
+        return [r[0] for r in cursor.fetchall()]
+
+
+def new_entry(
+    actor: Any,
+    action: str,
+    object_type: str,
+    object_id: object,
+    after: dict[str, Any] | None = None,
+    before: dict[str, Any] | None = None,
+) -> AuditEntry:
+    """An unsaved entry, for a caller that writes it in its own statement with
+    `insert_statement` (and calls `appended()` once it has)."""
+    return _new_entry(actor, action, object_type, object_id, before, after)
+
+
+def appended() -> None:
+    """What follows an append made with `insert_statement` (sealing after commit where no
+    beat runs)."""
+    _seal_after_commit_if_embedded()
+
+
+def insert_statement(entries: list[AuditEntry]) -> tuple[str, list[Any]]:
+    """The one INSERT of `entries` (PostgreSQL; usable inside a WITH) and its parameters."""
     columns: list[list[Any]] = [[] for _ in range(9)]
     for e in entries:
         values = (
@@ -234,18 +261,16 @@ def _insert_rows(entries: list[AuditEntry]) -> list[int]:
         )
         for column, value in zip(columns, values, strict=True):
             column.append(value)
-    with connection.cursor() as cursor:
-        cursor.execute(
-            "INSERT INTO audit_auditentry (at, actor_id, actor_name, action, object_type, "
-            "object_id, before, after, body) "
-            "SELECT at, actor_id, actor_name, action, object_type, object_id, "
-            "before::jsonb, after::jsonb, body FROM unnest(%s::timestamptz[], %s::bigint[], "
-            "%s::text[], %s::text[], %s::text[], %s::text[], %s::text[], %s::text[], %s::text[]) "
-            "WITH ORDINALITY AS v(at, actor_id, actor_name, action, object_type, object_id, "
-            "before, after, body, n) ORDER BY n RETURNING id",
-            columns,
-        )
-        return [r[0] for r in cursor.fetchall()]
+    sql = (
+        "INSERT INTO audit_auditentry (at, actor_id, actor_name, action, object_type, "
+        "object_id, before, after, body) "
+        "SELECT at, actor_id, actor_name, action, object_type, object_id, "
+        "before::jsonb, after::jsonb, body FROM unnest(%s::timestamptz[], %s::bigint[], "
+        "%s::text[], %s::text[], %s::text[], %s::text[], %s::text[], %s::text[], %s::text[]) "
+        "WITH ORDINALITY AS v(at, actor_id, actor_name, action, object_type, object_id, "
+        "before, after, body, n) ORDER BY n"
+    )
+    return sql, list(columns)
 
 
 def _seal_after_commit_if_embedded() -> None:

@@ -23,12 +23,11 @@ from rest_framework.views import APIView
 from shopfloor.access import require_lot_readable
 from shopfloor.api_parsers import StrictJSONParser
 from shopfloor.errors import InvalidInput
-from shopfloor.floor import batch, idempotency, services
+from shopfloor.floor import batch, idempotency, readings, services
 from shopfloor.floor.permissions import (
     CanPostReadings,
     CanRead,
     CanWorkSteps,
-    access_lot_step,
     access_reading,
     access_step,
     check_work_center,
@@ -202,6 +201,13 @@ def idempotent(request: Request, action: Callable[[], tuple[int, Any]]) -> Respo
     return response
 
 
+def _respond(outcome: idempotency.Outcome) -> Response:
+    response = Response(outcome.body, status=outcome.status)
+    if outcome.replayed:
+        response["Idempotent-Replay"] = "true"
+    return response
+
+
 def idempotent_batch(request: Request, action: Callable[[], tuple[int, Any]]) -> Response:
     """Like `idempotent`, but the action runs its own transactions (one per lot step)."""
 
@@ -254,11 +260,6 @@ class ReadingCreateView(JsonAPIView):
     def post(self, request: Request) -> Response:
         data = parse(ReadingInputSerializer, request.data)
         person = people.person_for(request.user)
-        if data.get("step") is None:
-            step = services.find_current_step(data["lot"])
-            check_work_center(request, step)
-        else:
-            step = access_lot_step(request, services.find_lot(data["lot"]), data["step"])
         reading_input = services.ReadingInput(
             quantity=data["quantity"],
             value=data["value"],
@@ -269,15 +270,24 @@ class ReadingCreateView(JsonAPIView):
             captured_at=data.get("captured_at"),
             confirm_out_of_window=bool(data.get("confirm_out_of_window")),
         )
-        via = "instrument" if is_instrument(request) else "api"
-
-        def action() -> tuple[int, Any]:
-            reading = services.record_reading(
-                person=person, lot_step_id=step.pk, data=reading_input, via=via
-            )
-            return 201, ReadingSerializer(reading).data
-
-        return idempotent(request, action)
+        instrument = is_instrument(request)
+        outcome = readings.record_reading_once(
+            person=person,
+            data=reading_input,
+            via="instrument" if instrument else "api",
+            claim=idempotency.claim(
+                request.user,
+                request.headers.get("Idempotency-Key"),
+                idempotency.fingerprint(request.method or "POST", request.path, request.data),
+            ),
+            reply=lambda reading: _json_safe(ReadingSerializer(reading).data),
+            lot_code=data["lot"],
+            lot_step_id=data.get("step"),
+            # an instrument posts only at its own work center; a person's assignment is
+            # checked by the service with the rest of the facts it reads
+            check_access=(lambda step: check_work_center(request, step)) if instrument else None,
+        )
+        return _respond(outcome)
 
 
 class ReadingBatchView(JsonAPIView):

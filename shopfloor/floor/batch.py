@@ -316,7 +316,7 @@ def _write(person: Person, step: LotStep, lot: Any, new: list[Reading]) -> None:
 
 
 def _passes(r: Reading) -> bool:
-    return r.in_window and (r.set_verdict or {}).get("in_window") is not False
+    return not outbox.urgent({"in_window": r.in_window, "set": r.set_verdict})
 
 
 def _set_payload(r: Reading) -> dict[str, Any]:

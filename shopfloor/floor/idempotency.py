@@ -30,6 +30,44 @@ class Outcome:
     replayed: bool
 
 
+@dataclass(frozen=True)
+class Claim:
+    """A request's Idempotency-Key, checked, with what identifies the request: for a use
+    case that looks up and stores the reply in its own statements (the reading POST)."""
+
+    user_id: int
+    key: str
+    fingerprint: str
+
+    @property
+    def lock_id(self) -> int:
+        return _lock_id(self.user_id, self.key)
+
+
+def claim(user: Any, key: str | None, request_fingerprint: str) -> Claim | None:
+    """The request's claim (None without a key); InvalidInput for a malformed key."""
+    if key is None or key == "":
+        return None
+    return Claim(user.pk, _checked_key(key), request_fingerprint)
+
+
+def _checked_key(key: str) -> str:
+    key = key.strip()
+    if not key or len(key) > MAX_KEY_LENGTH or not key.isprintable():
+        raise InvalidInput(f"Idempotency-Key must be 1 to {MAX_KEY_LENGTH} printable characters.")
+    return key
+
+
+STILL_RUNNING = (
+    "The same request is still being processed; wait a moment and retry with the same "
+    "Idempotency-Key."
+)
+KEY_REUSED = (
+    "This Idempotency-Key was already used for a different request. Use a new key for a new "
+    "reading or action."
+)
+
+
 def fingerprint(method: str, path: str, payload: Any) -> str:
     text = json.dumps([method.upper(), path, payload], sort_keys=True, default=str)
     return hashlib.sha256(text.encode()).hexdigest()

@@ -91,18 +91,18 @@ def lock_step(lot_step_id: int) -> tuple[LotStep, Lot]:
     return step, step.lot
 
 
-def require_workable(step: LotStep, lot: Lot, *, held_step_readings: bool = False) -> None:
+def require_workable(
+    step: LotStep, lot: Lot, *, held_step_readings: bool = False, held_here: bool | None = None
+) -> None:
     """Refuse work on a held, finished or not-current step.
 
     `held_step_readings`: a held lot still takes readings and corrections at the step
     whose reading put it on hold (the rest of the sample set, so quality sees the whole
     set, and corrections of typing slips); the hold itself stays until a disposition.
-    Costs one query, and only when the lot is on hold.
+    Costs one query, and only when the lot is on hold (none when the caller already
+    knows whether an open hold names this step: `held_here`).
     """
-    if lot.on_hold and not (
-        held_step_readings
-        and Hold.objects.filter(lot=lot, lot_step=step, released_at__isnull=True).exists()
-    ):
+    if lot.on_hold and not (held_step_readings and _held_here(step, lot, held_here)):
         raise Conflict(
             f"Lot {lot.code} is on hold. It cannot be worked until quality dispositions the "
             "nonconformance."
@@ -120,6 +120,12 @@ def require_workable(step: LotStep, lot: Lot, *, held_step_readings: bool = Fals
         )
 
 
+def _held_here(step: LotStep, lot: Lot, known: bool | None) -> bool:
+    if known is not None:
+        return known
+    return Hold.objects.filter(lot=lot, lot_step=step, released_at__isnull=True).exists()
+
+
 def step_state(step: LotStep) -> dict[str, Any]:
     return {
         "status": step.status,
@@ -131,6 +137,13 @@ def step_state(step: LotStep) -> dict[str, Any]:
 
 def usable_equipment(equipment_id: int, work_center_id: int) -> Equipment:
     equipment = Equipment.objects.filter(pk=equipment_id).first()
+    return check_equipment(equipment, equipment_id, work_center_id)
+
+
+def check_equipment(
+    equipment: Equipment | None, equipment_id: int, work_center_id: int
+) -> Equipment:
+    """Refuse an unknown gauge, one of another work center, or one past calibration."""
     if equipment is None:
         raise InvalidInput(f"No equipment with id {equipment_id}.")
     if equipment.work_center_id != work_center_id:

@@ -6,19 +6,24 @@ from __future__ import annotations
 
 import logging
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
 
-from django.db import transaction
+from django.db import connection, transaction
 from django.utils import timezone
 
 from shopfloor.audit import services as audit
 from shopfloor.core import judging, units
 from shopfloor.errors import Conflict, InvalidInput, NotFound
+from shopfloor.floor import idempotency
+from shopfloor.floor.idempotency import Claim, Outcome
 from shopfloor.floor.lookups import (
     MAX_CAPTURE_AGE,
     MAX_CLOCK_SKEW,
+    find_current_step,
+    find_lot,
     lock_step,
     require_workable,
     usable_equipment,
@@ -201,8 +206,15 @@ def record_reading(
 
     Each-reading criteria judge it at once; when it completes the sample set, the set's
     criteria (mean, smallest, largest, range) judge the set and the event carries the
-    verdict. A held lot takes the rest of the set at the held step.
+    verdict. A held lot takes the rest of the set at the held step. On PostgreSQL this
+    is the lean path of `reading_sql` (three statements between BEGIN and COMMIT).
     """
+    if connection.vendor == "postgresql":
+        from shopfloor.floor import reading_sql
+
+        recorded = reading_sql.record(person=person, data=data, via=via, step_id=lot_step_id)
+        assert recorded.reading is not None  # no Idempotency-Key: never a replay
+        return recorded.reading
     with transaction.atomic():
         step, lot = lock_step(lot_step_id)
         check_assigned(person, step.work_center_id)
@@ -214,18 +226,86 @@ def record_reading(
         if data.equipment_id is not None:
             equipment = usable_equipment(data.equipment_id, step.work_center_id)
         current = _current_set(step, data.quantity)  # also the duplicate-sample check
-        existing = current.get(data.sample_index)
-        if existing is not None:
-            # A second value for the same sample is a correction, which needs a reason.
-            old_value = units.format_value(data.quantity, existing[1])
-            raise Conflict(
-                f"Sample {data.sample_index} of {data.quantity} already has a reading "
-                f"({old_value}). To change it, record a correction with a reason."
-            )
+        refuse_taken_sample(data, current)
         reading = _store_reading(
             step, lot, person, data, group, value, captured, equipment, via, confirmation, current
         )
         return reading
+
+
+def record_reading_once(
+    *,
+    person: Person,
+    data: ReadingInput,
+    via: str,
+    claim: Claim | None,
+    reply: Callable[[Reading], dict[str, Any]],
+    lot_code: str | None = None,
+    lot_step_id: int | None = None,
+    check_access: Callable[[LotStep], None] | None = None,
+) -> Outcome:
+    """The reading POST: record a reading at most once per Idempotency-Key (`claim`).
+
+    The step is `lot_step_id`, or the current step of `lot_code` (both: the step must be
+    the lot's); `check_access` is the caller's work-center rule (instrument tokens);
+    `reply` makes the reply body stored with the key. A repeat gets the stored reply.
+    """
+    if connection.vendor == "postgresql":
+        from shopfloor.floor import reading_sql
+
+        return reading_sql.record(
+            person=person,
+            data=data,
+            via=via,
+            lot_code=lot_code,
+            step_id=lot_step_id,
+            check_access=check_access,
+            claim=claim,
+            reply=reply,
+        ).outcome
+
+    def action() -> tuple[int, dict[str, Any]]:
+        step = resolve_step(lot_code, lot_step_id)
+        if check_access is not None:
+            check_access(step)
+        reading = record_reading(person=person, lot_step_id=step.pk, data=data, via=via)
+        return 201, reply(reading)
+
+    if claim is None:
+        status, body = action()
+        return Outcome(status, body, False)
+    return idempotency.run(
+        user=person.user, key=claim.key, request_fingerprint=claim.fingerprint, action=action
+    )
+
+
+def resolve_step(lot_code: str | None, lot_step_id: int | None) -> LotStep:
+    """The step a reading names: by id (of the lot, when a lot code is given too), or the
+    current step of the lot code. Raises NotFound or Conflict saying what is wrong."""
+    if lot_step_id is None:
+        return find_current_step(lot_code or "")
+    if lot_code is None:
+        step = LotStep.objects.select_related("lot", "work_center").filter(pk=lot_step_id).first()
+        if step is None:
+            raise NotFound(f"No lot step {lot_step_id}.")
+        return step
+    lot = find_lot(lot_code)
+    found = LotStep.objects.select_related("lot", "work_center").filter(pk=lot_step_id, lot=lot)
+    step = found.first()
+    if step is None:
+        raise NotFound(f"Lot {lot.code} has no step with id {lot_step_id}.")
+    return step
+
+
+def refuse_taken_sample(data: ReadingInput, current: dict[int, tuple[int, float]]) -> None:
+    """A second value for the same sample is a correction, which needs a reason."""
+    existing = current.get(data.sample_index)
+    if existing is not None:
+        old_value = units.format_value(data.quantity, existing[1])
+        raise Conflict(
+            f"Sample {data.sample_index} of {data.quantity} already has a reading "
+            f"({old_value}). To change it, record a correction with a reason."
+        )
 
 
 def build_reading(
@@ -285,6 +365,105 @@ def set_verdict_record(
     }
 
 
+@dataclass
+class Prepared:
+    """A reading ready to write: the row (with its set verdict), the outbox event's
+    payload and the audit entry's content."""
+
+    reading: Reading
+    payload: dict[str, Any]
+    audit_after: dict[str, Any]
+
+
+def prepare_reading(
+    *,
+    step: LotStep,
+    lot: Lot,
+    person: Person,
+    data: ReadingInput,
+    group: judging.QuantityPlan,
+    value: float,
+    captured: datetime,
+    equipment: Equipment | None,
+    via: str,
+    confirmation: str,
+    current: dict[int, tuple[int, float]],
+    reading_id: int | None,
+    corrected: int | None = None,
+) -> Prepared:
+    """Build the row, judge the set it completes, and make the event and audit content.
+
+    `reading_id`: the id the row will get (the lean path takes it from the sequence
+    first); None when the row is saved first and `finish_prepared` fills it in.
+    """
+    reading, message = build_reading(
+        step=step,
+        person=person,
+        data=data,
+        group=group,
+        value=value,
+        captured=captured,
+        equipment=equipment,
+        via=via,
+        confirmation=confirmation,
+    )
+    reading.pk = reading_id
+    members = {i: v for i, (_, v) in current.items()}
+    members[data.sample_index] = value
+    if group.set_entries:
+        reading.set_verdict = set_verdict_record(
+            judging.judge_set(members, group.set_entries, group.samples), members
+        )
+    payload: dict[str, Any] = {
+        "reading": reading_id,
+        "lot": lot.pk,
+        "lot_step": step.pk,
+        "in_window": reading.in_window,
+        "message": message,
+    }
+    earlier = [pk for pk, _ in current.values()]
+    if reading.set_verdict is not None:
+        payload["set"] = {**reading.set_verdict, "readings": earlier}
+    if corrected is not None or lot.on_hold:
+        # what the handler needs to cite the set on the NCR and to see whether a
+        # correction brought it back inside
+        payload["set_so_far"] = earlier
+        payload["each_in_window"] = all(
+            judging.judge_each(v, group.entries).in_window for v in members.values()
+        )
+    if corrected is not None:
+        payload["corrects"] = corrected
+    after = {
+        "lot": lot.code,
+        "step": step.code,
+        "quantity": reading.quantity,
+        "value": value,
+        "unit": reading.unit,
+        "sample": reading.sample_index,
+        "in_window": reading.in_window,
+        "source": reading.window.get("source"),
+        **({"confirmed": confirmation} if confirmation else {}),
+        **({"set_in_window": payload["set"]["in_window"]} if "set" in payload else {}),
+    }
+    prepared = Prepared(reading, payload, after)
+    if reading_id is not None:
+        finish_prepared(prepared)
+    return prepared
+
+
+def finish_prepared(prepared: Prepared) -> None:
+    """Put the reading's id into the event's lists of the set's readings."""
+    pk = prepared.reading.pk
+    payload = prepared.payload
+    payload["reading"] = pk
+    for key in ("set", "set_so_far"):
+        holder = payload.get(key)
+        if isinstance(holder, dict):
+            holder["readings"] = sorted([*holder["readings"], pk])
+        elif isinstance(holder, list):
+            payload[key] = sorted([*holder, pk])
+
+
 def _store_reading(
     step: LotStep,
     lot: Lot,
@@ -299,8 +478,10 @@ def _store_reading(
     current: dict[int, tuple[int, float]],
     corrected: int | None = None,
 ) -> Reading:
-    reading, message = build_reading(
+    """The ORM path (corrections, and databases other than PostgreSQL)."""
+    prepared = prepare_reading(
         step=step,
+        lot=lot,
         person=person,
         data=data,
         group=group,
@@ -309,58 +490,21 @@ def _store_reading(
         equipment=equipment,
         via=via,
         confirmation=confirmation,
+        current=current,
+        reading_id=None,
+        corrected=corrected,
     )
-    members = {i: v for i, (_, v) in current.items()}
-    members[data.sample_index] = value
-    set_info: dict[str, Any] | None = None
-    if group.set_entries:
-        set_info = set_verdict_record(
-            judging.judge_set(members, group.set_entries, group.samples), members
-        )
-    reading.set_verdict = set_info
+    reading = prepared.reading
     reading.save(force_insert=True)
-    window = reading.window
-    judgement_in_window, judgement_message = reading.in_window, message
-    payload: dict[str, Any] = {
-        "reading": reading.pk,
-        "lot": lot.pk,
-        "lot_step": step.pk,
-        "in_window": judgement_in_window,
-        "message": judgement_message,
-    }
-    if set_info is not None:
-        payload["set"] = {
-            **set_info,
-            "readings": sorted([*(pk for pk, _ in current.values()), reading.pk]),
-        }
-    if corrected is not None or lot.on_hold:
-        # what the handler needs to cite the set on the NCR and to see whether a
-        # correction brought it back inside
-        payload["set_so_far"] = sorted([*(pk for pk, _ in current.values()), reading.pk])
-        payload["each_in_window"] = all(
-            judging.judge_each(v, group.entries).in_window for v in members.values()
-        )
-    if corrected is not None:
-        payload["corrects"] = corrected
+    finish_prepared(prepared)
     audit.record(
         actor=person.user,
         action="reading.recorded",
         object_type="reading",
         object_id=reading.pk,
-        after={
-            "lot": lot.code,
-            "step": step.code,
-            "quantity": reading.quantity,
-            "value": value,
-            "unit": reading.unit,
-            "sample": reading.sample_index,
-            "in_window": reading.in_window,
-            "source": window.get("source"),
-            **({"confirmed": confirmation} if confirmation else {}),
-            **({"set_in_window": payload["set"]["in_window"]} if "set" in payload else {}),
-        },
+        after=prepared.audit_after,
     )
-    event = OutboxEvent.objects.create(kind="reading.recorded", payload=payload)
+    event = OutboxEvent.objects.create(kind="reading.recorded", payload=prepared.payload)
     outbox.enqueue(event)
     return reading
 

@@ -160,13 +160,19 @@ def check_qualified(person: Person, work_center_id: int, on: datetime | None = N
 ANYWHERE_ROLES = ("supervisor", "admin")  # may record and sign at any work center
 
 
-def check_assigned(person: Person, work_center_id: int) -> None:
-    """Readings are taken by people assigned to the work center (supervisors anywhere)."""
+def check_assigned(person: Person, work_center_id: int, *, known: bool | None = None) -> None:
+    """Readings are taken by people assigned to the work center (supervisors anywhere).
+
+    `known`: the answer when the caller already read it (the reading POST reads it with
+    its other facts in one statement); otherwise one query.
+    """
     if person.user.is_superuser:
         return  # an administrator (shopfloor.access.is_admin); the group is in ANYWHERE_ROLES
     # One query: assigned to the work center, or holding a role that works anywhere.
     allowed = (
-        Person.objects.filter(pk=person.pk)
+        known
+        if known is not None
+        else Person.objects.filter(pk=person.pk)
         .filter(Q(work_centers__pk=work_center_id) | Q(user__groups__name__in=ANYWHERE_ROLES))
         .exists()
     )

@@ -102,9 +102,23 @@ def publish(event_id: int, *, republish: bool = False) -> bool:
     return True
 
 
+def urgent(payload: dict[str, Any]) -> bool:
+    """An event that may raise an alert at once: a reading out of its window, or one
+    whose sample set failed. The rest (in-window readings) are processed in batches."""
+    set_info = payload.get("set")
+    set_failed = isinstance(set_info, dict) and set_info.get("in_window") is False
+    return payload.get("in_window") is not True or set_failed
+
+
 def enqueue(event: OutboxEvent) -> None:
+    """After commit, hand the event to the worker: an urgent one as its own task (the
+    alert's fast path), an in-window reading's as a batch task, which also takes the
+    other in-window events waiting by then (one SPC update per series per batch)."""
     event_id = event.pk
-    transaction.on_commit(lambda: publish(event_id))
+    if event.kind == "reading.recorded" and not urgent(event.payload or {}):
+        transaction.on_commit(lambda: publish_batch([event_id]))
+    else:
+        transaction.on_commit(lambda: publish(event_id))
 
 
 BATCH_SIZE = 200  # in-window events handed to the worker per task

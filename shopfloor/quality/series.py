@@ -105,17 +105,25 @@ def chart_for(window: dict[str, Any]) -> tuple[str, int]:
     return "individuals", 1
 
 
-def _lock_series(reading: Reading) -> SeriesState:
+def key_of(reading: Reading) -> str:
+    """The key of the series a reading belongs to (no query: the caller loaded the step's
+    work center and equipment with the reading)."""
     step = reading.lot_step
     equipment = reading.equipment or step.equipment
-    spec = reading_spec_key(reading)
-    key = series_key(
+    return series_key(
         reading.quantity,
         step.work_center.code,
         equipment.code if equipment else None,
         step.code,
-        spec,
+        reading_spec_key(reading),
     )
+
+
+def _lock_series(reading: Reading) -> SeriesState:
+    step = reading.lot_step
+    equipment = reading.equipment or step.equipment
+    spec = reading_spec_key(reading)
+    key = key_of(reading)
     locked = SeriesState.objects.select_for_update(no_key=True)
     series = locked.filter(key=key).first()  # one query once the series exists
     if series is None:
@@ -194,6 +202,9 @@ def _stored_rule_state(series: SeriesState) -> tuple[spc.RuleState, dict[str, in
 _MOVING_FIELDS = ["points", "updated_at"]  # what every new point changes
 
 
+_SAVED_FIELDS = [*_MOVING_FIELDS, "baseline", "limits", "rule_state"]
+
+
 def add_point(reading: Reading) -> list[DriftSignal]:
     """Add one reading to its series (caller holds the transaction); return new drift.
 
@@ -201,6 +212,30 @@ def add_point(reading: Reading) -> list[DriftSignal]:
     loses a point.
     """
     series = _lock_series(reading)
+    signals = _apply(series, reading)
+    series.save(update_fields=_SAVED_FIELDS)
+    return signals
+
+
+def add_points(readings: list[Reading]) -> dict[int, list[DriftSignal]]:
+    """Add a batch of readings (in the order given) with one lock and one UPDATE per
+    series: reading id -> the drift it signalled. The series are locked in key order,
+    so two batches touching the same series cannot deadlock."""
+    by_series: dict[str, list[Reading]] = {}
+    for reading in readings:
+        by_series.setdefault(key_of(reading), []).append(reading)
+    out: dict[int, list[DriftSignal]] = {}
+    for key in sorted(by_series):
+        members = by_series[key]
+        series = _lock_series(members[0])
+        for reading in members:
+            out[reading.pk] = _apply(series, reading)
+        series.save(update_fields=_SAVED_FIELDS)
+    return out
+
+
+def _apply(series: SeriesState, reading: Reading) -> list[DriftSignal]:
+    """Step one reading through the series in memory (the caller saves the row)."""
     if series.chart in XBAR_CHARTS:
         return _add_to_subgroup(series, reading)
     value = float(reading.value)
@@ -209,19 +244,16 @@ def add_point(reading: Reading) -> list[DriftSignal]:
     signals: list[DriftSignal] = []
     if series.limits is None:
         _grow_baseline(series, value, "")
-        series.save(update_fields=[*_MOVING_FIELDS, "baseline", "limits"])
         return signals
 
     limits = limits_from_dict(series.limits)
     if limits.sigma <= 0:
         # A baseline without spread (all equal) cannot be charted; keep counting points.
-        series.save(update_fields=_MOVING_FIELDS)
         return signals
     state, last_fired = _stored_rule_state(series)
     new_state, fired = spc.step(state, value, limits, series.rules)
     signals = _new_signals(series, fired, last_fired)
     series.rule_state = {"rules": new_state.to_dict(), "last_fired": last_fired}
-    series.save(update_fields=[*_MOVING_FIELDS, "rule_state"])
     return signals
 
 
@@ -249,7 +281,6 @@ def _add_to_subgroup(series: SeriesState, reading: Reading) -> list[DriftSignal]
         log.warning("series %s: dropped the unfinished subgroup of step %s", series.key, dropped[0])
     raw["open"] = open_groups
     series.rule_state = raw
-    series.save(update_fields=[*_MOVING_FIELDS, "baseline", "limits", "rule_state"])
     return signals
 
 

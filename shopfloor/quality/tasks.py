@@ -51,8 +51,11 @@ def process_event(event_id: int) -> None:
     retry_jitter=True,
 )
 def process_events(event_ids: list[int]) -> dict[str, int]:
-    """In-window events of a batch post, processed together (one transaction)."""
-    return alerts.handle_events(event_ids)
+    """In-window reading events, processed together with any others waiting (one
+    transaction, one SPC update per series: shopfloor.quality.event_batch)."""
+    from shopfloor.quality import event_batch
+
+    return event_batch.handle_batch(event_ids)
 
 
 @shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)

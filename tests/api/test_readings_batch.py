@@ -237,14 +237,16 @@ def test_a_failing_event_does_not_block_its_batch(floor, plating, client, monkey
     body = {"items": [item(floor.lot, f"F-{i}", sample=i, value=45.0) for i in (1, 2, 3)]}
     client.post(URL, body, format="json")
     events = list(OutboxEvent.objects.order_by("pk"))
-    real = alerts._dispatch
+    from shopfloor.quality import event_batch
 
-    def flaky(event):
+    real = event_batch._point
+
+    def flaky(event, reading):
         if event.pk == events[1].pk:
             raise RuntimeError("broken reading")
-        return real(event)
+        return real(event, reading)
 
-    monkeypatch.setattr(alerts, "_dispatch", flaky)
+    monkeypatch.setattr(event_batch, "_point", flaky)
     outcome = alerts.handle_events([e.pk for e in events])
     assert outcome == {"claimed": 3, "processed": 2, "failed": 1}
     failed = OutboxEvent.objects.get(pk=events[1].pk)

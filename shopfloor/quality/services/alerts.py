@@ -106,45 +106,12 @@ def handle_event(event_id: int) -> EventOutcome:
 
 
 def handle_events(event_ids: list[int]) -> dict[str, int]:
-    """Act on a batch of events in one transaction, each exactly once.
+    """Act on a batch of events in one transaction, each exactly once: in-window readings
+    with one SPC update per series (see `shopfloor.quality.event_batch`). Only the given
+    events; the worker's task also sweeps up other waiting in-window events."""
+    from shopfloor.quality import event_batch
 
-    The events are claimed with FOR UPDATE SKIP LOCKED (one another worker holds is left
-    to it), each runs in its own savepoint so a failing event never blocks the others
-    (it keeps its error and stays unprocessed for the relay), and the processed stamp is
-    one UPDATE for the batch.
-    """
-    ids = sorted({int(i) for i in event_ids})
-    OutboxEvent.objects.filter(pk__in=ids, processed_at__isnull=True).update(
-        attempts=F("attempts") + 1
-    )
-    done: list[int] = []
-    failed: dict[int, str] = {}
-    with transaction.atomic():
-        events = list(
-            OutboxEvent.objects.select_for_update(no_key=True, skip_locked=True)
-            .filter(pk__in=ids, processed_at__isnull=True)
-            .order_by("pk")
-        )
-        for event in events:
-            try:
-                with transaction.atomic():
-                    alerts = _dispatch(event)
-            except (OperationalError, InterfaceError):
-                raise  # database trouble: the task retries with backoff
-            except Exception as exc:
-                log.exception("outbox event %s failed in its batch", event.pk)
-                failed[event.pk] = repr(exc)[:2000]
-                continue
-            done.append(event.pk)
-            for alert in alerts:
-                notify_after_commit(alert.pk)
-        if done:
-            OutboxEvent.objects.filter(pk__in=done).update(
-                processed_at=timezone.now(), last_error=""
-            )
-        for pk, error in failed.items():
-            OutboxEvent.objects.filter(pk=pk).update(last_error=error)
-    return {"claimed": len(events), "processed": len(done), "failed": len(failed)}
+    return event_batch.handle_batch(event_ids, sweep=False)
 
 
 def _dispatch(event: OutboxEvent) -> list[Alert]:
