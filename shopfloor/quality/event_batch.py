@@ -126,8 +126,8 @@ def _claim(ids: list[int], sweep: bool) -> list[OutboxEvent]:
 
 
 def _readings(events: list[OutboxEvent]) -> dict[int, Reading]:
-    wanted = [
-        e.payload.get("reading")
+    wanted: list[int] = [
+        int(e.payload["reading"])
         for e in events
         if isinstance(e.payload, dict) and isinstance(e.payload.get("reading"), int)
     ]
