@@ -59,7 +59,18 @@ def main(token: str) -> None:
             commits["n"] += 1
             commits["seconds"] += time.perf_counter() - start
 
+    original_rollback = connection.rollback
+
+    def counting_rollback() -> None:  # a refused reading ends its transaction this way
+        start = time.perf_counter()
+        try:
+            original_rollback()
+        finally:
+            commits["n"] += 1
+            commits["seconds"] += time.perf_counter() - start
+
     connection.commit = counting_commit  # type: ignore[method-assign]
+    connection.rollback = counting_rollback  # type: ignore[method-assign]
     # Warm up: connection, token cache, URL resolver.
     for k in range(5):
         client.post(
@@ -92,7 +103,8 @@ def main(token: str) -> None:
             )
             wall += time.perf_counter() - start
             statuses[reply.status_code] = statuses.get(reply.status_code, 0) + 1
-    # Each transaction costs a BEGIN and a COMMIT round trip besides its statements.
+    # Each transaction costs a BEGIN and a COMMIT (or ROLLBACK) round trip besides its
+    # statements (tests/api/test_reading_round_trips.py counts the same way).
     round_trips = counter.statements + 2 * commits["n"]
     db = counter.db_seconds + commits["seconds"]
     print(

@@ -6,8 +6,9 @@
    (`pg_try_advisory_xact_lock`: a repeat still running gets 409 at once);
 2. **read**, in a snapshot taken after those locks: the reply stored for the key, whether
    the person may record at the work center, whether an open hold names this step, the
-   current sample set of the quantity, the gauge, and the ids the new reading and its
-   outbox event will get (`nextval`);
+   current sample set of the quantity (only this sample's row when no set criterion
+   needs the rest), the gauge, and the ids the new reading and its outbox event will get
+   (`nextval`);
 3. **write**: one statement whose data-modifying CTEs insert the reading, its audit entry,
    its outbox event and the stored reply.
 
@@ -34,7 +35,7 @@ from django.contrib.auth.models import Group
 from django.db import connection, models, transaction
 
 from shopfloor.audit import services as audit
-from shopfloor.errors import Conflict, IdempotencyMismatch, NotFound
+from shopfloor.errors import Conflict, DomainError, IdempotencyMismatch, NotFound
 from shopfloor.floor import readings
 from shopfloor.floor.idempotency import KEY_REUSED, STILL_RUNNING, Claim, Outcome
 from shopfloor.floor.lookups import check_equipment, require_workable
@@ -101,7 +102,7 @@ _READ = (
     "AND h.released_at IS NULL), "
     "(SELECT json_agg(json_build_array(r.sample_index, r.id, r.value)) "
     f"FROM {Reading._meta.db_table} r WHERE r.lot_step_id = %s AND r.quantity = %s "
-    "AND r.superseded_by_id IS NULL), "
+    "AND r.superseded_by_id IS NULL AND (%s OR r.sample_index = %s)), "
     f"nextval(pg_get_serial_sequence('{Reading._meta.db_table}', 'id')), "
     f"nextval(pg_get_serial_sequence('{OutboxEvent._meta.db_table}', 'id')), "
     f"{_GAUGE_COLS} "
@@ -251,6 +252,8 @@ def _read(
         step.pk,
         step.pk,
         data.quantity,
+        _needs_whole_set(step, lot, data),
+        data.sample_index,
         data.equipment_id,
     ]
     cursor.execute(_READ.format(stored=stored_sql), params)
@@ -271,6 +274,18 @@ def _read(
         event_id=int(event_id),
         gauge=gauge,
     )
+
+
+def _needs_whole_set(step: LotStep, lot: Lot, data: readings.ReadingInput) -> bool:
+    """Whether the quantity's whole current set must be read (a set criterion to judge,
+    or a held lot whose event lists the set so far); otherwise only this sample's row,
+    for the duplicate-sample check (a plan may take a thousand samples)."""
+    if lot.on_hold:
+        return True
+    try:
+        return bool(readings.quantity_plan(step, data.quantity).set_entries)
+    except DomainError:
+        return True  # refused later, after the checks that come first
 
 
 def _replay(stored: list[Any], claim: Claim | None) -> Recorded:

@@ -22,6 +22,8 @@ from tests.worker.procs import wait_for
 pytestmark = [pytest.mark.worker, pytest.mark.django_db(transaction=True), pytest.mark.timeout(90)]
 
 TASK = "shopfloor.quality.tasks.process_event"
+# in-window readings' events go to the batch task (outbox.enqueue)
+BATCH_TASK = "shopfloor.quality.tasks.process_events"
 
 
 def _counts() -> tuple[int, int, int]:
@@ -63,4 +65,6 @@ def test_rolled_back_reading_never_reaches_the_worker(workers):
     assert OutboxEvent.objects.count() == 1
     assert OutboxEvent.objects.get().processed_at is not None
     assert _counts() == (0, 0, 0)
-    assert worker.count(f"{TASK}[") == 2  # one task: received + succeeded lines
+    # one task, the in-window reading's batch task: received + succeeded lines
+    assert worker.count(f"{BATCH_TASK}[") == 2
+    assert worker.count(f"{TASK}[") == 0
