@@ -40,8 +40,8 @@ from shopfloor.floor import readings
 from shopfloor.floor.idempotency import KEY_REUSED, STILL_RUNNING, Claim, Outcome
 from shopfloor.floor.lookups import check_equipment, require_workable
 from shopfloor.floor.models import IdempotencyRecord, LotStep, Reading
-from shopfloor.floor.people import ANYWHERE_ROLES, check_assigned
 from shopfloor.plant.models import Equipment, Lot, Person
+from shopfloor.plant.people import ANYWHERE_ROLES, check_assigned
 from shopfloor.quality import outbox
 from shopfloor.quality.models import Hold, OutboxEvent
 

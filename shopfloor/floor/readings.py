@@ -210,7 +210,7 @@ def record_reading(
     is the lean path of `reading_sql` (three statements between BEGIN and COMMIT).
     """
     if connection.vendor == "postgresql":
-        from shopfloor.floor import reading_sql
+        from shopfloor.floor import reading_sql  # a real circle: it builds on this module
 
         recorded = reading_sql.record(person=person, data=data, via=via, step_id=lot_step_id)
         assert recorded.reading is not None  # no Idempotency-Key: never a replay
@@ -251,7 +251,7 @@ def record_reading_once(
     `reply` makes the reply body stored with the key. A repeat gets the stored reply.
     """
     if connection.vendor == "postgresql":
-        from shopfloor.floor import reading_sql
+        from shopfloor.floor import reading_sql  # a real circle: it builds on this module
 
         return reading_sql.record(
             person=person,

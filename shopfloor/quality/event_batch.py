@@ -39,6 +39,7 @@ from shopfloor.floor.models import Reading
 from shopfloor.quality import outbox
 from shopfloor.quality import series as series_core
 from shopfloor.quality.models import Alert, OutboxEvent
+from shopfloor.quality.services import alerts as quality
 
 log = logging.getLogger("shopfloor.events")
 
@@ -56,8 +57,6 @@ _DB_ERRORS = (OperationalError, InterfaceError)
 def handle_batch(event_ids: list[int], *, sweep: bool = True) -> dict[str, int]:
     """Process the given events (and, with `sweep`, other waiting in-window reading
     events) in one transaction, each exactly once; counts of what happened."""
-    from shopfloor.quality.services import alerts as quality
-
     ids = sorted({int(i) for i in event_ids})
     if ids:  # count the attempt outside the transaction: it survives a crash
         OutboxEvent.objects.filter(pk__in=ids, processed_at__isnull=True).update(

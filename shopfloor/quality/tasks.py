@@ -14,7 +14,7 @@ import time
 from celery import shared_task
 from django.db import InterfaceError, OperationalError
 
-from shopfloor.quality import notify
+from shopfloor.quality import event_batch, notify
 from shopfloor.quality.services import alerts, deadlines, notifications
 
 log = logging.getLogger("shopfloor.tasks")
@@ -53,8 +53,6 @@ def process_event(event_id: int) -> None:
 def process_events(event_ids: list[int]) -> dict[str, int]:
     """In-window reading events, processed together with any others waiting (one
     transaction, one SPC update per series: shopfloor.quality.event_batch)."""
-    from shopfloor.quality import event_batch
-
     return event_batch.handle_batch(event_ids)
 
 

@@ -16,8 +16,8 @@ from django.test.utils import CaptureQueriesContext
 from shopfloor.floor import services
 from shopfloor.floor.models import Reading
 from shopfloor.quality import event_batch, outbox
-from shopfloor.quality.services import alerts as quality_services
 from shopfloor.quality.models import OutboxEvent, SeriesState
+from shopfloor.quality.services import alerts as quality_services
 from tests.api.helpers import advance_to, gauge_at
 
 pytestmark = pytest.mark.django_db

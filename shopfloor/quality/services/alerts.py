@@ -109,7 +109,7 @@ def handle_events(event_ids: list[int]) -> dict[str, int]:
     """Act on a batch of events in one transaction, each exactly once: in-window readings
     with one SPC update per series (see `shopfloor.quality.event_batch`). Only the given
     events; the worker's task also sweeps up other waiting in-window events."""
-    from shopfloor.quality import event_batch
+    from shopfloor.quality import event_batch  # a real circle: it builds on this module
 
     return event_batch.handle_batch(event_ids, sweep=False)
 
