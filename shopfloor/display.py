@@ -77,6 +77,15 @@ def theme_for(request: HttpRequest) -> str:
     return cookie if cookie in THEMES else "standard"
 
 
+def save_theme(request: HttpRequest, theme: str) -> None:
+    """A signed-in person's own theme (Person.theme); the view sets the device's cookie."""
+    from shopfloor.plant.models import Person
+
+    user = getattr(request, "user", None)
+    if user is not None and user.is_authenticated:
+        Person.objects.filter(user=user).update(theme=theme)
+
+
 def context(request: HttpRequest) -> dict[str, Any]:
     """SITE_DATE (read only when a template uses it) and THEME for every page."""
     from django.utils.functional import SimpleLazyObject

@@ -11,6 +11,7 @@ from shopfloor import views
 urlpatterns = [
     path("", views.home, name="home"),
     path("healthz", views.healthz, name="healthz"),
+    path("display/theme/", views.set_theme, name="theme"),
     # Before admin.site.urls: the admin login behind the sign-in throttle and lockout.
     path("admin/login/", views.admin_login, name="admin_login"),
     path("admin/", admin.site.urls),

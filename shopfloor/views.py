@@ -4,7 +4,9 @@ from __future__ import annotations
 
 from django.http import HttpRequest, HttpResponse, JsonResponse
 from django.shortcuts import redirect, render
+from django.utils.http import url_has_allowed_host_and_scheme
 from django.views.decorators.csrf import csrf_exempt
+from django.views.decorators.http import require_POST
 
 from shopfloor import throttle
 from shopfloor.health import health_response
@@ -68,4 +70,29 @@ def admin_login(request: HttpRequest) -> HttpResponse:
         throttle.clear(keys)
     else:
         throttle.record_failure(keys, what="admin sign-in")
+    return response
+
+
+@require_POST
+def set_theme(request: HttpRequest) -> HttpResponse:
+    """The high-contrast toggle: kept on this device (a cookie, so the login page follows
+    it too) and, for a signed-in person, as their own setting (it follows them to any
+    tablet). Back to the page it was pressed on; an unknown theme is refused with 400."""
+    from shopfloor import display
+
+    theme = request.POST.get("theme", "")
+    if theme not in display.THEMES:
+        return HttpResponse(
+            f"Theme {theme[:20]!r} is not offered; use {' or '.join(display.THEMES)}.",
+            status=400,
+            content_type="text/plain; charset=utf-8",
+        )
+    display.save_theme(request, theme)
+    target = request.POST.get("next", "")
+    if not url_has_allowed_host_and_scheme(target, allowed_hosts={request.get_host()}):
+        target = "/"
+    response = redirect(target)
+    response.set_cookie(
+        display.THEME_COOKIE, theme, max_age=400 * 24 * 3600, samesite="Lax", httponly=True
+    )
     return response
