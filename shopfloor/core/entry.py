@@ -150,7 +150,7 @@ def running_text(
     samples: int,
     say: Speech = ENGLISH,
 ) -> list[str]:
-    """The set's figures while it fills: 'mean so far (2 of 5): 26.2 µm, needs ≥ 25 µm'."""
+    """The set's figures while it fills: 'mean so far (2 of 5) 26.2 µm, needs ≥ 25 µm'."""
     _ = say.tr
     names = {
         "mean": _("mean"),
@@ -177,11 +177,11 @@ def running_text(
             "limits": _limits(entry, "", say),
         }
         if not done:
-            template = _("{statistic} so far ({done} of {total}): {value}, needs {limits}")
+            template = _("{statistic} so far ({done} of {total}) {value}, needs {limits}")
         elif _inside(figure, entry):
-            template = _("{statistic} of {total} samples: {value}, needs {limits} — inside")
+            template = _("{statistic} of {total} samples {value}, needs {limits} — inside")
         else:
-            template = _("{statistic} of {total} samples: {value}, needs {limits} — OUTSIDE")
+            template = _("{statistic} of {total} samples {value}, needs {limits} — OUTSIDE")
         lines.append(template.format(**fields))
     return lines
 

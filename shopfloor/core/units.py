@@ -497,8 +497,8 @@ def bath_from_canonical(measure: str, value: float, unit: str) -> float:
 #: of the quantity's own dimension, and only those a gauge or drawing actually uses: the
 #: API still accepts every spelling in `allowed_units`.
 _ENTRY_UNITS: Final[dict[str, tuple[str, ...]]] = {
-    "hole_wall_copper": ("µm", "mil"),
-    "surface_copper": ("µm", "mil"),
+    "hole_wall_copper": ("µm", "mil", "µin"),
+    "surface_copper": ("µm", "mil", "µin"),
     "nickel_thickness": ("µm", "µin"),
     "gold_thickness": ("µm", "µin"),
     "palladium_thickness": ("µm", "µin"),

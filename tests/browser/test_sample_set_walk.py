@@ -50,7 +50,7 @@ def test_hole_copper_walk(persona_page, floor, shoot, parked_outbox, viewport, s
     expect(page.locator(f"#{rid}-1 .badge.ok")).to_be_visible()
     _record(page, f"{rid}-2", "1050", "µin")
     expect(page.locator(f"#{rid}-2 .badge.ok")).to_be_visible()
-    _record(page, f"{rid}-3", "27.5", "um")
+    _record(page, f"{rid}-3", "27.5", "µm")
     expect(page.locator(f"#{rid}-3 .badge.ok")).to_be_visible()
     # (27.94 + 26.67 + 27.5) / 3 = 27.37 um
     expect(running).to_contain_text("mean so far (3 of 5) 27.4 µm, needs ≥ 25 µm")
@@ -68,7 +68,7 @@ def test_hole_copper_walk(persona_page, floor, shoot, parked_outbox, viewport, s
     expect(running).to_contain_text("mean so far (4 of 5) 26.2 µm, needs ≥ 25 µm")
     shoot(page, f"walk-{size}-2-running-mean", full_page=False)
 
-    _record(page, f"{rid}-5", "26", "um")
+    _record(page, f"{rid}-5", "26", "µm")
     expect(page.locator(f"#{rid}-5 .badge.ok")).to_be_visible()
     expect(running).to_contain_text("mean of 5 samples 26.2 µm, needs ≥ 25 µm — inside")
     ARTIFACTS.mkdir(exist_ok=True)
@@ -78,7 +78,7 @@ def test_hole_copper_walk(persona_page, floor, shoot, parked_outbox, viewport, s
 
     surface = f"r-{step.pk}-surface_copper"
     for sample in range(1, 6):
-        _record(page, f"{surface}-{sample}", "41.5", "um")
+        _record(page, f"{surface}-{sample}", "41.5", "µm")
         expect(page.locator(f"#{surface}-{sample} .badge.ok")).to_be_visible()
     width = page.evaluate("document.documentElement.scrollWidth")
     assert width <= viewport["width"], width

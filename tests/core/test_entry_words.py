@@ -35,8 +35,10 @@ def test_the_form_offers_only_units_of_the_quantitys_dimension(quantity):
     assert "oz" not in offered and '"' not in offered
 
 
-def test_hole_copper_offers_two_units_not_twenty_six():
-    assert units.entry_units("hole_wall_copper") == ["µm", "mil"]
+def test_hole_copper_offers_three_units_not_twenty_six():
+    # µm, mil and µin: the three a hole-copper gauge or an inch drawing states (common
+    # practice; the issue's own walk records 1050 µin)
+    assert units.entry_units("hole_wall_copper") == ["µm", "mil", "µin"]
     assert len(units.allowed_units("hole_wall_copper")) > 20  # the API still takes them
 
 
@@ -108,8 +110,8 @@ def test_running_text():
         }
     ]
     assert entry.running_text({1: 26.0, 2: 24.0}, e, 3) == [
-        "mean so far (2 of 3): 25 µm, needs ≥ 25 µm"
+        "mean so far (2 of 3) 25 µm, needs ≥ 25 µm"
     ]
     assert entry.running_text({1: 26.0, 2: 24.0, 3: 22.0}, e, 3) == [
-        "mean of 3 samples: 24 µm, needs ≥ 25 µm — OUTSIDE"
+        "mean of 3 samples 24 µm, needs ≥ 25 µm — OUTSIDE"
     ]
