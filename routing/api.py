@@ -19,19 +19,20 @@ from routing.serializers import (
     PreviewRequestSerializer,
     PreviewSerializer,
 )
-from shopfloor.api_parsers import NulSafeMultiPartParser
-from shopfloor.errors import InvalidInput
-from shopfloor.floor.api import (
+from shopfloor.api_base import (
     IDEMPOTENCY_KEY,
     READ_ERRORS,
     REPLAY_HEADER,
     WRITE_ERRORS,
     JsonAPIView,
+    RolePermission,
     error,
     idempotent,
     parse,
 )
-from shopfloor.floor.permissions import CanEngineer, CanRead, _RolePermission
+from shopfloor.api_parsers import NulSafeMultiPartParser
+from shopfloor.errors import InvalidInput
+from shopfloor.floor.permissions import CanEngineer, CanRead
 from shopfloor.plant.people import person_for
 
 
@@ -95,7 +96,7 @@ class PreviewView(JsonAPIView):
         return Response(services.preview(spec, overrides))
 
 
-class CanImportDesigns(_RolePermission):
+class CanImportDesigns(RolePermission):
     """Design import is process engineering's tool (it reads up to 150 MB per request)."""
 
     roles = frozenset({"process_engineer", "admin"})

@@ -13,37 +13,38 @@ from rest_framework import serializers
 from rest_framework.request import Request
 from rest_framework.response import Response
 
-from shopfloor.chemistry import read, services
-from shopfloor.chemistry.models import Analysis, Tank
-from shopfloor.floor.api import (
+from shopfloor.api_base import (
     ID_IN_PATH,
     IDEMPOTENCY_KEY,
     READ_ERRORS,
     REPLAY_HEADER,
     WRITE_ERRORS,
     JsonAPIView,
+    RolePermission,
     idempotent,
     parse,
 )
-from shopfloor.floor.permissions import READ_ROLES, _RolePermission
+from shopfloor.chemistry import read, services
+from shopfloor.chemistry.models import Analysis, Tank
+from shopfloor.floor.permissions import READ_ROLES
 from shopfloor.plant.people import person_for
 
 
-class CanReadBaths(_RolePermission):
+class CanReadBaths(RolePermission):
     """Tanks, plans, analyses and exposures: every role, no instruments."""
 
     roles = READ_ROLES
     what = "read bath analyses"
 
 
-class CanReadExposure(_RolePermission):
+class CanReadExposure(RolePermission):
     """Exposed lots span every work center: every role but operators."""
 
     roles = READ_ROLES - {"operator"}
     what = "read the lots a bath exposed"
 
 
-class CanEnterAnalyses(_RolePermission):
+class CanEnterAnalyses(RolePermission):
     """Post analyses: lab technicians, process engineers, administrators."""
 
     roles = frozenset(str(r) for r in services.LAB_ROLES)

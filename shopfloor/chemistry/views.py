@@ -1,7 +1,7 @@
 """Lab pages: tanks, analyses, the addition calculator, exposed lots, SPC per parameter.
 
 Thin views: parse the form, call one service, render. Every refusal is a DomainError
-turned into a page by the quality app's `reader` decorator (sign-in, scope, 403/404/400).
+turned into a page by the `reader` decorator (shopfloor.pages) (sign-in, scope, 403/404/400).
 Every screen that leads to an addition shows the caution (services.CAUTION).
 """
 
@@ -23,7 +23,7 @@ from shopfloor.core.chemistry.constants import METALS
 from shopfloor.core.chemistry.errors import ChemistryInputError
 from shopfloor.errors import DomainError, InvalidInput
 from shopfloor.floor.models import LotStep
-from shopfloor.quality.views import reader
+from shopfloor.pages import reader
 
 HISTORY_ROWS = 80  # a busy week of one tank; older entries are in the admin and the audit
 

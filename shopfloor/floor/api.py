@@ -7,22 +7,31 @@ refusal is a DomainError, which shopfloor.api_errors turns into the one error sh
 
 from __future__ import annotations
 
-import json
 from collections.abc import Callable
 from typing import Any
 
-from django.core.serializers.json import DjangoJSONEncoder
 from drf_spectacular.extensions import OpenApiAuthenticationExtension
-from drf_spectacular.types import OpenApiTypes
-from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
-from rest_framework import serializers as drf_serializers
+from drf_spectacular.utils import extend_schema
 from rest_framework.request import Request
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
 from shopfloor.access import require_lot_readable
-from shopfloor.api_parsers import StrictJSONParser
-from shopfloor.errors import InvalidInput
+from shopfloor.api_base import (
+    ID_IN_PATH,
+    IDEMPOTENCY_KEY,
+    LOT_CODE_IN_PATH,
+    READ_ERRORS,
+    REPLAY_HEADER,
+    WRITE_ERRORS,
+    JsonAPIView,
+    error,
+    idempotent,
+    idempotent_batch,
+    json_safe,
+    parse,
+    problems_from,
+)
 from shopfloor.floor import batch, idempotency, readings, services
 from shopfloor.floor.permissions import (
     CanPostReadings,
@@ -34,11 +43,9 @@ from shopfloor.floor.permissions import (
     is_instrument,
 )
 from shopfloor.floor.serializers import (
-    MAX_ID,
     BatchInputSerializer,
     BatchResultSerializer,
     CorrectionInputSerializer,
-    ErrorSerializer,
     LotStatusSerializer,
     LotStepSerializer,
     ReadingInputSerializer,
@@ -70,167 +77,11 @@ class InstrumentTokenScheme(OpenApiAuthenticationExtension):  # type: ignore[no-
         }
 
 
-# --- shared by every API view (routing/api.py uses these too) ------------------------
-
-IDEMPOTENCY_KEY = OpenApiParameter(
-    "Idempotency-Key",
-    OpenApiTypes.STR,
-    OpenApiParameter.HEADER,
-    required=False,
-    description=(
-        "Any unique text up to 100 characters. A repeat with the same key and body gets the "
-        "stored reply (header Idempotent-Replay: true) and records nothing; the same key "
-        "with another body gets 422; a repeat while the first is still running gets 409."
-    ),
-)
-REPLAY_HEADER = OpenApiParameter(
-    "Idempotent-Replay",
-    OpenApiTypes.STR,
-    OpenApiParameter.HEADER,
-    response=True,
-    description="'true' when this reply is the stored reply of an earlier identical request",
-)
-
-
-#: Path parameters as the URL patterns match them (api_urls: <int:pk>, <str:code>), so the
-#: schema does not promise an API answer for a path the URL resolver never routes here.
-ID_IN_PATH = OpenApiParameter(
-    "id",
-    {"type": "integer", "minimum": 0, "maximum": MAX_ID},
-    OpenApiParameter.PATH,
-    description="Record id",
-)
-LOT_CODE_IN_PATH = OpenApiParameter(
-    "code",
-    {"type": "string", "pattern": "^[^/]+$", "maxLength": 30},
-    OpenApiParameter.PATH,
-    description="Lot (traveller) code as scanned",
-)
-
-
-def error(description: str) -> OpenApiResponse:
-    return OpenApiResponse(ErrorSerializer, description=description)
-
-
-READ_ERRORS = {
-    401: error("No credentials (log in, or send 'Authorization: Token <key>')"),
-    403: error("This role or instrument may not do this"),
-    404: error("No such lot, step or reading"),
-}
-WRITE_ERRORS = {
-    400: error("The body has problems; each one listed with field, value and what is allowed"),
-    **READ_ERRORS,
-    409: error("Not possible in the current state (not the current step, on hold, busy key)"),
-    415: error("Send the body as application/json"),
-    422: error("This Idempotency-Key was already used for a different request"),
-}
-
-
-def problems_from(errors: Any, data: Any, prefix: str = "") -> list[dict[str, Any]]:
-    """Serializer errors as the one problem-list shape (field, value, problem)."""
-    problems: list[dict[str, Any]] = []
-    if isinstance(errors, list):
-        for message in errors:
-            if isinstance(message, dict | list):
-                problems += problems_from(message, data, prefix)
-            else:
-                problems.append(
-                    {
-                        "field": prefix or "body",
-                        "value": None,
-                        "problem": str(message),
-                        "allowed": None,
-                    }
-                )
-        return problems
-    for field, messages in errors.items():
-        name = "body" if field == "non_field_errors" else field
-        path = f"{prefix}.{name}" if prefix else name
-        value = data.get(field) if isinstance(data, dict) else None
-        if isinstance(messages, dict):
-            problems += problems_from(messages, value, path)
-            continue
-        for message in messages if isinstance(messages, list) else [messages]:
-            if isinstance(message, dict | list):
-                problems += problems_from(message, value, path)
-            else:
-                problems.append(
-                    {
-                        "field": path,
-                        "value": _json_safe(value),
-                        "problem": str(message),
-                        "allowed": None,
-                    }
-                )
-    return problems
-
-
-def _json_safe(value: Any) -> Any:
-    return json.loads(json.dumps(value, cls=DjangoJSONEncoder, default=str))
-
-
-def parse(serializer_class: type[drf_serializers.Serializer], data: Any) -> dict[str, Any]:
-    """Validate a body; on failure raise InvalidInput listing every problem."""
-    serializer = serializer_class(data=data)
-    if not serializer.is_valid():
-        problems = problems_from(serializer.errors, data)
-        raise InvalidInput(
-            f"The request has {len(problems)} problem(s); nothing was saved.", problems=problems
-        )
-    return dict(serializer.validated_data)
-
-
-def idempotent(request: Request, action: Callable[[], tuple[int, Any]]) -> Response:
-    """Run a state change at most once per Idempotency-Key (shopfloor.floor.idempotency)."""
-
-    def stored_action() -> tuple[int, dict[str, Any]]:
-        status, body = action()
-        return status, _json_safe(body)
-
-    outcome = idempotency.run(
-        user=request.user,
-        key=request.headers.get("Idempotency-Key"),
-        request_fingerprint=idempotency.fingerprint(
-            request.method or "POST", request.path, request.data
-        ),
-        action=stored_action,
-    )
-    response = Response(outcome.body, status=outcome.status)
-    if outcome.replayed:
-        response["Idempotent-Replay"] = "true"
-    return response
-
-
 def _respond(outcome: idempotency.Outcome) -> Response:
     response = Response(outcome.body, status=outcome.status)
     if outcome.replayed:
         response["Idempotent-Replay"] = "true"
     return response
-
-
-def idempotent_batch(request: Request, action: Callable[[], tuple[int, Any]]) -> Response:
-    """Like `idempotent`, but the action runs its own transactions (one per lot step)."""
-
-    def stored_action() -> tuple[int, dict[str, Any]]:
-        status, body = action()
-        return status, _json_safe(body)
-
-    outcome = idempotency.run_in_steps(
-        user=request.user,
-        key=request.headers.get("Idempotency-Key"),
-        request_fingerprint=idempotency.fingerprint(
-            request.method or "POST", request.path, request.data
-        ),
-        action=stored_action,
-    )
-    response = Response(outcome.body, status=outcome.status)
-    if outcome.replayed:
-        response["Idempotent-Replay"] = "true"
-    return response
-
-
-class JsonAPIView(APIView):
-    parser_classes = [StrictJSONParser]
 
 
 # --- readings ------------------------------------------------------------------------
@@ -280,7 +131,7 @@ class ReadingCreateView(JsonAPIView):
                 request.headers.get("Idempotency-Key"),
                 idempotency.fingerprint(request.method or "POST", request.path, request.data),
             ),
-            reply=lambda reading: _json_safe(ReadingSerializer(reading).data),
+            reply=lambda reading: json_safe(ReadingSerializer(reading).data),
             lot_code=data["lot"],
             lot_step_id=data.get("step"),
             # an instrument posts only at its own work center; a person's assignment is

@@ -17,6 +17,7 @@ from rest_framework.request import Request
 
 from shopfloor.access import READ_ROLES as _READ_ROLES
 from shopfloor.access import roles_of
+from shopfloor.api_base import RolePermission, is_instrument
 from shopfloor.errors import NotAllowed
 from shopfloor.floor.models import InstrumentToken, LotStep
 
@@ -33,49 +34,28 @@ ANY_WORK_CENTER_ROLES = frozenset({"supervisor", "admin"})
 __all__ = ["READ_ROLES", "roles_of"]
 
 
-def is_instrument(request: Request) -> bool:
-    return isinstance(getattr(request, "auth", None), InstrumentToken)
-
-
-class _RolePermission(BasePermission):
-    roles: frozenset[str] = frozenset()
-    what = "use this endpoint"
-
-    def has_permission(self, request: Request, view: Any) -> bool:
-        if not request.user or not request.user.is_authenticated:
-            return False  # DRF answers 401 with the authentication scheme
-        if is_instrument(request):
-            self.message = "An instrument token may only post readings (POST /api/v1/readings/)."
-            return False
-        if not roles_of(request.user) & self.roles:
-            allowed = ", ".join(sorted(r.replace("_", " ") for r in self.roles))
-            self.message = f"Only these roles may {self.what}: {allowed}."
-            return False
-        return True
-
-
-class CanRead(_RolePermission):
+class CanRead(RolePermission):
     """Lot status, windows and routing previews: every role, no instruments."""
 
     roles = READ_ROLES
     what = "read lots and preview routings"
 
 
-class CanEngineer(_RolePermission):
+class CanEngineer(RolePermission):
     """Author build specs, draft and release routings: process engineers (and admins)."""
 
     roles = frozenset({"process_engineer", "admin"})
     what = "author build specs and routings"
 
 
-class CanPlan(_RolePermission):
+class CanPlan(RolePermission):
     """Enter jobs and release them to the floor: planners (and administrators)."""
 
     roles = PLAN_ROLES
     what = "enter and release jobs"
 
 
-class CanWorkSteps(_RolePermission):
+class CanWorkSteps(RolePermission):
     """Start, pause, complete steps and correct readings: floor roles only (people)."""
 
     roles = FLOOR_ROLES

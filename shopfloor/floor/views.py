@@ -28,6 +28,7 @@ from django.views.decorators.http import require_GET, require_http_methods, requ
 
 from shopfloor import access as read_scope
 from shopfloor import throttle
+from shopfloor.api_base import problems_from
 from shopfloor.core import entry as entry_words
 from shopfloor.core import judging, units
 from shopfloor.errors import DomainError, InvalidInput, NotFound
@@ -41,7 +42,6 @@ from shopfloor.floor import (
     traveller,
     words,
 )
-from shopfloor.floor.api import problems_from
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.floor.permissions import FLOOR_ROLES, check_work_center, roles_of
 from shopfloor.floor.serializers import batch_items

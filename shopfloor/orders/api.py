@@ -15,8 +15,7 @@ from rest_framework.response import Response
 from rest_framework.views import APIView
 
 from shopfloor.access import scope_for
-from shopfloor.errors import InvalidInput
-from shopfloor.floor.api import (
+from shopfloor.api_base import (
     IDEMPOTENCY_KEY,
     READ_ERRORS,
     REPLAY_HEADER,
@@ -26,6 +25,7 @@ from shopfloor.floor.api import (
     idempotent,
     parse,
 )
+from shopfloor.errors import InvalidInput
 from shopfloor.floor.permissions import CanPlan, CanRead
 from shopfloor.orders import read, services
 from shopfloor.orders import serializers as s

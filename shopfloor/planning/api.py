@@ -8,12 +8,12 @@ from rest_framework.request import Request
 from rest_framework.response import Response
 
 from routing.builder.spec import EXAMPLE_SPEC
-from shopfloor.floor.api import READ_ERRORS, JsonAPIView, error
-from shopfloor.floor.permissions import _RolePermission, roles_of
+from shopfloor.api_base import READ_ERRORS, JsonAPIView, RolePermission, error
+from shopfloor.floor.permissions import roles_of
 from shopfloor.planning import services
 
 
-class CanPlan(_RolePermission):
+class CanPlan(RolePermission):
     roles = services.PLANNING_ROLES
     what = "quote ship dates"
 

@@ -16,13 +16,10 @@ from routing.builder.spec import EXAMPLE_SPECS
 from shopfloor import strict_json
 from shopfloor.errors import DomainError
 from shopfloor.floor.permissions import roles_of
+from shopfloor.pages import refusal
 from shopfloor.planning import services
 
 QUOTE_FIELDS = ("quantity", "priority", "boards_per_panel", "panels_per_lot")
-
-
-def _refused(request: HttpRequest, exc: DomainError) -> HttpResponse:
-    return render(request, "403.html", {"reason": exc.detail}, status=exc.status)
 
 
 @require_http_methods(["GET", "POST"])
@@ -34,7 +31,7 @@ def quote_page(request: HttpRequest) -> HttpResponse:
     try:
         services.require_planning(roles, "quote a ship date")
     except DomainError as exc:
-        return _refused(request, exc)
+        return refusal(request, exc)
     form: dict[str, Any] = {
         "spec": json.dumps(EXAMPLE_SPECS["two_layer"], indent=2),
         "quantity": "400",
@@ -71,6 +68,6 @@ def run_now(request: HttpRequest) -> HttpResponse:
     try:
         note = services.request_forecast(roles_of(request.user), request.user.pk)
     except DomainError as exc:
-        return _refused(request, exc)
+        return refusal(request, exc)
     messages.info(request, note)
     return redirect(reverse("quality:board"))

@@ -7,14 +7,11 @@ Every refusal is a DomainError turned into a page (or JSON) with its status and 
 from __future__ import annotations
 
 import datetime as dt
-from collections.abc import Callable
-from functools import wraps
 from typing import Any
 from zoneinfo import ZoneInfo
 
 from django.conf import settings
 from django.contrib import messages
-from django.contrib.auth.views import redirect_to_login
 from django.http import (
     HttpRequest,
     HttpResponse,
@@ -33,37 +30,13 @@ from shopfloor.core.judging import describe_window
 from shopfloor.core.yields import overall_yield as rolled_yield
 from shopfloor.errors import Conflict, DomainError, InvalidInput
 from shopfloor.orders import read as orders_read
+from shopfloor.pages import reader, refusal
 from shopfloor.planning import services as planning
 from shopfloor.planning.services import PLANNING_ROLES
 from shopfloor.quality import access
-from shopfloor.quality.access import Scope, scope_for
+from shopfloor.quality.access import Scope
 from shopfloor.quality.read import board, charts, exports, genealogy, history, search, spc_series
 from shopfloor.quality.services import deadlines, dispositions, limits, queue
-
-View = Callable[..., HttpResponseBase]
-
-
-def _refusal(request: HttpRequest, exc: DomainError) -> HttpResponse:
-    template = {403: "403.html", 404: "404.html"}.get(exc.status, "quality/refusal.html")
-    return render(
-        request, template, {"reason": exc.detail, "problems": exc.problems}, status=exc.status
-    )
-
-
-def reader(view: View) -> View:
-    """Sign-in required; the reader's scope is passed in; domain errors become pages."""
-
-    @wraps(view)
-    def wrapped(request: HttpRequest, *args: Any, **kwargs: Any) -> HttpResponseBase:
-        if not request.user.is_authenticated:
-            return redirect_to_login(request.get_full_path())
-        try:
-            return view(request, scope_for(request.user), *args, **kwargs)
-        except DomainError as exc:
-            return _refusal(request, exc)
-
-    return wrapped
-
 
 # --- board ----------------------------------------------------------------------------
 
@@ -113,7 +86,7 @@ def queue_move(request: HttpRequest, scope: Scope, work_center_id: int) -> HttpR
     move, _, step_raw = request.POST.get("move", "").partition(":")
     step_id = parsing.whole_or_none(step_raw or request.POST.get("lot_step"))
     if step_id is None:
-        return _refusal(request, InvalidInput("Pick a lot to move (lot_step is missing)."))
+        return refusal(request, InvalidInput("Pick a lot to move (lot_step is missing)."))
     queue.move_in_queue(scope.actor, work_center_id, step_id, move)
     return redirect(reverse("quality:board") + _back_query(request))
 
@@ -361,11 +334,11 @@ def spc_limits(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
             raise InvalidInput(f"Unknown action {action!r}; use fix, recompute or rules.")
     except DomainError as exc:
         if exc.status == 404 or (exc.status == 403 and "quality_engineer" not in scope.roles):
-            return _refusal(request, exc)  # no such series, or the wrong role: say why
+            return refusal(request, exc)  # no such series, or the wrong role: say why
         try:
             ctx = _spc_context(scope, key)
         except DomainError:
-            return _refusal(request, exc)
+            return refusal(request, exc)
         ctx.update(
             limits_error=exc.detail,
             limits_action=action,
@@ -504,7 +477,7 @@ def ncr_page(request: HttpRequest, scope: Scope, number: str) -> HttpResponse:
         )
     except DomainError as exc:
         if exc.status == 403 and "quality_engineer" not in scope.roles:
-            return _refusal(request, exc)  # wrong role: the 403 page says why
+            return refusal(request, exc)  # wrong role: the 403 page says why
         ctx = _ncr_context(scope, number)
         entered_actions = {
             k.removeprefix("action-"): v for k, v in request.POST.items() if k.startswith("action-")

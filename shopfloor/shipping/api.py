@@ -17,23 +17,20 @@ from rest_framework.request import Request
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
-from shopfloor.floor import services as floor
-from shopfloor.floor.api import (
+from shopfloor.api_base import (
     ID_IN_PATH,
     IDEMPOTENCY_KEY,
     READ_ERRORS,
     REPLAY_HEADER,
     WRITE_ERRORS,
     JsonAPIView,
+    RolePermission,
     error,
     idempotent,
     parse,
 )
-from shopfloor.floor.permissions import (
-    CanWorkSteps,
-    _RolePermission,
-    access_step,
-)
+from shopfloor.floor import services as floor
+from shopfloor.floor.permissions import CanWorkSteps, access_step
 from shopfloor.plant import people
 from shopfloor.quality.services import dispositions
 from shopfloor.shipping import services
@@ -42,17 +39,17 @@ SHIP_ROLES = frozenset({"planner", "admin"})
 CERT_READ_ROLES = frozenset({"planner", "quality_engineer", "supervisor", "admin"})
 
 
-class CanShip(_RolePermission):
+class CanShip(RolePermission):
     roles = SHIP_ROLES
     what = "ship jobs"
 
 
-class CanReadCertificates(_RolePermission):
+class CanReadCertificates(RolePermission):
     roles = CERT_READ_ROLES
     what = "read certificates of conformance"
 
 
-class CanDisposition(_RolePermission):
+class CanDisposition(RolePermission):
     roles = frozenset({"quality_engineer"})
     what = "disposition nonconformances"
 

@@ -18,6 +18,7 @@ from django.views.decorators.http import require_GET, require_http_methods
 from shopfloor.errors import DomainError, InvalidInput, NotAllowed
 from shopfloor.floor.models import AcceptedQuantity
 from shopfloor.floor.permissions import roles_of
+from shopfloor.pages import refusal
 from shopfloor.plant.models import Job, Person
 from shopfloor.plant.people import person_for
 from shopfloor.shipping import services
@@ -43,13 +44,7 @@ def shipping_reader(view: Callable[..., HttpResponse]) -> Callable[..., HttpResp
                 )
             return view(request, person, roles, *args, **kwargs)
         except DomainError as exc:
-            template = {403: "403.html", 404: "404.html"}.get(exc.status, "quality/refusal.html")
-            return render(
-                request,
-                template,
-                {"reason": exc.detail, "problems": exc.problems},
-                status=exc.status,
-            )
+            return refusal(request, exc)
 
     return wrapped
 
