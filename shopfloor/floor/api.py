@@ -33,6 +33,7 @@ from shopfloor.api_base import (
     problems_from,
 )
 from shopfloor.floor import batch, idempotency, readings, services
+from shopfloor.floor.models import LotStep
 from shopfloor.floor.permissions import (
     CanPostReadings,
     CanRead,
@@ -313,7 +314,7 @@ class LotWindowsView(APIView):
     def get(self, request: Request, code: str) -> Response:
         lot = services.find_lot(code)
         require_lot_readable(request.user, lot)  # the one read-scope rule (shopfloor.access)
-        step = services.current_step(lot)
+        step = LotStep.objects.current_for(lot)
         windows = [window_dict(m) for m in (step.plan if step else [])]
         return Response(
             StepWindowsSerializer({"lot": lot.code, "step": step, "windows": windows}).data

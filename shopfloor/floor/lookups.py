@@ -36,7 +36,7 @@ def find_lot(code: str) -> Lot:
     code = (code or "").strip()
     if not code:
         raise InvalidInput("Scan or type a lot code.")
-    lot = Lot.objects.select_related("routing_revision").filter(code__iexact=code).first()
+    lot = Lot.objects.select_related("routing_revision").with_code(code).first()
     if lot is None:
         raise NotFound(f"No lot with code {code!r}. Check the traveller label and scan again.")
     return lot
@@ -47,38 +47,18 @@ def find_current_step(code: str) -> LotStep:
 
     Raises NotFound for an unknown lot and Conflict for a lot with no open step.
     """
-    code = (code or "").strip()
-    step = (
-        LotStep.objects.filter(lot__code__iexact=code)
-        .exclude(status__in=[LotStep.Status.DONE, LotStep.Status.SKIPPED])
-        .order_by("position")
-        .select_related("lot", "work_center")
-        .first()
-        if code
-        else None
-    )
+    step = LotStep.objects.current_for_code(code)
     if step is None:
         lot = find_lot(code)  # says why: no code, no such lot, or nothing left to do
         raise Conflict(f"Lot {lot.code} has no open step (it is {lot.get_status_display()}).")
     return step
 
 
-def current_step(lot: Lot) -> LotStep | None:
-    """The first step of the lot's route that is not done (or skipped)."""
-    return (
-        LotStep.objects.filter(lot=lot)
-        .exclude(status__in=[LotStep.Status.DONE, LotStep.Status.SKIPPED])
-        .order_by("position")
-        .select_related("work_center")
-        .first()
-    )
-
-
 def lock_step(lot_step_id: int) -> tuple[LotStep, Lot]:
     """Lock the step and its lot (one query) and note whether an earlier step is open."""
     earlier_open = LotStep.objects.filter(
         lot_id=OuterRef("lot_id"), position__lt=OuterRef("position")
-    ).exclude(status__in=[LotStep.Status.DONE, LotStep.Status.SKIPPED])
+    ).open()
     step = (
         LotStep.objects.select_related("lot")
         .select_for_update(no_key=True, of=("self", "lot"))
@@ -109,10 +89,8 @@ def require_workable(
         )
     if lot.status in {Lot.Status.COMPLETE, Lot.Status.SCRAPPED}:
         raise Conflict(f"Lot {lot.code} is {lot.get_status_display().lower()}; nothing to do.")
-    if step.status in {LotStep.Status.DONE, LotStep.Status.SKIPPED} or getattr(
-        step, "earlier_step_open", True
-    ):
-        current = current_step(lot)  # only to say where the lot is
+    if not step.is_open or getattr(step, "earlier_step_open", True):
+        current = LotStep.objects.current_for(lot)  # only to say where the lot is
         where = f"'{current.name}' at {current.work_center.name}" if current else "none"
         raise Conflict(
             f"'{step.name}' is not the lot's current step. The lot is at {where}; steps run "

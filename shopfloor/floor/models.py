@@ -158,7 +158,8 @@ class LotStep(models.Model):
 
     @property
     def is_open(self) -> bool:
-        return self.status in {self.Status.WAITING, self.Status.IN_PROGRESS, self.Status.PAUSED}
+        """Not yet done nor skipped (the same rule as LotStep.objects.open())."""
+        return self.status in OPEN_STEP_STATUSES
 
 
 # The statuses of an open step (LotStepQuerySet.open is the one place that uses them).

@@ -108,10 +108,9 @@ def access_lot_step(request: Request, lot: Any, step_id: int | None) -> LotStep:
     NotAllowed when the step is at a work center the caller does not work at.
     """
     from shopfloor.errors import Conflict, NotFound
-    from shopfloor.floor import services
 
     if step_id is None:
-        step = services.current_step(lot)
+        step = LotStep.objects.current_for(lot)
         if step is None:
             raise Conflict(f"Lot {lot.code} has no open step (it is {lot.get_status_display()}).")
     else:

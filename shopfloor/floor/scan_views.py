@@ -20,7 +20,7 @@ from django.shortcuts import redirect, render
 from django.views.decorators.http import require_GET, require_POST
 
 from shopfloor.errors import DomainError, InvalidInput, NotFound
-from shopfloor.floor import forms, services, views
+from shopfloor.floor import forms, views
 from shopfloor.floor.models import LotStep
 from shopfloor.orders.read import lots_for_scan
 from shopfloor.plant.models import Lot, MaterialLot, Person
@@ -40,7 +40,7 @@ def choices_for(person: Person, lots: list[Lot]) -> list[ScanChoice]:
     mine = set(person.work_centers.values_list("pk", flat=True))
     out = []
     for lot in lots:
-        step = services.current_step(lot)
+        step = LotStep.objects.current_for(lot)
         out.append(ScanChoice(lot, step, step is not None and step.work_center_id in mine))
     return sorted(out, key=lambda c: (not c.here, c.lot.code))
 

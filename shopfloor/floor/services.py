@@ -22,7 +22,6 @@ from shopfloor.errors import Conflict, InvalidInput
 from shopfloor.floor.lookups import (
     MAX_CAPTURE_AGE,
     MAX_CLOCK_SKEW,
-    current_step,
     find_current_step,
     find_lot,
     lock_step,
@@ -81,7 +80,6 @@ __all__ = [
     "boards_scrapped_on_live_panels",
     "complete_step",
     "correct_reading",
-    "current_step",
     "find_current_step",
     "find_lot",
     "is_final_inspection",
@@ -260,7 +258,7 @@ def complete_step(
         )
         step.signature = sig
         step.save()
-        nxt = current_step(lot)
+        nxt = LotStep.objects.current_for(lot)
         if nxt is None:
             lot.status = Lot.Status.COMPLETE
             lot.completed_at = now

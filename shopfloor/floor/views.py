@@ -50,9 +50,6 @@ from shopfloor.plant import people
 from shopfloor.plant.models import Equipment, Lot, Person, WorkCenter
 from shopfloor.quality import access
 
-OPEN_STATUSES = [LotStep.Status.WAITING, LotStep.Status.IN_PROGRESS, LotStep.Status.PAUSED]
-
-
 # --- login --------------------------------------------------------------------------
 
 
@@ -127,11 +124,12 @@ class QueueRow:
 def _queue(wc: WorkCenter) -> list[QueueRow]:
     """Lot steps waiting here: each lot's first open step, if that step is at this center."""
     earlier_open = LotStep.objects.filter(
-        lot=OuterRef("lot"), position__lt=OuterRef("position"), status__in=OPEN_STATUSES
-    )
+        lot=OuterRef("lot"), position__lt=OuterRef("position")
+    ).open()
     steps = list(
-        LotStep.objects.filter(work_center=wc, status__in=OPEN_STATUSES)
-        .exclude(lot__status__in=[Lot.Status.COMPLETE, Lot.Status.SCRAPPED])
+        LotStep.objects.filter(work_center=wc)
+        .open()
+        .filter(lot__status__in=Lot.ACTIVE_STATUSES)
         .exclude(Exists(earlier_open))
         .select_related("lot")
         .order_by("queue_priority", "lot__priority", "arrived_at", "lot__code")
@@ -423,7 +421,7 @@ def _step_records(lot: Lot, step: LotStep | None) -> dict[str, Any]:
 def _lot_context(lot: Lot, person: Person) -> dict[str, Any]:
     lot.refresh_from_db()
     data = traveller.traveller_data(lot)
-    step = services.current_step(lot)
+    step = LotStep.objects.current_for(lot)
     return {
         **_step_records(lot, step),
         "lot": lot,
@@ -442,9 +440,7 @@ def _lot_context(lot: Lot, person: Person) -> dict[str, Any]:
 
 def _lot_or_none(code: str) -> Lot | None:
     return (
-        Lot.objects.select_related("routing_revision__part_revision__part")
-        .filter(code=code)
-        .first()
+        Lot.objects.select_related("routing_revision__part_revision__part").with_code(code).first()
     )
 
 

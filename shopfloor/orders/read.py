@@ -219,10 +219,8 @@ def _current_steps(lot_ids: list[int]) -> dict[int, str]:
 
     out: dict[int, str] = {}
     for lot_id, name in (
-        LotStep.objects.filter(
-            lot_id__in=lot_ids,
-            status__in=[LotStep.Status.WAITING, LotStep.Status.IN_PROGRESS, LotStep.Status.PAUSED],
-        )
+        LotStep.objects.filter(lot_id__in=lot_ids)
+        .open()
         .order_by("lot_id", "position")
         .values_list("lot_id", "name")
     ):
@@ -329,7 +327,7 @@ def lots_for_scan(code: str) -> list[Lot]:
     code = (code or "").strip()
     if not code or parsing.has_nul(code):
         raise InvalidInput("Scan or type a lot code, panel serial or job number.")
-    lot = Lot.objects.filter(code__iexact=code).first()
+    lot = Lot.objects.with_code(code).first()
     if lot is not None:
         return [lot]
     panel = Panel.objects.select_related("lot").filter(serial__iexact=code).first()
@@ -338,9 +336,7 @@ def lots_for_scan(code: str) -> list[Lot]:
     job = Job.objects.filter(number__iexact=code).first()
     if job is not None:
         lots = list(Lot.objects.filter(panels__images__job=job).distinct().order_by("code"))
-        open_lots = [
-            lot for lot in lots if lot.status in (Lot.Status.NOT_STARTED, Lot.Status.IN_PROCESS)
-        ]
+        open_lots = [lot for lot in lots if lot.status in Lot.ACTIVE_STATUSES]
         if lots:
             return open_lots or lots
         raise NotFound(f"Job {job.number} is not released to the floor yet, so it has no lots.")

@@ -269,9 +269,7 @@ def job_makeup(request: HttpRequest, number: str) -> HttpResponse:
 def lot_label(request: HttpRequest, code: str) -> HttpResponse:
     _reader(request)
     lot = (
-        Lot.objects.select_related("routing_revision__part_revision__part")
-        .filter(code__iexact=code)
-        .first()
+        Lot.objects.select_related("routing_revision__part_revision__part").with_code(code).first()
     )
     if lot is None:
         return render(request, "404.html", {"reason": f"No lot {code!r}."}, status=404)

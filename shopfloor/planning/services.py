@@ -49,8 +49,7 @@ log = logging.getLogger("shopfloor.planning")
 #: The forecast task, queued by name (services never import tasks; see quality.outbox).
 RUN_FORECAST = "shopfloor.planning.tasks.run_forecast"
 
-ACTIVE_LOT = (Lot.Status.NOT_STARTED, Lot.Status.IN_PROCESS)
-OPEN_STEP = (LotStep.Status.WAITING, LotStep.Status.IN_PROGRESS, LotStep.Status.PAUSED)
+ACTIVE_LOT = Lot.ACTIVE_STATUSES
 # Measured times older than this are not read: the floor changes (new machines, recipes).
 HISTORY_DAYS = 180
 # Finished runs kept (the newest is read; older ones show how forecasts moved).
@@ -154,7 +153,8 @@ def wip_lots() -> tuple[list[fc.WipLot], dict[str, int], dict[str, int]]:
     """Every active lot with its open steps (current first), and the ids of lots and jobs
     by code / number. Two queries."""
     rows = (
-        LotStep.objects.filter(status__in=OPEN_STEP, lot__status__in=ACTIVE_LOT)
+        LotStep.objects.open()
+        .filter(lot__status__in=ACTIVE_LOT)
         .order_by("lot_id", "position")
         .values_list(
             "lot_id",

@@ -301,6 +301,11 @@ class LotQuerySet(models.QuerySet["Lot"]):
         ignored. The index plant_lot_code_upper serves this look-up."""
         return self.filter(code__iexact=(code or "").strip())
 
+    def with_codes(self, codes: list[str]) -> LotQuerySet:
+        """The lots with any of these traveller codes, matched as `with_code` matches."""
+        wanted = sorted({(c or "").strip().upper() for c in codes})
+        return self.alias(code_upper=Upper("code")).filter(code_upper__in=wanted)
+
     def active(self) -> LotQuerySet:
         """Lots still on the floor: not started or in process."""
         return self.filter(status__in=Lot.ACTIVE_STATUSES)

@@ -158,7 +158,7 @@ def lot_problems(lot: Lot, job: Job) -> list[dict[str, Any]]:
     if lot.on_hold:
         add(f"lot {lot.code} is on hold")
     steps = list(lot.steps.order_by("position").select_related("work_center"))
-    open_steps = [s for s in steps if s.status not in (LotStep.Status.DONE, LotStep.Status.SKIPPED)]
+    open_steps = [s for s in steps if s.is_open]
     if open_steps or lot.status != Lot.Status.COMPLETE:
         names = ", ".join(f"'{s.name}'" for s in open_steps[:5])
         more = f" and {len(open_steps) - 5} more" if len(open_steps) > 5 else ""
@@ -233,7 +233,7 @@ def ship(*, person: Person, job_number: str, quantity: Any, lot_codes: Any) -> C
     with transaction.atomic():
         job = find_job(job_number)
         Job.objects.select_for_update(no_key=True).filter(pk=job.pk).first()  # one at a time
-        lots = {lot.code.upper(): lot for lot in Lot.objects.filter(code__in=codes)}
+        lots = {lot.code.upper(): lot for lot in Lot.objects.with_codes(codes)}
         problems: list[dict[str, Any]] = []
         for code in codes:
             if code.upper() not in lots:

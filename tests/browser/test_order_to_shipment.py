@@ -26,6 +26,7 @@ from django.utils import timezone
 from playwright.sync_api import expect
 
 from shopfloor.floor import services as floor_services
+from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Job, Lot, MaterialLot, PartRevision
 from shopfloor.quality.models import Nonconformance
 from shopfloor.quality.services import alerts
@@ -177,10 +178,10 @@ def test_order_to_shipment_in_the_browser(persona_page, floor, shoot, tmp_path):
     shoot(qe, "e2e-07-ncr-decided")
     floor_services.complete_step(person=operator, lot_step_id=aoi.pk, pin=PIN)
     # the rework runs: repair, then verify (zero defects), then the route goes on
-    repair = floor_services.current_step(lot)
+    repair = LotStep.objects.current_for(lot)
     assert repair.is_rework and panels[0].serial in repair.instructions
     helpers.finish_step(operator, repair)
-    helpers.finish_step(operator, floor_services.current_step(lot))
+    helpers.finish_step(operator, LotStep.objects.current_for(lot))
 
     # --- final inspection on the tablet: readings and the accepted quantity ---------------
     final = _finish_until(lot, operator, "final_inspection")
@@ -193,7 +194,7 @@ def test_order_to_shipment_in_the_browser(persona_page, floor, shoot, tmp_path):
     expect(tablet.locator(".notice.success")).to_contain_text(f"{good} of job {job.number}")
     shoot(tablet, "e2e-08-final-inspection")
     _sign(tablet)
-    helpers.finish_step(operator, floor_services.current_step(lot))  # pack
+    helpers.finish_step(operator, LotStep.objects.current_for(lot))  # pack
     lot.refresh_from_db()
     assert lot.status == "complete"
 

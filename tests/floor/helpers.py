@@ -99,7 +99,7 @@ def out_of_window_value(m: dict) -> float:
 def advance_to(lot: Lot, person: Person, want) -> LotStep:
     """Complete steps in routing order until `want(step)` holds for the current step."""
     for _ in range(200):  # bounded: a route is far shorter than this
-        step = services.current_step(lot)
+        step = LotStep.objects.current_for(lot)
         assert step is not None, "route ended before a matching step"
         if want(step):
             return step

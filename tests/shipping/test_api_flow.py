@@ -22,6 +22,7 @@ from django.utils import timezone
 from rest_framework.test import APIClient
 
 from shopfloor.floor import services as floor_services
+from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import MaterialLot
 from shopfloor.quality.models import Nonconformance, OutboxEvent
 from shopfloor.quality.services import alerts
@@ -175,7 +176,7 @@ def test_order_to_shipment_through_the_api(floor, materials, tmp_path):
 
     # --- operators work every step; expired prepreg is refused at layup
     for _ in range(200):
-        step = floor_services.current_step(lot)
+        step = LotStep.objects.current_for(lot)
         if step is None:
             break
         if step.code.startswith("layup"):

@@ -125,7 +125,7 @@ def find_lot_for(scope: Scope, code: str) -> Lot:
     code = (code or "").strip()
     lot = (
         Lot.objects.select_related("routing_revision__part_revision__part__customer", "split_from")
-        .filter(code__iexact=code)
+        .with_code(code)
         .first()
     )
     if lot is None:

@@ -294,7 +294,7 @@ class Command(BaseCommand):
                 panels=j["panels"],
             )
         for _ in range(j["advance"]):
-            step = floor.current_step(lot)
+            step = LotStep.objects.current_for(lot)
             if step is None:
                 break
             if j.get("hold") and step.plan:
@@ -336,12 +336,12 @@ class Command(BaseCommand):
             )
         if j.get("hold"):
             # no measured step reached within 'advance'; find the next measured one
-            step = floor.current_step(lot)
+            step = LotStep.objects.current_for(lot)
             while step is not None and not step.plan:
                 floor.start_step(person=operator, lot_step_id=step.pk)
                 self._materials(step, operator)
                 floor.complete_step(person=operator, lot_step_id=step.pk, pin=pin)
-                step = floor.current_step(lot)
+                step = LotStep.objects.current_for(lot)
             if step is not None:
                 self._hold(lot, step, operator)
 
