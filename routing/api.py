@@ -19,6 +19,7 @@ from routing.serializers import (
     PreviewRequestSerializer,
     PreviewSerializer,
 )
+from shopfloor.access import ENGINEER_ROLES
 from shopfloor.api_base import (
     IDEMPOTENCY_KEY,
     READ_ERRORS,
@@ -99,7 +100,7 @@ class PreviewView(JsonAPIView):
 class CanImportDesigns(RolePermission):
     """Design import is process engineering's tool (it reads up to 150 MB per request)."""
 
-    roles = frozenset({"process_engineer", "admin"})
+    roles = ENGINEER_ROLES
     what = "import design files"
 
 

@@ -25,13 +25,14 @@ from routing.builder.design_import import ImportResult, cross_section_svg
 from routing.builder.spec import EXAMPLE_SPEC
 from routing.models import RoutingRevision
 from shopfloor import strict_json
+from shopfloor.access import ENGINEER_ROLES
 from shopfloor.core import units
 from shopfloor.errors import DomainError
 from shopfloor.floor.permissions import READ_ROLES, roles_of
 from shopfloor.htmx import is_htmx
 from shopfloor.plant.models import Lot, PartRevision
 
-CHANGE_ROLES = frozenset({"process_engineer", "admin"})
+CHANGE_ROLES = ENGINEER_ROLES
 
 
 def _require_reader(request: HttpRequest) -> frozenset[str]:

@@ -27,7 +27,7 @@ from dataclasses import dataclass
 from enum import Enum
 from typing import Any
 
-from django.db.models import Exists, OuterRef, QuerySet
+from django.db.models import Exists, OuterRef, Q, QuerySet
 
 from shopfloor.errors import NotAllowed
 from shopfloor.floor.models import LotStep
@@ -54,6 +54,12 @@ READ_SCOPE_BY_ROLE: dict[str, Reach] = {
 }
 FULL_READ_ROLES = frozenset(r for r, reach in READ_SCOPE_BY_ROLE.items() if reach is Reach.ALL)
 READ_ROLES = frozenset(READ_SCOPE_BY_ROLE)
+#: Roles that work lots on the floor (start, pause, complete, record readings).
+FLOOR_ROLES = frozenset({Role.OPERATOR, Role.SUPERVISOR, Role.ADMIN})
+#: Roles that enter jobs, release them to the floor and ship them.
+PLAN_ROLES = frozenset({Role.PLANNER, Role.ADMIN})
+#: Roles that author build specs, routings and design imports.
+ENGINEER_ROLES = frozenset({Role.PROCESS_ENGINEER, Role.ADMIN})
 #: "Supervisor or administrator": reorders queues, releases queue-time warnings, sees and
 #: unlocks locked badges, records and signs at any work center. The one spelling of it.
 SUPERVISING_ROLES = frozenset({Role.SUPERVISOR, Role.ADMIN})
@@ -76,12 +82,36 @@ def is_supervising(person: Person) -> bool:
     return has_role(person, SUPERVISING_ROLES)
 
 
+def require_role(person: Person, roles: frozenset[str], what: str) -> None:
+    """Refuse (403) a badge without any of `roles`, naming the roles that may."""
+    if not has_role(person, roles):
+        who = ", ".join(sorted(r.replace("_", " ") for r in roles))
+        raise NotAllowed(f"Only these roles may {what}: {who}.")
+
+
+def holds_role_q(roles: frozenset[str], user_path: str = "user__") -> Q:
+    """The same rule as `has_role`, as a filter on a query of people (or of anything with
+    a user at `user_path`): a member of one of `roles`, or a superuser when ``admin`` is
+    one of them. For checks that must stay inside one query."""
+    q = Q(**{f"{user_path}groups__name__in": sorted(roles)})
+    if Role.ADMIN in roles:
+        q |= Q(**{f"{user_path}is_superuser": True})
+    return q
+
+
+def is_superuser(user: Any) -> bool:
+    """The one superuser rule, for checks that must not query: a superuser is an
+    administrator everywhere (`roles_of` adds ``admin`` for one, `holds_role_q` matches
+    one when ``admin`` is among the roles)."""
+    return bool(getattr(user, "is_superuser", False))
+
+
 def roles_of(user: Any) -> frozenset[str]:
     """The role names of a user; a superuser counts as ``admin``. Empty when signed out."""
     if user is None or not getattr(user, "is_authenticated", False):
         return frozenset()
     names = set(user.groups.values_list("name", flat=True))
-    if getattr(user, "is_superuser", False):
+    if is_superuser(user):
         names.add(Role.ADMIN.value)
     return frozenset(names)
 

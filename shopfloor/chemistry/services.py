@@ -18,6 +18,7 @@ from django.db import transaction
 from django.utils import timezone
 from django.utils.dateparse import parse_datetime
 
+from shopfloor import access
 from shopfloor.audit import services as audit
 from shopfloor.chemistry.models import (
     Analysis,
@@ -86,23 +87,6 @@ def base_code(code: str) -> str:
     """A routing step's code without its lamination-cycle suffix ('panel_plate_c1' ->
     'panel_plate'): sub-assembly cycles repeat the same wet steps in the same tanks."""
     return re.sub(r"_c\d+$", "", code or "")
-
-
-def roles_of(person: Person) -> frozenset[str]:
-    """The person's roles by the one rule (a superuser counts as admin)."""
-    from shopfloor.access import roles_of as account_roles
-
-    return account_roles(person.user)
-
-
-def _require(person: Person, allowed: frozenset[str], what: str) -> None:
-    if not roles_of(person) & allowed:
-        who = ", ".join(sorted(r.replace("_", " ") for r in allowed))
-        raise NotAllowed(f"Only these roles may {what}: {who}.")
-
-
-def may(person: Person, allowed: frozenset[str]) -> bool:
-    return bool(roles_of(person) & allowed)
 
 
 def require_sees_all_lots(scope: Any) -> None:
@@ -186,7 +170,7 @@ def record_analysis(
     raised that names the lots exposed since the last in-window analysis. In window: the
     parameter's due and overdue alerts close.
     """
-    _require(person, LAB_ROLES, "enter bath analyses")
+    access.require_role(person, LAB_ROLES, "enter bath analyses")
     from shopfloor.quality.models import Alert
     from shopfloor.quality.services import alerts
 
@@ -320,7 +304,7 @@ def _drift_alert(analysis: Analysis) -> None:
 def hold_exposed_lots(*, person: Person, analysis_id: int) -> list[Lot]:
     """Hold every exposed lot (not scrapped, not already held for this analysis) with an
     NCR each, so quality reviews them; returns the lots newly held."""
-    _require(person, HOLD_ROLES, "hold the lots a bath touched")
+    access.require_role(person, HOLD_ROLES, "hold the lots a bath touched")
     from shopfloor.quality.models import Alert
     from shopfloor.quality.services import alerts
 
@@ -476,7 +460,7 @@ def record_event(
     one entered by a lab technician waits for an engineer's confirmation
     (`confirm_event`). A make-up restarts the tank's age (turnovers, exposure start).
     """
-    _require(person, LAB_ROLES, "record additions, dumps and make-ups")
+    access.require_role(person, LAB_ROLES, "record additions, dumps and make-ups")
     kind = _event_kind(kind)
     tank = get_tank(tank_code)
     param = get_parameter(tank, parameter) if parameter not in (None, "") else None
@@ -513,7 +497,7 @@ def record_event(
         raise InvalidInput("A counter reading needs the amp-hours shown on the rectifier.")
     _verify_pin(person, pin)
     now = timezone.now()
-    confirms = may(person, CONFIRM_ROLES) or kind != TankEvent.Kind.ADDITION
+    confirms = access.has_role(person, CONFIRM_ROLES) or kind != TankEvent.Kind.ADDITION
     with transaction.atomic():
         event = TankEvent.objects.create(
             tank=tank,
@@ -553,7 +537,7 @@ def record_event(
 
 def confirm_event(*, person: Person, event_id: int, pin: str) -> TankEvent:
     """An engineer confirms a lab technician's addition (who and when, signed with the PIN)."""
-    _require(person, CONFIRM_ROLES, "confirm additions")
+    access.require_role(person, CONFIRM_ROLES, "confirm additions")
     _verify_pin(person, pin)
     with transaction.atomic():
         event = (
@@ -685,7 +669,7 @@ def compute_plating(
 ) -> PlatingSetup:
     """Compute a plating step's rectifier amps and minutes (Faraday's law) and show them
     as step parameters. The area is the one entered, else the job's design data."""
-    _require(person, PLATING_ROLES, "set plating areas")
+    access.require_role(person, PLATING_ROLES, "set plating areas")
     with transaction.atomic():
         step = (
             LotStep.objects.select_for_update(no_key=True).filter(pk=lot_step_id).first()

@@ -15,20 +15,22 @@ from typing import Any
 from rest_framework.permissions import BasePermission
 from rest_framework.request import Request
 
+from shopfloor.access import (
+    ENGINEER_ROLES,
+    FLOOR_ROLES,
+    PLAN_ROLES,
+    SUPERVISING_ROLES,
+    roles_of,
+)
 from shopfloor.access import READ_ROLES as _READ_ROLES
-from shopfloor.access import roles_of
 from shopfloor.api_base import RolePermission, is_instrument
 from shopfloor.errors import NotAllowed
 from shopfloor.floor.models import InstrumentToken, LotStep
 
-#: Roles that work lots on the floor (start, pause, complete, record readings).
-FLOOR_ROLES = frozenset({"operator", "supervisor", "admin"})
 #: Roles that may read lot status, windows and routing previews (lots: within their scope).
 READ_ROLES: frozenset[str] = _READ_ROLES
-#: Roles that enter jobs and release them to the floor.
-PLAN_ROLES = frozenset({"planner", "admin"})
 #: Operators are limited to the work centers on their badge; these roles are not.
-ANY_WORK_CENTER_ROLES = frozenset({"supervisor", "admin"})
+ANY_WORK_CENTER_ROLES = SUPERVISING_ROLES
 
 
 __all__ = ["READ_ROLES", "roles_of"]
@@ -44,7 +46,7 @@ class CanRead(RolePermission):
 class CanEngineer(RolePermission):
     """Author build specs, draft and release routings: process engineers (and admins)."""
 
-    roles = frozenset({"process_engineer", "admin"})
+    roles = ENGINEER_ROLES
     what = "author build specs and routings"
 
 

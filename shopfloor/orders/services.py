@@ -19,7 +19,7 @@ from django.db import IntegrityError, transaction
 from django.utils import timezone
 
 from routing.models import RoutingRevision
-from shopfloor import parsing
+from shopfloor import access, parsing
 from shopfloor.audit import services as audit
 from shopfloor.core import panelise, units
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
@@ -34,10 +34,9 @@ from shopfloor.plant.models import (
     Part,
     PartRevision,
     Person,
-    Role,
 )
 
-PLANNER_ROLES = frozenset({Role.PLANNER, Role.ADMIN})
+PLANNER_ROLES = access.PLAN_ROLES
 MAX_QUANTITY = 1_000_000
 MAX_NOTES = 4000
 JOB_NUMBER_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,19}$")
@@ -51,8 +50,7 @@ def require_planner(person: Person | None) -> Person:
     """Only planners (and administrators) enter and release jobs."""
     if person is None:
         raise NotAllowed("This account has no badge on file; ask an administrator to add one.")
-    roles = person.roles() | ({"admin"} if person.user.is_superuser else set())
-    if not roles & PLANNER_ROLES:
+    if not access.has_role(person, PLANNER_ROLES):
         raise NotAllowed("Only a planner (or an administrator) can enter and release jobs.")
     return person
 

@@ -16,7 +16,7 @@ from django.db import transaction
 from django.db.models import Q
 from django.utils import timezone
 
-from shopfloor import throttle
+from shopfloor import access, throttle
 from shopfloor.audit import services as audit
 from shopfloor.errors import InvalidInput, NotAllowed, NotFound
 from shopfloor.plant.models import (
@@ -127,7 +127,7 @@ def verify_pin(person: Person, pin: str) -> None:
 
 
 def unlock_person(*, by: Person, person_id: int) -> Person:
-    if not by.roles() & {"supervisor", "admin"}:
+    if not access.is_supervising(by):
         raise NotAllowed("Only a supervisor or administrator can unlock a badge.")
     with transaction.atomic():
         person = Person.objects.select_for_update(no_key=True).filter(pk=person_id).first()
@@ -157,7 +157,9 @@ def check_qualified(person: Person, work_center_id: int, on: datetime | None = N
         )
 
 
-ANYWHERE_ROLES = ("supervisor", "admin")  # may record and sign at any work center
+SUPERVISING = access.SUPERVISING_ROLES  # may record and sign at any work center
+#: The same roles as plain group names, for the reading path's own SQL (reading_sql.py).
+ANYWHERE_ROLES = tuple(sorted(str(r) for r in SUPERVISING))
 
 
 def check_assigned(person: Person, work_center_id: int, *, known: bool | None = None) -> None:
@@ -166,14 +168,14 @@ def check_assigned(person: Person, work_center_id: int, *, known: bool | None = 
     `known`: the answer when the caller already read it (the reading POST reads it with
     its other facts in one statement); otherwise one query.
     """
-    if person.user.is_superuser:
-        return  # an administrator (shopfloor.access.is_admin); the group is in ANYWHERE_ROLES
+    if access.is_superuser(person.user):
+        return  # an administrator (shopfloor.access); no query needed
     # One query: assigned to the work center, or holding a role that works anywhere.
     allowed = (
         known
         if known is not None
         else Person.objects.filter(pk=person.pk)
-        .filter(Q(work_centers__pk=work_center_id) | Q(user__groups__name__in=ANYWHERE_ROLES))
+        .filter(Q(work_centers__pk=work_center_id) | access.holds_role_q(SUPERVISING))
         .exists()
     )
     if not allowed:

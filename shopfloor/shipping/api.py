@@ -35,8 +35,8 @@ from shopfloor.plant import people
 from shopfloor.quality.services import dispositions
 from shopfloor.shipping import services
 
-SHIP_ROLES = frozenset({"planner", "admin"})
-CERT_READ_ROLES = frozenset({"planner", "quality_engineer", "supervisor", "admin"})
+SHIP_ROLES = services.SHIP_ROLES
+CERT_READ_ROLES = services.CERTIFICATE_READ_ROLES
 
 
 class CanShip(RolePermission):

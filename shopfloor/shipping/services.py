@@ -18,6 +18,7 @@ from typing import Any
 from django.db import transaction
 from django.db.models import Sum
 
+from shopfloor import access
 from shopfloor.audit import services as audit
 from shopfloor.audit.models import Signature
 from shopfloor.core import certificate as wording
@@ -27,7 +28,9 @@ from shopfloor.plant.models import Job, Lot, PanelImage, Person
 from shopfloor.quality.models import Nonconformance
 from shopfloor.shipping.models import Certificate, Shipment, ShipmentLot
 
-SHIP_ROLES = frozenset({"planner", "admin"})
+SHIP_ROLES = access.PLAN_ROLES
+#: Who reads shipping status and certificates of conformance (pages and API).
+CERTIFICATE_READ_ROLES = frozenset({"planner", "quality_engineer", "supervisor", "admin"})
 MAX_LOTS = 50
 
 
@@ -189,7 +192,7 @@ def lot_problems(lot: Lot, job: Job) -> list[dict[str, Any]]:
 
 
 def _require_planner(person: Person) -> None:
-    if not (person.roles() & SHIP_ROLES or person.user.is_superuser):
+    if not access.has_role(person, SHIP_ROLES):
         raise NotAllowed("Only a planner (or an administrator) can ship.")
 
 

@@ -23,8 +23,9 @@ from shopfloor.plant.models import Job, Person
 from shopfloor.plant.people import person_for
 from shopfloor.shipping import services
 from shopfloor.shipping.models import Certificate, Shipment
+from shopfloor.shipping.services import CERTIFICATE_READ_ROLES
 
-READ_ROLES = frozenset({"planner", "quality_engineer", "supervisor", "admin"})
+READ_ROLES = CERTIFICATE_READ_ROLES
 
 
 def shipping_reader(view: Callable[..., HttpResponse]) -> Callable[..., HttpResponse]:
