@@ -4,7 +4,9 @@ allowed or refused.
 "Allowed" means the request got past authentication and authorisation (any reply but
 401, 403, or a redirect to the login page); a 400/404/409 from the use case still counts
 as allowed. Every cell is decided, so both unexpected allows (a security bug) and
-unexpected refusals (a broken page) fail. A row whose URL does not resolve is skipped.
+unexpected refusals (a broken page) fail. A row whose URL does not resolve fails, and
+so does a URL pattern with no row (`test_every_url_pattern_has_a_row`; the few patterns
+that are not shop-floor pages or endpoints are listed in NOT_IN_MATRIX with the reason).
 
 The decisions: operators work and view at their own work centers; supervisors run the
 floor (any work center, queue order, queue-time warnings, badge unlocks); quality
@@ -30,7 +32,8 @@ from typing import Any
 import pytest
 from django.contrib.auth.models import User
 from django.test import Client
-from django.urls import Resolver404, resolve
+from django.urls import URLPattern, URLResolver, get_resolver, resolve
+from django.urls.exceptions import Resolver404
 from django.utils import timezone
 from rest_framework.test import APIClient
 
@@ -390,6 +393,7 @@ ROWS: dict[str, Row] = {
     # --- supervisor board --------------------------------------- op sup pe qe adm ins ano oth
     # Everyone with a role sees the board (operators: their own work centers' lots);
     # only supervisors and admins reorder queues or accept a queue-time warning.
+    "GET home": Row("GET", lambda c: "/", PEOPLE, api=False),
     "GET board": Row("GET", lambda c: "/board/", PEOPLE, api=False),
     "GET board body": Row("GET", lambda c: "/board/body/", PEOPLE, api=False),
     "POST queue move": Row(
@@ -806,7 +810,7 @@ def test_role_matrix(world):
         try:
             resolve(url.split("?")[0])
         except Resolver404:
-            continue  # page not built yet
+            raise AssertionError(f"{label}: {url} does not resolve; fix the row") from None
         for caller, expected in zip(CALLERS, row.expected(), strict=True):
             client = _client(caller, world, row.api)
             body = row.body(world) if row.body else None
@@ -828,3 +832,67 @@ def test_role_matrix(world):
     assert checked >= 45 * len(CALLERS)
     assert unexpected_allows == [], "\n".join(unexpected_allows)
     assert unexpected_denies == [], "\n".join(unexpected_denies)
+
+
+#: URL patterns without a row, each with the reason it is not a shop-floor page or
+#: endpoint (prefixes: every pattern under it).
+NOT_IN_MATRIX: dict[str, str] = {
+    "admin/": "Django's admin site: staff accounts only, Django's own permission checks",
+    "healthz": "the health check: open by design, shows no record (tests/security/test_health.py)",
+    "floor/login/": "signing in: open to everyone by design (the sign-in throttle guards it)",
+    "floor/logout/": "signing out: open to everyone by design (POST only)",
+    "^api/v1/": "the API's JSON 404 for a path no endpoint matches: reads and changes nothing",
+    "api/schema/": "the API description: signed-in only unless API_DOCS_PUBLIC "
+    "(tests/security/test_logout_and_docs.py)",
+    "api/docs/": "the API description's page, as api/schema/",
+    "bench/": "benchmark-only endpoints, present only with BENCH_ENDPOINTS (never in production)",
+}
+
+
+class _AnyRecord:
+    """Stands in for every record the rows' URLs name (lot, step, NCR, ...): each
+    attribute, item and formatted value is '1', so every row's URL can be built without
+    a database and resolved."""
+
+    def __getattr__(self, name: str) -> _AnyRecord:
+        return self
+
+    def __getitem__(self, key: Any) -> _AnyRecord:
+        return self
+
+    def __format__(self, spec: str) -> str:
+        return "1"
+
+    def __str__(self) -> str:
+        return "1"
+
+
+def _routes(patterns: list[Any], prefix: str = "") -> list[str]:
+    out: list[str] = []
+    for p in patterns:
+        if isinstance(p, URLResolver):
+            out += _routes(p.url_patterns, prefix + str(p.pattern))
+        elif isinstance(p, URLPattern):
+            out.append(prefix + str(p.pattern))
+    return out
+
+
+def test_every_url_pattern_has_a_row():
+    """A new page or endpoint must get its row (who may call it) before it lands."""
+    ctx = _AnyRecord()
+    covered: set[str] = set()
+    unresolved: list[str] = []
+    for label, row in ROWS.items():
+        url = row.url(ctx)  # type: ignore[arg-type]
+        try:
+            covered.add(resolve(url.split("?")[0]).route)
+        except Resolver404:
+            unresolved.append(f"{label}: {url}")
+    assert unresolved == [], "rows whose URL does not resolve:\n" + "\n".join(unresolved)
+    missing = [
+        route
+        for route in _routes(get_resolver().url_patterns)
+        if route not in covered
+        and not any(route == p or (p.endswith("/") and route.startswith(p)) for p in NOT_IN_MATRIX)
+    ]
+    assert missing == [], "URL patterns with no row in ROWS:\n" + "\n".join(missing)
