@@ -78,8 +78,7 @@ def _measure(think: float, pool: str, concurrency: int) -> dict[str, float]:
 
         from shopfloor.quality import tasks
         from shopfloor.quality.models import Alert
-        from tests import factories
-        from tests.worker import floorkit as kit
+        from tests import factories, helpers
         from tests.worker.procs import WorkerFactory, purge, wait_for
 
         purge(settings.REDIS_URL)
@@ -90,7 +89,7 @@ def _measure(think: float, pool: str, concurrency: int) -> dict[str, float]:
         run_id = uuid.uuid4().hex[:6]
         steps = [
             [
-                kit.start_at(floor, kit.new_lot(floor, code=f"B{run_id}-{c}-{r}"))
+                helpers.start_at(floor, factories.new_lot(floor, code=f"B{run_id}-{c}-{r}"))
                 for r in range(READINGS_PER_CLIENT)
             ]
             for c in range(CLIENTS)
@@ -105,11 +104,11 @@ def _measure(think: float, pool: str, concurrency: int) -> dict[str, float]:
                 time.sleep(phase)
                 for step in my_steps:
                     for sample in range(1, IN_WINDOW_PER_LOT + 1):
-                        kit.record(
+                        helpers.record(
                             floor, step, "hole_wall_copper", 24.0 + sample * 0.3, sample=sample
                         )
                         time.sleep(think)
-                    r = kit.record(floor, step, "surface_copper", 70.0)
+                    r = helpers.record(floor, step, "surface_copper", 70.0)
                     key = f"bench:noop:{uuid.uuid4().hex}"
                     sent = time.time()
                     tasks.noop.delay(key)

@@ -59,7 +59,7 @@ def run() -> dict[str, Any]:
     from shopfloor.floor.models import LotStep
     from shopfloor.plant.models import Lot, WorkCenter
     from tests import factories
-    from tests.board.kit import bulk_lots, bulk_readings
+    from tests.factories import bulk_lots, bulk_readings
 
     setup_test_environment()
     old_name = connection.settings_dict["NAME"]

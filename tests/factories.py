@@ -1,4 +1,6 @@
-"""Factories for tests: invented people, parts, jobs and lots (no real names)."""
+"""The one persona and factory module for tests: invented people, parts, jobs, lots,
+tanks and the small floor (no real names). Walking a lot and recording readings through
+the services is in tests/helpers.py."""
 
 from __future__ import annotations
 
@@ -12,12 +14,16 @@ from django.utils import timezone
 
 from routing import services as routing_services
 from routing.models import RoutingRevision
+from shopfloor.chemistry.models import PlanParameter, Tank
+from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant import services as plant_services
 from shopfloor.plant.models import (
     Customer,
     Equipment,
     Job,
     Lot,
+    Panel,
+    PanelImage,
     Part,
     PartRevision,
     Person,
@@ -174,3 +180,148 @@ def release_routing_from(
         overrides=overrides,
     )
     return routing_services.release(person=engineer, revision_id=draft.pk, pin=PIN)
+
+
+# --- many lots fast (bulk_create) and their readings, for the board and history tests
+
+_n = itertools.count(1)
+
+
+def bulk_lots(
+    routing,
+    job: Job,
+    count: int,
+    centers: list[WorkCenter],
+    prefix: str = "B",
+    arrived_minutes_ago: int = 30,
+) -> list[Lot]:
+    """`count` lots of one panel each; step 1 done, step 2 current (at centers[i % k]),
+    step 3 waiting. Built with bulk_create: 4 INSERTs whatever the count."""
+    now = timezone.now()
+    batch = next(_n)
+    lots = Lot.objects.bulk_create(
+        [
+            Lot(
+                code=f"{prefix}{batch:02d}-{i:05d}",
+                routing_revision=routing,
+                status=Lot.Status.IN_PROCESS,
+                panel_count=1,
+                started_at=now - dt.timedelta(hours=5),
+            )
+            for i in range(count)
+        ]
+    )
+    panels = Panel.objects.bulk_create([Panel(serial=f"{lot.code}-P01", lot=lot) for lot in lots])
+    PanelImage.objects.bulk_create([PanelImage(panel=p, job=job, count=4) for p in panels])
+    steps = []
+    for i, lot in enumerate(lots):
+        wc = centers[i % len(centers)]
+        steps += [
+            LotStep(
+                lot=lot,
+                position=10,
+                code="first",
+                name="First step",
+                work_center=wc,
+                status=LotStep.Status.DONE,
+                arrived_at=now - dt.timedelta(hours=5),
+                completed_at=now - dt.timedelta(hours=1),
+            ),
+            LotStep(
+                lot=lot,
+                position=20,
+                code="second",
+                name="Second step",
+                work_center=wc,
+                status=LotStep.Status.WAITING,
+                standard_minutes=40,
+                queue_time_limit_minutes=60,
+                arrived_at=now - dt.timedelta(minutes=arrived_minutes_ago),
+            ),
+            LotStep(
+                lot=lot,
+                position=30,
+                code="third",
+                name="Third step",
+                work_center=centers[(i + 1) % len(centers)],
+                standard_minutes=20,
+            ),
+        ]
+    LotStep.objects.bulk_create(steps)
+    return lots
+
+
+def bulk_readings(
+    step: LotStep,
+    operator,
+    count: int,
+    quantity: str = "copper_thickness",
+    low: float = 20.0,
+    high: float = 30.0,
+) -> None:
+    now = timezone.now()
+    window = {
+        "quantity": quantity,
+        "unit": "um",
+        "min": low,
+        "max": high,
+        "target": 25.0,
+        "source": "IPC-6012 (test window)",
+        "samples": count,
+    }
+    Reading.objects.bulk_create(
+        [
+            Reading(
+                lot_step=step,
+                quantity=quantity,
+                entered_value=str(25 + (i % 7) * 0.5),
+                entered_unit="um",
+                value=25 + (i % 7) * 0.5,
+                unit="um",
+                sample_index=1,
+                operator=operator,
+                captured_at=now - dt.timedelta(seconds=count - i),
+                window=window,
+                in_window=True,
+            )
+            for i in range(count)
+        ]
+    )
+
+
+# --- bath chemistry: a lab technician and an acid copper tank
+
+
+def lab_tech() -> Any:
+    return make_person(Role.LAB_TECHNICIAN, "1010", "Lia Lab")
+
+
+def copper_tank(**extra: Any) -> Tank:
+    """4000 L acid copper at the plating line with a copper sulfate and a chloride row.
+    Windows: common practice (a supplier sheet's typical range), as in the demo."""
+    tank = Tank.objects.create(
+        work_center=WorkCenter.objects.get(code="plating"),
+        code="T-CU",
+        name="Acid copper",
+        kind="acid_copper",
+        volume_l=4000,
+        max_volume_l=4200,
+        step_codes=["pattern_plate_copper", "panel_plate"],
+        **extra,
+    )
+    PlanParameter.objects.create(
+        tank=tank, code="copper_sulfate", name="Copper sulfate", measure="mass_concentration",
+        unit="g/L", low=60, target=75, high=90, source="common practice", frequency="daily",
+        method="EDTA titration", stock_strength=300, stock_name="copper sulfate solution",
+    )  # fmt: skip
+    PlanParameter.objects.create(
+        tank=tank, code="chloride", name="Chloride", measure="mass_concentration", unit="mg/L",
+        low=0.040, target=0.060, high=0.080, source="common practice", frequency="per_shift",
+        method="silver nitrate titration", stock_strength=428, position=1,
+    )  # fmt: skip
+    return tank
+
+
+def new_lot(floor: Any, code: str | None = None, panels: int = 2) -> Lot:
+    """Another lot on the small floor's routing and job."""
+    return make_lot(floor.routing, floor.job, panels=panels, code=code)

@@ -40,9 +40,9 @@ from rest_framework.test import APIClient
 from shopfloor.plant.models import MaterialLot, Panel, Person, Qualification, Role, WorkCenter
 from shopfloor.quality.models import Nonconformance, SeriesState
 from shopfloor.quality.services import alerts
-from tests.api.helpers import advance_to, issue_token
+from tests import factories, helpers
 from tests.factories import PIN, make_person
-from tests.worker import floorkit as kit
+from tests.helpers import advance_to, issue_token
 
 pytestmark = pytest.mark.django_db
 
@@ -683,7 +683,7 @@ def world(floor):
     from shopfloor.floor import services
 
     personas = floor.personas
-    step = advance_to(floor.lot, "pattern_plate_copper", personas["operator"])
+    step = advance_to(floor.lot, "pattern_plate_copper", by=personas["operator"], start=True)
     admin = make_person(Role.ADMIN, "1006", "Ada Admin")
     for wc in floor.work_centers.values():
         Qualification.objects.create(
@@ -706,10 +706,10 @@ def world(floor):
     )
     step.material_lots.add(material)
     # A second lot at the same step with an out-of-window reading: alert, hold, NCR, series.
-    held_lot = kit.new_lot(floor, code="LMATRIX2")
-    held_step = kit.start_at(floor, held_lot)
-    bad = kit.record(floor, held_step, "surface_copper", 70.0)
-    alerts.handle_event(kit.event_for(bad).pk)
+    held_lot = factories.new_lot(floor, code="LMATRIX2")
+    held_step = helpers.start_at(floor, held_lot)
+    bad = helpers.record(floor, held_step, "surface_copper", 70.0)
+    alerts.handle_event(helpers.event_for(bad).pk)
     locked = make_person(Role.OPERATOR, "1008", "Lee Locked")
     Person.objects.filter(pk=locked.pk).update(locked_at=timezone.now(), pin_failures=5)
     from tests.factories import SPEC_4L_ENIG
@@ -736,7 +736,7 @@ def world(floor):
     # out-of-window analysis that exposed this lot's plating step, and an addition that
     # waits for an engineer's confirmation.
     from shopfloor.chemistry import services as chemistry
-    from tests.chemistry.kit import copper_tank
+    from tests.factories import copper_tank
 
     tank = copper_tank()
     lab = make_person(Role.LAB_TECHNICIAN, "1011", "Lia Lab")

@@ -24,8 +24,8 @@ from routing.builder.library import DEFAULT_LIBRARY, REQUIRED_STEP_CODES
 from routing.models import ProcessLibraryVersion, RoutingRevision, RoutingStep
 from shopfloor.audit.models import AuditEntry, Signature
 from shopfloor.floor import services
-from tests.api.helpers import advance_to
 from tests.factories import make_floor
+from tests.helpers import advance_to
 
 pytestmark = pytest.mark.django_db
 
@@ -60,7 +60,7 @@ def shop() -> dict[str, Any]:
     """The small floor with one reading recorded, so every evidence table has rows."""
     floor = make_floor()
     supervisor = floor.personas["supervisor"]
-    step = advance_to(floor.lot, "pattern_plate_copper", supervisor)
+    step = advance_to(floor.lot, "pattern_plate_copper", by=supervisor, start=True)
     reading = services.record_reading(
         person=supervisor,
         lot_step_id=step.pk,

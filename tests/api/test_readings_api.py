@@ -16,7 +16,7 @@ from rest_framework.test import APIClient
 from shopfloor.floor import idempotency
 from shopfloor.floor.models import IdempotencyRecord, InstrumentToken, Reading
 from shopfloor.plant.models import Person
-from tests.api.helpers import advance_to, gauge_at, issue_token
+from tests.helpers import advance_to, gauge_at, issue_token
 
 pytestmark = pytest.mark.django_db
 
@@ -26,7 +26,7 @@ URL = "/api/v1/readings/"
 @pytest.fixture
 def plating(floor):
     """The floor's lot started at pattern plating (hole and surface copper measured)."""
-    step = advance_to(floor.lot, "pattern_plate_copper", floor.personas["operator"])
+    step = advance_to(floor.lot, "pattern_plate_copper", by=floor.personas["operator"], start=True)
     return step
 
 

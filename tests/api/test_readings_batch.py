@@ -20,8 +20,8 @@ from shopfloor.floor.models import Reading
 from shopfloor.quality import outbox
 from shopfloor.quality.models import Alert, OutboxEvent
 from shopfloor.quality.services import alerts
-from tests.api.helpers import issue_token
-from tests.worker import floorkit as kit
+from tests import factories, helpers
+from tests.helpers import issue_token
 
 pytestmark = pytest.mark.django_db
 
@@ -30,7 +30,7 @@ URL = "/api/v1/readings/batch/"
 
 @pytest.fixture
 def plating(floor):
-    return kit.start_at(floor, floor.lot)
+    return helpers.start_at(floor, floor.lot)
 
 
 @pytest.fixture
@@ -78,8 +78,8 @@ def test_sample_set_of_one_step_is_recorded_with_a_result_per_item(floor, platin
 
 
 def test_refused_items_never_block_another_lot_step(floor, plating, client):
-    held = kit.new_lot(floor)
-    kit.start_at(floor, held)
+    held = factories.new_lot(floor)
+    helpers.start_at(floor, held)
     held.on_hold = True
     held.save(update_fields=["on_hold"])
     items = [
@@ -178,8 +178,8 @@ def test_statements_per_lot_step_do_not_grow_with_the_items(floor, plating, clie
     def count(lots: int, per_lot: int) -> int:
         items = []
         for _ in range(lots):
-            lot = kit.new_lot(floor)
-            kit.start_at(floor, lot)
+            lot = factories.new_lot(floor)
+            helpers.start_at(floor, lot)
             for quantity in ["surface_copper", "hole_wall_copper"][:per_lot]:
                 items.append(item(lot, f"Q-{next(made)}", quantity=quantity, value=45))
         with CaptureQueriesContext(connection) as queries:

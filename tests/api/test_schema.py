@@ -17,8 +17,8 @@ import yaml
 from django.core.management import call_command
 from rest_framework.test import APIClient
 
-from tests.api.helpers import advance_to
 from tests.factories import SPEC_4L_ENIG
+from tests.helpers import advance_to
 
 pytestmark = pytest.mark.django_db
 
@@ -75,7 +75,7 @@ def conforms(schema: dict[str, Any], path: str, method: str, reply: Any) -> None
 def test_replies_conform_to_schema(floor, schema):
     client = APIClient()
     client.force_login(floor.personas["operator"].user)
-    step = advance_to(floor.lot, "pattern_plate_copper", floor.personas["operator"])
+    step = advance_to(floor.lot, "pattern_plate_copper", by=floor.personas["operator"], start=True)
     code = floor.lot.code
     cases = [
         (

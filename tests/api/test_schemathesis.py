@@ -44,8 +44,8 @@ from shopfloor.audit import services as audit
 from shopfloor.floor import services
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Lot, Person
-from tests.api.helpers import advance_to, gauge_at, issue_token
 from tests.factories import PIN, SPEC_4L_ENIG, make_floor
+from tests.helpers import advance_to, gauge_at, issue_token
 
 EXAMPLES = 50
 CHECKS = [
@@ -80,7 +80,7 @@ def world(transactional_db) -> dict[str, Any]:
     """The small floor, its lot started at pattern plating with one reading and a gauge."""
     floor = make_floor()
     supervisor = floor.personas["supervisor"]
-    step = advance_to(floor.lot, "pattern_plate_copper", supervisor)
+    step = advance_to(floor.lot, "pattern_plate_copper", by=supervisor, start=True)
     gauge = gauge_at(step)
     reading = services.record_reading(
         person=supervisor,

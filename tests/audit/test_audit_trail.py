@@ -22,7 +22,7 @@ from rest_framework.test import APIClient
 
 from shopfloor.audit import services as audit
 from shopfloor.audit.models import AuditCheckpoint, AuditEntry
-from tests.api.helpers import advance_to
+from tests.helpers import advance_to
 
 pytestmark = pytest.mark.django_db
 
@@ -89,7 +89,7 @@ def test_awkward_values_survive_the_database_round_trip():
 
 def test_reading_of_minus_zero_keeps_the_trail_intact(floor, capsys):
     operator = floor.personas["operator"]
-    advance_to(floor.lot, "pattern_plate_copper", operator)
+    advance_to(floor.lot, "pattern_plate_copper", by=operator, start=True)
     client = APIClient()
     client.force_login(operator.user)
     reply = client.post(

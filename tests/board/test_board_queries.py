@@ -14,7 +14,7 @@ from django.test.utils import CaptureQueriesContext
 
 from shopfloor.plant.models import WorkCenter
 from shopfloor.quality.read.board import OVERVIEW_ROWS_PER_CENTER
-from tests.board.kit import bulk_lots
+from tests.factories import bulk_lots
 
 BOARD_QUERIES = 15
 

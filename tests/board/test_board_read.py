@@ -27,7 +27,7 @@ from shopfloor.quality.models import Hold
 from shopfloor.quality.read import board
 from shopfloor.quality.services import queue as queue_moves
 from tests import factories
-from tests.board.kit import bulk_lots
+from tests.factories import bulk_lots
 
 pytestmark = pytest.mark.django_db
 

@@ -156,6 +156,6 @@ def shoot():
 
 @pytest.fixture
 def parked_outbox(monkeypatch):
-    from tests.floor import helpers
+    from tests import helpers
 
     return helpers.park_outbox(monkeypatch)

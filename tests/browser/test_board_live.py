@@ -73,7 +73,7 @@ def test_top_button_moves_a_lot_through_the_center_form(board_browser, live_serv
     buttons name it with form=...), CSRF token included; the lot then heads the queue."""
     from shopfloor.audit.models import AuditEntry
     from shopfloor.plant.models import WorkCenter
-    from tests.board.kit import bulk_lots
+    from tests.factories import bulk_lots
 
     wc = WorkCenter.objects.get(code="drilling")
     lots = bulk_lots(floor.routing, floor.job, 3, [wc], prefix="BT")

@@ -13,8 +13,8 @@ from playwright.sync_api import expect
 
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.quality.models import OutboxEvent
+from tests import helpers
 from tests.factories import PIN
-from tests.floor import helpers
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 
@@ -27,7 +27,7 @@ def record(page, row_id: str, value: str) -> None:
 
 def test_operator_flow(page, live_url, login_as, floor, shoot, parked_outbox):
     operator = floor.personas["operator"]
-    step = helpers.advance_to_code(floor.lot, operator, "mask_develop")
+    step = helpers.advance_to(floor.lot, "mask_develop", by=operator, walk=True)
     wc = step.work_center
 
     login_as(page, operator)
@@ -114,7 +114,7 @@ def test_lot_page_on_a_phone(persona_page, floor, shoot, parked_outbox):
     from tests.browser.conftest import PHONE
 
     operator = floor.personas["operator"]
-    step = helpers.skip_to_measured_step(floor.lot)
+    step = helpers.advance_to(floor.lot, helpers.measured())
     page = persona_page("operator", viewport=PHONE)
     page.goto(f"/floor/lots/{floor.lot.code}/")
     page.get_by_role("button", name="Start step").click()

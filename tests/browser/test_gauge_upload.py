@@ -11,7 +11,7 @@ import pytest
 from playwright.sync_api import expect
 
 from shopfloor.floor.models import Reading
-from tests.worker import floorkit as kit
+from tests import helpers
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 
@@ -23,7 +23,7 @@ pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 def test_operator_uploads_a_gauge_file(
     browser, live_url, login_as, floor, shoot, parked_outbox, size, viewport
 ):
-    kit.start_at(floor, floor.lot)
+    helpers.start_at(floor, floor.lot)
     context = browser.new_context(viewport=viewport, base_url=live_url)
     try:
         page = login_as(context.new_page(), floor.personas["operator"])

@@ -10,9 +10,9 @@ from __future__ import annotations
 import pytest
 
 from shopfloor.plant.models import Lot
+from tests import helpers
 from tests.browser.conftest import TABLET
-from tests.chemistry.kit import copper_tank, lab_tech
-from tests.worker import floorkit
+from tests.factories import copper_tank, lab_tech
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 DESK = {"width": 1366, "height": 768}
@@ -21,7 +21,7 @@ DESK = {"width": 1366, "height": 768}
 def test_bad_analysis_to_exposed_lots_to_hold(browser, live_url, login_as, floor, shoot):
     tank = copper_tank()
     lab = lab_tech()
-    floorkit.start_at(floor, floor.lot)  # the lot's copper plating step runs in the tank
+    helpers.start_at(floor, floor.lot)  # the lot's copper plating step runs in the tank
 
     context = browser.new_context(viewport=TABLET, base_url=live_url)
     page = login_as(context.new_page(), lab)

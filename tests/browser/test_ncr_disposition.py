@@ -10,8 +10,8 @@ import pytest
 from shopfloor.floor.models import LotStep
 from shopfloor.quality.models import Nonconformance
 from shopfloor.quality.services import alerts
+from tests import helpers
 from tests.factories import PIN
-from tests.worker import floorkit as kit
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 
@@ -19,9 +19,9 @@ OFFICE = {"width": 1280, "height": 800}
 
 
 def test_quality_engineer_dispositions_rework_and_hold_banner_goes(persona_page, floor, shoot):
-    step = kit.start_at(floor, floor.lot)
-    reading = kit.record(floor, step, "surface_copper", 70.0)  # window 33.75-57.5 um
-    alerts.handle_event(kit.event_for(reading).pk)
+    step = helpers.start_at(floor, floor.lot)
+    reading = helpers.record(floor, step, "surface_copper", 70.0)  # window 33.75-57.5 um
+    alerts.handle_event(helpers.event_for(reading).pk)
     ncr = Nonconformance.objects.get(lot=floor.lot)
 
     tablet = persona_page("operator")

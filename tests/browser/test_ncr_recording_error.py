@@ -18,10 +18,9 @@ from shopfloor.floor import services as floor_services
 from shopfloor.plant.models import Lot
 from shopfloor.quality.models import Hold, Nonconformance, OutboxEvent
 from shopfloor.quality.services import alerts
-from tests import factories
+from tests import factories, helpers
 from tests.browser.conftest import TABLET
 from tests.factories import PIN
-from tests.worker import floorkit as kit
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 
@@ -39,7 +38,7 @@ def _held_class3_lot(floor):
     revision = factories.make_part_revision(spec)
     routing = factories.release_routing(revision, floor.personas["process_engineer"])
     lot = factories.make_lot(routing, factories.make_job(revision, routing))
-    step = kit.start_at(floor, lot)
+    step = helpers.start_at(floor, lot)
     values = [("1.1", "mil"), ("1050", "µin"), ("27.5", "um"), ("0.09", "mil")]
     for sample, (value, unit) in enumerate(values, start=1):
         floor_services.record_reading(

@@ -30,9 +30,8 @@ from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Job, Lot, MaterialLot, PartRevision
 from shopfloor.quality.models import Nonconformance
 from shopfloor.quality.services import alerts
+from tests import helpers
 from tests.factories import PIN
-from tests.floor import helpers
-from tests.worker import floorkit as kit
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 
@@ -57,7 +56,7 @@ def _materials() -> None:
 
 def _finish_until(lot, person, code_prefix):
     """Helpers: the long middle, through the floor services (as the API would)."""
-    return helpers.advance_to(lot, person, lambda s: s.code.startswith(code_prefix))
+    return helpers.advance_to(lot, lambda s: s.code.startswith(code_prefix), by=person, walk=True)
 
 
 def _tablet_readings(page, step):
@@ -156,8 +155,8 @@ def test_order_to_shipment_in_the_browser(persona_page, floor, shoot, tmp_path):
     # --- outer AOI finds defects: quality dispositions per panel -------------------------
     aoi = _finish_until(lot, operator, "outer_aoi")
     floor_services.start_step(person=operator, lot_step_id=aoi.pk)
-    bad = kit.record(floor, aoi, "aoi_defects", 2, unit="count")
-    alerts.handle_event(kit.event_for(bad).pk)
+    bad = helpers.record(floor, aoi, "aoi_defects", 2, unit="count")
+    alerts.handle_event(helpers.event_for(bad).pk)
     ncr = Nonconformance.objects.get(lot=lot)
     qe = persona_page("quality_engineer", viewport=OFFICE)
     qe.goto(f"/quality/ncrs/{ncr.number}/")

@@ -12,10 +12,9 @@ import pytest
 from playwright.sync_api import expect
 
 from shopfloor.floor.models import LotStep, Reading
-from tests import factories
+from tests import factories, helpers
 from tests.browser.conftest import ARTIFACTS, PHONE, TABLET
 from tests.factories import PIN
-from tests.worker import floorkit as kit
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 
@@ -25,7 +24,7 @@ def _class3_lot(floor):
     revision = factories.make_part_revision(spec)
     routing = factories.release_routing(revision, floor.personas["process_engineer"])
     lot = factories.make_lot(routing, factories.make_job(revision, routing))
-    step = kit.advance_to(lot, kit.PLATING)
+    step = helpers.advance_to(lot, helpers.PLATING)
     return lot, step
 
 

@@ -16,14 +16,14 @@ from shopfloor.core import judging, spc
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.quality.models import SeriesState
 from shopfloor.quality.series import limits_to_dict, series_key
-from tests.worker import floorkit as kit
+from tests import helpers
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 DESK = {"width": 1366, "height": 768}
 
 
 def _series(floor, quantity, values_by_lot, chart, size):
-    lot_step = kit.advance_to(floor.lot, kit.PLATING)
+    lot_step = helpers.advance_to(floor.lot, helpers.PLATING)
     window = judging.group_plan(lot_step.plan)
     group = next(g for g in window if g.quantity == quantity) if quantity != "aoi_defects" else None
     snap = (

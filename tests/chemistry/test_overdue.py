@@ -11,7 +11,7 @@ from shopfloor.chemistry import services
 from shopfloor.core.chemistry import schedule
 from shopfloor.quality import tasks
 from shopfloor.quality.models import Alert
-from tests.chemistry.kit import copper_tank, lab_tech
+from tests.factories import copper_tank, lab_tech
 
 pytestmark = pytest.mark.django_db
 T0 = dt.datetime(2026, 3, 2, 6, 0, tzinfo=dt.UTC)

@@ -6,8 +6,8 @@ import pytest
 from rest_framework.test import APIClient
 
 from shopfloor.chemistry.models import Analysis
-from tests.chemistry.kit import copper_tank, lab_tech
-from tests.worker import floorkit
+from tests import helpers
+from tests.factories import copper_tank, lab_tech
 
 pytestmark = pytest.mark.django_db
 
@@ -15,7 +15,7 @@ pytestmark = pytest.mark.django_db
 @pytest.fixture
 def lab(floor):
     tank, person = copper_tank(), lab_tech()
-    floorkit.start_at(floor, floor.lot)
+    helpers.start_at(floor, floor.lot)
     return tank, person
 
 
@@ -58,7 +58,7 @@ def test_bad_analysis_form_says_what_is_allowed_and_saves_nothing(lab, client):
 
 
 def test_plating_page_computes_amps_and_minutes(floor, client):
-    step = floorkit.advance_to(floor.lot, "pattern_plate_copper")
+    step = helpers.advance_to(floor.lot, "pattern_plate_copper")
     client.force_login(floor.personas["process_engineer"].user)
     reply = client.post(f"/lab/plating/{step.pk}/", {"area_dm2": "20"}, follow=True)
     # 20 dm² × 2 A/dm² = 40 A; 25 µm at 95 %: 59.7 min (see test_faraday)

@@ -13,9 +13,8 @@ from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
 from shopfloor.floor import services as floor_services
 from shopfloor.plant.models import Lot
 from shopfloor.quality.models import Alert, Hold, Nonconformance
-from tests.chemistry.kit import copper_tank, lab_tech
-from tests.factories import PIN, make_lot
-from tests.worker import floorkit
+from tests import helpers
+from tests.factories import PIN, copper_tank, lab_tech, make_lot
 
 pytestmark = pytest.mark.django_db
 
@@ -114,7 +113,7 @@ def test_impact_query_on_a_constructed_history(floor):
 def test_starting_a_wet_step_records_its_tank_and_the_lot_history_shows_the_coverage(floor, client):
     tank, lab = copper_tank(), lab_tech()
     covering = analyse(lab, tank, "copper_sulfate", "75")
-    step = floorkit.start_at(floor, floor.lot)  # pattern_plate_copper at the plating line
+    step = helpers.start_at(floor, floor.lot)  # pattern_plate_copper at the plating line
     use = TankUse.objects.get(lot_step=step)
     assert use.tank == tank
     coverage = read.bath_coverage(floor.lot)
@@ -198,7 +197,7 @@ def test_make_up_restarts_the_electroless_nickel_age(floor):
 def test_plating_step_parameters_from_current_density_and_area(floor):
     from shopfloor.chemistry.models import PlatedArea
 
-    step = floorkit.advance_to(floor.lot, "pattern_plate_copper")
+    step = helpers.advance_to(floor.lot, "pattern_plate_copper")
     engineer = floor.personas["process_engineer"]
     with pytest.raises(InvalidInput, match="design data has no plated area"):
         services.compute_plating(person=engineer, lot_step_id=step.pk)

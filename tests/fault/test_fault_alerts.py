@@ -21,8 +21,7 @@ import redis
 from shopfloor.quality import tasks
 from shopfloor.quality.models import Alert, Hold, Nonconformance, OutboxEvent
 from shopfloor.quality.services import notifications
-from tests import factories
-from tests.worker import floorkit as kit
+from tests import factories, helpers
 from tests.worker.procs import broker_at, private_redis, wait_for, workers  # noqa: F401
 
 pytestmark = [pytest.mark.fault, pytest.mark.django_db(transaction=True), pytest.mark.timeout(120)]
@@ -33,8 +32,8 @@ VISIBILITY = 5
 def test_worker_killed_after_commit_before_ack(workers, settings):
     first = workers.start(CELERY_VISIBILITY_TIMEOUT=str(VISIBILITY), **{tasks.PAUSE_ENV: "60"})
     floor = factories.make_floor()
-    step = kit.start_at(floor, floor.lot)
-    kit.record(floor, step, "surface_copper", 70.0)
+    step = helpers.start_at(floor, floor.lot)
+    helpers.record(floor, step, "surface_copper", 70.0)
 
     # The side effect is committed while the task sleeps before acknowledging.
     assert wait_for(lambda: Alert.objects.count() == 1, timeout=20), first.log()[-2000:]
@@ -80,11 +79,11 @@ def test_redis_down_then_relay_delivers_every_alert_once(workers, broker_at, rec
         redis_url=broker_at.url, ALERT_WEBHOOK_URL=url, ALERT_WEBHOOK_SECRET="fault-test"
     )
     floor = factories.make_floor()
-    lots = [floor.lot, kit.new_lot(floor), kit.new_lot(floor)]
-    steps = [kit.start_at(floor, lot) for lot in lots]
+    lots = [floor.lot, factories.new_lot(floor), factories.new_lot(floor)]
+    steps = [helpers.start_at(floor, lot) for lot in lots]
 
     broker_at.stop()
-    readings = [kit.record(floor, s, "surface_copper", 20.0 + i) for i, s in enumerate(steps)]
+    readings = [helpers.record(floor, s, "surface_copper", 20.0 + i) for i, s in enumerate(steps)]
 
     events = OutboxEvent.objects.filter(payload__reading__in=[r.pk for r in readings])
     assert events.count() == 3 and not events.filter(published_at__isnull=False).exists()

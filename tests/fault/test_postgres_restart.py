@@ -300,8 +300,7 @@ def seed(count: int) -> None:
 
 def _seed(count: int) -> None:
     from tests import factories
-    from tests.api.helpers import advance_to, issue_token
-    from tests.floor.helpers import one_entry_per_quantity
+    from tests.helpers import advance_to, issue_token, one_entry_per_quantity
 
     floor = factories.make_floor()
     operator = floor.personas["operator"]
@@ -310,7 +309,7 @@ def _seed(count: int) -> None:
     lot = floor.lot
     work_center = None
     while len(readings) < count:
-        step = advance_to(lot, STEP_CODE, operator)
+        step = advance_to(lot, STEP_CODE, by=operator, start=True)
         work_center = step.work_center.code
         for m in one_entry_per_quantity(step.plan):
             if m.get("attribute"):

@@ -8,7 +8,7 @@ import pytest
 from django.utils import timezone
 
 from shopfloor.plant.models import Equipment
-from tests.floor import helpers
+from tests import helpers
 
 
 @pytest.fixture
@@ -25,7 +25,7 @@ def operator(floor):
 def measured_step(floor, operator, parked_outbox):
     """The lot at its first step with a variable window (pattern plating). Earlier steps
     are marked done directly (a set-up shortcut; test_floor_rules walks the real route)."""
-    return helpers.skip_to_measured_step(floor.lot)
+    return helpers.advance_to(floor.lot, helpers.measured())
 
 
 @pytest.fixture

@@ -26,9 +26,8 @@ from shopfloor.floor import services
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant import people
 from shopfloor.plant.models import Equipment, Person, Qualification
-from tests import factories
+from tests import factories, helpers
 from tests.factories import PIN
-from tests.floor import helpers
 
 pytestmark = pytest.mark.django_db
 
@@ -57,7 +56,7 @@ def test_lot_moves_only_along_its_routing(floor, operator):
 
 
 def test_held_lot_cannot_be_worked(floor, operator, parked_outbox):
-    step = helpers.skip_to_measured_step(floor.lot)
+    step = helpers.advance_to(floor.lot, helpers.measured())
     services.start_step(person=operator, lot_step_id=step.pk)
     floor.lot.on_hold = True
     floor.lot.save()
@@ -71,7 +70,7 @@ def test_held_lot_cannot_be_worked(floor, operator, parked_outbox):
 
 
 def test_step_cannot_complete_with_readings_missing(floor, operator):
-    step = helpers.skip_to_measured_step(floor.lot)
+    step = helpers.advance_to(floor.lot, helpers.measured())
     services.start_step(person=operator, lot_step_id=step.pk)
     for s in range(1, 5):  # 4 of 5 samples
         services.record_reading(
@@ -99,7 +98,7 @@ def test_qualification_expires(floor):
 
 
 def test_equipment_past_calibration_refused(floor, operator, gauge_at):
-    step = helpers.skip_to_measured_step(floor.lot)
+    step = helpers.advance_to(floor.lot, helpers.measured())
     old = gauge_at(step.work_center, due_in_days=-1, code="GA-PAST")
     today = gauge_at(step.work_center, due_in_days=0, code="GA-TODAY")
     with pytest.raises(NotAllowed, match="past its calibration due date"):
@@ -122,7 +121,7 @@ def test_equipment_past_calibration_refused(floor, operator, gauge_at):
 
 
 def test_correction_supersedes_and_both_stay(floor, operator):
-    step = helpers.skip_to_measured_step(floor.lot)
+    step = helpers.advance_to(floor.lot, helpers.measured())
     services.start_step(person=operator, lot_step_id=step.pk)
     first = services.record_reading(
         person=operator, lot_step_id=step.pk, data=reading(step, "surface_copper", 20)
@@ -139,7 +138,7 @@ def test_correction_supersedes_and_both_stay(floor, operator):
 
 
 def test_attribute_count_with_max_zero(floor, operator):
-    step = helpers.skip_to_measured_step(floor.lot, attribute=True)
+    step = helpers.advance_to(floor.lot, helpers.measured(attribute=True))
     services.start_step(person=operator, lot_step_id=step.pk)
     quantity = next(m["quantity"] for m in step.plan if m.get("attribute"))
     zero = services.record_reading(
@@ -225,7 +224,7 @@ def test_same_reading_retried_concurrently_records_once(parked_outbox):
         pytest.skip("needs PostgreSQL row locks and advisory locks")
     floor = factories.make_floor()
     operator = floor.personas["operator"]
-    step = helpers.skip_to_measured_step(floor.lot)
+    step = helpers.advance_to(floor.lot, helpers.measured())
     services.start_step(person=operator, lot_step_id=step.pk)
     data = {
         "quantity": "surface_copper",

@@ -18,8 +18,8 @@ from shopfloor.floor.models import MaterialUse
 from shopfloor.plant.models import MaterialLot
 from shopfloor.quality import access
 from shopfloor.quality.read import genealogy
+from tests import helpers
 from tests.factories import PIN
-from tests.worker import floorkit as kit
 
 pytestmark = pytest.mark.django_db
 
@@ -37,7 +37,7 @@ def _material(code, kind, received_days_ago=5, expires=None):
 @pytest.fixture
 def layup(floor):
     code = floor.lot.steps.filter(code__startswith="layup").order_by("position").first().code
-    return kit.start_at(floor, floor.lot, code)
+    return helpers.start_at(floor, floor.lot, code)
 
 
 def test_layup_plan_lists_core_prepreg_and_foil(floor, layup):

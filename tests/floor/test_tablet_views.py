@@ -25,9 +25,8 @@ from shopfloor.floor import traveller
 from shopfloor.floor.models import IdempotencyRecord, LotStep, Reading
 from shopfloor.plant.models import Equipment, Person, WorkCenter
 from shopfloor.quality.models import Hold
-from tests import factories
+from tests import factories, helpers
 from tests.factories import PIN
-from tests.floor import helpers
 
 pytestmark = pytest.mark.django_db
 
@@ -152,7 +151,7 @@ def test_queue_order_and_columns(op_client, floor):
 
 
 def test_queue_lists_only_lots_whose_current_step_is_here(op_client, floor):
-    step = helpers.skip_to_measured_step(floor.lot, attribute=True)
+    step = helpers.advance_to(floor.lot, helpers.measured(attribute=True))
     earlier = floor.lot.steps.order_by("position").first().work_center
     if earlier.pk != step.work_center_id:
         assert floor.lot.code not in text(op_client.get(f"/floor/centers/{earlier.code}/"))

@@ -13,8 +13,8 @@ from django.test import Client
 
 from shopfloor.floor import csv_upload
 from shopfloor.floor.models import Reading
+from tests import helpers
 from tests.factories import make_person
-from tests.worker import floorkit as kit
 
 pytestmark = pytest.mark.django_db
 
@@ -67,7 +67,7 @@ def test_parser_refuses_a_bad_file_saying_why(data, says):
 
 
 def test_upload_records_each_line_and_a_second_upload_records_nothing(floor, operator_client):
-    step = kit.start_at(floor, floor.lot)
+    step = helpers.start_at(floor, floor.lot)
     text = (
         "lot,quantity,value,unit,sample_index\n"
         f"{floor.lot.code},surface_copper,1.75,mil,1\n"
@@ -99,7 +99,7 @@ def test_a_bad_file_is_refused_whole_with_the_reason(floor, operator_client):
 
 
 def test_lines_at_another_work_center_are_refused(floor):
-    kit.start_at(floor, floor.lot)
+    helpers.start_at(floor, floor.lot)
     other = make_person("operator", "9911", "Other Operator")
     client = Client()
     client.force_login(other.user)

@@ -387,7 +387,7 @@ def test_overview_lists_open_items(rich, floor, client):
 def test_busy_step_is_summarised_on_the_page_but_complete_in_exports(floor, client):
     """A step with many readings shows one aggregate line per quantity plus every notable
     reading; the CSV export still carries every reading (nothing is hidden from audit)."""
-    from tests.board.kit import bulk_readings
+    from tests.factories import bulk_readings
 
     step = floor.lot.steps.order_by("position").first()
     count = history.READING_EVENTS_PER_STEP * 3

@@ -25,8 +25,8 @@ from shopfloor.planning.models import (
     parse_shifts,
 )
 from shopfloor.plant.models import WorkCenter
-from tests.board.kit import bulk_lots
 from tests.board.test_board_queries import BOARD_QUERIES
+from tests.factories import bulk_lots
 
 pytestmark = pytest.mark.django_db
 

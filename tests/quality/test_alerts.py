@@ -19,16 +19,16 @@ from shopfloor.plant.models import Lot
 from shopfloor.quality import outbox
 from shopfloor.quality.models import Alert, Hold, Nonconformance, OutboxEvent
 from shopfloor.quality.services import alerts, notifications
-from tests.worker import floorkit as kit
+from tests import helpers
 
 pytestmark = pytest.mark.django_db
 
 
 def test_out_of_window_reading_makes_one_alert_hold_and_ncr(floor):
-    step = kit.start_at(floor, floor.lot)
-    reading = kit.record(floor, step, "surface_copper", 58.0)  # 0.5 um above 57.5
+    step = helpers.start_at(floor, floor.lot)
+    reading = helpers.record(floor, step, "surface_copper", 58.0)  # 0.5 um above 57.5
     assert reading.in_window is False
-    event = kit.event_for(reading)
+    event = helpers.event_for(reading)
 
     outcome = alerts.handle_event(event.pk)
 
@@ -53,8 +53,8 @@ def test_out_of_window_reading_makes_one_alert_hold_and_ncr(floor):
 
 
 def test_same_event_twice_still_one_alert(floor):
-    step = kit.start_at(floor, floor.lot)
-    event = kit.event_for(kit.record(floor, step, "surface_copper", 70.0))
+    step = helpers.start_at(floor, floor.lot)
+    event = helpers.event_for(helpers.record(floor, step, "surface_copper", 70.0))
     alerts.handle_event(event.pk)
     second = alerts.handle_event(event.pk)
     assert second.acted is False
@@ -64,8 +64,8 @@ def test_same_event_twice_still_one_alert(floor):
 
 def test_claim_lost_still_one_alert_by_unique_constraint(floor):
     """Even if the processed flag were cleared, Alert.event / dedupe_key keep one alert."""
-    step = kit.start_at(floor, floor.lot)
-    event = kit.event_for(kit.record(floor, step, "surface_copper", 70.0))
+    step = helpers.start_at(floor, floor.lot)
+    event = helpers.event_for(helpers.record(floor, step, "surface_copper", 70.0))
     alerts.handle_event(event.pk)
     OutboxEvent.objects.filter(pk=event.pk).update(processed_at=None)
     alerts.handle_event(event.pk)
@@ -75,8 +75,8 @@ def test_claim_lost_still_one_alert_by_unique_constraint(floor):
 def test_in_window_reading_no_alert_but_series_point(floor):
     from shopfloor.quality.models import SeriesState
 
-    step = kit.start_at(floor, floor.lot)
-    event = kit.event_for(kit.record(floor, step, "surface_copper", 41.5))
+    step = helpers.start_at(floor, floor.lot)
+    event = helpers.event_for(helpers.record(floor, step, "surface_copper", 41.5))
     alerts.handle_event(event.pk)
     assert Alert.objects.count() == 0
     assert Lot.objects.get(pk=floor.lot.pk).on_hold is False
@@ -95,9 +95,10 @@ def test_in_window_reading_no_alert_but_series_point(floor):
 
 def test_two_bad_samples_of_one_set_make_one_alert_and_share_one_ncr(floor):
     # an out-of-window set raises exactly one alert, hold and NCR citing its samples
-    step = kit.start_at(floor, floor.lot)
+    step = helpers.start_at(floor, floor.lot)
     events = [
-        kit.event_for(kit.record(floor, step, "surface_copper", 30.0, sample=n)) for n in (1, 2)
+        helpers.event_for(helpers.record(floor, step, "surface_copper", 30.0, sample=n))
+        for n in (1, 2)
     ]
     for e in events:
         alerts.handle_event(e.pk)
@@ -126,23 +127,23 @@ def test_severity_rule(value, window, expected):
 
 
 def test_attribute_defect_is_critical(floor):
-    step = kit.start_at(floor, floor.lot, code="inner_aoi_c1")
-    event = kit.event_for(kit.record(floor, step, "aoi_defects", 2, unit="count"))
+    step = helpers.start_at(floor, floor.lot, code="inner_aoi_c1")
+    event = helpers.event_for(helpers.record(floor, step, "aoi_defects", 2, unit="count"))
     alerts.handle_event(event.pk)
     assert Alert.objects.get().severity == Alert.Severity.CRITICAL
 
 
 def test_rolled_back_reading_leaves_no_event(floor):
-    step = kit.start_at(floor, floor.lot)
+    step = helpers.start_at(floor, floor.lot)
     with pytest.raises(RuntimeError), transaction.atomic():
-        kit.record(floor, step, "surface_copper", 70.0)
+        helpers.record(floor, step, "surface_copper", 70.0)
         raise RuntimeError("instrument link dropped mid-transaction")
     assert OutboxEvent.objects.count() == 0
 
 
 def test_failing_event_records_error_and_attempts(floor, monkeypatch):
-    step = kit.start_at(floor, floor.lot)
-    event = kit.event_for(kit.record(floor, step, "surface_copper", 70.0))
+    step = helpers.start_at(floor, floor.lot)
+    event = helpers.event_for(helpers.record(floor, step, "surface_copper", 70.0))
 
     def broken(_event):
         raise ValueError("simulated bug")
@@ -160,10 +161,10 @@ def test_failing_event_records_error_and_attempts(floor, monkeypatch):
 
 
 def _alert(floor, value=70.0):
-    step = kit.start_at(floor, floor.lot)
+    step = helpers.start_at(floor, floor.lot)
     step.work_center.notify_emails = "plating-lead@example.test, quality@example.test"
     step.work_center.save()
-    event = kit.event_for(kit.record(floor, step, "surface_copper", value))
+    event = helpers.event_for(helpers.record(floor, step, "surface_copper", value))
     alerts.handle_event(event.pk)
     return Alert.objects.get()
 
@@ -206,9 +207,9 @@ def test_relay_publishes_unpublished_and_skips_processed(floor, monkeypatch):
     sent = []
     monkeypatch.setattr(tasks.process_event, "apply_async", lambda args, **kw: sent.append(args[0]))
     monkeypatch.setattr(tasks.notify_alert, "apply_async", lambda args, **kw: None)
-    step = kit.start_at(floor, floor.lot)
-    pending = kit.event_for(kit.record(floor, step, "surface_copper", 41.0, sample=1))
-    done = kit.event_for(kit.record(floor, step, "surface_copper", 42.0, sample=2))
+    step = helpers.start_at(floor, floor.lot)
+    pending = helpers.event_for(helpers.record(floor, step, "surface_copper", 41.0, sample=1))
+    done = helpers.event_for(helpers.record(floor, step, "surface_copper", 42.0, sample=2))
     alerts.handle_event(done.pk)
 
     result = notifications.relay_outbox()
@@ -226,8 +227,8 @@ def test_publish_with_broker_down_leaves_event_for_relay(floor, monkeypatch):
         raise ConnectionRefusedError("broker down")
 
     monkeypatch.setattr(tasks.process_event, "apply_async", down)
-    step = kit.start_at(floor, floor.lot)
-    event = kit.event_for(kit.record(floor, step, "surface_copper", 70.0))
+    step = helpers.start_at(floor, floor.lot)
+    event = helpers.event_for(helpers.record(floor, step, "surface_copper", 70.0))
     assert outbox.publish(event.pk) is False
     event.refresh_from_db()
     assert event.published_at is None

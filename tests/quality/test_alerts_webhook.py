@@ -14,7 +14,7 @@ import pytest
 
 from shopfloor.quality.models import Alert
 from shopfloor.quality.services import alerts, notifications
-from tests.worker import floorkit as kit
+from tests import helpers
 
 pytestmark = pytest.mark.django_db
 
@@ -45,8 +45,8 @@ def test_webhook_signed_and_sent_once(floor, settings, receiver):
     url, received = receiver
     settings.ALERT_WEBHOOK_URL = url
     settings.ALERT_WEBHOOK_SECRET = "shared-secret-for-test"
-    step = kit.start_at(floor, floor.lot)
-    alerts.handle_event(kit.event_for(kit.record(floor, step, "hole_wall_copper", 15.0)).pk)
+    step = helpers.start_at(floor, floor.lot)
+    alerts.handle_event(helpers.event_for(helpers.record(floor, step, "hole_wall_copper", 15.0)).pk)
     alert = Alert.objects.get()
 
     notifications.notify_alert(alert.pk)

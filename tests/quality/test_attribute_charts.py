@@ -150,15 +150,14 @@ def test_class_2_and_class_3_lots_feed_separate_series(floor, client):
     from shopfloor.quality import series as series_core
     from shopfloor.quality.models import OutboxEvent, SeriesState
     from shopfloor.quality.services import alerts
-    from tests import factories
-    from tests.worker import floorkit as kit
+    from tests import factories, helpers
 
     steps = []
     for ipc_class in (2, 3):
         revision = factories.make_part_revision(dict(factories.SPEC_4L_ENIG, ipc_class=ipc_class))
         routing = factories.release_routing(revision, floor.personas["process_engineer"])
         lot = factories.make_lot(routing, factories.make_job(revision, routing))
-        steps.append(kit.start_at(floor, lot))
+        steps.append(helpers.start_at(floor, lot))
     for step in steps:
         for sample in range(1, 6):
             floor_services.record_reading(

@@ -14,16 +14,16 @@ from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Lot, Panel
 from shopfloor.quality.models import Alert, Hold, Nonconformance
 from shopfloor.quality.services import alerts, dispositions
+from tests import helpers
 from tests.factories import PIN
-from tests.worker import floorkit as kit
 
 pytestmark = pytest.mark.django_db
 
 
 def _held(floor, lot=None):
     lot = lot or floor.lot
-    step = kit.start_at(floor, lot)
-    alerts.handle_event(kit.event_for(kit.record(floor, step, "surface_copper", 70.0)).pk)
+    step = helpers.start_at(floor, lot)
+    alerts.handle_event(helpers.event_for(helpers.record(floor, step, "surface_copper", 70.0)).pk)
     return step, Nonconformance.objects.get(lot=lot)
 
 
@@ -36,7 +36,7 @@ def test_use_as_is_releases_hold_with_signature(floor):
         )
     # ... but the rest of the set may still be recorded at the held step (quality sees
     # the whole set on the NCR)
-    kit.record(floor, step, "surface_copper", 41.0, sample=2)
+    helpers.record(floor, step, "surface_copper", 41.0, sample=2)
 
     dispositions.disposition_ncr(
         qe,
@@ -56,7 +56,7 @@ def test_use_as_is_releases_hold_with_signature(floor):
     sig = Signature.objects.get(meaning="dispositioned_by")
     assert sig.pk == ncr.disposition_signature_id and sig.signer == qe
     assert AuditEntry.objects.filter(action="ncr.dispositioned").count() == 1
-    kit.record(floor, step, "surface_copper", 41.0, sample=3)  # workable again
+    helpers.record(floor, step, "surface_copper", 41.0, sample=3)  # workable again
     with pytest.raises(Conflict):
         dispositions.disposition_ncr(
             qe,
@@ -93,9 +93,9 @@ def test_rework_inserts_step_after_held_step(floor):
     assert not Lot.objects.get(pk=floor.lot.pk).on_hold
     # The held step is finished first, then the rework step comes next in the route.
     for n in range(2, 6):
-        kit.record(floor, step, "surface_copper", 41.0, sample=n)
+        helpers.record(floor, step, "surface_copper", 41.0, sample=n)
     for n in range(1, 6):
-        kit.record(floor, step, "hole_wall_copper", 25.0, sample=n)
+        helpers.record(floor, step, "hole_wall_copper", 25.0, sample=n)
     floor_services.complete_step(person=floor.personas["operator"], lot_step_id=step.pk, pin=PIN)
     assert LotStep.objects.current_for(floor.lot).pk == rework.pk
 
@@ -112,9 +112,9 @@ def test_operator_sees_the_rework_step_marked_with_its_ncr(floor, client):
         corrective_action="Plating controls tightened",
     )
     for n in range(2, 6):
-        kit.record(floor, step, "surface_copper", 41.0, sample=n)
+        helpers.record(floor, step, "surface_copper", 41.0, sample=n)
     for n in range(1, 6):
-        kit.record(floor, step, "hole_wall_copper", 25.0, sample=n)
+        helpers.record(floor, step, "hole_wall_copper", 25.0, sample=n)
     floor_services.complete_step(person=floor.personas["operator"], lot_step_id=step.pk, pin=PIN)
     client.force_login(floor.personas["operator"].user)
     page = client.get(f"/floor/lots/{floor.lot.code}/").content.decode()

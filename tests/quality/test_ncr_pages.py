@@ -26,8 +26,8 @@ from shopfloor.plant import people
 from shopfloor.plant.models import Lot, Panel, Person, Role
 from shopfloor.quality.models import Hold, Nonconformance, OutboxEvent, SeriesState
 from shopfloor.quality.services import alerts
+from tests import helpers
 from tests.factories import PIN, make_person
-from tests.worker import floorkit as kit
 
 pytestmark = pytest.mark.django_db
 
@@ -42,9 +42,9 @@ def _client(person: Person | None) -> Client:
 @pytest.fixture
 def held(floor):
     """Surface copper 70 um at pattern plating (window 33.75-57.5 um) -> alert, hold, NCR."""
-    step = kit.start_at(floor, floor.lot)
-    reading = kit.record(floor, step, "surface_copper", 70.0)
-    alerts.handle_event(kit.event_for(reading).pk)
+    step = helpers.start_at(floor, floor.lot)
+    reading = helpers.record(floor, step, "surface_copper", 70.0)
+    alerts.handle_event(helpers.event_for(reading).pk)
     ncr = Nonconformance.objects.get(lot=floor.lot)
     return step, ncr, reading
 
@@ -349,7 +349,7 @@ WINDOW = {
 
 @pytest.fixture
 def series(floor):
-    step = kit.start_at(floor, floor.lot)
+    step = helpers.start_at(floor, floor.lot)
     start = timezone.now() - dt.timedelta(minutes=30)
     for i, value in enumerate(NIST):
         when = start + dt.timedelta(minutes=i)

@@ -19,7 +19,7 @@ from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Job, Lot
 from shopfloor.quality.models import Alert, Hold, Nonconformance
 from shopfloor.quality.services import deadlines
-from tests.worker import floorkit as kit
+from tests import helpers
 
 pytestmark = pytest.mark.django_db
 
@@ -29,7 +29,7 @@ BOND = "bond_treatment_c1"
 
 def test_queue_time_warns_then_holds_once(floor):
     with time_machine.travel(T0, tick=False) as clock:
-        step = kit.advance_to(floor.lot, BOND)
+        step = helpers.advance_to(floor.lot, BOND)
         assert step.queue_time_limit_minutes == 480
         clock.shift(dt.timedelta(minutes=380))  # 79 % of 480: nothing yet
         assert deadlines.check_queue_times()["warnings"] == 0
@@ -51,7 +51,7 @@ def test_queue_time_warns_then_holds_once(floor):
 
 def test_started_step_is_not_checked(floor):
     with time_machine.travel(T0, tick=False) as clock:
-        step = kit.advance_to(floor.lot, BOND)
+        step = helpers.advance_to(floor.lot, BOND)
         LotStep.objects.filter(pk=step.pk).update(status="in_progress", started_at=timezone.now())
         clock.shift(dt.timedelta(hours=10))
         assert deadlines.check_queue_times()["checked"] == 0
@@ -61,7 +61,7 @@ def test_started_step_is_not_checked(floor):
 def test_supervisor_releases_warning_with_reason(floor):
     supervisor = floor.personas["supervisor"]
     with time_machine.travel(T0, tick=False) as clock:
-        step = kit.advance_to(floor.lot, BOND)
+        step = helpers.advance_to(floor.lot, BOND)
         clock.shift(dt.timedelta(minutes=400))
         deadlines.check_queue_times()
         with pytest.raises(NotAllowed):
@@ -83,7 +83,7 @@ def test_due_dates_at_risk_then_late(floor):
     job = floor.job
     Job.objects.filter(pk=job.pk).update(due_date=dt.date(2026, 3, 12))
     with time_machine.travel(T0, tick=False) as clock:
-        kit.advance_to(floor.lot, "pattern_plate_copper")
+        helpers.advance_to(floor.lot, "pattern_plate_copper")
         remaining = deadlines.job_remaining_minutes(job)
         expected = sum(
             LotStep.objects.filter(lot=floor.lot, position__gte=200).values_list(

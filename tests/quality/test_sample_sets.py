@@ -17,9 +17,8 @@ from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Lot
 from shopfloor.quality.models import Alert, Hold, Nonconformance, OutboxEvent
 from shopfloor.quality.services import alerts, dispositions
-from tests import factories
+from tests import factories, helpers
 from tests.factories import PIN
-from tests.worker import floorkit as kit
 
 pytestmark = pytest.mark.django_db
 
@@ -33,7 +32,7 @@ def class3_step(floor):
     revision = factories.make_part_revision(spec)
     routing = factories.release_routing(revision, floor.personas["process_engineer"])
     lot = factories.make_lot(routing, factories.make_job(revision, routing))
-    step = kit.start_at(floor, lot)
+    step = helpers.start_at(floor, lot)
     return floor, lot, step
 
 

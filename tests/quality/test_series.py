@@ -23,7 +23,7 @@ from shopfloor.floor.models import Reading
 from shopfloor.plant.models import Lot
 from shopfloor.quality.models import Alert, OutboxEvent, SeriesState
 from shopfloor.quality.services import alerts, limits
-from tests.worker import floorkit as kit
+from tests import factories, helpers
 
 pytestmark = pytest.mark.django_db
 
@@ -64,7 +64,7 @@ def _feed(floor, step, value, *, window=WINDOW, when=None, sample=1):
 
 @pytest.fixture
 def step(floor):
-    return kit.start_at(floor, floor.lot)
+    return helpers.start_at(floor, floor.lot)
 
 
 def _series():
@@ -218,7 +218,10 @@ GROUPS = [
 
 
 def _lot_steps(floor, count, prefix="XB"):
-    return [kit.start_at(floor, kit.new_lot(floor, code=f"{prefix}-{k}")) for k in range(count)]
+    return [
+        helpers.start_at(floor, factories.new_lot(floor, code=f"{prefix}-{k}"))
+        for k in range(count)
+    ]
 
 
 def _feed_group(floor, step, values):

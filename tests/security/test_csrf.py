@@ -18,7 +18,7 @@ import pytest
 from django.test import Client
 from django.urls import URLPattern, URLResolver, get_resolver
 
-from tests.api.helpers import advance_to, issue_token
+from tests.helpers import advance_to, issue_token
 
 pytestmark = pytest.mark.django_db
 
@@ -123,7 +123,7 @@ def test_with_the_token_the_same_requests_get_through_csrf(floor):
     assert "_auth_user_id" in client.session
 
     # A session-authenticated API POST with the header passes CSRF and reaches the service.
-    step = advance_to(floor.lot, "pattern_plate_copper", floor.personas["operator"])
+    step = advance_to(floor.lot, "pattern_plate_copper", by=floor.personas["operator"], start=True)
     token = client.cookies["csrftoken"].value
     body = {
         "lot": floor.lot.code,
@@ -142,7 +142,7 @@ def test_with_the_token_the_same_requests_get_through_csrf(floor):
 
 
 def test_instrument_token_posts_need_no_csrf_token(floor):
-    step = advance_to(floor.lot, "pattern_plate_copper", floor.personas["operator"])
+    step = advance_to(floor.lot, "pattern_plate_copper", by=floor.personas["operator"], start=True)
     raw = issue_token("csrf-gauge", step.work_center.code)
     client = Client(enforce_csrf_checks=True)
     reply = client.post(

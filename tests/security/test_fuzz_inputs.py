@@ -21,7 +21,7 @@ from hypothesis import strategies as st
 from routing.builder import spec as spec_module
 from shopfloor import strict_json
 from shopfloor.core import units
-from tests.api.helpers import advance_to
+from tests.helpers import advance_to
 
 pytestmark = pytest.mark.django_db
 
@@ -88,7 +88,7 @@ API_POSTS = [
 
 @pytest.fixture
 def world(floor):
-    step = advance_to(floor.lot, "pattern_plate_copper", floor.personas["operator"])
+    step = advance_to(floor.lot, "pattern_plate_copper", by=floor.personas["operator"], start=True)
     clients = {}
     for name in ("supervisor", "process_engineer", "quality_engineer"):
         client = Client()

@@ -16,7 +16,7 @@ from django.test import Client
 from django.urls import URLPattern, URLResolver, get_resolver
 
 from shopfloor.core import units
-from tests.api.helpers import advance_to
+from tests.helpers import advance_to
 
 pytestmark = pytest.mark.django_db
 
@@ -135,7 +135,7 @@ def test_only_ascii_decimal_numbers_are_read(text):
 @pytest.mark.parametrize("value", ["3_0", "٣٠", "３０"])
 def test_unusual_digits_are_refused_by_the_api_and_the_tablet(floor, value):
     operator = floor.personas["operator"]
-    step = advance_to(floor.lot, "pattern_plate_copper", operator)
+    step = advance_to(floor.lot, "pattern_plate_copper", by=operator, start=True)
     client = Client()
     client.force_login(operator.user)
     reply = client.post(

@@ -26,8 +26,8 @@ from shopfloor.plant.models import Customer, Equipment, Part, Person
 from shopfloor.quality.models import Hold, Nonconformance
 from shopfloor.quality.services import alerts, dispositions
 from shopfloor.safe_output import FORMULA_STARTS, csv_cell, pdf_text
+from tests import factories, helpers
 from tests.factories import PIN
-from tests.worker import floorkit as kit
 
 REPO = Path(__file__).resolve().parents[2]
 
@@ -97,10 +97,10 @@ def hostile(floor):
     Part.objects.filter(pk=floor.job.part_revision.part_id).update(number="@PN<i>")
     Person.objects.filter(pk=floor.personas["operator"].pk).update(printed_name=f"-Op {BROKEN}")
     floor.personas["operator"].refresh_from_db()
-    lot = kit.new_lot(floor, code="L<i>=1")
-    step = kit.start_at(floor, lot)
+    lot = factories.new_lot(floor, code="L<i>=1")
+    step = helpers.start_at(floor, lot)
     Equipment.objects.filter(work_center=step.work_center).update(name="<i>gauge")
-    good = kit.record(floor, step, "hole_wall_copper", 25.0)
+    good = helpers.record(floor, step, "hole_wall_copper", 25.0)
     floor_services.correct_reading(
         person=floor.personas["operator"],
         reading_id=good.pk,
@@ -108,8 +108,8 @@ def hostile(floor):
         unit="um",
         reason=f"{FORMULA} {IMG_TAG}",
     )
-    bad = kit.record(floor, step, "surface_copper", 80.0)
-    alerts.handle_event(kit.event_for(bad).pk)
+    bad = helpers.record(floor, step, "surface_copper", 80.0)
+    alerts.handle_event(helpers.event_for(bad).pk)
     ncr = Nonconformance.objects.get(lot=lot)
     Nonconformance.objects.filter(pk=ncr.pk).update(description=f"@SUM(1) {BROKEN}")
     Hold.objects.filter(lot=lot).update(reason=f"+{IMG_TAG}")

@@ -13,7 +13,7 @@ import re
 import pytest
 from rest_framework.test import APIClient
 
-from tests.api.helpers import advance_to
+from tests.helpers import advance_to
 
 pytestmark = pytest.mark.django_db
 
@@ -38,7 +38,7 @@ def _value_schema(schema):
 def test_empty_value_is_invalid_by_the_schema_and_by_the_server(api, schema, floor):
     text = next(s for s in _value_schema(schema) if s["type"] == "string")
     assert text["minLength"] == 1 and not re.search(text["pattern"], "")
-    advance_to(floor.lot, "pattern_plate_copper", floor.personas["operator"])
+    advance_to(floor.lot, "pattern_plate_copper", by=floor.personas["operator"], start=True)
     reply = api.post(
         "/api/v1/readings/",
         {"lot": floor.lot.code, "quantity": "surface_copper", "value": "", "unit": "um"},
@@ -64,7 +64,7 @@ def test_value_text_pattern_matches_what_the_server_reads(schema, text):
 
 def test_a_reason_over_the_limit_is_refused_even_with_trailing_controls(api, floor):
     operator = floor.personas["operator"]
-    step = advance_to(floor.lot, "pattern_plate_copper", operator)
+    step = advance_to(floor.lot, "pattern_plate_copper", by=operator, start=True)
     from shopfloor.floor import services
 
     reading = services.record_reading(

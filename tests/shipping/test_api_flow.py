@@ -26,9 +26,8 @@ from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import MaterialLot
 from shopfloor.quality.models import Nonconformance, OutboxEvent
 from shopfloor.quality.services import alerts
-from tests.api.helpers import issue_token
 from tests.factories import PIN, SPEC_4L_ENIG
-from tests.floor.helpers import in_window_value, one_entry_per_quantity
+from tests.helpers import in_window_value, issue_token, one_entry_per_quantity
 
 pytestmark = pytest.mark.django_db
 

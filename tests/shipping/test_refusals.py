@@ -19,9 +19,9 @@ from shopfloor.plant.models import MaterialLot, Panel
 from shopfloor.quality.models import Nonconformance
 from shopfloor.quality.services import alerts
 from shopfloor.shipping.models import Shipment
+from tests import helpers
 from tests.factories import SPEC_4L_ENIG, make_part_revision, release_routing
-from tests.floor.helpers import out_of_window_value
-from tests.worker import floorkit as kit
+from tests.helpers import out_of_window_value
 
 pytestmark = pytest.mark.django_db
 
@@ -50,10 +50,10 @@ def _job(planner, part_revision, quantity=20):
 
 
 def test_shipping_with_an_open_ncr_is_refused(floor):
-    step = kit.start_at(floor, floor.lot)
+    step = helpers.start_at(floor, floor.lot)
     window = next(m for m in step.plan if m["quantity"] == "surface_copper")
-    bad = kit.record(floor, step, "surface_copper", out_of_window_value(window))
-    alerts.handle_event(kit.event_for(bad).pk)
+    bad = helpers.record(floor, step, "surface_copper", out_of_window_value(window))
+    alerts.handle_event(helpers.event_for(bad).pk)
     ncr = Nonconformance.objects.get(lot=floor.lot)
     reply = _client(floor.personas["planner"]).post(
         "/api/v1/shipments/",
@@ -95,7 +95,7 @@ def test_an_incompatible_panel_mix_is_refused(floor):
 
 def test_expired_prepreg_is_refused_at_layup(floor):
     code = floor.lot.steps.filter(code__startswith="layup").order_by("position").first().code
-    layup = kit.start_at(floor, floor.lot, code)
+    layup = helpers.start_at(floor, floor.lot, code)
     MaterialLot.objects.create(
         code="PP-EXPIRED",
         kind="prepreg",

@@ -23,10 +23,9 @@ from shopfloor.quality.models import Nonconformance
 from shopfloor.quality.services import alerts, dispositions
 from shopfloor.shipping import services
 from shopfloor.shipping.models import Shipment
-from tests import factories
+from tests import factories, helpers
 from tests.factories import PIN
-from tests.floor.helpers import advance_to, finish_step, out_of_window_value
-from tests.worker import floorkit as kit
+from tests.helpers import advance_to, finish_step, out_of_window_value
 
 pytestmark = pytest.mark.django_db
 
@@ -119,11 +118,11 @@ def test_partial_shipments_close_the_job_and_the_certificate_reads_right(
 def test_open_ncr_and_unfinished_steps_refuse_the_certificate(floor, small_job, planner):
     job, lot = small_job
     op = floor.personas["operator"]
-    step = advance_to(lot, op, lambda s: s.code == kit.PLATING)
+    step = advance_to(lot, lambda s: s.code == helpers.PLATING, by=op, walk=True)
     floor_services.start_step(person=op, lot_step_id=step.pk)
     window = next(m for m in step.plan if m["quantity"] == "surface_copper")
-    reading = kit.record(floor, step, "surface_copper", out_of_window_value(window))
-    alerts.handle_event(kit.event_for(reading).pk)
+    reading = helpers.record(floor, step, "surface_copper", out_of_window_value(window))
+    alerts.handle_event(helpers.event_for(reading).pk)
     ncr = Nonconformance.objects.get(lot=lot)
     with pytest.raises(Conflict) as exc:
         services.ship(person=planner, job_number=job.number, quantity=1, lot_codes=[lot.code])
@@ -152,10 +151,10 @@ def test_mixed_disposition_applies_every_panel_action(floor, planner, tmp_path):
     job = factories.make_job(floor.job.part_revision, floor.routing, quantity=4)
     lot = factories.make_lot(floor.routing, job, panels=2)
     op, qe = floor.personas["operator"], floor.personas["quality_engineer"]
-    aoi = advance_to(lot, op, lambda s: s.code == "outer_aoi")
+    aoi = advance_to(lot, lambda s: s.code == "outer_aoi", by=op, walk=True)
     floor_services.start_step(person=op, lot_step_id=aoi.pk)
-    reading = kit.record(floor, aoi, "aoi_defects", 2, unit="count")
-    alerts.handle_event(kit.event_for(reading).pk)
+    reading = helpers.record(floor, aoi, "aoi_defects", 2, unit="count")
+    alerts.handle_event(helpers.event_for(reading).pk)
     ncr = Nonconformance.objects.get(lot=lot)
     p1, p2 = lot.panels.order_by("serial")
     dispositions.disposition_ncr(

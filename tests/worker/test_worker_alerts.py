@@ -15,8 +15,7 @@ from django.db import transaction
 from shopfloor.plant.models import Lot
 from shopfloor.quality import tasks
 from shopfloor.quality.models import Alert, Hold, Nonconformance, OutboxEvent
-from tests import factories
-from tests.worker import floorkit as kit
+from tests import factories, helpers
 from tests.worker.procs import wait_for
 
 pytestmark = [pytest.mark.worker, pytest.mark.django_db(transaction=True), pytest.mark.timeout(90)]
@@ -33,12 +32,12 @@ def _counts() -> tuple[int, int, int]:
 def test_reading_to_alert_hold_ncr_and_duplicate_delivery(workers):
     worker = workers.start()
     floor = factories.make_floor()
-    step = kit.start_at(floor, floor.lot)
+    step = helpers.start_at(floor, floor.lot)
 
-    reading = kit.record(floor, step, "surface_copper", 61.0)
+    reading = helpers.record(floor, step, "surface_copper", 61.0)
 
     assert wait_for(lambda: _counts() == (1, 1, 1), timeout=20), worker.log()[-2000:]
-    event = kit.event_for(reading)
+    event = helpers.event_for(reading)
     assert wait_for(lambda: worker.count(f"{TASK}[") >= 2, timeout=10)  # received+succeeded
     # The same event delivered twice more (a relay repeat, a redelivery): still one.
     tasks.process_event.delay(event.pk)
@@ -54,12 +53,12 @@ def test_reading_to_alert_hold_ncr_and_duplicate_delivery(workers):
 def test_rolled_back_reading_never_reaches_the_worker(workers):
     worker = workers.start()
     floor = factories.make_floor()
-    step = kit.start_at(floor, floor.lot)
+    step = helpers.start_at(floor, floor.lot)
     with pytest.raises(RuntimeError), transaction.atomic():
-        kit.record(floor, step, "surface_copper", 70.0)
+        helpers.record(floor, step, "surface_copper", 70.0)
         raise RuntimeError("operator cancelled; the transaction rolls back")
     # A later good reading proves the worker is consuming; the rolled-back one left nothing.
-    kit.record(floor, step, "surface_copper", 41.0, sample=2)
+    helpers.record(floor, step, "surface_copper", 41.0, sample=2)
     assert wait_for(lambda: worker.count("succeeded") >= 1, timeout=20), worker.log()[-2000:]
     time.sleep(0.5)
     assert OutboxEvent.objects.count() == 1
