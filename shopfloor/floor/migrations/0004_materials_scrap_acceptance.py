@@ -4,6 +4,9 @@ import django.db.models.deletion
 import django.utils.timezone
 from django.db import migrations, models
 
+# The frozen starting lists (never edited: see shopfloor/floor/site_lists_v1.py).
+from shopfloor.floor.site_lists_v1 import SCRAP_REASONS, SHELF_LIVES
+
 
 class Migration(migrations.Migration):
 
@@ -95,32 +98,6 @@ class Migration(migrations.Migration):
             },
         ),
     ]
-
-
-#: Starting lists the site edits in the admin. Shelf lives are counted from receipt at
-#: controlled storage; the supplier's datasheet governs (typical figures, from memory:
-#: prepreg about 3 months at 23 degC / 50 % RH, photoimageable mask and legend inks and
-#: dry film about 6 months).
-SHELF_LIVES = [
-    ("prepreg", 90, "typical at 23 degC / 50 % RH (from memory); check the datasheet"),
-    ("mask_ink", 180, "typical for photoimageable mask (from memory); check the datasheet"),
-    ("legend_ink", 180, "typical (from memory); check the datasheet"),
-    ("dry_film", 180, "typical (from memory); check the datasheet"),
-]
-SCRAP_REASONS = [
-    ("open", "Open circuit"),
-    ("short", "Short circuit"),
-    ("plating_thin", "Plating too thin"),
-    ("registration", "Misregistration"),
-    ("mask_defect", "Solder mask defect"),
-    ("finish_defect", "Surface finish defect"),
-    ("delamination", "Delamination or blister"),
-    ("handling", "Handling damage (scratch, dent, bent)"),
-    ("dimension", "Out of dimension"),
-    ("drill", "Drill defect (missing, extra or misplaced hole)"),
-    ("contamination", "Contamination"),
-    ("other", "Other (say what in the note)"),
-]
 
 
 def seed(apps, schema_editor):

@@ -3,6 +3,9 @@
 import django.db.models.deletion
 from django.db import migrations, models
 
+# The frozen starting lists (never edited: see shopfloor/floor/site_lists_v1.py).
+from shopfloor.floor.site_lists_v1 import ROOT_CAUSES
+
 
 class Migration(migrations.Migration):
 
@@ -44,20 +47,6 @@ class Migration(migrations.Migration):
             field=models.ForeignKey(blank=True, null=True, on_delete=django.db.models.deletion.PROTECT, related_name='ncrs', to='quality.rootcause'),
         ),
     ]
-
-
-#: A starting list the site edits in the admin (common categories of a fab's NCRs).
-ROOT_CAUSES = [
-    ("process_drift", "Process drift (parameter or chemistry out of control)"),
-    ("equipment", "Equipment failure or wear"),
-    ("material", "Incoming material"),
-    ("operator", "Operator error or training"),
-    ("method", "Instructions or method unclear"),
-    ("design", "Design or data (CAM) issue"),
-    ("measurement", "Measurement error (gauge, method)"),
-    ("handling", "Handling or environment"),
-    ("unknown", "Not yet determined"),
-]
 
 
 def seed(apps, schema_editor):
