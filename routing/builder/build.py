@@ -23,7 +23,8 @@ from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
-from .library import DEFAULT_PLATING_ALLOWANCE_MM, ProcessLibrary, StepDefinition
+from .default_library import DEFAULT_PLATING_ALLOWANCE_MM
+from .library import ProcessLibrary, StepDefinition
 from .spec import BuildSpec, SubAssembly, Via
 from .windows import Window, window_rules
 

@@ -20,7 +20,7 @@ from django.forms.models import model_to_dict
 from django.test import Client, RequestFactory
 from django.urls import reverse
 
-from routing.builder.library import DEFAULT_LIBRARY, REQUIRED_STEP_CODES
+from routing.builder.default_library import DEFAULT_LIBRARY, REQUIRED_STEP_CODES
 from routing.models import ProcessLibraryVersion, RoutingRevision, RoutingStep
 from shopfloor.audit.models import AuditEntry, Signature
 from shopfloor.floor import services

@@ -15,7 +15,7 @@ from django.test import Client
 from routing import services
 from routing.builder import render
 from routing.builder.build import build_routing, drill_size
-from routing.builder.library import DEFAULT_PLATING_ALLOWANCE_MM
+from routing.builder.default_library import DEFAULT_PLATING_ALLOWANCE_MM
 from routing.builder.spec import EXAMPLE_SPECS, SpecInvalid, normalise_spec, parse_spec
 from routing.models import RoutingRevision
 from shopfloor.errors import Conflict, InvalidInput
