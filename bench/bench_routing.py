@@ -18,7 +18,7 @@ if __package__ in (None, ""):
     sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
 from routing.builder import ProcessLibrary, build_routing, parse_spec, routing_to_dict
-from routing.builder.spec import EXAMPLE_SPECS
+from routing.builder.examples import EXAMPLE_SPECS
 
 
 def _eight_layer() -> dict[str, Any]:

@@ -12,7 +12,7 @@ from rest_framework.response import Response
 from rest_framework.views import APIView
 
 from routing import services
-from routing.builder.spec import EXAMPLE_SPEC
+from routing.builder.examples import EXAMPLE_SPEC
 from routing.serializers import (
     DesignImportRequestSerializer,
     DesignImportSerializer,

@@ -22,7 +22,7 @@ from routing.api import split_preview_body
 from routing.builder import render as routing_render
 from routing.builder import spec as spec_core
 from routing.builder.design_import import ImportResult, cross_section_svg
-from routing.builder.spec import EXAMPLE_SPEC
+from routing.builder.examples import EXAMPLE_SPEC
 from routing.models import RoutingRevision
 from shopfloor import strict_json
 from shopfloor.access import ENGINEER_ROLES

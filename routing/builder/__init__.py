@@ -15,7 +15,8 @@ from .overrides import (
     classify_override,
 )
 from .render import diff_routings, routing_to_dict, routing_to_text
-from .spec import BuildSpec, ShopCapability, SpecError, SpecInvalid, parse_spec, spec_json_schema
+from .spec import BuildSpec, ShopCapability, SpecError, SpecInvalid, parse_spec
+from .spec_schema import spec_json_schema
 from .windows import Provenance, Window, window_rule
 
 __all__ = [

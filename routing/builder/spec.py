@@ -6,8 +6,11 @@ types a spec and needs every problem at once, each tied to the field it came fro
 shop rules (plating aspect ratio, microvia depth, lamination sequence), so we check
 types and shop rules in one pass and collect everything.
 
-The lamination plan (how many press cycles a via structure needs) is derived here too,
-because a via structure no press sequence can build is a spec error, not a build error.
+The vocabulary and the parsed spec's dataclasses are in spec_model.py (re-exported here,
+see __all__); the lamination plan (how many press cycles a via structure needs) is
+derived in lamination.py and checked here, because a via structure no press sequence can
+build is a spec error, not a build error. The JSON Schema is spec_schema.py, the example
+specs examples.py.
 """
 
 from __future__ import annotations
@@ -16,13 +19,50 @@ import itertools
 import math
 import re
 from collections.abc import Mapping
-from dataclasses import dataclass, field
 from typing import Any, Final
 
+from .lamination import Unbuildable, plan_lamination
+from .spec_model import (
+    DRILLS,
+    ELECTRICAL_TESTS,
+    FINISHES,
+    LAYER_COUNTS,
+    MASK_COLOURS,
+    OPTIONAL_KEYS,
+    PROFILES,
+    REQUIRED_KEYS,
+    SIDES,
+    STACKUP_KINDS,
+    STACKUP_TOLERANCE,
+    VIA_KINDS,
+    BuildSpec,
+    LaminationPlan,
+    Legend,
+    Outline,
+    ShopCapability,
+    SolderMask,
+    SpecError,
+    SpecInvalid,
+    StackupLayer,
+    SubAssembly,
+    Via,
+    canonical_choice,
+    json_safe,
+)
+
 __all__ = [
-    "EXAMPLE_SPEC",
-    "EXAMPLE_SPECS",
+    "DRILLS",
+    "ELECTRICAL_TESTS",
     "FINISHES",
+    "LAYER_COUNTS",
+    "MASK_COLOURS",
+    "OPTIONAL_KEYS",
+    "PROFILES",
+    "REQUIRED_KEYS",
+    "SIDES",
+    "STACKUP_KINDS",
+    "STACKUP_TOLERANCE",
+    "VIA_KINDS",
     "BuildSpec",
     "LaminationPlan",
     "Legend",
@@ -38,105 +78,7 @@ __all__ = [
     "normalise_spec",
     "parse_spec",
     "plan_lamination",
-    "spec_json_schema",
 ]
-
-FINISHES: Final = (
-    "enig",
-    "enepig",
-    "immersion_silver",
-    "immersion_tin",
-    "hasl_lead_free",
-    "osp",
-    "none",
-)
-SIDES: Final = ("both", "top", "bottom", "none")
-PROFILES: Final = ("route", "v_score", "route_and_v_score")
-ELECTRICAL_TESTS: Final = ("flying_probe", "fixture")
-VIA_KINDS: Final = ("blind", "buried", "through")
-DRILLS: Final = ("laser", "mechanical")
-STACKUP_KINDS: Final = ("copper", "core", "prepreg")
-LAYER_COUNTS: Final = (1, 2, *range(4, 41, 2))
-MASK_COLOURS: Final = ("green", "matte_green", "red", "blue", "black", "white", "yellow", "purple")
-
-REQUIRED_KEYS: Final = (
-    "layers",
-    "ipc_class",
-    "board_thickness_mm",
-    "outer_copper_base_um",
-    "finish",
-    "profile",
-    "electrical_test",
-    "min_hole_mm",
-)
-OPTIONAL_KEYS: Final = (
-    "inner_copper_um",
-    "hard_gold_fingers",
-    "solder_mask",
-    "legend",
-    "vias",
-    "stackup",
-    "outline",
-)
-
-#: Summed stack-up thickness may differ from the stated board thickness by this much.
-#: Common practice: finished thickness tolerance is ±10 % unless the drawing says less.
-STACKUP_TOLERANCE: Final = 0.10
-
-
-@dataclass(frozen=True)
-class ShopCapability:
-    """What this shop's lines can plate and drill; parameters, because shops differ.
-
-    Defaults are common practice: through-hole plating is routinely good to 8:1 and
-    possible to 10:1 with care; a laser microvia should be no deeper than it is wide
-    (1:1, IPC-2226 guidance from memory) and normally spans one dielectric.
-    """
-
-    max_aspect_ratio: float = 10.0
-    warn_aspect_ratio: float = 8.0
-    laser_hole_mm: float = 0.1
-    max_microvia_aspect_ratio: float = 1.0
-    #: Copper layers a laser via may span without a warning (adjacent layers = 2).
-    laser_layers_ok: int = 2
-    #: Copper layers a laser via may span at all (3 = a "skip via", warned).
-    laser_layers_max: int = 3
-
-
-@dataclass(frozen=True)
-class SpecError:
-    """One problem with a spec: where, what was given, what is wrong, what is allowed."""
-
-    field: str
-    value: Any
-    problem: str
-    allowed: str | list[Any] | None = None
-
-    def as_dict(self) -> dict[str, Any]:
-        """JSON-safe form for the API (values that are not JSON become their repr)."""
-        return {
-            "field": self.field,
-            "value": _json_safe(self.value),
-            "problem": self.problem,
-            "allowed": self.allowed,
-        }
-
-
-def _json_safe(value: Any) -> Any:
-    if value is None or isinstance(value, bool | int | str):
-        return value
-    if isinstance(value, float):
-        return value if math.isfinite(value) else repr(value)
-    if isinstance(value, list | tuple):
-        return [_json_safe(v) for v in value]
-    if isinstance(value, Mapping):
-        return {str(k): _json_safe(v) for k, v in value.items()}
-    return repr(value)
-
-
-def canonical_choice(value: str) -> str:
-    """The stored spelling of an enumerated value: lower case, underscores."""
-    return "_".join(value.strip().lower().replace("-", " ").split())
 
 
 _THICKNESS_ALLOWED: Final = {
@@ -160,133 +102,6 @@ def _thickness_text(text: str, copper: bool) -> float | str:
         return units.to_canonical("surface_copper", number, unit)
     except units.UnitError as exc:
         return str(exc).replace("surface_copper: ", "")
-
-
-class SpecInvalid(ValueError):
-    """Raised with every problem found in a spec, not just the first."""
-
-    def __init__(self, errors: list[SpecError]) -> None:
-        self.errors = list(errors)
-        lines = "; ".join(f"{e.field}: {e.problem}" for e in self.errors)
-        super().__init__(f"{len(self.errors)} problem(s) in build spec: {lines}")
-
-    def as_dicts(self) -> list[dict[str, Any]]:
-        return [e.as_dict() for e in self.errors]
-
-
-@dataclass(frozen=True)
-class SolderMask:
-    sides: str = "both"
-    colour: str = "green"
-
-
-@dataclass(frozen=True)
-class Legend:
-    sides: str = "both"
-
-
-@dataclass(frozen=True)
-class Via:
-    """A via structure: copper layers `from_layer`..`to_layer` (1 = top), inclusive."""
-
-    from_layer: int
-    to_layer: int
-    kind: str
-    drill: str
-
-    @property
-    def span(self) -> tuple[int, int]:
-        return (self.from_layer, self.to_layer)
-
-    @property
-    def layers_spanned(self) -> int:
-        return self.to_layer - self.from_layer + 1
-
-    def label(self) -> str:
-        return f"L{self.from_layer}-L{self.to_layer} {self.kind} {self.drill}"
-
-
-@dataclass(frozen=True)
-class StackupLayer:
-    kind: str
-    thickness_um: float
-    material: str = ""
-
-
-@dataclass(frozen=True)
-class Outline:
-    """The board's outline size (its profile's bounding box), for panelisation."""
-
-    width_mm: float
-    height_mm: float
-
-
-@dataclass(frozen=True)
-class SubAssembly:
-    """Layers lo..hi laminated (or a single core) and drilled before the next press."""
-
-    lo: int
-    hi: int
-    cycle: int
-    vias: tuple[Via, ...]
-
-    @property
-    def needs_press(self) -> bool:
-        """A single core (two adjacent copper layers) is already laminated."""
-        return self.hi - self.lo >= 2
-
-    def label(self) -> str:
-        return f"L{self.lo}-L{self.hi}"
-
-
-@dataclass(frozen=True)
-class LaminationPlan:
-    """Press cycles for a board: sub-assemblies by cycle, then the final cycle."""
-
-    cycles: int
-    sub_assemblies: tuple[SubAssembly, ...]
-    final_vias: tuple[Via, ...]
-
-    def in_cycle(self, cycle: int) -> tuple[SubAssembly, ...]:
-        return tuple(s for s in self.sub_assemblies if s.cycle == cycle)
-
-
-@dataclass(frozen=True)
-class BuildSpec:
-    layers: int
-    ipc_class: int
-    board_thickness_mm: float
-    outer_copper_base_um: float
-    inner_copper_um: float | None
-    finish: str
-    hard_gold_fingers: bool
-    solder_mask: SolderMask
-    legend: Legend
-    profile: str
-    electrical_test: str
-    min_hole_mm: float
-    vias: tuple[Via, ...] = ()
-    stackup: tuple[StackupLayer, ...] | None = None
-    #: Problems that do not stop a build but a process engineer should see.
-    warnings: tuple[str, ...] = ()
-    lamination: LaminationPlan = field(
-        default_factory=lambda: LaminationPlan(cycles=0, sub_assemblies=(), final_vias=())
-    )
-    microvia_aspect_ratio: float | None = None
-    outline: Outline | None = None
-
-    @property
-    def aspect_ratio(self) -> float:
-        """Board thickness over smallest hole: what limits plating into the hole."""
-        return round(self.board_thickness_mm / self.min_hole_mm, 3)
-
-    @property
-    def has_mask(self) -> bool:
-        return self.solder_mask.sides != "none"
-
-    @property
-    def has_legend(self) -> bool:
-        return self.legend.sides != "none"
 
 
 # --------------------------------------------------------------------------- helpers
@@ -793,7 +608,7 @@ def _microvia_aspect_ratio(
         else:
             c.add(
                 f"vias[{i}]",
-                _json_safe({"from": v.from_layer, "to": v.to_layer}),
+                json_safe({"from": v.from_layer, "to": v.to_layer}),
                 text + " (IPC-2226 guidance, from memory; common practice)",
                 f"dielectric depth <= {limit_um:g} um",
             )
@@ -901,81 +716,10 @@ def _check_stackup(
 # --------------------------------------------------------------------------- lamination
 
 
-class _Unbuildable(ValueError):
-    pass
-
-
-def _required_stack(v: Via, layers: int) -> tuple[int, int] | None:
-    """The stack a via must be drilled in; None for the final (full) stack."""
-    if v.from_layer == 1 or v.to_layer == layers:
-        return None
-    if v.drill == "mechanical":
-        return (v.from_layer, v.to_layer)
-    # A laser via drills into a surface, so the stack must have that layer outside;
-    # build-ups are added in symmetric pairs to keep the panel flat.
-    if v.from_layer - 1 <= layers - v.to_layer:
-        return (v.from_layer, layers + 1 - v.from_layer)
-    return (layers + 1 - v.to_layer, v.to_layer)
-
-
-def plan_lamination(layers: int, vias: tuple[Via, ...]) -> LaminationPlan:
-    """Derive press cycles from the via structure.
-
-    Rule (group vias by span, then nest):
-
-    1. Through vias and blind vias that start at an outer layer are drilled in the
-       final cycle, after the last press (laser or controlled-depth drilling).
-    2. Every other via is buried and must be drilled and plated while its layers are a
-       stack of their own, before the layers around it are pressed on:
-       - a mechanical buried via a..b needs the stack La..Lb (a buried 3-4 via in an
-         8-layer is a single core drilled and plated before the final press: 2 cycles);
-       - a laser buried via needs a stack with its layer on the surface; build-ups are
-         pressed in symmetric pairs, so a laser 2-3 via on 8 layers needs L2-L7.
-    3. Equal spans merge. Stacks must nest or be disjoint; partial overlap (2-4 with
-       3-5) cannot be pressed in any order and is refused.
-    4. A stack's cycle is one more than the deepest stack inside it; disjoint stacks of
-       the same depth are processed side by side in one cycle. The final cycle follows.
-       Stacked laser vias 1-2 and 2-3 (and their mirror) therefore need one cycle per
-       stacking level: L2-L(n-1) then the final press.
-
-    One- and two-layer boards are not laminated: 0 cycles.
-    """
-    if layers < 4:
-        return LaminationPlan(cycles=0, sub_assemblies=(), final_vias=vias)
-    by_stack: dict[tuple[int, int], list[Via]] = {}
-    final: list[Via] = []
-    for v in vias:
-        stack = _required_stack(v, layers)
-        if stack is None:
-            final.append(v)
-        else:
-            by_stack.setdefault(stack, []).append(v)
-    spans = sorted(by_stack, key=lambda s: (s[1] - s[0], s[0]))
-    for i, a in enumerate(spans):
-        for b in spans[i + 1 :]:
-            disjoint = a[1] < b[0] or b[1] < a[0]
-            nested = (b[0] <= a[0] and a[1] <= b[1]) or (a[0] <= b[0] and b[1] <= a[1])
-            if not (disjoint or nested):
-                raise _Unbuildable(
-                    f"sub-assemblies L{a[0]}-L{a[1]} and L{b[0]}-L{b[1]} overlap without "
-                    "nesting; no press sequence can build them"
-                )
-    cycle_of: dict[tuple[int, int], int] = {}
-    for s in spans:  # smallest first, so everything inside s is already numbered
-        inner = [cycle_of[t] for t in cycle_of if s[0] <= t[0] and t[1] <= s[1]]
-        cycle_of[s] = 1 + max(inner, default=0)
-    subs = tuple(
-        SubAssembly(lo=s[0], hi=s[1], cycle=cycle_of[s], vias=tuple(by_stack[s]))
-        for s in sorted(spans, key=lambda s: (cycle_of[s], s[0]))
-    )
-    cycles = 1 + max(cycle_of.values(), default=0)
-    return LaminationPlan(cycles=cycles, sub_assemblies=subs, final_vias=tuple(final))
-
-
 def _plan_or_error(c: _Collector, layers: int, vias: tuple[Via, ...]) -> LaminationPlan | None:
     try:
         return plan_lamination(layers, vias)
-    except _Unbuildable as exc:
+    except Unbuildable as exc:
         c.add(
             "vias",
             [v.label() for v in vias],
@@ -988,190 +732,4 @@ def _plan_or_error(c: _Collector, layers: int, vias: tuple[Via, ...]) -> Laminat
 # --------------------------------------------------------------------------- schema
 
 
-def spec_json_schema() -> dict[str, Any]:
-    """JSON Schema (2020-12) of the spec, for the OpenAPI docs and client-side forms.
-
-    The schema covers shape and enumerations only; cross-field shop rules (stack-up
-    agreement, aspect ratios, lamination) are enforced by `parse_spec`.
-    """
-    sides = {"type": "string", "enum": list(SIDES), "default": "both"}
-    return {
-        "$schema": "https://json-schema.org/draft/2020-12/schema",
-        "title": "BuildSpec",
-        "description": "What the board is; the routing builder derives the process from it.",
-        "type": "object",
-        "additionalProperties": False,
-        "required": list(REQUIRED_KEYS),
-        "properties": {
-            "layers": {"type": "integer", "enum": list(LAYER_COUNTS)},
-            "ipc_class": {"type": "integer", "enum": [1, 2, 3]},
-            "board_thickness_mm": {"type": "number", "minimum": 0.1, "maximum": 10},
-            "outer_copper_base_um": {"type": "number", "exclusiveMinimum": 0, "maximum": 420},
-            "inner_copper_um": {
-                "type": "number",
-                "exclusiveMinimum": 0,
-                "maximum": 420,
-                "description": "Required when layers >= 4.",
-            },
-            "finish": {"type": "string", "enum": list(FINISHES)},
-            "hard_gold_fingers": {"type": "boolean", "default": False},
-            "solder_mask": {
-                "type": "object",
-                "additionalProperties": False,
-                "properties": {
-                    "sides": sides,
-                    "colour": {"type": "string", "enum": list(MASK_COLOURS), "default": "green"},
-                },
-            },
-            "legend": {
-                "type": "object",
-                "additionalProperties": False,
-                "properties": {"sides": sides},
-            },
-            "profile": {"type": "string", "enum": list(PROFILES)},
-            "electrical_test": {"type": "string", "enum": list(ELECTRICAL_TESTS)},
-            "min_hole_mm": {"type": "number", "minimum": 0.05, "maximum": 10},
-            "vias": {
-                "type": "array",
-                "default": [],
-                "items": {
-                    "type": "object",
-                    "additionalProperties": False,
-                    "required": ["from", "to", "kind", "drill"],
-                    "properties": {
-                        "from": {"type": "integer", "minimum": 1, "maximum": 40},
-                        "to": {"type": "integer", "minimum": 1, "maximum": 40},
-                        "kind": {"type": "string", "enum": list(VIA_KINDS)},
-                        "drill": {"type": "string", "enum": list(DRILLS)},
-                    },
-                },
-            },
-            "outline": {
-                "type": "object",
-                "additionalProperties": False,
-                "required": ["width_mm", "height_mm"],
-                "description": "Optional board outline size (profile bounding box), mm.",
-                "properties": {
-                    "width_mm": {"type": "number", "exclusiveMinimum": 0, "maximum": 2000},
-                    "height_mm": {"type": "number", "exclusiveMinimum": 0, "maximum": 2000},
-                },
-            },
-            "stackup": {
-                "type": "array",
-                "minItems": 1,
-                "description": "Optional, top to bottom.",
-                "items": {
-                    "type": "object",
-                    "additionalProperties": False,
-                    "required": ["kind", "thickness_um"],
-                    "properties": {
-                        "kind": {"type": "string", "enum": list(STACKUP_KINDS)},
-                        "thickness_um": {"type": "number", "exclusiveMinimum": 0, "maximum": 5000},
-                        "material": {"type": "string", "maxLength": 80},
-                    },
-                },
-            },
-        },
-    }
-
-
 # --------------------------------------------------------------------------- examples
-
-
-def _hdi24_stackup() -> list[dict[str, Any]]:
-    """An invented 24-layer, 3.2 mm build: two laser build-up levels each side (60 um
-    prepreg, so microvias stay below 1:1), then alternating cores and prepregs."""
-    out: list[dict[str, Any]] = []
-
-    def cu(um: float) -> None:
-        out.append({"kind": "copper", "thickness_um": um, "material": "copper foil"})
-
-    def diel(kind: str, um: float) -> None:
-        material = "FR-4 high-Tg core" if kind == "core" else "FR-4 high-Tg prepreg"
-        out.append({"kind": kind, "thickness_um": um, "material": material})
-
-    cu(17.5)
-    diel("prepreg", 60)
-    cu(35)
-    diel("prepreg", 60)
-    for layer in range(3, 22):  # dielectrics between L3 and L22
-        cu(35)
-        diel("core" if layer % 2 else "prepreg", 113)
-    cu(35)
-    diel("prepreg", 60)
-    cu(35)
-    diel("prepreg", 60)
-    cu(17.5)
-    return out
-
-
-#: The example spec of the API docs and the engineering page (invented).
-EXAMPLE_SPEC: Final[dict[str, Any]] = {
-    "layers": 4,
-    "ipc_class": 2,
-    "board_thickness_mm": 1.6,
-    "outer_copper_base_um": 17.5,
-    "inner_copper_um": 35,
-    "finish": "enig",
-    "solder_mask": {"sides": "both", "colour": "green"},
-    "legend": {"sides": "both"},
-    "profile": "route",
-    "electrical_test": "flying_probe",
-    "min_hole_mm": 0.3,
-}
-
-
-#: Invented example specs, for the API docs, tests and the benchmark.
-EXAMPLE_SPECS: Final[dict[str, dict[str, Any]]] = {
-    "two_layer": {
-        "layers": 2,
-        "ipc_class": 2,
-        "board_thickness_mm": 1.6,
-        "outer_copper_base_um": 17.5,
-        "finish": "hasl_lead_free",
-        "profile": "route",
-        "electrical_test": "flying_probe",
-        "min_hole_mm": 0.3,
-    },
-    "eight_layer_buried": {
-        "layers": 8,
-        "ipc_class": 3,
-        "board_thickness_mm": 1.6,
-        "outer_copper_base_um": 17.5,
-        "inner_copper_um": 35,
-        "finish": "enig",
-        "hard_gold_fingers": False,
-        "solder_mask": {"sides": "both", "colour": "green"},
-        "legend": {"sides": "top"},
-        "profile": "route_and_v_score",
-        "electrical_test": "fixture",
-        "min_hole_mm": 0.25,
-        "vias": [
-            {"from": 1, "to": 8, "kind": "through", "drill": "mechanical"},
-            {"from": 3, "to": 4, "kind": "buried", "drill": "mechanical"},
-        ],
-    },
-    "twenty_four_layer_hdi": {
-        "layers": 24,
-        "ipc_class": 3,
-        "board_thickness_mm": 3.2,
-        "outer_copper_base_um": 17.5,
-        "inner_copper_um": 35,
-        "finish": "enepig",
-        "hard_gold_fingers": True,
-        "solder_mask": {"sides": "both", "colour": "green"},
-        "legend": {"sides": "both"},
-        "profile": "route",
-        "electrical_test": "flying_probe",
-        "min_hole_mm": 0.4,
-        "vias": [
-            {"from": 1, "to": 24, "kind": "through", "drill": "mechanical"},
-            {"from": 3, "to": 22, "kind": "buried", "drill": "mechanical"},
-            {"from": 1, "to": 2, "kind": "blind", "drill": "laser"},
-            {"from": 2, "to": 3, "kind": "buried", "drill": "laser"},
-            {"from": 23, "to": 24, "kind": "blind", "drill": "laser"},
-            {"from": 22, "to": 23, "kind": "buried", "drill": "laser"},
-        ],
-        "stackup": _hdi24_stackup(),
-    },
-}

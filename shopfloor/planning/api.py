@@ -7,7 +7,7 @@ from rest_framework import serializers
 from rest_framework.request import Request
 from rest_framework.response import Response
 
-from routing.builder.spec import EXAMPLE_SPEC
+from routing.builder.examples import EXAMPLE_SPEC
 from shopfloor.api_base import READ_ERRORS, JsonAPIView, RolePermission, error
 from shopfloor.floor.permissions import roles_of
 from shopfloor.planning import services

@@ -12,7 +12,7 @@ from django.shortcuts import redirect, render
 from django.urls import reverse
 from django.views.decorators.http import require_http_methods, require_POST
 
-from routing.builder.spec import EXAMPLE_SPECS
+from routing.builder.examples import EXAMPLE_SPECS
 from shopfloor import strict_json
 from shopfloor.errors import DomainError
 from shopfloor.floor.permissions import roles_of

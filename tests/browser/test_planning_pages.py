@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pytest
 
-from routing.builder.spec import EXAMPLE_SPECS
+from routing.builder.examples import EXAMPLE_SPECS
 from shopfloor.planning import services
 from tests.browser.test_board_live import signed_in_page
 from tests.factories import make_lot

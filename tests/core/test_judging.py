@@ -11,8 +11,8 @@ from __future__ import annotations
 import pytest
 
 from routing.builder import build_routing, parse_spec
+from routing.builder.examples import EXAMPLE_SPECS
 from routing.builder.render import routing_to_dict
-from routing.builder.spec import EXAMPLE_SPECS
 from shopfloor.core import judging, units
 
 # 1 mil = 25.4 um and 1 uin = 0.0254 um exactly (the inch is 25.4 mm by definition).

@@ -7,7 +7,7 @@ import pytest
 from django.test import Client
 
 from routing import spec_form
-from routing.builder.spec import EXAMPLE_SPECS
+from routing.builder.examples import EXAMPLE_SPECS
 from routing.models import RoutingRevision
 from shopfloor.plant.models import PartRevision
 from tests.factories import PIN, SPEC_4L_ENIG, make_part_revision

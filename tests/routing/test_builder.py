@@ -22,7 +22,7 @@ from routing.builder import (
     routing_to_dict,
     routing_to_text,
 )
-from routing.builder.spec import EXAMPLE_SPECS
+from routing.builder.examples import EXAMPLE_SPECS
 from routing.builder.windows import Window
 
 

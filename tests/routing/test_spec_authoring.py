@@ -16,7 +16,8 @@ from routing import services
 from routing.builder import render
 from routing.builder.build import build_routing, drill_size
 from routing.builder.default_library import DEFAULT_PLATING_ALLOWANCE_MM
-from routing.builder.spec import EXAMPLE_SPECS, SpecInvalid, normalise_spec, parse_spec
+from routing.builder.examples import EXAMPLE_SPECS
+from routing.builder.spec import SpecInvalid, normalise_spec, parse_spec
 from routing.models import RoutingRevision
 from shopfloor.errors import Conflict, InvalidInput
 from shopfloor.plant.models import PartRevision

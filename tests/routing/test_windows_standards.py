@@ -11,7 +11,7 @@ import copy
 import pytest
 
 from routing.builder import build_routing, parse_spec
-from routing.builder.spec import EXAMPLE_SPECS
+from routing.builder.examples import EXAMPLE_SPECS
 from routing.builder.windows import QUANTITIES, Provenance, window_rule
 from shopfloor.core.units import canonical_unit
 
