@@ -8,7 +8,7 @@ import pytest
 from shopfloor.plant.models import Customer, Part, PartRevision, SiteSettings, WorkCenter
 from shopfloor.quality.models import Alert
 from tests import factories
-from tests.board.kit import bulk_lots
+from tests.factories import bulk_lots
 
 pytestmark = pytest.mark.django_db
 

@@ -10,7 +10,7 @@ from django.test.utils import CaptureQueriesContext
 
 from shopfloor.plant.models import SiteSettings, WorkCenter
 from shopfloor.quality.models import Alert
-from tests.board.kit import bulk_lots
+from tests.factories import bulk_lots
 from tests.board.test_board_queries import BOARD_QUERIES
 
 pytestmark = pytest.mark.django_db

@@ -17,8 +17,8 @@ import pytest
 from playwright.sync_api import expect
 
 from shopfloor.floor.models import IdempotencyRecord, LotStep, Reading
+from tests import helpers
 from tests.factories import PIN
-from tests.floor import helpers
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 
@@ -110,7 +110,7 @@ def check_stored_once(floor, step: LotStep, keys_before: int = 0) -> None:
 
 def test_offline_readings_replay_once(page, live_url, login_as, floor, shoot, parked_outbox):
     operator = floor.personas["operator"]
-    step = helpers.advance_to_code(floor.lot, operator, "mask_develop")
+    step = helpers.advance_to(floor.lot, "mask_develop", by=operator, walk=True)
     login_as(page, operator)
     offline_walk(page, live_url, floor.lot, step, shoot)
     shoot(page, "offline-02-sent")
@@ -129,7 +129,7 @@ def test_offline_readings_replay_once(page, live_url, login_as, floor, shoot, pa
 
 def test_refused_replay_shows_its_reason(page, live_url, login_as, floor, shoot, parked_outbox):
     operator = floor.personas["operator"]
-    step = helpers.advance_to_code(floor.lot, operator, "mask_develop")
+    step = helpers.advance_to(floor.lot, "mask_develop", by=operator, walk=True)
     login_as(page, operator)
     page.goto(f"{live_url}/floor/lots/{floor.lot.code}/")
     page.get_by_role("button", name="Start step").click()
@@ -174,7 +174,7 @@ def test_out_of_window_reading_kept_offline_asks_to_confirm(
     page, live_url, login_as, floor, parked_outbox
 ):
     operator = floor.personas["operator"]
-    step = helpers.advance_to_code(floor.lot, operator, "mask_develop")
+    step = helpers.advance_to(floor.lot, "mask_develop", by=operator, walk=True)
     login_as(page, operator)
     page.goto(f"{live_url}/floor/lots/{floor.lot.code}/")
     page.get_by_role("button", name="Start step").click()

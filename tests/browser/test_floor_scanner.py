@@ -16,9 +16,9 @@ from playwright.sync_api import expect
 
 from shopfloor.floor.models import MaterialUse
 from shopfloor.plant.models import MaterialLot
+from tests import helpers
 from tests.browser.conftest import PHONE, TABLET
 from tests.factories import make_lot
-from tests.worker import floorkit as kit
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 
@@ -56,7 +56,7 @@ def scan(page, code: str) -> None:
 
 def test_scanner_flow(page, live_url, login_as, floor, shoot, parked_outbox):
     operator = floor.personas["operator"]
-    step = kit.start_at(
+    step = helpers.start_at(
         floor,
         floor.lot,
         floor.lot.steps.filter(code__startswith="layup").order_by("position").first().code,
@@ -131,7 +131,7 @@ def test_touch_targets_and_keyboard(
     viewport, browser, live_url, login_as, floor, shoot, parked_outbox
 ):
     operator = floor.personas["operator"]
-    step = kit.start_at(
+    step = helpers.start_at(
         floor,
         floor.lot,
         floor.lot.steps.filter(code__startswith="layup").order_by("position").first().code,

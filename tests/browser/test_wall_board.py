@@ -6,7 +6,7 @@ from __future__ import annotations
 import pytest
 
 from shopfloor.plant.models import WorkCenter
-from tests.board.kit import bulk_lots
+from tests.factories import bulk_lots
 from tests.browser.test_board_live import ARTIFACTS, signed_in_page
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]

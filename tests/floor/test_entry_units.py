@@ -14,7 +14,7 @@ import pytest
 
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Person
-from tests.floor import helpers
+from tests import helpers
 
 pytestmark = pytest.mark.django_db
 

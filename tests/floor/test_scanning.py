@@ -14,8 +14,8 @@ from django.utils import timezone
 
 from shopfloor.floor.models import IdempotencyRecord, LotStep, MaterialUse
 from shopfloor.plant.models import MaterialLot
+from tests import helpers
 from tests.factories import make_lot
-from tests.worker import floorkit as kit
 
 pytestmark = pytest.mark.django_db
 
@@ -92,7 +92,7 @@ def test_job_with_no_lot_here_offers_a_choice(op_client, floor, two_lots):
 @pytest.fixture
 def layup(floor):
     code = floor.lot.steps.filter(code__startswith="layup").order_by("position").first().code
-    return kit.start_at(floor, floor.lot, code)
+    return helpers.start_at(floor, floor.lot, code)
 
 
 def _prepreg(code: str = "PP-SCAN-1") -> MaterialLot:
