@@ -11,7 +11,7 @@ import copy
 import pytest
 
 from routing.builder import build_routing, parse_spec, routing_to_dict
-from routing.builder.spec import EXAMPLE_SPECS
+from routing.builder.examples import EXAMPLE_SPECS
 from shopfloor.core import entry, judging, units
 
 _LENGTH = {"µm", "mil", "µin", "mm", "in"}

@@ -12,6 +12,7 @@ import copy
 import pytest
 
 from routing.builder import build_routing, parse_spec
+from routing.builder.examples import EXAMPLE_SPECS
 from routing.builder.labels import (
     PARAMETER_LABELS,
     QUANTITY_LABELS,
@@ -21,7 +22,6 @@ from routing.builder.labels import (
     quantity_label,
 )
 from routing.builder.library import ProcessLibrary
-from routing.builder.spec import EXAMPLE_SPECS
 from routing.builder.windows import QUANTITIES
 from shopfloor.core import units
 
