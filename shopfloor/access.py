@@ -208,3 +208,12 @@ def require_lot_readable(user: Any, lot: Lot) -> Scope:
     scope = scope_for(user)
     require_lot_visible(scope, lot)
     return scope
+
+
+def require_unlocker(scope: Scope) -> None:
+    """Refuse (403) anyone but a supervisor or administrator, saying whom to ask."""
+    if not scope.roles & UNLOCK_ROLES:
+        raise NotAllowed(
+            "Only a supervisor or administrator can see and unlock locked badges. Ask the "
+            "shift supervisor to unlock yours."
+        )

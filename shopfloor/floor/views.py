@@ -48,7 +48,7 @@ from shopfloor.floor.serializers import batch_items
 from shopfloor.htmx import is_htmx
 from shopfloor.plant import people
 from shopfloor.plant.models import Equipment, Lot, Person, WorkCenter
-from shopfloor.quality import access
+from shopfloor.quality.read import records
 
 # --- login --------------------------------------------------------------------------
 
@@ -793,7 +793,7 @@ def _domain_page(request: HttpRequest, exc: DomainError) -> HttpResponse:
 def locked_badges(request: HttpRequest) -> HttpResponse:
     """Badges locked after too many wrong PINs, each with an Unlock button."""
     try:
-        people = list(access.locked_badges(access.scope_for(request.user)))
+        people = list(records.locked_badges(read_scope.scope_for(request.user)))
     except DomainError as exc:
         return _domain_page(request, exc)
     return render(request, "floor/locked.html", {"people": people})
@@ -803,8 +803,8 @@ def locked_badges(request: HttpRequest) -> HttpResponse:
 @require_POST
 def unlock_badge(request: HttpRequest, person_id: int) -> HttpResponse:
     try:
-        scope = access.scope_for(request.user)
-        person = access.access_locked_person(scope, person_id)
+        scope = read_scope.scope_for(request.user)
+        person = records.access_locked_person(scope, person_id)
         people.unlock_person(by=scope.actor, person_id=person.pk)
     except DomainError as exc:
         return _domain_page(request, exc)

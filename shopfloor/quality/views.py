@@ -25,6 +25,7 @@ from django.utils.http import urlencode
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
 from shopfloor import parsing
+from shopfloor.access import Scope
 from shopfloor.core import judging
 from shopfloor.core.judging import describe_window
 from shopfloor.core.yields import overall_yield as rolled_yield
@@ -33,9 +34,16 @@ from shopfloor.orders import read as orders_read
 from shopfloor.pages import reader, refusal
 from shopfloor.planning import services as planning
 from shopfloor.planning.services import PLANNING_ROLES
-from shopfloor.quality import access
-from shopfloor.quality.access import Scope
-from shopfloor.quality.read import board, charts, exports, genealogy, history, search, spc_series
+from shopfloor.quality.read import (
+    board,
+    charts,
+    exports,
+    genealogy,
+    history,
+    records,
+    search,
+    spc_series,
+)
 from shopfloor.quality.services import deadlines, dispositions, limits, queue
 
 # --- board ----------------------------------------------------------------------------
@@ -307,7 +315,7 @@ def spc_limits(request: HttpRequest, scope: Scope, key: str) -> HttpResponse:
     rules (quality engineer)."""
     action = request.POST.get("action", "")
     try:
-        series = access.access_series(scope, key)
+        series = records.access_series(scope, key)
         if action == "fix":
             limits.fix_limits(
                 scope.actor,
@@ -374,7 +382,7 @@ def _ncr_context(scope: Scope, number: str) -> dict[str, Any]:
     from shopfloor.floor.models import ScrapReason
     from shopfloor.quality.models import RootCause
 
-    ncr = access.access_ncr(scope, number)
+    ncr = records.access_ncr(scope, number)
     held = ncr.lot_step
     default_route = dispositions.default_rework(held) if held else []
     route_rows = max(len(default_route) + 2, 4)
@@ -463,7 +471,7 @@ def ncr_page(request: HttpRequest, scope: Scope, number: str) -> HttpResponse:
     """An NCR with its evidence; for an open one, the disposition form (quality engineer)."""
     if request.method == "GET":
         return render(request, "quality/ncr.html", _ncr_context(scope, number))
-    ncr = access.access_ncr(scope, number)
+    ncr = records.access_ncr(scope, number)
     try:
         args = _disposition_input(request)
         disposition = args.pop("disposition")

@@ -7,11 +7,11 @@ import datetime as dt
 import pytest
 from django.utils import timezone
 
+from shopfloor.access import scope_for
 from shopfloor.audit.models import AuditEntry
 from shopfloor.errors import InvalidInput, NotAllowed
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Customer, Job, WorkCenter
-from shopfloor.quality.access import scope_for
 from shopfloor.quality.models import Alert
 from shopfloor.quality.read import board
 from shopfloor.quality.services import queue as queue_moves

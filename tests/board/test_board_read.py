@@ -20,9 +20,9 @@ from django.test import Client
 from django.urls import reverse
 from django.utils import timezone
 
+from shopfloor.access import scope_for
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Lot, WorkCenter
-from shopfloor.quality.access import scope_for
 from shopfloor.quality.models import Hold
 from shopfloor.quality.read import board
 from shopfloor.quality.services import queue as queue_moves

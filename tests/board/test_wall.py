@@ -10,8 +10,8 @@ from django.test.utils import CaptureQueriesContext
 
 from shopfloor.plant.models import SiteSettings, WorkCenter
 from shopfloor.quality.models import Alert
-from tests.factories import bulk_lots
 from tests.board.test_board_queries import BOARD_QUERIES
+from tests.factories import bulk_lots
 
 pytestmark = pytest.mark.django_db
 

@@ -6,8 +6,8 @@ from __future__ import annotations
 import pytest
 
 from shopfloor.plant.models import WorkCenter
-from tests.factories import bulk_lots
 from tests.browser.test_board_live import ARTIFACTS, signed_in_page
+from tests.factories import bulk_lots
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 WALL = (1920, 1080)

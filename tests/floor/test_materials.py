@@ -12,11 +12,11 @@ import datetime as dt
 import pytest
 from django.utils import timezone
 
+from shopfloor import access
 from shopfloor.errors import Conflict, InvalidInput
 from shopfloor.floor import services
 from shopfloor.floor.models import MaterialUse
 from shopfloor.plant.models import MaterialLot
-from shopfloor.quality import access
 from shopfloor.quality.read import genealogy
 from tests import helpers
 from tests.factories import PIN

@@ -354,7 +354,7 @@ def test_pdf_lot_record_contains_part_source_and_class(rich, floor, client, tmp_
 
 
 def test_reading_summary_against_window(rich):
-    from shopfloor.quality.access import scope_for
+    from shopfloor.access import scope_for
     from shopfloor.quality.read.exports import reading_summary
 
     h = history.lot_history(scope_for(_qe_user(rich)), rich["lot"].code)

@@ -46,6 +46,7 @@ from django.utils import timezone
 from django.utils.http import RFC3986_SUBDELIMS
 from django.utils.text import Truncator
 
+from shopfloor.access import Scope
 from shopfloor.core import schedule
 from shopfloor.core.dates import FORMATS, ISO, DateFormat
 from shopfloor.display import carried_settings, read_date, with_site_settings
@@ -54,7 +55,6 @@ from shopfloor.floor.models import LotStep
 from shopfloor.planning.models import JobForecast, LotForecast
 from shopfloor.planning.services import fresh_runs
 from shopfloor.plant.models import Customer, IpcClass, Lot, PanelImage, WorkCenter
-from shopfloor.quality.access import Scope
 from shopfloor.quality.models import Alert, Hold
 
 ACTIVE_LOT = Lot.ACTIVE_STATUSES

@@ -7,10 +7,10 @@ from dataclasses import dataclass
 
 from django.db.models import Prefetch
 
+from shopfloor.access import Scope, require_lot_visible, visible_lots
 from shopfloor.errors import NotFound
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Job, Lot, MaterialLot, Panel, PanelImage
-from shopfloor.quality.access import Scope, require_lot_visible, visible_lots
 
 # --- genealogy ----------------------------------------------------------------------
 

@@ -20,13 +20,13 @@ from typing import Any
 from django.db.models import Avg, Count, Max, Min, Prefetch, Q
 
 from routing.builder.labels import quantity_label
+from shopfloor.access import Scope, require_lot_visible
 from shopfloor.audit.models import AuditEntry, Signature
 from shopfloor.core import judging
 from shopfloor.core.judging import describe_window
 from shopfloor.errors import NotFound
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Job, Lot, MaterialLot, Panel, PanelImage
-from shopfloor.quality.access import Scope, require_lot_visible
 from shopfloor.quality.models import Alert, Hold, Nonconformance
 
 TRACEABILITY_CLAIM = {

@@ -9,9 +9,9 @@ from typing import Any
 from django.db.models import Q, QuerySet
 
 from shopfloor import parsing
+from shopfloor.access import Scope, visible_lots
 from shopfloor.errors import InvalidInput
 from shopfloor.plant.models import Equipment, Lot
-from shopfloor.quality.access import Scope, visible_lots
 from shopfloor.quality.models import Alert, Hold, Nonconformance
 from shopfloor.quality.read.history import MAX_RANGE_DAYS, SEARCH_LIMIT
 

@@ -9,10 +9,10 @@ from typing import Any
 
 from django.db.models import Count
 
+from shopfloor.access import Scope
 from shopfloor.errors import NotFound
 from shopfloor.floor.models import Reading
 from shopfloor.quality import series as series_core
-from shopfloor.quality.access import Scope
 
 # --- SPC series reads -----------------------------------------------------------------
 
