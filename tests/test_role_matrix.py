@@ -17,7 +17,7 @@ their own work center; lab technicians read like process engineers and work the 
 (analyses, additions, dumps; an engineer confirms additions; quality, supervisors and
 admins hold the lots a bad bath touched); anonymous callers nothing; an operator of
 another work center may not work a lot at a work center they are not assigned to. Sources:
-shopfloor/floor/permissions.py, shopfloor/quality/access.py and the services (common
+shopfloor/access.py, shopfloor/floor/permissions.py and the services (common
 practice for controlled documents and material review: only the owning function releases
 or dispositions).
 """

@@ -8,16 +8,16 @@ import json
 import jsonschema
 import pytest
 
+from routing.builder.examples import EXAMPLE_SPECS
 from routing.builder.spec import (
-    EXAMPLE_SPECS,
     ShopCapability,
     SpecError,
     SpecInvalid,
     Via,
     parse_spec,
     plan_lamination,
-    spec_json_schema,
 )
+from routing.builder.spec_schema import spec_json_schema
 
 
 def spec(name: str = "two_layer", **changes):
