@@ -24,7 +24,7 @@ from shopfloor.access import scope_for
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Lot, WorkCenter
 from shopfloor.quality.models import Hold
-from shopfloor.quality.read import board
+from shopfloor.quality.read import board, board_display
 from shopfloor.quality.services import queue as queue_moves
 from tests import factories
 from tests.factories import bulk_lots
@@ -106,7 +106,7 @@ def test_board_steps_match_current_steps_in_an_operator_scope(floor):
 
 @pytest.mark.parametrize("code", ["L-0001", "a b&c", "x?y#z", "quote'd\"", "€uro%20", "semi;colon"])
 def test_links_match_reverse(code):
-    links = board.BoardLinks()
+    links = board_display.BoardLinks()
     assert links.lot(code) == reverse("quality:lot", args=[code])
     assert links.job(code) == reverse("quality:job", args=[code])
     assert links.release(123) == reverse("quality:queue_release", args=[123])

@@ -22,15 +22,12 @@ shopfloor/quality/services/__init__.py (release_queue_warning).
 from __future__ import annotations
 
 import datetime as dt
-import zoneinfo
 from collections import defaultdict
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from functools import cached_property
 from typing import Any
-from urllib.parse import quote
 
-from django.conf import settings
 from django.db.models import (
     Exists,
     F,
@@ -41,14 +38,12 @@ from django.db.models import (
     Window,
 )
 from django.db.models.functions import FirstValue
-from django.urls import reverse
 from django.utils import timezone
-from django.utils.http import RFC3986_SUBDELIMS
 from django.utils.text import Truncator
 
 from shopfloor.access import Scope
 from shopfloor.core import schedule
-from shopfloor.core.dates import FORMATS, ISO, DateFormat
+from shopfloor.core.dates import ISO, DateFormat
 from shopfloor.display import carried_settings, read_date, with_site_settings
 from shopfloor.errors import InvalidInput
 from shopfloor.floor.models import LotStep
@@ -56,6 +51,13 @@ from shopfloor.planning.models import JobForecast, LotForecast
 from shopfloor.planning.services import fresh_runs
 from shopfloor.plant.models import Customer, IpcClass, Lot, PanelImage, WorkCenter
 from shopfloor.quality.models import Alert, Hold
+from shopfloor.quality.read.board_display import (
+    BoardLinks,
+    due_end,
+    duration_text,
+    format_of,
+    when_text,
+)
 
 ACTIVE_LOT = Lot.ACTIVE_STATUSES
 SORTS = {
@@ -137,46 +139,6 @@ def parse_filters(params: Any) -> BoardFilters:
         work_center=(params.get("work_center", "") or "").strip()[:40],
         sort=sort,
     )
-
-
-class BoardLinks:
-    """The board's links, each URL pattern reversed once per board.
-
-    A wall screen shows hundreds of rows, each with links to its lot, its jobs and its
-    actions; `reverse()` per link was a measurable share of a board render. The path is
-    reversed once with a marker argument and the value is put in its place, quoted the
-    way `reverse()` quotes it (a '/' is quoted too: the str converter refuses it anyway).
-    """
-
-    _MARK = "0board0mark0"
-    _INT_MARK = 987654321
-    _SAFE = RFC3986_SUBDELIMS + "~:@"
-
-    def __init__(self) -> None:
-        self._lot = self._split("quality:lot", self._MARK)
-        self._job = self._split("quality:job", self._MARK)
-        self._release = self._split("quality:queue_release", self._INT_MARK)
-        self._move = self._split("quality:queue_move", self._INT_MARK)
-
-    @staticmethod
-    def _split(name: str, mark: str | int) -> tuple[str, str]:
-        head, _, tail = reverse(name, args=[mark]).rpartition(str(mark))
-        return head, tail
-
-    def _fill(self, parts: tuple[str, str], value: str | int) -> str:
-        return f"{parts[0]}{quote(str(value), safe=self._SAFE)}{parts[1]}"
-
-    def lot(self, code: str) -> str:
-        return self._fill(self._lot, code)
-
-    def job(self, number: str) -> str:
-        return self._fill(self._job, number)
-
-    def release(self, lot_step_id: int) -> str:
-        return self._fill(self._release, lot_step_id)
-
-    def move(self, work_center_id: int) -> str:
-        return self._fill(self._move, work_center_id)
 
 
 @dataclass(eq=False)
@@ -348,7 +310,9 @@ class BoardLot:
         if self.p50 is None or self.p90 is None:
             return ""
         fmt = self.date_format
-        return f"P50 {_when(self.p50, self.now, fmt)} · P90 {_when(self.p90, self.now, fmt)}"
+        return (
+            f"P50 {when_text(self.p50, self.now, fmt)} · P90 {when_text(self.p90, self.now, fmt)}"
+        )
 
     @property
     def forecast_lines(self) -> tuple[str, str] | None:
@@ -462,42 +426,7 @@ class Board:
 
     @property
     def date_format(self) -> DateFormat:
-        return _format_of(self.site)
-
-
-def _format_of(site: Any) -> DateFormat:
-    return FORMATS.get(site.date_format if site is not None else "iso", ISO)
-
-
-def _when(moment: dt.datetime, now: dt.datetime, date_format: DateFormat = ISO) -> str:
-    """A forecast moment for a wall screen: '14:05' today, 'Thu 14:05' within a week,
-    the date in the site's format further out (site time zone)."""
-    tz = zoneinfo.ZoneInfo(settings.SITE_TIME_ZONE)
-    local, today = moment.astimezone(tz), now.astimezone(tz).date()
-    days = (local.date() - today).days
-    if days == 0:
-        return local.strftime("%H:%M")
-    if 0 < days < 7:
-        return local.strftime("%a %H:%M")
-    return date_format.format(local.date())
-
-
-def duration_text(minutes: float) -> str:
-    """'3 d 4 h', '5 h 10 min', '12 min' for a wall screen."""
-    m = max(int(minutes), 0)
-    days, rest = divmod(m, 1440)
-    hours, mins = divmod(rest, 60)
-    if days:
-        return f"{days} d {hours} h"
-    if hours:
-        return f"{hours} h {mins} min"
-    return f"{mins} min"
-
-
-def _due_end(day: dt.date) -> dt.datetime:
-    """A job due on a date is due at the end of that day, in the site's time zone."""
-    tz = zoneinfo.ZoneInfo(settings.SITE_TIME_ZONE)
-    return dt.datetime.combine(day, dt.time(23, 59, 59), tzinfo=tz)
+        return format_of(self.site)
 
 
 def current_steps(scope: Scope | None = None) -> QuerySet[LotStep]:
@@ -660,7 +589,7 @@ def _read_jobs(
                 customer_code=customer_code,
                 due_date=due_date,
                 ipc_class=ipc_class,
-                due_at=_due_end(due_date),
+                due_at=due_end(due_date),
                 url=links.job(number),
                 p50=job_p50,
                 p90=job_p90,
@@ -718,7 +647,7 @@ def build_board(
     links = BoardLinks()
     centers = list(with_site_settings(WorkCenter.objects.order_by("code")))
     site = carried_settings(centers[0] if centers else None)
-    date_format = _format_of(site)
+    date_format = format_of(site)
     # Plain tuples, not model instances: the board reads thousands of them every poll.
     steps = list(board_steps(scope, filters, centers))
     lot_ids = [s[_LOT_ID] for s in steps]
