@@ -9,10 +9,10 @@ from django.shortcuts import render
 from django.utils.http import urlencode
 from django.views.decorators.http import require_GET
 
+from shopfloor.access import Scope
 from shopfloor.errors import DomainError
-from shopfloor.quality.access import Scope
+from shopfloor.pages import reader
 from shopfloor.quality.read import board, wall
-from shopfloor.quality.views import reader
 
 
 def _wall_context(request: HttpRequest, scope: Scope) -> dict[str, Any]:

@@ -17,8 +17,8 @@ import datetime as dt
 from dataclasses import dataclass
 from typing import Any
 
+from shopfloor.access import Scope
 from shopfloor.errors import InvalidInput
-from shopfloor.quality.access import Scope
 from shopfloor.quality.read.board import Board, BoardColumn, BoardFilters, build_board
 
 #: Limits of the URL parameters (the site settings' admin validators say the same).
