@@ -396,6 +396,8 @@ ROWS: dict[str, Row] = {
     "GET home": Row("GET", lambda c: "/", PEOPLE, api=False),
     "GET board": Row("GET", lambda c: "/board/", PEOPLE, api=False),
     "GET board body": Row("GET", lambda c: "/board/body/", PEOPLE, api=False),
+    "GET wall board": Row("GET", lambda c: "/board/wall/", PEOPLE, api=False),
+    "GET wall board body": Row("GET", lambda c: "/board/wall/body/", PEOPLE, api=False),
     "POST queue move": Row(
         "POST",
         lambda c: f"/board/queue/{c['step'].work_center_id}/move/",
