@@ -24,7 +24,7 @@ from shopfloor.audit.models import AuditEntry
 from shopfloor.floor import services
 from shopfloor.floor.models import IdempotencyRecord, Reading
 from shopfloor.quality.models import OutboxEvent
-from tests.api.helpers import advance_to, gauge_at, issue_token
+from tests.helpers import advance_to, gauge_at, issue_token
 
 pytestmark = [
     pytest.mark.django_db(transaction=True),
@@ -78,7 +78,7 @@ def counted() -> Iterator[Trips]:
 
 @pytest.fixture
 def plating(floor):
-    return advance_to(floor.lot, "pattern_plate_copper", floor.personas["operator"])
+    return advance_to(floor.lot, "pattern_plate_copper", by=floor.personas["operator"], start=True)
 
 
 @pytest.fixture

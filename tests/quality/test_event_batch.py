@@ -18,14 +18,14 @@ from shopfloor.floor.models import Reading
 from shopfloor.quality import event_batch, outbox
 from shopfloor.quality.models import OutboxEvent, SeriesState
 from shopfloor.quality.services import alerts as quality_services
-from tests.api.helpers import advance_to, gauge_at
+from tests.helpers import advance_to, gauge_at
 
 pytestmark = pytest.mark.django_db
 
 
 @pytest.fixture
 def plating(floor):
-    return advance_to(floor.lot, "pattern_plate_copper", floor.personas["operator"])
+    return advance_to(floor.lot, "pattern_plate_copper", by=floor.personas["operator"], start=True)
 
 
 def _record(floor, step, gauge, sample: int, value: float) -> Reading:
