@@ -544,6 +544,21 @@ def write_report(results: dict[str, Any]) -> None:
         "Run-to-run noise on these shared machines is 20-60 %: compare ratios measured in the",
         "same run, not absolute figures across runs.",
         "",
+    ]
+    if results.get("ingest_measured") and results.get("ingest_measured") != results.get("date"):
+        lines += [
+            f"The ingest, batch and lock-wait figures were re-measured {results['ingest_measured']}"
+            f" and the alert figures {results.get('alert_measured', '-')} by `python "
+            "bench/harness.py --only ingest bench_alerts`, each beside its reference from the "
+            "same run (the bare endpoint, the no-op task); 1-minute load average "
+            f"{results.get('ingest_load_average_start')} -> "
+            f"{results.get('ingest_load_average_end')} during ingest, "
+            f"{results.get('alert_load_average_start')} -> "
+            f"{results.get('alert_load_average_end')} during the alert passes, on "
+            f"{os.cpu_count()} cores shared with other work.",
+            "",
+        ]
+    lines += [
         "## Goals",
         "",
         "| goal | measured | met |",
