@@ -834,6 +834,8 @@ def upload_readings(request: HttpRequest) -> HttpResponse:
     }
     if request.method == "GET":
         return render(request, "floor/upload.html", context)
+    if "confirm_lines" in request.POST:
+        return _confirm_upload_lines(request, person, context)
     upload = request.FILES.get("file")
     try:
         if upload is None:
@@ -848,7 +850,22 @@ def upload_readings(request: HttpRequest) -> HttpResponse:
         .values_list("upper", "pk")
     )
     raw = [csv_upload.item_data(r, parsed.digest, equipment_ids) for r in parsed.rows]
-    labels = [f"line {r['_line']}" for r in parsed.rows]
+    lines = [int(r["_line"]) for r in parsed.rows]
+    return _record_upload(request, person, context, raw, lines, upload.name or "", parsed.digest)
+
+
+def _record_upload(
+    request: HttpRequest,
+    person: Person,
+    context: dict[str, Any],
+    raw: list[dict[str, Any]],
+    lines: list[int],
+    file_name: str,
+    digest: str,
+) -> HttpResponse:
+    """Record file lines as one batch and show every line's result. A line the typo
+    guard stopped gets the question in plain words and a "store as measured" box."""
+    labels = [f"line {n}" for n in lines]
     items, invalid = batch_items(raw, problems_from, labels)
 
     def action() -> tuple[int, dict[str, Any]]:
@@ -865,7 +882,7 @@ def upload_readings(request: HttpRequest) -> HttpResponse:
         outcome = idempotency.run_in_steps(
             user=request.user,
             key=request.POST.get("idempotency_key", ""),
-            request_fingerprint=idempotency.fingerprint("POST", request.path, parsed.digest),
+            request_fingerprint=idempotency.fingerprint("POST", request.path, digest),
             action=action,
         )
     except DomainError as exc:
@@ -873,11 +890,70 @@ def upload_readings(request: HttpRequest) -> HttpResponse:
             request, "floor/upload.html", {**context, "error": exc.detail}, status=exc.status
         )
     summary = outcome.body
+    confirmable = 0
     for entry in summary.get("items", []):
-        entry["line"] = parsed.rows[entry["index"]]["_line"]
-        entry["row"] = raw[entry["index"]] if entry["index"] < len(raw) else {}
+        index = entry["index"]
+        entry["line"] = lines[index] if index < len(lines) else ""
+        entry["row"] = raw[index] if index < len(raw) else {}
+        question = next(
+            (
+                str(p.get("problem") or "")
+                for p in entry.get("problems") or []
+                if isinstance(p, dict) and p.get("field") == "confirm_out_of_window"
+            ),
+            "",
+        )
+        if entry.get("status") == "refused" and question:
+            entry["question"] = question
+            entry["held_row"] = json.dumps({**entry["row"], "_line": entry["line"]})
+            confirmable += 1
     return render(
         request,
         "floor/upload.html",
-        {**context, "summary": summary, "file_name": upload.name, "replayed": outcome.replayed},
+        {
+            **context,
+            "summary": summary,
+            "file_name": file_name,
+            "replayed": outcome.replayed,
+            "confirmable": confirmable,
+        },
     )
+
+
+def _confirm_upload_lines(
+    request: HttpRequest, person: Person, context: dict[str, Any]
+) -> HttpResponse:
+    """The lines of an uploaded file the operator ticked "store as measured" after the
+    typo guard's question: recorded as confirmed (the same batch use case)."""
+    file_name = request.POST.get("file_name", "")[:200]
+    ticked = request.POST.getlist("confirm")
+    raw: list[dict[str, Any]] = []
+    lines: list[int] = []
+    for value in ticked[: batch.MAX_ITEMS]:
+        try:
+            row = json.loads(request.POST.get(f"held-{value}", ""))
+        except ValueError:
+            row = None
+        if not isinstance(row, dict) or not all(
+            isinstance(k, str) and isinstance(v, str | int) for k, v in row.items()
+        ):
+            continue
+        line = row.pop("_line", value)
+        body = {k: v for k, v in row.items() if k in csv_upload.COLUMNS}
+        body["confirm_out_of_window"] = True
+        raw.append(body)
+        lines.append(int(line) if str(line).isdigit() else 0)
+    if not raw:
+        return render(
+            request,
+            "floor/upload.html",
+            {
+                **context,
+                "error": "No line was ticked, so nothing was recorded. Upload the file "
+                "again, tick “Store as measured” beside each value the gauge really "
+                "read, then press “Record the ticked lines”.",
+            },
+            status=400,
+        )
+    digest = idempotency.fingerprint("POST", request.path, json.dumps(raw, sort_keys=True))
+    return _record_upload(request, person, context, raw, lines, file_name, digest)

@@ -113,3 +113,16 @@ def test_quality_engineer_may_not_upload(floor):
     client = Client()
     client.force_login(floor.personas["quality_engineer"].user)
     assert client.get(URL).status_code == 403
+
+
+def test_confirm_lines_with_a_forged_or_empty_row_records_nothing(floor, client):
+    """The "store as measured" form carries each stopped line; a line that is not a
+    plain object of text fields is left out, and with nothing left nothing is saved."""
+    client.force_login(floor.personas["operator"].user)
+    response = client.post(
+        "/floor/readings/upload/",
+        {"confirm_lines": "1", "confirm": ["3", "4"], "held-3": "[1, 2]", "held-4": "{bad"},
+    )
+    assert response.status_code == 400
+    assert "No line was ticked" in response.content.decode()
+    assert not Reading.objects.exists()
