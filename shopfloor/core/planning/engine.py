@@ -4,9 +4,15 @@ Why our own event loop instead of simpy: a forecast runs 2,000 lots x ~20 steps 
 replications, some 4 million step starts, on a two-core machine in under 10 s. In simpy
 each step is a generator process, a resource request and a timeout, several events and
 callbacks per step; here a step is one heap entry in a center's queue and one on the
-event heap, with every lookup in local variables. The loop is about 70 lines; the
-validation tests check it against closed-form queueing results and, on a deterministic
-floor, against the same floor modelled in simpy (tests/planning/test_engine.py).
+event heap, with every lookup in local variables. Every step time of a replication is
+drawn up front in one pass done in C (16 random bits per step from one `randbytes`
+call, scaled into the step's draw table by `map` over operator functions), and the
+tables are contiguous float arrays, so a draw costs no interpreted arithmetic and few
+cache misses. A forecast reads only finish times; the per-lot run times and per-center
+busy minutes that the queueing validation needs are added up only when asked
+(`detail`). The validation tests check the loop against closed-form queueing results
+and, on a deterministic floor, against the same floor modelled in simpy
+(tests/planning/test_engine.py).
 
 The model:
 - A work center has `units` identical parallel units and an optional calendar (working
@@ -27,9 +33,12 @@ from __future__ import annotations
 
 import heapq
 import random
+from array import array
 from bisect import bisect_right
 from collections.abc import Sequence
 from dataclasses import dataclass
+from itertools import repeat
+from operator import getitem, mul, rshift
 
 from .calendar import WorkingTime
 from .steptimes import Sampler
@@ -104,9 +113,12 @@ def prepare(centers: Sequence[Center], samplers: Sequence[Sampler], lots: Sequen
     return Model(centers=centers, lots=lots, flat=_flatten(samplers, lots))
 
 
-def replicate(model: Model, seed: int, r: int) -> Replication:
-    """Replication r of a model; its random stream depends only on (seed, r)."""
-    return _one(model.centers, model.flat, model.lots, random.Random(seed * 1_000_003 + r))
+def replicate(model: Model, seed: int, r: int, *, detail: bool = False) -> Replication:
+    """Replication r of a model; its random stream depends only on (seed, r).
+
+    `detail` also adds up each lot's run time and each center's busy minutes (the
+    queueing validation needs them; a forecast reads only the finish times)."""
+    return _one(model.centers, model.flat, model.lots, random.Random(seed * 1_000_003 + r), detail)
 
 
 def simulate(
@@ -120,20 +132,25 @@ def simulate(
     if replications < 1:
         raise ValueError("at least one replication")
     model = prepare(centers, samplers, lots)
-    return [replicate(model, seed, r) for r in range(replications)]
+    return [replicate(model, seed, r, detail=True) for r in range(replications)]
 
 
-_Table = tuple[float, tuple[float, ...], float, tuple[float, ...], float]
-_Flat = tuple[list[int], list[_Table], list[int], list[int], list[float], list[float]]
+_Flat = tuple[
+    list[int], list[array[float]], list[int], list[int], list[int], list[float], list[float]
+]
 _SPAN = 1e9
 
 
 def _flatten(samplers: Sequence[Sampler], lots: Sequence[Lot]) -> _Flat:
     """Every lot's steps in one list, indexed by a global step number (built once), and
     each lot's queue rank at its current step and at later ones."""
-    tables = [s.as_tuple() for s in samplers]
+    tables = [array("d", s.draw_table()) for s in samplers]  # contiguous: fewer cache misses
+    for t in tables:
+        if not 1 <= len(t) <= 65536:
+            raise ValueError("a step-time table holds 1 to 65,536 values")
     step_c: list[int] = []
-    step_t: list[_Table] = []
+    step_t: list[array[float]] = []
+    step_n: list[int] = []
     gstart = [0] * len(lots)
     gend = [0] * len(lots)
     for i, lot in enumerate(lots):
@@ -141,6 +158,7 @@ def _flatten(samplers: Sequence[Sampler], lots: Sequence[Lot]) -> _Flat:
         for c, s in lot.steps:
             step_c.append(c)
             step_t.append(tables[s])
+            step_n.append(len(tables[s]))
         gend[i] = len(step_c)
     # A queue entry is (rank x _SPAN + arrival minutes, lot index): one float compare
     # instead of a tuple's. Ranks are the distinct (supervisor order, lot priority)
@@ -149,7 +167,7 @@ def _flatten(samplers: Sequence[Sampler], lots: Sequence[Lot]) -> _Flat:
     rank = {pair: k for k, pair in enumerate(pairs)}
     first_key = [rank[lot.order] * _SPAN for lot in lots]
     later_key = [rank[(0, lot.order[1])] * _SPAN for lot in lots]
-    return step_c, step_t, gstart, gend, first_key, later_key
+    return step_c, step_t, step_n, gstart, gend, first_key, later_key
 
 
 def _one(
@@ -157,37 +175,44 @@ def _one(
     flat: _Flat,
     lots: Sequence[Lot],
     rng: random.Random,
+    detail: bool,
 ) -> Replication:
-    # Written for speed (see the module docstring): flat per-step lists indexed by a
-    # global step number, events as (time, center, payload) with an int payload, queue
-    # entries as (float key, lot), and the common cases (a round-the-clock single-lot
-    # center: start the arriving lot, or refill the unit just freed) done inline.
-    # Payload p: 0 <= p < n a lot's step done; n <= p < 2n lot p - n released into its
-    # queue; -1 a closed center opens; p <= -2 batch number -2 - p done.
-    rnd = rng.random
+    # Written for speed (see the module docstring). Every step's run time is drawn up
+    # front, one uniform number per step in one list comprehension (a batch runs on its
+    # first lot's draw). Events are (time, payload) with an int payload: 0 <= p < n lot
+    # p's step done (its center is the step's); n <= p < 2n lot p - n released into its
+    # queue; -nc <= p <= -1 center -1 - p opens; p < -nc batch -1 - nc - p done. Queue
+    # entries are (float key, lot). The common cases (start the arriving lot on a free
+    # unit of an open single-lot center, or refill the unit just freed) are inline.
     push, pop = heapq.heappush, heapq.heappop
     n = len(lots)
-    step_c, step_t, gstart, gend, first_key, later_key = flat
+    nc = len(centers)
+    step_c, step_t, step_n, gstart, gend, first_key, later_key = flat
+    # 16 random bits per step, scaled to the step's table in C (map over operator
+    # functions): index = (bits x size) >> 16 is uniform over a table whose size
+    # divides 65,536 (the quantile tables are 1,024 to 65,536 values).
+    bits = array("H", rng.randbytes(2 * len(step_c)))
+    dur: list[float] = list(map(getitem, step_t, map(rshift, map(mul, bits, step_n), repeat(16))))
     gpos = list(gstart)
     units = [c.units for c in centers]
     batch = [c.batch_size for c in centers]
     cals = [c.working for c in centers]
     single = [c.batch_size == 1 for c in centers]
     queues: list[list[tuple[float, int]]] = [[] for _ in centers]
-    busy = [0] * len(centers)
-    wake = [_INF] * len(centers)
+    busy = [0] * nc
+    wake = [_INF] * nc
     finish = [0.0] * n
     service = [0.0] * n
-    batches: list[tuple[int, ...]] = []
-    events: list[tuple[float, int, int]] = []
-    busy_total = [0.0] * len(centers)
+    batches: list[tuple[int, tuple[int, ...]]] = []
+    events: list[tuple[float, int]] = []
+    busy_total = [0.0] * nc
 
     # Simulated time only moves forward, so each calendar center keeps the working
     # interval it is in (or the next one): an open check is two compares, and a step
     # that ends inside that interval needs no calendar arithmetic.
-    cal_idx = [0] * len(centers)
-    cal_lo = [_INF] * len(centers)
-    cal_hi = [-_INF] * len(centers)
+    cal_idx = [0] * nc
+    cal_lo = [_INF] * nc
+    cal_hi = [-_INF] * nc
 
     def start(c: int, t: float) -> None:
         q = queues[c]
@@ -207,7 +232,7 @@ def _one(
             if opens > t:
                 if wake[c] > opens:
                     wake[c] = opens
-                    push(events, (opens, c, -1))
+                    push(events, (opens, -1 - c))
                 return
         b = batch[c]
         while q and busy[c] < units[c]:
@@ -218,46 +243,46 @@ def _one(
             else:
                 members = tuple(pop(q)[1] for _ in range(min(b, len(q))))
                 i = members[0]
-                p = -2 - len(batches)
-                batches.append(members)
-            w, hist, hs, table, ts = step_t[gpos[i]]
-            u = rnd()
-            d = hist[int(u * hs)] if u < w else table[int((u - w) * ts)]
-            for m in members:
-                service[m] += d
-            busy_total[c] += d
+                p = -1 - nc - len(batches)
+                batches.append((c, members))
+            d = dur[gpos[i]]
+            if detail:
+                for m in members:
+                    service[m] += d
+                busy_total[c] += d
             busy[c] += 1
             end = t + d
             if end > hi and cal is not None:
                 end = cal.add(t, d)
-            push(events, (end, c, p))
+            push(events, (end, p))
 
     for i, lot in enumerate(lots):
         c = step_c[gpos[i]]
         if lot.elapsed is not None:
-            w, hist, hs, table, ts = step_t[gpos[i]]
-            u = rnd()
-            d = hist[int(u * hs)] if u < w else table[int((u - w) * ts)]
+            d = dur[gpos[i]]
             d = max(d - lot.elapsed, RESIDUAL_FLOOR * d)
-            service[i] += d
-            busy_total[c] += d
+            if detail:
+                service[i] += d
+                busy_total[c] += d
             busy[c] += 1
             cal = cals[c]
-            push(events, (d if cal is None else cal.add(0.0, d), c, i))
+            push(events, (d if cal is None else cal.add(0.0, d), i))
         elif lot.release > 0:
-            push(events, (lot.release, c, n + i))
+            push(events, (lot.release, n + i))
         else:
             queues[c].append((first_key[i] + lot.arrived, i))
     for q in queues:
         heapq.heapify(q)
-    for c in range(len(centers)):
+    for c in range(nc):
         if queues[c] and busy[c] < units[c]:
             start(c, 0.0)
 
     while events:
-        t, c, p = pop(events)
+        t, p = pop(events)
         if 0 <= p < n:
-            g = gpos[p] + 1
+            g = gpos[p]
+            c = step_c[g]
+            g += 1
             if g == gend[p]:
                 finish[p] = t
             else:
@@ -272,52 +297,52 @@ def _one(
                     and (cal is None or cal_lo[c2] <= t < cal_hi[c2])
                 ):
                     # straight onto a free unit of an open single-lot center
-                    w, hist, hs, table, ts = step_t[g]
-                    u = rnd()
-                    d = hist[int(u * hs)] if u < w else table[int((u - w) * ts)]
-                    service[p] += d
-                    busy_total[c2] += d
+                    d = dur[g]
+                    if detail:
+                        service[p] += d
+                        busy_total[c2] += d
                     busy[c2] += 1
                     end = t + d
                     if cal is not None and end > cal_hi[c2]:
                         end = cal.add(t, d)
-                    push(events, (end, c2, p))
+                    push(events, (end, p))
                 else:
                     push(q2, (later_key[p] + t, p))
                     if c2 != c and busy[c2] < units[c2]:
                         start(c2, t)
-            # the unit just freed at c takes the head of its queue
-            busy[c] -= 1
+            # the unit just freed at c takes the head of its queue (it stays busy)
             q = queues[c]
-            if q:
-                cal = cals[c]
-                if single[c] and (cal is None or cal_lo[c] <= t < cal_hi[c]):
-                    i = pop(q)[1]
-                    w, hist, hs, table, ts = step_t[gpos[i]]
-                    u = rnd()
-                    d = hist[int(u * hs)] if u < w else table[int((u - w) * ts)]
+            cal = cals[c]
+            if q and single[c] and (cal is None or cal_lo[c] <= t < cal_hi[c]):
+                i = pop(q)[1]
+                d = dur[gpos[i]]
+                if detail:
                     service[i] += d
                     busy_total[c] += d
-                    busy[c] += 1
-                    end = t + d
-                    if cal is not None and end > cal_hi[c]:
-                        end = cal.add(t, d)
-                    push(events, (end, c, i))
-                else:
+                end = t + d
+                if cal is not None and end > cal_hi[c]:
+                    end = cal.add(t, d)
+                push(events, (end, i))
+            else:
+                busy[c] -= 1
+                if q:
                     start(c, t)
         elif p >= n:
             i = p - n
+            c = step_c[gpos[i]]
             push(queues[c], (first_key[i] + t, i))
             if busy[c] < units[c]:
                 start(c, t)
-        elif p == -1:
+        elif p >= -nc:
+            c = -1 - p
             wake[c] = _INF
             if queues[c] and busy[c] < units[c]:
                 start(c, t)
         else:
+            c, members = batches[-1 - nc - p]
             busy[c] -= 1
             moved: list[int] = []
-            for i in batches[-2 - p]:
+            for i in members:
                 g = gpos[i] + 1
                 if g == gend[i]:
                     finish[i] = t
