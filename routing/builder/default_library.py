@@ -607,7 +607,7 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             "etest",
             "Test every board against the netlist; mark and segregate failures.",
             120,
-            measurements={"etest_opens": {}, "etest_shorts": {}},
+            measurements={"etest_opens": {}, "etest_shorts": {}, "etest_failed": {}},
             rework=["etest_repair", "etest_flying_probe"],
         ),
         "etest_fixture": _step(
@@ -616,7 +616,7 @@ DEFAULT_LIBRARY: Final[dict[str, Any]] = {
             "Test every board on the job's fixture against the netlist; mark and segregate "
             "failures.",
             45,
-            measurements={"etest_opens": {}, "etest_shorts": {}},
+            measurements={"etest_opens": {}, "etest_shorts": {}, "etest_failed": {}},
             rework=["etest_repair", "etest_fixture"],
         ),
         "profile_route": _step(

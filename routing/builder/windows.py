@@ -53,8 +53,11 @@ QUANTITIES: Final = (
     "aoi_defects",
     "etest_opens",
     "etest_shorts",
+    "etest_failed",
 )
-ATTRIBUTE_QUANTITIES: Final = frozenset({"aoi_defects", "etest_opens", "etest_shorts"})
+ATTRIBUTE_QUANTITIES: Final = frozenset(
+    {"aoi_defects", "etest_opens", "etest_shorts", "etest_failed"}
+)
 
 #: Readings per measurement. Common practice: five readings (holes on a coupon, XRF
 #: spots, points on a panel) give a usable average and show spread.
@@ -491,6 +494,21 @@ def window_rule(
                 "(from memory)"
             ),
             provenance=Provenance.FROM_MEMORY,
+        )
+    if quantity == "etest_failed":
+        # One count per lot: the boards that failed, out of the boards tested (the lot's
+        # good boards unless the operator says fewer were tested). No per-lot limit:
+        # failed boards are repaired and retested or scrapped one by one (the opens and
+        # shorts windows judge each), and the p / np chart of the series watches the
+        # failure rate (a point beyond its limit raises a drift alert).
+        return _w(
+            quantity,
+            source=(
+                "shop practice: every board is tested (100 % electrical test of bare "
+                "boards, common practice); the failure rate is watched on a p chart, "
+                "no per-lot limit"
+            ),
+            provenance=Provenance.SHOP_PRACTICE,
         )
     raise KeyError(f"no default window for quantity {quantity!r}; known: {', '.join(QUANTITIES)}")
 

@@ -39,6 +39,7 @@ CHARACTERISTICS: dict[str, str] = {
     "aoi_defects": "Automated optical inspection: defects",
     "etest_opens": "Electrical test: opens",
     "etest_shorts": "Electrical test: shorts",
+    "etest_failed": "Electrical test: boards failed (of boards tested)",
 }
 
 FINISHES: dict[str, str] = {

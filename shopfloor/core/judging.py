@@ -79,6 +79,7 @@ _RESOLUTION: Final[dict[str, float]] = {
     "aoi_defects": 1.0,
     "etest_opens": 1.0,
     "etest_shorts": 1.0,
+    "etest_failed": 1.0,
 }
 _SYMBOL: Final[dict[str, str]] = {"um": "µm", "mm": "mm", "percent": "%", "count": ""}
 #: A value further from its window than this many window widths is treated as a

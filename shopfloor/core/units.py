@@ -130,7 +130,13 @@ _QUANTITIES: Final[dict[str, _Quantity]] = {
     "aoi_defects": _Quantity("count", _COUNT, 1_000_000.0, decimals=0),
     "etest_opens": _Quantity("count", _COUNT, 1_000_000.0, decimals=0),
     "etest_shorts": _Quantity("count", _COUNT, 1_000_000.0, decimals=0),
+    # boards that failed electrical test, out of the boards tested (Reading.tested)
+    "etest_failed": _Quantity("count", _COUNT, 1_000_000.0, decimals=0),
 }
+
+#: Quantities recorded as defectives out of n items inspected (k of n): charted as a p
+#: chart (n varies from lot to lot) or an np chart (one n throughout).
+DEFECTIVES_QUANTITIES: Final = frozenset({"etest_failed"})
 
 # Accepted spellings -> pint unit name. Exact spelling first, then lower case.
 _LENGTH_UNITS: Final[dict[str, str]] = {

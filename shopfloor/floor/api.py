@@ -121,6 +121,7 @@ class ReadingCreateView(JsonAPIView):
             equipment_id=data.get("equipment"),
             captured_at=data.get("captured_at"),
             confirm_out_of_window=bool(data.get("confirm_out_of_window")),
+            tested=data.get("tested"),
         )
         instrument = is_instrument(request)
         outcome = readings.record_reading_once(

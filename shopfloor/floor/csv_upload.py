@@ -21,7 +21,15 @@ from shopfloor.floor import batch
 
 MAX_BYTES = 1_000_000
 REQUIRED = ("lot", "quantity", "value", "unit")
-OPTIONAL = ("sample_index", "sample_key", "position", "equipment", "captured_at", "step")
+OPTIONAL = (
+    "sample_index",
+    "sample_key",
+    "position",
+    "equipment",
+    "captured_at",
+    "step",
+    "tested",
+)
 COLUMNS = REQUIRED + OPTIONAL
 
 

@@ -77,6 +77,8 @@ class ReadingForm(TabletForm):
     captured_at = CapturedAtField(required=False, label="Capture time")
     # Set by the Confirm button the typo guard offers; never ticked silently.
     confirm_out_of_window = forms.BooleanField(required=False)
+    # "failed k of n tested" quantities: n (blank: the lot's good boards)
+    tested = forms.IntegerField(required=False, min_value=1, max_value=1_000_000, label="Tested")
 
     def clean_value(self) -> str:
         value = self.cleaned_data["value"].strip()

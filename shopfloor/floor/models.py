@@ -206,6 +206,9 @@ class Reading(models.Model):
     # Identity of the criteria it was judged against (shopfloor.core.judging.spec_key):
     # SPC series never mix readings judged against different windows.
     spec_key = models.CharField(max_length=64, blank=True)
+    # Defectives out of n (shopfloor.core.units.DEFECTIVES_QUANTITIES): the items
+    # inspected, n; `value` is the defectives found, k. Null for every other quantity.
+    tested = models.PositiveIntegerField(null=True, blank=True)
 
     class Meta:
         ordering = ["lot_step", "quantity", "sample_index", "recorded_at"]

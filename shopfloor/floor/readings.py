@@ -97,6 +97,9 @@ class ReadingInput:
     captured_at: datetime | None = None
     # The operator saw the typo guard's question and confirmed the value as entered.
     confirm_out_of_window: bool = False
+    # Defectives out of n (units.DEFECTIVES_QUANTITIES): the items tested; the value is
+    # the number that failed. None: the lot's good boards at the step.
+    tested: int | None = None
 
 
 # Units offered by the typo guard's "did you mean ...?", per canonical unit.
@@ -186,7 +189,56 @@ def parse_reading(
     if not math.isfinite(value):
         raise InvalidInput("The value must be a finite number.")
     confirmation = _guard(group, data, value)
+    tested_count(step, data, value)  # refuses a bad "k of n" before anything is saved
     return group, value, captured, confirmation
+
+
+MAX_TESTED = 1_000_000
+
+
+def tested_count(step: LotStep, data: ReadingInput, failed: float) -> int | None:
+    """n of a "failed k of n tested" reading: as given, or the lot's good boards now
+    (100 % electrical test of bare boards is common practice). None for any other
+    quantity. Refuses a count that is not whole, an n below 1, or k above n."""
+    if data.quantity not in units.DEFECTIVES_QUANTITIES:
+        if data.tested is not None:
+            raise InvalidInput(
+                f"'tested' applies only to {', '.join(sorted(units.DEFECTIVES_QUANTITIES))} "
+                f"(defectives out of n), not to {data.quantity}.",
+                problems=[{"field": "tested", "value": data.tested}],
+            )
+        return None
+    if failed != int(failed):
+        raise InvalidInput(
+            f"{data.quantity}: count whole boards that failed, not {data.value}.",
+            problems=[{"field": "value", "value": str(data.value), "allowed": "0, 1, 2, ..."}],
+        )
+    n = data.tested
+    if n is None:
+        from shopfloor.floor.quantities import lot_good_boards
+
+        n = sum(lot_good_boards(step.lot).values())
+        if n < 1:
+            raise InvalidInput(
+                f"{data.quantity}: say how many boards were tested (the lot has no good "
+                "boards on record).",
+                problems=[{"field": "tested", "value": None, "allowed": f"1..{MAX_TESTED}"}],
+            )
+    elif isinstance(n, bool) or not isinstance(n, int) or not 1 <= n <= MAX_TESTED:
+        raise InvalidInput(
+            f"Boards tested must be a whole number from 1 to {MAX_TESTED:,}, not {n!r}.",
+            problems=[{"field": "tested", "value": n, "allowed": f"1..{MAX_TESTED}"}],
+        )
+    if failed > n:
+        raise InvalidInput(
+            f"{data.quantity}: {int(failed)} failed is more than the {n} boards tested. "
+            "Nothing was saved; check both numbers.",
+            problems=[
+                {"field": "value", "value": str(data.value), "allowed": f"0..{n}"},
+                {"field": "tested", "value": n},
+            ],
+        )
+    return n
 
 
 def _current_set(step: LotStep, quantity: str) -> dict[int, tuple[int, float]]:
@@ -343,6 +395,7 @@ def build_reading(
         sample_key=sample_key,
         confirmation=confirmation,
         spec_key=judging.spec_key(group.entries),
+        tested=tested_count(step, data, value),
     )
     return reading, judgement.message
 
@@ -558,6 +611,7 @@ def correct_reading(
             equipment_id=old.equipment_id,
             captured_at=captured_at,
             confirm_out_of_window=confirm_out_of_window,
+            tested=old.tested,
         )
         group, canonical, captured, confirmation = parse_reading(step, data)
         equipment = old.equipment

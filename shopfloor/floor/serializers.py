@@ -149,6 +149,16 @@ class ReadingInputSerializer(serializers.Serializer):
             "Without it such a value is refused with 409 saying what to confirm."
         ),
     )
+    tested = serializers.IntegerField(
+        required=False,
+        allow_null=True,
+        min_value=1,
+        max_value=1_000_000,
+        help_text=(
+            "Defectives out of n (etest_failed): the boards tested; `value` is how many "
+            "failed. Default: the lot's good boards at the step. Only for such quantities."
+        ),
+    )
 
 
 class BatchItemSerializer(ReadingInputSerializer):
@@ -211,6 +221,7 @@ def batch_items(
                     equipment_id=data.get("equipment"),
                     captured_at=data.get("captured_at"),
                     confirm_out_of_window=bool(data.get("confirm_out_of_window")),
+                    tested=data.get("tested"),
                 ),
             )
         )

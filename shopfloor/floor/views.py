@@ -240,6 +240,26 @@ class SampleRow:
         ids = {e.pk for e in self.equipment if e.is_gauge and e.calibration_current()}
         return str(last) if last in ids else ""
 
+    @property
+    def defectives(self) -> bool:
+        """Recorded as "failed k of n tested" (the value is k; n is asked beside it)."""
+        return self.quantity in units.DEFECTIVES_QUANTITIES
+
+    @property
+    def default_tested(self) -> int:
+        """The n offered for a "k of n" row: the lot's good boards now."""
+        from shopfloor.floor.quantities import lot_good_boards
+
+        return sum(lot_good_boards(self.step.lot).values())
+
+    @property
+    def failed_text(self) -> str:
+        """'2 of 48 boards failed (4.2 %)' for a recorded "k of n" reading."""
+        r = self.current
+        if r is None or not r.tested:
+            return ""
+        return f"{r.value:g} of {r.tested} boards failed ({100 * r.value / r.tested:.1f} %)"
+
 
 @dataclass
 class PlanItem:
@@ -691,7 +711,7 @@ def record_reading(request: HttpRequest, step_id: int) -> HttpResponse:
         sample = 1
     entered = {
         k: request.POST.get(k, "")
-        for k in ("value", "unit", "position", "equipment", "captured_at")
+        for k in ("value", "unit", "position", "equipment", "captured_at", "tested")
     }
     try:
         if not form.is_valid():
@@ -711,6 +731,7 @@ def record_reading(request: HttpRequest, step_id: int) -> HttpResponse:
                     equipment_id=data["equipment"],
                     captured_at=data["captured_at"],
                     confirm_out_of_window=bool(data.get("confirm_out_of_window")),
+                    tested=data.get("tested"),
                 ),
             )
             return 201, {"reading": reading.pk, "in_window": reading.in_window}

@@ -39,7 +39,7 @@ from django.db import IntegrityError, transaction
 from django.db.models import Q, QuerySet
 from django.utils import timezone
 
-from shopfloor.core import judging, spc
+from shopfloor.core import judging, spc, units
 from shopfloor.floor.models import Reading
 from shopfloor.quality.models import SeriesState
 
@@ -97,6 +97,8 @@ def chart_for(window: dict[str, Any]) -> tuple[str, int]:
     Attribute checks count defects: c chart. A measured quantity the step samples n times
     per lot (2 <= n <= 25): X-bar/R up to 10, X-bar/S above. Otherwise individuals.
     """
+    if window.get("quantity") in units.DEFECTIVES_QUANTITIES:
+        return "p", 1  # becomes np at the baseline when every lot tested the same n
     if window.get("attribute"):
         return "c", 1
     n = window.get("samples")
@@ -238,6 +240,8 @@ def _apply(series: SeriesState, reading: Reading) -> list[DriftSignal]:
     """Step one reading through the series in memory (the caller saves the row)."""
     if series.chart in XBAR_CHARTS:
         return _add_to_subgroup(series, reading)
+    if series.chart in PROPORTION_CHARTS:
+        return _add_proportion(series, reading)
     value = float(reading.value)
     series.points += 1
     series.updated_at = timezone.now()
@@ -254,6 +258,68 @@ def _apply(series: SeriesState, reading: Reading) -> list[DriftSignal]:
     new_state, fired = spc.step(state, value, limits, series.rules)
     signals = _new_signals(series, fired, last_fired)
     series.rule_state = {"rules": new_state.to_dict(), "last_fired": last_fired}
+    return signals
+
+
+PROPORTION_CHARTS = ("p", "np")
+
+
+def proportion_limits_dict(chart: spc.ProportionChart, *, source: str) -> dict[str, Any]:
+    """Stored limits of a p / np series: p-bar (what every point's limits come from),
+    the np chart's n, and the lines at the baseline's mean n for the list pages."""
+    n_mean = statistics.fmean(chart.sizes)
+    if chart.chart == "np":
+        lim = spc.count_limits(chart.p_bar, chart.sizes[0])
+    else:
+        lim = spc.proportion_limits(chart.p_bar, max(1, round(n_mean)))
+    return {
+        **limits_to_dict(lim, source=source),
+        "p_bar": chart.p_bar,
+        "n": chart.sizes[0] if chart.chart == "np" else None,
+    }
+
+
+def _add_proportion(series: SeriesState, reading: Reading) -> list[DriftSignal]:
+    """p / np series: a point is one lot's "failed k of n tested". The baseline decides
+    np (every n the same) or p; each later point is judged standardized against p-bar
+    (spc.proportion), the computation the page and `spc evaluate` use."""
+    n = int(reading.tested or 0)
+    if n < 1:
+        return []  # a row from before n was recorded: not charted
+    k = round(float(reading.value))
+    series.points += 1
+    series.updated_at = timezone.now()
+    if series.limits is None:
+        baseline = [*list(series.baseline or []), [k, n]]
+        series.baseline = baseline
+        if len(baseline) >= series.baseline_size:
+            try:
+                chart = spc.proportion_chart([b[0] for b in baseline], [b[1] for b in baseline])
+                series.chart = chart.chart
+                series.limits = proportion_limits_dict(
+                    chart, source=f"baseline of {len(baseline)} lots"
+                )
+            except spc.SpcInputError as exc:
+                log.warning("series %s: baseline not usable: %s", series.key, exc)
+        series.save(update_fields=[*_MOVING_FIELDS, "baseline", "limits", "chart"])
+        return []
+    p_bar = float(series.limits.get("p_bar", series.limits["centre"]))
+    if series.chart == "np" and series.limits.get("n") != n:
+        series.chart = "p"  # a lot of another size: the p chart (same p-bar) from here on
+    z = spc.standardized(k, n, p_bar)
+    state, last_fired = _stored_rule_state(series)
+    new_state, fired = spc.step(state, z, spc.STANDARD_LIMITS, series.rules)
+    fired = [
+        replace(
+            f,
+            description=f"{f.description} (lot {reading.lot_step.lot.code}: {k} of {n} failed,"
+            f" {100 * k / n:.1f} % against p-bar {100 * p_bar:.2f} %)",
+        )
+        for f in fired
+    ]
+    signals = _new_signals(series, fired, last_fired)
+    series.rule_state = {"rules": new_state.to_dict(), "last_fired": last_fired}
+    series.save(update_fields=[*_MOVING_FIELDS, "rule_state", "chart"])
     return signals
 
 

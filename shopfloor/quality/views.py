@@ -231,9 +231,23 @@ def _spc_context(scope: Scope, key: str) -> dict[str, Any]:
     def fmt(v: float) -> str:  # control limits: a digit or two finer than one reading
         return judging.for_people(d.row.quantity, v, symbol=False, extra_digits=extra)
 
+    if d.chart == "p":
+
+        def fmt(v: float) -> str:  # a share failed, as a percentage
+            return f"{100 * v:.2f} %"
+
+    elif d.chart == "np":
+
+        def fmt(v: float) -> str:  # boards failed
+            return f"{v:.2f}"
+
     where = f"{d.row.quantity} at {d.row.work_center}"
     if d.limits is not None:
         what = f"subgroup means of {d.subgroup_size}" if d.subgroup_size > 1 else "points"
+        if d.chart == "p":
+            what = "share of boards failed per lot (limits move with each lot's n)"
+        elif d.chart == "np":
+            what = f"boards failed per lot of {d.point_n[0] if d.point_n else ''}"
         chart_svg = charts.to_svg(
             charts.control_chart(
                 d.values,
@@ -244,6 +258,8 @@ def _spc_context(scope: Scope, key: str) -> dict[str, Any]:
                 title=f"{where}: {d.chart_label}, {what}",
                 unit=d.unit,
                 fmt=fmt,
+                ucls=d.point_ucl or None,
+                lcls=d.point_lcl or None,
             )
         )
         spread = d.limits.range

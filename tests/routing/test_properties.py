@@ -9,7 +9,7 @@ from hypothesis import strategies as st
 
 from routing.builder import SpecInvalid, build_routing, parse_spec, routing_to_dict
 from routing.builder.spec import FINISHES
-from shopfloor.core.units import canonical_unit
+from shopfloor.core.units import DEFECTIVES_QUANTITIES, canonical_unit
 
 SETTINGS = settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
@@ -170,8 +170,10 @@ def test_routing_invariants(data):
             assert w.unit == canonical_unit(w.quantity)
             if w.min is not None and w.max is not None:
                 assert w.min <= w.max
-            if w.attribute:
-                assert w.max == 0
+            if w.attribute and w.quantity not in DEFECTIVES_QUANTITIES:
+                assert w.max == 0  # defect counts: none allowed
+            if w.quantity in DEFECTIVES_QUANTITIES:
+                assert w.min is None and w.max is None  # watched on a p chart instead
 
     d = routing_to_dict(r)
     assert [s["code"] for s in d["steps"]] == codes

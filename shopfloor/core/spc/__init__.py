@@ -34,11 +34,13 @@ __all__ = [
     "RULES",
     "RULESETS",
     "SIZED_CHARTS",
+    "STANDARD_LIMITS",
     "VARIABLES_CHARTS",
     "Capability",
     "ChartConstants",
     "ChartKind",
     "Limits",
+    "ProportionChart",
     "Rule",
     "RuleState",
     "Signal",
@@ -48,6 +50,7 @@ __all__ = [
     "capability_indices",
     "chart_constants",
     "compute_limits",
+    "count_limits",
     "d2",
     "d3",
     "evaluate",
@@ -56,6 +59,9 @@ __all__ = [
     "normal_ppm_out_of_spec",
     "plotted_points",
     "poisson_ppm_above",
+    "proportion_chart",
+    "proportion_limits",
+    "standardized",
     "step",
     "within_sigma",
 ]
@@ -80,10 +86,13 @@ from .limits import (
     ChartKind,
     Limits,
     compute_limits,
+    count_limits,
     fixed_limits,
     plotted_points,
     poisson_ppm_above,
+    proportion_limits,
     within_sigma,
 )
 from .process_capability import Capability, capability, capability_indices, normal_ppm_out_of_spec
+from .proportion import STANDARD_LIMITS, ProportionChart, proportion_chart, standardized
 from .rules import RULES, RULESETS, Rule, RuleState, Signal, evaluate_rules, step

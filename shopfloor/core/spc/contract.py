@@ -23,6 +23,7 @@ from .limits import (
     within_sigma,
 )
 from .process_capability import capability
+from .proportion import STANDARD_LIMITS, proportion_chart
 from .rules import RULESETS, evaluate_rules
 
 # ---------------------------------------------------------------------------
@@ -30,7 +31,17 @@ from .rules import RULESETS, evaluate_rules
 # ---------------------------------------------------------------------------
 
 _ALLOWED_KEYS: Final = frozenset(
-    {"chart", "values", "subgroups", "sample_size", "lsl", "usl", "rules", "limits"}
+    {
+        "chart",
+        "values",
+        "subgroups",
+        "sample_size",
+        "sample_sizes",
+        "lsl",
+        "usl",
+        "rules",
+        "limits",
+    }
 )
 _LIMIT_KEYS: Final = frozenset({"centre", "ucl", "lcl", "sigma"})
 
@@ -85,6 +96,8 @@ def evaluate(data: object) -> dict[str, Any]:
     if wanted not in data:
         raise SpcInputError(f"the {chart} chart needs '{wanted}'")
     points: Sequence[Any] = data[wanted]
+    if data.get("sample_sizes") is not None:
+        return _evaluate_proportions(chart, data)
     sample_size = data.get("sample_size")
     if chart in SIZED_CHARTS:
         sample_size = _sample_size(sample_size)
@@ -118,3 +131,45 @@ def evaluate(data: object) -> dict[str, Any]:
             cap = capability(points, lsl=lsl, usl=usl)
         result["capability"] = cap.to_dict()
     return result
+
+
+def _evaluate_proportions(chart: str, data: Mapping[str, Any]) -> dict[str, Any]:
+    """p or np chart with a sample size per point (`sample_sizes`): the computation the
+    live series use (proportion.py). Output: centre (p-bar, or n p-bar for np), ucl and
+    lcl (null when n varies: see `points`), points (per point n, plotted value, limits
+    and z) and the signals, found on the standardized points."""
+    if chart not in ("p", "np"):
+        raise SpcInputError("sample_sizes applies only to the p and np charts")
+    if data.get("sample_size") is not None:
+        raise SpcInputError("give either sample_size (one n for all) or sample_sizes, not both")
+    if data.get("limits") is not None:
+        raise SpcInputError("fixed limits are not taken with sample_sizes")
+    if "subgroups" in data or "values" not in data:
+        raise SpcInputError(f"the {chart} chart takes 'values' (defectives per sample)")
+    for key in ("lsl", "usl"):
+        if data.get(key) is not None:
+            raise SpcInputError(
+                f"lsl/usl apply only to variables charts ({', '.join(VARIABLES_CHARTS)})"
+            )
+    ruleset = data.get("rules") or "western_electric"
+    if not isinstance(ruleset, str) or ruleset not in RULESETS:
+        raise SpcInputError(f"unknown rules {ruleset!r}; allowed are {', '.join(RULESETS)}")
+    values, sizes = data["values"], data["sample_sizes"]
+    if not isinstance(values, list) or not isinstance(sizes, list):
+        raise SpcInputError("values and sample_sizes must be lists of whole numbers")
+    pc = proportion_chart(values, sizes, chart=chart)  # type: ignore[arg-type]
+    constant = pc.constant_n
+    return {
+        "centre": pc.centre[0] if constant else pc.p_bar,
+        "ucl": pc.ucl[0] if constant else None,
+        "lcl": pc.lcl[0] if constant else None,
+        "p_bar": pc.p_bar,
+        "range": None,
+        "points": [
+            {"n": n, "plotted": v, "ucl": u, "lcl": lo, "z": z}
+            for n, v, u, lo, z in zip(
+                pc.sizes, pc.plotted, pc.ucl, pc.lcl, pc.standardized, strict=True
+            )
+        ],
+        "signals": [s.to_dict() for s in evaluate_rules(pc.standardized, STANDARD_LIMITS, ruleset)],
+    }

@@ -197,12 +197,25 @@ def _u(counts: list[float], n: int) -> Limits:
     return Limits(u_bar, u_bar + 3 * sigma, max(0.0, u_bar - 3 * sigma), sigma)
 
 
-def _np(counts: list[float], n: int) -> Limits:
-    """np chart (defectives per sample of n): n p-bar +- 3 sqrt(n p-bar (1 - p-bar))."""
-    p_bar = sum(counts) / (n * len(counts))
+def proportion_limits(p_bar: float, n: int) -> Limits:
+    """The p chart's centre and limits for one sample of n: p-bar +- 3 sqrt(p-bar
+    (1 - p-bar) / n), LCL >= 0, UCL <= 1 (NIST/SEMATECH e-Handbook 6.3.3.2). The live
+    series, the SPC page and `spc evaluate` all use this (see proportion.py)."""
+    sigma = math.sqrt(p_bar * (1.0 - p_bar) / n)
+    return Limits(p_bar, min(1.0, p_bar + 3 * sigma), max(0.0, p_bar - 3 * sigma), sigma)
+
+
+def count_limits(p_bar: float, n: int) -> Limits:
+    """The np chart's centre and limits for samples of n: n p-bar +- 3 sqrt(n p-bar
+    (1 - p-bar)), LCL >= 0, UCL <= n."""
     sigma = math.sqrt(n * p_bar * (1.0 - p_bar))
     centre = n * p_bar
     return Limits(centre, min(float(n), centre + 3 * sigma), max(0.0, centre - 3 * sigma), sigma)
+
+
+def _np(counts: list[float], n: int) -> Limits:
+    """np chart (defectives per sample of n)."""
+    return count_limits(sum(counts) / (n * len(counts)), n)
 
 
 def poisson_ppm_above(mean: float, limit: float) -> float:
@@ -222,9 +235,7 @@ def poisson_ppm_above(mean: float, limit: float) -> float:
 
 
 def _p(counts: list[float], n: int) -> Limits:
-    p_bar = sum(counts) / (n * len(counts))
-    sigma = math.sqrt(p_bar * (1.0 - p_bar) / n)
-    return Limits(p_bar, min(1.0, p_bar + 3 * sigma), max(0.0, p_bar - 3 * sigma), sigma)
+    return proportion_limits(sum(counts) / (n * len(counts)), n)
 
 
 def _check_chart(chart: object) -> ChartKind:

@@ -88,8 +88,13 @@ def control_chart(
     width: float = 900,
     height: float = 340,
     fmt: Callable[[float], str] | None = None,
+    ucls: Sequence[float] | None = None,
+    lcls: Sequence[float] | None = None,
 ) -> Figure:
     """Points in order with centre line, UCL/LCL, optional spec limits; rule breaks marked.
+
+    `ucls` / `lcls` give one limit per point (a p chart whose n varies): the limits are
+    drawn as steps around each point and labelled with the newest point's values.
 
     `signals` pairs a point index with the rule it broke; every broken rule is named in a
     legend under the plot so the chart reads without colour. `fmt` writes numbers for
@@ -104,7 +109,10 @@ def control_chart(
             Shape("text", (width / 2, height / 2), text="No points yet", size=14, anchor="middle")
         )
         return fig
+    stepped = ucls is not None and lcls is not None and len(ucls) == len(lcls) == len(values)
     ys = [*values, centre, ucl, lcl] + [x for x in (lsl, usl) if x is not None]
+    if stepped and ucls is not None and lcls is not None:
+        ys += [*ucls, *lcls]
     lo, hi = min(ys), max(ys)
     pad = (hi - lo) * 0.08 or 1.0
     y = _scale(lo - pad, hi + pad, top, bottom)
@@ -117,10 +125,22 @@ def control_chart(
     fig.shapes.append(Shape("rect", (left, top, right - left, bottom - top), stroke=GRID))
     lines = [(ucl, "UCL", LIMIT, True), (centre, "CL", INK, False), (lcl, "LCL", LIMIT, True)]
     label_ys = spread_labels([y(v) + 4 for v, *_ in lines])
+    half = step / 2 if n > 1 else (right - left) / 2
     for (value, label, colour, dash), label_y in zip(lines, label_ys, strict=True):
-        fig.shapes.append(
-            Shape("line", (left, y(value), right, y(value)), stroke=colour, dash=dash, width=1.5)
+        per_point = (
+            (ucls if label == "UCL" else lcls if label == "LCL" else None) if stepped else None
         )
+        if per_point is not None:
+            coords: list[float] = []
+            for i, v in enumerate(per_point):
+                coords += [max(left, x(i) - half), y(v), min(right, x(i) + half), y(v)]
+            fig.shapes.append(Shape("polyline", tuple(coords), stroke=colour, dash=dash, width=1.5))
+        else:
+            fig.shapes.append(
+                Shape(
+                    "line", (left, y(value), right, y(value)), stroke=colour, dash=dash, width=1.5
+                )
+            )
         fig.shapes.append(
             Shape(
                 "text",

@@ -10,6 +10,7 @@ from typing import Any
 from django.db.models import Count
 
 from shopfloor.access import Scope
+from shopfloor.core import units
 from shopfloor.errors import NotFound
 from shopfloor.floor.models import Reading
 from shopfloor.quality import series as series_core
@@ -49,6 +50,10 @@ class SeriesDetail:
     spreads: list[float] = field(default_factory=list)
     # attribute charts: mean defects per unit and the Poisson ppm above the window
     attribute: dict[str, Any] | None = None
+    # p / np charts: each point's n and limits (they move with n on a p chart)
+    point_ucl: list[float] = field(default_factory=list)
+    point_lcl: list[float] = field(default_factory=list)
+    point_n: list[int] = field(default_factory=list)
 
     @property
     def chart_label(self) -> str:
@@ -182,10 +187,12 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
     size = stored.subgroup_size if stored and chart in series_core.XBAR_CHARTS else 1
     recent = list(
         qs.order_by("-captured_at", "-pk").values_list(
-            "value", "unit", "window", "lot_step_id", "sample_index"
+            "value", "unit", "window", "lot_step_id", "sample_index", "tested"
         )[: SPC_POINTS * size]
     )
     recent.reverse()
+    if chart in series_core.PROPORTION_CHARTS or row.quantity in units.DEFECTIVES_QUANTITIES:
+        return _proportion_detail(row, stored, recent)
     readings = [v for v, *_ in recent]
     unit = recent[-1][1] if recent else ""
     window = dict(recent[-1][2]) if recent else {}
@@ -196,7 +203,7 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
     groups: list[list[float]] = []
     spreads: list[float] = []
     if size > 1:
-        groups = series_core.subgroups_of([(st, i, v) for v, _, _, st, i in recent], size)
+        groups = series_core.subgroups_of([(st, i, v) for v, _, _, st, i, _ in recent], size)
         values = [statistics.fmean(g) for g in groups]
         spreads = [(max(g) - min(g)) if chart == "xbar_r" else statistics.stdev(g) for g in groups]
     else:
@@ -263,3 +270,59 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
         spreads,
         attribute,
     )
+
+
+def _proportion_detail(row: SeriesRow, stored: Any, recent: list[Any]) -> SeriesDetail:
+    """A p / np series ("failed k of n tested" per lot): the same computation as the
+    live series and `spc evaluate` (shopfloor.core.spc.proportion). p-bar is the
+    series' baseline once it has one, else the points shown; rules run on the
+    standardized points, so each point is judged against its own n."""
+    from shopfloor.core import spc
+
+    points = [(round(float(v)), int(n)) for v, _, _, _, _, n in recent if n]
+    window = dict(recent[-1][2]) if recent else {}
+    rules = stored.rules if stored else "western_electric"
+    if not stored:
+        row.points = len(points)
+    limits_data = stored.limits if stored and stored.limits else None
+    chart = stored.chart if stored else "p"
+    if chart not in series_core.PROPORTION_CHARTS:
+        chart = "p"
+    message = ""
+    detail = SeriesDetail(row, [], "", window, None, [], None, "", rules, chart, 1)
+    detail.readings = [float(k) for k, _ in points]
+    try:
+        p_bar = float(limits_data["p_bar"]) if limits_data and "p_bar" in limits_data else None
+        if p_bar is None and len(points) < spc.MIN_BASELINE_POINTS:
+            raise spc.SpcInputError("Too few lots to compute control limits yet.")
+        if points:
+            if chart == "np" and len({n for _, n in points}) > 1:
+                chart = "p"
+            pc = spc.proportion_chart(
+                [k for k, _ in points],
+                [n for _, n in points],
+                p_bar=p_bar,
+                chart="np" if chart == "np" else "p",
+            )
+            detail.chart = pc.chart
+            detail.values = list(pc.plotted)
+            detail.point_ucl, detail.point_lcl = list(pc.ucl), list(pc.lcl)
+            detail.point_n = list(pc.sizes)
+            middle = len(pc.sizes) - 1
+            detail.limits = spc.Limits(pc.centre[middle], pc.ucl[middle], pc.lcl[middle], 0.0)
+            detail.signals = spc.evaluate_rules(pc.standardized, spc.STANDARD_LIMITS, rules)
+            detail.unit = "share failed" if pc.chart == "p" else "boards failed"
+            detail.attribute = {
+                "p_bar": pc.p_bar,
+                "n_min": min(pc.sizes),
+                "n_max": max(pc.sizes),
+                "failed": sum(k for k, _ in points),
+                "tested": sum(pc.sizes),
+                "source": (limits_data or {}).get("source") or f"the {len(points)} lots shown",
+            }
+    except spc.SpcInputError as exc:
+        message = str(exc)
+    if detail.limits is None and not message:
+        message = "No lot has been recorded yet."
+    detail.message = message
+    return detail

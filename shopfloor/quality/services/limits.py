@@ -47,6 +47,11 @@ def fix_limits(
         raise InvalidInput(f"Control limits not accepted: {exc}.") from exc
     with transaction.atomic():
         s = _get_series_locked(series_id)
+        if s.chart in series_core.PROPORTION_CHARTS:
+            raise InvalidInput(
+                f"A {s.chart} chart's limits follow from p-bar and each lot's number tested, "
+                "so they are not typed in: recompute them from a time window instead."
+            )
         source = f"fixed by {person.printed_name}"
         return _store_limits(person, s, limits, source, "spc.limits_fixed")
 
@@ -114,6 +119,8 @@ def recompute_limits(person: Person, series_id: int, start: datetime, end: datet
         raise InvalidInput("The baseline window must start before it ends.")
     with transaction.atomic():
         s = _get_series_locked(series_id)
+        if s.chart in series_core.PROPORTION_CHARTS:
+            return _recompute_proportion(person, s, start, end)
         rows = list(
             series_core.series_queryset(s)
             .filter(recorded_at__gte=start, recorded_at__lte=end)
@@ -193,3 +200,43 @@ def series_capability(series_id: int) -> dict[str, Any]:
                 "overall_sigma": cap.overall_sigma,
             }
     return result
+
+
+def _recompute_proportion(
+    person: Person, s: SeriesState, start: datetime, end: datetime
+) -> SeriesState:
+    """p / np series: p-bar from the lots recorded in [start, end] (the live computation)."""
+    points = [
+        (round(value), tested)
+        for value, tested in series_core.series_queryset(s)
+        .filter(recorded_at__gte=start, recorded_at__lte=end, tested__isnull=False)
+        .order_by("recorded_at", "pk")
+        .values_list("value", "tested")[: series_core.MAX_BASELINE]
+    ]
+    if len(points) < spc.MIN_BASELINE_POINTS:
+        raise InvalidInput(
+            f"The window {start:%Y-%m-%d %H:%M} to {end:%Y-%m-%d %H:%M} holds {len(points)} "
+            f"lot(s) of {s.key}; at least {spc.MIN_BASELINE_POINTS} are needed (25 or more "
+            "is common practice)."
+        )
+    try:
+        chart = spc.proportion_chart([k for k, _ in points], [n for _, n in points])
+    except spc.SpcInputError as exc:
+        raise InvalidInput(f"Limits cannot be computed from that window: {exc}.") from exc
+    before = s.limits
+    s.chart = chart.chart
+    s.limits = series_core.proportion_limits_dict(
+        chart, source=f"recomputed from {len(points)} lots {start.isoformat()} to {end.isoformat()}"
+    )
+    s.limits_fixed = True
+    s.updated_at = timezone.now()
+    s.save(update_fields=["chart", "limits", "limits_fixed", "updated_at"])
+    audit.record(
+        actor=person.user,
+        action="spc.limits_recomputed",
+        object_type="spc_series",
+        object_id=s.pk,
+        before=before,
+        after=s.limits,
+    )
+    return s
