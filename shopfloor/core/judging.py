@@ -27,6 +27,8 @@ from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any, Final
 
+from shopfloor.core.units import DEFECTIVES_QUANTITIES
+
 __all__ = [
     "APPLIES_TO",
     "SET_STATISTICS",
@@ -158,8 +160,12 @@ def describe_entry(entry: Mapping[str, Any], samples: int | None = None) -> str:
     n = samples if samples is not None else entry.get("samples")
     what = applies_to(entry)
     limits = _limits_text(entry)
+    if entry.get("quantity") in DEFECTIVES_QUANTITIES and hi_lo_none(entry):
+        return "failed of tested, no per-lot limit (watched on a p chart)"
     if entry.get("attribute"):
         hi = entry.get("max")
+        if hi is None:
+            return "defects found, no per-lot limit"
         return f"defects found ≤ {for_people(str(entry.get('quantity', '')), hi)}"
     of = f" of {n} samples" if isinstance(n, int) and n > 1 else ""
     if what == "mean":
@@ -171,6 +177,10 @@ def describe_entry(entry: Mapping[str, Any], samples: int | None = None) -> str:
     if what == "range":
         return f"range (largest − smallest){of} {limits}"
     return f"each {limits}" if isinstance(n, int) and n > 1 else limits
+
+
+def hi_lo_none(entry: Mapping[str, Any]) -> bool:
+    return entry.get("min") is None and entry.get("max") is None
 
 
 def _order(entry: Mapping[str, Any]) -> int:
