@@ -66,7 +66,8 @@ def evaluate(data: object) -> dict[str, Any]:
         {"chart": "individuals" | "xbar_r" | "xbar_s" | "c" | "p",
          "values": [...]            # individuals, c (counts), p (defective counts)
          "subgroups": [[...], ...]  # xbar_r, xbar_s; equal sizes 2..25
-         "sample_size": n,          # p only: items inspected per sample
+         "sample_size": n,          # u, p, np: items inspected per sample
+         "sample_sizes": [n, ...],  # p, np: one n per value instead (see _evaluate_proportions)
          "lsl": x, "usl": y,        # optional, variables charts only
          "rules": "western_electric" (default) | "nelson",
          "limits": {"centre", "ucl", "lcl", "sigma"?}}  # optional fixed limits
