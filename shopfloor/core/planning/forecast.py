@@ -166,14 +166,11 @@ def forecast(
     finishes = run_replications(centers, samplers, sim_lots, replications, seed, processes)
     lot_results: dict[str, Finish] = {}
     job_runs: dict[str, list[float]] = defaultdict(lambda: [0.0] * replications)
-    for i, lot in enumerate(live):
-        values = [rep[i] for rep in finishes]
+    # per lot, its finish in every replication (transposed in C)
+    for lot, values in zip(live, zip(*finishes, strict=True), strict=False):
         lot_results[lot.code] = _finish(now, values)
         for job in lot.jobs:
-            runs = job_runs[job]
-            for r, v in enumerate(values):
-                if v > runs[r]:
-                    runs[r] = v
+            job_runs[job] = list(map(max, job_runs[job], values))
     job_results = {job: _finish(now, runs) for job, runs in job_runs.items()}
     return ForecastResult(
         started_at=now,
