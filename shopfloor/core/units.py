@@ -522,6 +522,7 @@ _ENTRY_UNITS: Final[dict[str, tuple[str, ...]]] = {
     "aoi_defects": (),
     "etest_opens": (),
     "etest_shorts": (),
+    "etest_failed": (),
 }
 
 

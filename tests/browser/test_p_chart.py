@@ -16,8 +16,8 @@ from playwright.sync_api import expect
 from shopfloor.floor import services as floor_services
 from shopfloor.floor.models import Reading
 from shopfloor.quality import series as series_core
-from shopfloor.quality import services
 from shopfloor.quality.models import OutboxEvent, SeriesState
+from shopfloor.quality.services import alerts
 from tests.browser.conftest import TABLET
 from tests.worker import floorkit as kit
 
@@ -35,7 +35,7 @@ def _etest(floor, lot):
 
 def _handle_all() -> None:
     for event in OutboxEvent.objects.filter(processed_at__isnull=True).order_by("pk"):
-        services.handle_event(event.pk)
+        alerts.handle_event(event.pk)
 
 
 def test_failed_of_tested_on_the_tablet_and_the_p_chart(

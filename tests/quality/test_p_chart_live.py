@@ -19,8 +19,8 @@ from shopfloor.errors import InvalidInput
 from shopfloor.floor import services as floor_services
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.quality import series as series_core
-from shopfloor.quality import services
 from shopfloor.quality.models import Alert, OutboxEvent, SeriesState
+from shopfloor.quality.services import alerts
 from tests.worker import floorkit as kit
 
 pytestmark = pytest.mark.django_db
@@ -44,7 +44,7 @@ def _record_lot(floor, failed: int, tested: int | None) -> Reading:
         ),
     )
     for event in OutboxEvent.objects.filter(processed_at__isnull=True).order_by("pk"):
-        services.handle_event(event.pk)
+        alerts.handle_event(event.pk)
     return reading
 
 
