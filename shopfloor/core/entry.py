@@ -98,7 +98,11 @@ def _limits(entry: Mapping[str, Any], unit: str, say: Speech) -> str:
 def _entry_words(entry: Mapping[str, Any], n: int, unit: str, say: Speech) -> str:
     _ = say.tr
     q = str(entry.get("quantity", ""))
+    if q in units.DEFECTIVES_QUANTITIES and judging.hi_lo_none(entry):
+        return _("failed of tested, no per-lot limit (watched on a p chart)")
     if entry.get("attribute"):
+        if entry.get("max") is None:
+            return _("defects found, no per-lot limit")
         return _("defects found ≤ {count}").format(count=number(q, entry.get("max"), "", say))
     limits = _limits(entry, unit, say)
     what = judging.applies_to(entry)
