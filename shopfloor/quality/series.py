@@ -204,7 +204,7 @@ def _stored_rule_state(series: SeriesState) -> tuple[spc.RuleState, dict[str, in
 _MOVING_FIELDS = ["points", "updated_at"]  # what every new point changes
 
 
-_SAVED_FIELDS = [*_MOVING_FIELDS, "baseline", "limits", "rule_state"]
+_SAVED_FIELDS = [*_MOVING_FIELDS, "baseline", "limits", "rule_state", "chart"]
 
 
 def add_point(reading: Reading) -> list[DriftSignal]:
@@ -282,7 +282,8 @@ def proportion_limits_dict(chart: spc.ProportionChart, *, source: str) -> dict[s
 def _add_proportion(series: SeriesState, reading: Reading) -> list[DriftSignal]:
     """p / np series: a point is one lot's "failed k of n tested". The baseline decides
     np (every n the same) or p; each later point is judged standardized against p-bar
-    (spc.proportion), the computation the page and `spc evaluate` use."""
+    (spc.proportion), the computation the page and `spc evaluate` use. In memory, like
+    `_apply` (the caller saves the row, `chart` included)."""
     n = int(reading.tested or 0)
     if n < 1:
         return []  # a row from before n was recorded: not charted
@@ -301,7 +302,6 @@ def _add_proportion(series: SeriesState, reading: Reading) -> list[DriftSignal]:
                 )
             except spc.SpcInputError as exc:
                 log.warning("series %s: baseline not usable: %s", series.key, exc)
-        series.save(update_fields=[*_MOVING_FIELDS, "baseline", "limits", "chart"])
         return []
     p_bar = float(series.limits.get("p_bar", series.limits["centre"]))
     if series.chart == "np" and series.limits.get("n") != n:
@@ -319,7 +319,6 @@ def _add_proportion(series: SeriesState, reading: Reading) -> list[DriftSignal]:
     ]
     signals = _new_signals(series, fired, last_fired)
     series.rule_state = {"rules": new_state.to_dict(), "last_fired": last_fired}
-    series.save(update_fields=[*_MOVING_FIELDS, "rule_state", "chart"])
     return signals
 
 
