@@ -18,8 +18,8 @@ from shopfloor.floor.models import Reading
 from shopfloor.quality import series as series_core
 from shopfloor.quality.models import OutboxEvent, SeriesState
 from shopfloor.quality.services import alerts
+from tests import factories, helpers
 from tests.browser.conftest import TABLET
-from tests.worker import floorkit as kit
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 DESK = {"width": 1366, "height": 768}
@@ -28,7 +28,7 @@ LOTS = [(12, 50), (15, 60), (8, 40), (10, 50), (4, 30), (7, 50), (16, 60), (9, 4
 
 def _etest(floor, lot):
     code = next(s.code for s in floor.lot.steps.order_by("position") if "etest" in s.code)
-    step = kit.advance_to(lot, code)
+    step = helpers.advance_to(lot, code)
     floor_services.start_step(person=floor.personas["operator"], lot_step_id=step.pk)
     return step
 
@@ -43,7 +43,7 @@ def test_failed_of_tested_on_the_tablet_and_the_p_chart(
 ):
     monkeypatch.setattr(series_core, "DEFAULT_BASELINE", len(LOTS))
     for failed, tested in LOTS:
-        step = _etest(floor, kit.new_lot(floor))
+        step = _etest(floor, factories.new_lot(floor))
         floor_services.record_reading(
             person=floor.personas["operator"],
             lot_step_id=step.pk,
@@ -54,7 +54,7 @@ def test_failed_of_tested_on_the_tablet_and_the_p_chart(
     _handle_all()
 
     # the tablet: one more lot, 3 of 45 boards failed
-    lot = kit.new_lot(floor)
+    lot = factories.new_lot(floor)
     step = _etest(floor, lot)
     tablet = persona_page("operator", viewport=TABLET)
     tablet.goto(f"/floor/lots/{lot.code}/")

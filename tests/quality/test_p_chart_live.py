@@ -21,7 +21,7 @@ from shopfloor.floor.models import LotStep, Reading
 from shopfloor.quality import series as series_core
 from shopfloor.quality.models import Alert, OutboxEvent, SeriesState
 from shopfloor.quality.services import alerts
-from tests.worker import floorkit as kit
+from tests import factories, helpers
 
 pytestmark = pytest.mark.django_db
 
@@ -33,8 +33,8 @@ def _etest_code(floor) -> str:
 
 
 def _record_lot(floor, failed: int, tested: int | None) -> Reading:
-    lot = kit.new_lot(floor)
-    step = kit.advance_to(lot, _etest_code(floor))
+    lot = factories.new_lot(floor)
+    step = helpers.advance_to(lot, _etest_code(floor))
     floor_services.start_step(person=floor.personas["operator"], lot_step_id=step.pk)
     reading = floor_services.record_reading(
         person=floor.personas["operator"],
@@ -89,8 +89,8 @@ def test_live_series_uses_the_shared_computation_and_alerts(floor, monkeypatch):
 def test_tested_defaults_to_the_lots_good_boards_and_bad_counts_are_refused(floor):
     reading = _record_lot(floor, 1, None)
     assert reading.tested and reading.tested >= 1  # the lot's boards (100 % tested)
-    lot = kit.new_lot(floor)
-    step = kit.advance_to(lot, _etest_code(floor))
+    lot = factories.new_lot(floor)
+    step = helpers.advance_to(lot, _etest_code(floor))
     floor_services.start_step(person=floor.personas["operator"], lot_step_id=step.pk)
     for value, tested, words in [
         (9, 5, "more than the 5 boards tested"),
@@ -118,8 +118,8 @@ def test_tested_defaults_to_the_lots_good_boards_and_bad_counts_are_refused(floo
 
 
 def test_tablet_form_records_failed_of_tested(floor):
-    lot = kit.new_lot(floor)
-    step = kit.advance_to(lot, _etest_code(floor))
+    lot = factories.new_lot(floor)
+    step = helpers.advance_to(lot, _etest_code(floor))
     floor_services.start_step(person=floor.personas["operator"], lot_step_id=step.pk)
     operator = Client()
     operator.force_login(floor.personas["operator"].user)
