@@ -16,6 +16,7 @@ from shopfloor.orders import read, services
 from shopfloor.orders.models import PartPlanning, PlanningSettings
 from shopfloor.plant.models import Job, Lot, Panel, PartRevision
 from tests.factories import SPEC_4L_ENIG, make_part_revision, release_routing
+from tests.helpers import issue_token
 
 pytestmark = pytest.mark.django_db
 
@@ -301,6 +302,11 @@ def test_nul_characters_are_refused_not_a_500(floor):
     reply = client.post("/api/v1/jobs/", _entry(floor, customer_spec_notes="a\x00b"), format="json")
     assert reply.status_code == 400 and "NUL" in reply.json()["detail"]
     assert client.get("/api/v1/jobs/", {"customer": "x\x00"}).status_code == 400
+    # The caller's permissions come first: an instrument may not list jobs at all, so its
+    # NUL-bearing query is a 403, not a 400 (the API fuzz test expects exactly that)
+    gauge = APIClient()
+    gauge.credentials(HTTP_AUTHORIZATION=f"Token {issue_token('gauge', 'plating')}")
+    assert gauge.get("/api/v1/jobs/", {"customer": "x\x00"}).status_code == 403
     engineer = _api(floor.personas["process_engineer"])
     spec = {
         **SPEC_4L_ENIG,
