@@ -12,6 +12,7 @@ from rest_framework.response import Response
 from rest_framework.views import APIView
 
 from routing import services
+from routing.builder import render
 from routing.builder.examples import EXAMPLE_SPEC
 from routing.serializers import (
     DesignImportRequestSerializer,
@@ -169,7 +170,6 @@ class RoutingReleaseInputSerializer(drf_serializers.Serializer):
 
 
 def revision_dict(revision: Any) -> dict[str, Any]:
-    from routing.builder import render
 
     previous = revision.previous
     return {

@@ -7,15 +7,12 @@ from typing import Any
 from drf_spectacular.utils import extend_schema_field
 from rest_framework import serializers
 
+from routing.builder.spec_schema import spec_json_schema
 from shopfloor.floor.serializers import WindowSerializer
 
 
 def build_spec_schema() -> dict[str, Any]:
     """The build spec's JSON schema from the builder, minus the keys OpenAPI 3.0 rejects."""
-    try:
-        from routing.builder.spec_schema import spec_json_schema
-    except ImportError:  # the builder is older than the schema function
-        return {"type": "object", "additionalProperties": True}
     schema = dict(spec_json_schema())
     for key in ("$schema", "title"):
         schema.pop(key, None)

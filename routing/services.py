@@ -15,11 +15,14 @@ from routing.builder import build as builder
 from routing.builder import design_import, render
 from routing.builder import overrides as overrides_core
 from routing.builder import spec as spec_core
-from routing.builder.library import ProcessLibrary
+from routing.builder.library import DEFAULT_LIBRARY, ProcessLibrary
 from routing.models import ProcessLibraryVersion, RoutingRevision, RoutingStep
 from shopfloor.audit import services as audit
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
+from shopfloor.floor.models import LotStep
+from shopfloor.parsing import refuse_nul
 from shopfloor.plant.models import Lot, PartRevision, Person, WorkCenter
+from shopfloor.plant.people import verify_pin
 
 
 def spec_problems(exc: spec_core.SpecInvalid) -> list[dict[str, Any]]:
@@ -46,7 +49,6 @@ def set_spec(*, person: Person, part_revision_id: int, spec: Any) -> PartRevisio
     revision's spec changes nothing on the floor until a new revision is released.
     """
     _require_role(person, "process_engineer", "author build specs")
-    from shopfloor.parsing import refuse_nul
 
     refuse_nul(spec, "build spec")
     stored = validate_spec(spec)
@@ -86,8 +88,6 @@ def ensure_library(*, note: str = "default library") -> ProcessLibraryVersion:
     """Store the built-in library as version 1 when the database has none."""
     version = ProcessLibraryVersion.objects.order_by("-version").first()
     if version is None:
-        from routing.builder.library import DEFAULT_LIBRARY
-
         version = ProcessLibraryVersion.objects.create(version=1, data=DEFAULT_LIBRARY, note=note)
     _, library = current_library()
     for code, name in library.work_centers.items():
@@ -218,14 +218,11 @@ def create_draft(
     "deviation approved by" bound to the revision, and the window is marked as a deviation.
     """
     _require_role(person, "process_engineer", "create routing revisions")
-    from shopfloor.parsing import refuse_nul
 
     refuse_nul([reason, overrides or []], "draft")
     overrides = [dict(o) if isinstance(o, dict) else o for o in (overrides or [])]
     approving = bool(overrides and deviation_pin)
     if approving:
-        from shopfloor.plant.people import verify_pin
-
         verify_pin(person, deviation_pin or "")
         approver = f"{person.printed_name} ({person.badge_number})"
         overrides = [
@@ -323,7 +320,6 @@ def revision_content(revision: RoutingRevision) -> dict[str, Any]:
 
 def release(*, person: Person, revision_id: int, pin: str) -> RoutingRevision:
     """Release a draft with the process engineer's e-signature; it never changes again."""
-    from shopfloor.plant.people import verify_pin
 
     _require_role(person, "process_engineer", "release routings")
     verify_pin(person, pin)
@@ -378,7 +374,6 @@ def release(*, person: Person, revision_id: int, pin: str) -> RoutingRevision:
 
 def move_lot(*, person: Person, lot_id: int, revision_id: int, reason: str) -> Lot:
     """Move a lot in process to another released revision, for steps not yet done only."""
-    from shopfloor.floor.models import LotStep
 
     _require_role(person, "process_engineer", "move lots between routing revisions")
     if not (reason or "").strip():

@@ -15,9 +15,13 @@ import datetime as dt
 from collections.abc import Callable
 from typing import Any
 
+from django.db.models import Subquery
 from django.http import HttpRequest
+from django.utils.functional import SimpleLazyObject
 
-from shopfloor.core.dates import FORMATS, ISO, DateFormat, parse_date
+from shopfloor.core.dates import FORMATS, ISO, DateFormat, DateNotUnderstood, parse_date
+from shopfloor.errors import InvalidInput
+from shopfloor.plant.models import Person, SiteSettings
 
 THEMES = ("standard", "contrast")
 THEME_COOKIE = "theme"
@@ -25,7 +29,6 @@ THEME_COOKIE = "theme"
 
 def site_date_format() -> DateFormat:
     """The site's date format (one query; pages that show dates call it once)."""
-    from shopfloor.plant.models import SiteSettings
 
     key = SiteSettings.objects.filter(pk=1).values_list("date_format", flat=True).first()
     return FORMATS.get(key or "iso", ISO)
@@ -46,8 +49,6 @@ def read_date(
     anything else is read in the site's format (`fmt`, or a function giving it, called
     only then: a board polled with ISO dates pays no query for it). A date in neither
     raises InvalidInput naming the field and the format expected."""
-    from shopfloor.core.dates import DateNotUnderstood
-    from shopfloor.errors import InvalidInput
 
     text = (text or "").strip()
     if not text:
@@ -79,7 +80,6 @@ def theme_for(request: HttpRequest) -> str:
 
 def save_theme(request: HttpRequest, theme: str) -> None:
     """A signed-in person's own theme (Person.theme); the view sets the device's cookie."""
-    from shopfloor.plant.models import Person
 
     user = getattr(request, "user", None)
     if user is not None and user.is_authenticated:
@@ -88,7 +88,6 @@ def save_theme(request: HttpRequest, theme: str) -> None:
 
 def context(request: HttpRequest) -> dict[str, Any]:
     """SITE_DATE (read only when a template uses it) and THEME for every page."""
-    from django.utils.functional import SimpleLazyObject
 
     return {
         "SITE_DATE": SimpleLazyObject(site_date_format),
@@ -104,9 +103,6 @@ _CARRIED = ("date_format", "wall_page_seconds", "wall_lots_per_center", "paper_s
 def with_site_settings(qs: Any) -> Any:
     """`qs` with the site settings riding along on every row (one uncorrelated subquery
     each, which PostgreSQL evaluates once); read them back with `carried_settings`."""
-    from django.db.models import Subquery
-
-    from shopfloor.plant.models import SiteSettings
 
     row = SiteSettings.objects.filter(pk=1)
     return qs.annotate(**{f"site_{name}": Subquery(row.values(name)[:1]) for name in _CARRIED})
@@ -114,7 +110,6 @@ def with_site_settings(qs: Any) -> Any:
 
 def carried_settings(obj: Any | None) -> Any:
     """The SiteSettings values carried on `obj` (defaults where there is no row yet)."""
-    from shopfloor.plant.models import SiteSettings
 
     values = {}
     for name in _CARRIED:

@@ -11,6 +11,7 @@ from __future__ import annotations
 import logging
 from collections.abc import Callable
 
+import redis
 from django.conf import settings
 from django.db import connection
 from django.http import HttpRequest, HttpResponse, JsonResponse
@@ -36,7 +37,6 @@ def check_broker() -> str:
     url = settings.REDIS_URL
     if not url:
         return "not used (tasks run in-process)"
-    import redis
 
     try:
         client = redis.Redis.from_url(

@@ -25,6 +25,8 @@ from collections.abc import Iterable
 from typing import Any, Protocol
 from xml.sax.saxutils import escape
 
+from reportlab.platypus import Paragraph
+
 #: Characters that make a spreadsheet read a cell as a formula (OWASP's list).
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 _CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]")
@@ -92,6 +94,5 @@ def pdf_markup(template: str, *values: Any, ascii_symbols: bool = False) -> PdfM
 
 def pdf_paragraph(value: Any, style: Any, *, ascii_symbols: bool = False) -> Any:
     """A reportlab Paragraph of `value`, escaped (`PdfMarkup` passes as it is)."""
-    from reportlab.platypus import Paragraph
 
     return Paragraph(pdf_text(value, ascii_symbols=ascii_symbols), style)

@@ -27,6 +27,7 @@ from django.db import transaction
 from django.http import HttpRequest
 from django.utils import timezone
 
+from shopfloor.audit import services as audit
 from shopfloor.errors import DomainError
 from shopfloor.plant.models import LoginThrottle
 
@@ -108,7 +109,6 @@ def check(keys: list[Key]) -> None:
 
 def record_failure(keys: list[Key], *, actor: Any = None, what: str = "sign-in") -> None:
     """Count one failure against every key; start a block (logged, audited) at a limit."""
-    from shopfloor.audit import services as audit
 
     now = timezone.now()
     window = dt.timedelta(seconds=settings.LOGIN_THROTTLE_WINDOW_SECONDS)

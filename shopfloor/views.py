@@ -2,13 +2,14 @@
 
 from __future__ import annotations
 
+from django.contrib import admin
 from django.http import HttpRequest, HttpResponse, JsonResponse
 from django.shortcuts import redirect, render
 from django.utils.http import url_has_allowed_host_and_scheme
 from django.views.decorators.csrf import csrf_exempt
 from django.views.decorators.http import require_POST
 
-from shopfloor import throttle
+from shopfloor import display, throttle
 from shopfloor.health import health_response
 
 
@@ -54,7 +55,6 @@ def admin_login(request: HttpRequest) -> HttpResponse:
     ADMIN_LOGIN_MAX_FAILURES the name is locked for LOGIN_BLOCK_SECONDS (even the right
     password is refused, 429 with Retry-After), logged and audited (shopfloor.throttle).
     """
-    from django.contrib import admin
 
     if request.method != "POST":
         return admin.site.login(request)
@@ -78,7 +78,6 @@ def set_theme(request: HttpRequest) -> HttpResponse:
     """The high-contrast toggle: kept on this device (a cookie, so the login page follows
     it too) and, for a signed-in person, as their own setting (it follows them to any
     tablet). Back to the page it was pressed on; an unknown theme is refused with 400."""
-    from shopfloor import display
 
     theme = request.POST.get("theme", "")
     if theme not in display.THEMES:

@@ -21,6 +21,8 @@ import re
 from collections.abc import Mapping
 from typing import Any, Final
 
+from shopfloor.core import units
+
 from .lamination import Unbuildable, plan_lamination
 from .spec_model import (
     DRILLS,
@@ -90,7 +92,6 @@ _NUMBER_AND_UNIT: Final = re.compile(r"^\s*([0-9]+(?:\.[0-9]*)?|\.[0-9]+)\s*(\S*
 
 def _thickness_text(text: str, copper: bool) -> float | str:
     """Text like "1 oz" as um, or the reason it is not a thickness."""
-    from shopfloor.core import units
 
     match = _NUMBER_AND_UNIT.match(text)
     if match is None:

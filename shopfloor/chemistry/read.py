@@ -25,7 +25,7 @@ from shopfloor.core.chemistry import schedule as due_rules
 from shopfloor.core.chemistry.errors import ChemistryInputError
 from shopfloor.errors import NotFound
 from shopfloor.floor.models import LotStep
-from shopfloor.plant.models import Lot
+from shopfloor.plant.models import Job, Lot
 
 MAX_ID_DIGITS = 18  # a bigint id has at most 19 digits; longer "ids" are codes (or junk)
 
@@ -341,7 +341,6 @@ def bath_coverage(lot: Lot) -> list[Coverage]:
 
 def design_area(step: LotStep) -> tuple[float, str] | None:
     """The plated area per panel from the job's design data, if the part has one."""
-    from shopfloor.plant.models import Job
 
     job = Job.objects.filter(panels__lot_id=step.lot_id).order_by("pk").first()
     if job is None:

@@ -41,12 +41,16 @@ from shopfloor.chemistry.read import (
     tank_rows,
     window_text,
 )
+from shopfloor.chemistry.spc_view import parameter_chart
 from shopfloor.core import units
 from shopfloor.core.chemistry import bath, plating
 from shopfloor.core.chemistry.errors import ChemistryInputError, non_negative
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Lot, Person, Role
+from shopfloor.plant.people import verify_pin
+from shopfloor.quality.models import Alert
+from shopfloor.quality.services import alerts
 
 log = logging.getLogger("shopfloor.chemistry")
 
@@ -100,7 +104,6 @@ def require_sees_all_lots(scope: Any) -> None:
 
 
 def _verify_pin(person: Person, pin: str) -> None:
-    from shopfloor.plant.people import verify_pin
 
     if not pin:
         raise InvalidInput("Enter your PIN to sign this entry.")
@@ -171,8 +174,6 @@ def record_analysis(
     parameter's due and overdue alerts close.
     """
     access.require_role(person, LAB_ROLES, "enter bath analyses")
-    from shopfloor.quality.models import Alert
-    from shopfloor.quality.services import alerts
 
     tank = get_tank(tank_code)
     now = timezone.now()
@@ -268,9 +269,6 @@ def record_analysis(
 def _drift_alert(analysis: Analysis) -> None:
     """An in-window analysis that breaks a run rule on its tank x parameter chart raises a
     drift warning (never a hold), as readings do; an out-of-window one already alerted."""
-    from shopfloor.chemistry.spc_view import parameter_chart
-    from shopfloor.quality.models import Alert
-    from shopfloor.quality.services import alerts
 
     param = analysis.parameter
     if param.last_analysis_id != analysis.pk:
@@ -305,8 +303,6 @@ def hold_exposed_lots(*, person: Person, analysis_id: int) -> list[Lot]:
     """Hold every exposed lot (not scrapped, not already held for this analysis) with an
     NCR each, so quality reviews them; returns the lots newly held."""
     access.require_role(person, HOLD_ROLES, "hold the lots a bath touched")
-    from shopfloor.quality.models import Alert
-    from shopfloor.quality.services import alerts
 
     analysis = get_analysis(analysis_id)
     if analysis.in_window:
@@ -722,8 +718,6 @@ def check_analyses(now: datetime | None = None) -> dict[str, int]:
     id), so reruns of the beat task change nothing; recording the analysis closes it.
     Analyses that are merely due show on the lab page and the board's lab strip.
     """
-    from shopfloor.quality.models import Alert
-    from shopfloor.quality.services import alerts
 
     now = now or timezone.now()
     counts = {"checked": 0, "due": 0, "overdue": 0, "alerts": 0}

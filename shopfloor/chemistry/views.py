@@ -17,11 +17,11 @@ from django.views.decorators.http import require_GET, require_POST
 
 from shopfloor.access import Scope, require_lot_visible
 from shopfloor.chemistry import read, services, spc_view
-from shopfloor.chemistry.models import Frequency, TankEvent
+from shopfloor.chemistry.models import Frequency, Tank, TankEvent
 from shopfloor.core.chemistry import plating
 from shopfloor.core.chemistry.constants import METALS
 from shopfloor.core.chemistry.errors import ChemistryInputError
-from shopfloor.errors import DomainError, InvalidInput
+from shopfloor.errors import DomainError, InvalidInput, NotFound
 from shopfloor.floor.models import LotStep
 from shopfloor.pages import reader
 
@@ -58,7 +58,6 @@ def board_strip(request: HttpRequest, scope: Scope) -> HttpResponse:
 
 def _tank_context(scope: Scope, code: str, **extra: Any) -> dict[str, Any]:
     tank = read.get_tank(code)
-    from shopfloor.chemistry.models import Tank
 
     row = read.tank_rows(tanks=Tank.objects.filter(pk=tank.pk))[0]
     out_of_window = list(tank.analyses.filter(in_window=False).select_related("parameter")[:10])
@@ -298,8 +297,6 @@ def plating_step(request: HttpRequest, scope: Scope, lot_step_id: int) -> HttpRe
         else None
     )
     if step is None:
-        from shopfloor.errors import NotFound
-
         raise NotFound(f"No lot step {lot_step_id}.")
     require_lot_visible(scope, step.lot)
     ctx = _ctx(

@@ -12,6 +12,8 @@ from typing import Any
 from rest_framework import authentication, exceptions
 from rest_framework.request import Request
 
+from shopfloor.floor.models import InstrumentToken
+
 
 def hash_token(raw: str) -> str:
     return hashlib.sha256(raw.encode()).hexdigest()
@@ -29,7 +31,6 @@ class InstrumentTokenAuthentication(authentication.BaseAuthentication):
         # session cookie beside it: the caller meant to authenticate with it.
         if not parts or parts[0] != self.keyword or len(parts) != 2:
             raise exceptions.AuthenticationFailed("Authorization header must be 'Token <key>'")
-        from shopfloor.floor.models import InstrumentToken
 
         token = (
             InstrumentToken.objects.select_related("user__person", "work_center")

@@ -8,6 +8,7 @@ the floor services, so the tablet and the API reach the same refusals. Each form
 from __future__ import annotations
 
 from datetime import datetime
+from hashlib import sha256
 from typing import Any
 
 from django import forms
@@ -104,7 +105,6 @@ class CompleteForm(TabletForm):
     def payload(self) -> dict[str, Any]:
         # The PIN is never part of the stored fingerprint input in clear; a hash would let a
         # replay with a different PIN count as "different", which is what we want.
-        from hashlib import sha256
 
         data = super().payload()
         data["pin"] = sha256(str(data.get("pin", "")).encode()).hexdigest()

@@ -15,6 +15,7 @@ from django.db.models import F, IntegerField, Min, OuterRef, Subquery, Sum, Wind
 from django.db.models.functions import Coalesce
 from django.utils import timezone
 
+from shopfloor.core import judging
 from shopfloor.plant.models import Lot
 
 
@@ -228,8 +229,6 @@ class Reading(models.Model):
         # The window identity is derived data, stored so SPC series can filter on it; the
         # floor service sets it, this covers rows made any other way (admin, scripts).
         if not self.spec_key and self.window:
-            from shopfloor.core import judging
-
             self.spec_key = judging.spec_key(judging.criteria_of(self.window))
         super().save(*args, **kwargs)
 

@@ -24,8 +24,8 @@ from shopfloor.access import (
 )
 from shopfloor.access import READ_ROLES as _READ_ROLES
 from shopfloor.api_base import RolePermission, is_instrument
-from shopfloor.errors import NotAllowed
-from shopfloor.floor.models import InstrumentToken, LotStep
+from shopfloor.errors import Conflict, NotAllowed, NotFound
+from shopfloor.floor.models import InstrumentToken, LotStep, Reading
 
 #: Roles that may read lot status, windows and routing previews (lots: within their scope).
 READ_ROLES: frozenset[str] = _READ_ROLES
@@ -109,7 +109,6 @@ def access_lot_step(request: Request, lot: Any, step_id: int | None) -> LotStep:
     Raises NotFound for a step of another lot, Conflict when the lot has no open step,
     NotAllowed when the step is at a work center the caller does not work at.
     """
-    from shopfloor.errors import Conflict, NotFound
 
     if step_id is None:
         step = LotStep.objects.current_for(lot)
@@ -125,7 +124,6 @@ def access_lot_step(request: Request, lot: Any, step_id: int | None) -> LotStep:
 
 def access_step(request: Request, step_id: int) -> LotStep:
     """A lot step by id, if the caller works at its work center."""
-    from shopfloor.errors import NotFound
 
     step = LotStep.objects.select_related("work_center", "lot").filter(pk=step_id).first()
     if step is None:
@@ -136,8 +134,6 @@ def access_step(request: Request, step_id: int) -> LotStep:
 
 def access_reading(request: Request, reading_id: int) -> Any:
     """A reading by id, if the caller works at its step's work center."""
-    from shopfloor.errors import NotFound
-    from shopfloor.floor.models import Reading
 
     reading = Reading.objects.select_related("lot_step__work_center").filter(pk=reading_id).first()
     if reading is None:

@@ -6,9 +6,11 @@ import logging
 from typing import Any
 
 from django.db import transaction
-from django.db.models import Q
+from django.db.models import Count, Q, Sum
 
+from routing.builder.library import base_code
 from shopfloor.audit import services as audit
+from shopfloor.core import yields
 from shopfloor.errors import Conflict, InvalidInput
 from shopfloor.floor.lookups import lock_step, require_workable
 from shopfloor.floor.models import (
@@ -36,7 +38,6 @@ FINAL_INSPECTION = "final_inspection"
 
 def is_final_inspection(step: LotStep) -> bool:
     """The step that records the accepted quantity (the library's final inspection)."""
-    from routing.builder.library import base_code
 
     return base_code(step.code) == FINAL_INSPECTION and not step.is_rework
 
@@ -341,9 +342,6 @@ def require_acceptance(step: LotStep) -> None:
 
 def lot_yields(lot: Lot) -> list[Any]:
     """Boards in, scrapped and out at every step of the lot (shopfloor.core.yields)."""
-    from django.db.models import Count, Sum
-
-    from shopfloor.core import yields
 
     steps = list(lot.steps.order_by("position").values_list("pk", "name", "position"))
     totals: dict[int, dict[str, Any]] = {
@@ -373,7 +371,6 @@ def lot_yields(lot: Lot) -> list[Any]:
 def boards_scrapped_on_live_panels(job_ids: Any) -> dict[int, int]:
     """Boards of each job scrapped while their panel runs on: crossed out at a step, or
     not accepted at final inspection (whole scrapped panels are counted by the panel)."""
-    from django.db.models import Sum
 
     rows = (
         ScrapRecord.objects.filter(job_id__in=list(job_ids), panel_scrapped=False)

@@ -18,6 +18,7 @@ from rest_framework import serializers
 
 from routing.builder import labels
 from shopfloor.core import judging, units
+from shopfloor.floor import batch, services
 from shopfloor.floor.models import LotStep, Reading
 
 MAX_ID = 2**63 - 1
@@ -183,7 +184,6 @@ def batch_items(
     `labels` names each item in a refusal ("line 7" for a file); `problems_from` turns
     serializer errors into the one problem-list shape.
     """
-    from shopfloor.floor import batch, services
 
     items: list[batch.BatchItem] = []
     invalid: list[batch.ItemResult] = []

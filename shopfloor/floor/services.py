@@ -14,6 +14,8 @@ from django.db import transaction
 from django.utils import timezone
 
 from shopfloor.audit import services as audit
+from shopfloor.audit.models import Signature
+from shopfloor.chemistry.services import record_tank_use
 from shopfloor.errors import Conflict, InvalidInput
 
 # The floor's use cases live in small modules; this module keeps the step use cases and
@@ -141,7 +143,6 @@ def start_step(
         step.status = LotStep.Status.IN_PROGRESS
         step.save()
         # Which tank(s) a wet step ran in, so an out-of-window bath analysis can list it.
-        from shopfloor.chemistry.services import record_tank_use
 
         record_tank_use(step, step.started_at)
         if material_lot_ids:
@@ -216,7 +217,6 @@ def complete_step(
     *, person: Person, lot_step_id: int, pin: str, meaning: str = "performed_by"
 ) -> LotStep:
     """Sign off the current step (PIN re-entry) and move the lot to its next step."""
-    from shopfloor.audit.models import Signature
 
     if meaning not in {Signature.Meaning.PERFORMED, Signature.Meaning.VERIFIED}:
         raise InvalidInput("A step is signed as 'performed_by' or 'verified_by'.")

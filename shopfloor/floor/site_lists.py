@@ -8,15 +8,15 @@ edited.
 
 from __future__ import annotations
 
+from shopfloor.floor.models import ScrapReason, ShelfLife
 from shopfloor.floor.site_lists_v1 import ROOT_CAUSES, SCRAP_REASONS, SHELF_LIVES
+from shopfloor.quality.models import RootCause
 
 __all__ = ["ROOT_CAUSES", "SCRAP_REASONS", "SHELF_LIVES", "ensure_site_lists"]
 
 
 def ensure_site_lists() -> None:
     """Create the starting rows that are missing (never changes an existing row)."""
-    from shopfloor.floor.models import ScrapReason, ShelfLife
-    from shopfloor.quality.models import RootCause
 
     for kind, days, note in SHELF_LIVES:
         ShelfLife.objects.get_or_create(kind=kind, defaults={"days": days, "note": note})

@@ -18,11 +18,19 @@ from zoneinfo import ZoneInfo
 import segno
 from django.conf import settings
 from django.utils import timezone
+from reportlab.lib import colors
+from reportlab.lib.pagesizes import A4, LETTER
+from reportlab.lib.styles import ParagraphStyle
+from reportlab.lib.units import mm
+from reportlab.pdfbase import pdfmetrics
+from reportlab.pdfbase.ttfonts import TTFont
+from reportlab.platypus import Image, KeepTogether, SimpleDocTemplate, Spacer, Table, TableStyle
 
+from shopfloor.context import SAFETY_CAUTION
 from shopfloor.core import judging
 from shopfloor.floor import traveller_steps, words
 from shopfloor.floor.models import LotStep
-from shopfloor.plant.models import Job, Lot
+from shopfloor.plant.models import Job, Lot, SiteSettings
 from shopfloor.safe_output import pdf_paragraph
 
 _DEJAVU = Path("/usr/share/fonts/truetype/dejavu")
@@ -74,8 +82,6 @@ def traveller_data(lot: Lot) -> TravellerData:
 
 def _fonts() -> tuple[str, str]:
     """DejaVu covers µ, ≥ and ≤; fall back to Helvetica when the font is not installed."""
-    from reportlab.pdfbase import pdfmetrics
-    from reportlab.pdfbase.ttfonts import TTFont
 
     regular, bold = _DEJAVU / "DejaVuSans.ttf", _DEJAVU / "DejaVuSans-Bold.ttf"
     if regular.exists() and bold.exists():
@@ -93,24 +99,8 @@ PAPER_SIZES = ("a4", "letter")
 def traveller_pdf(lot: Lot, paper: str | None = None) -> bytes:
     """Render the traveller as a PDF on A4 or US Letter (reportlab platypus); without a
     paper asked for, on the site's paper (SiteSettings.paper_size)."""
-    from reportlab.lib import colors
-    from reportlab.lib.pagesizes import A4, LETTER
-    from reportlab.lib.styles import ParagraphStyle
-    from reportlab.lib.units import mm
-    from reportlab.platypus import (
-        Image,
-        KeepTogether,
-        SimpleDocTemplate,
-        Spacer,
-        Table,
-        TableStyle,
-    )
-
-    from shopfloor.context import SAFETY_CAUTION
 
     if paper not in PAPER_SIZES:
-        from shopfloor.plant.models import SiteSettings
-
         paper = SiteSettings.current().paper_size
     data = traveller_data(lot)
     font, bold = _fonts()
@@ -231,8 +221,6 @@ def traveller_pdf(lot: Lot, paper: str | None = None) -> bytes:
 
 
 def _grid(table: Any) -> Any:
-    from reportlab.lib import colors
-    from reportlab.platypus import TableStyle
 
     table.setStyle(
         TableStyle(

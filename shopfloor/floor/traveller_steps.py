@@ -25,6 +25,9 @@ from zoneinfo import ZoneInfo
 
 from django.conf import settings
 from django.utils.translation import gettext as _
+from reportlab.lib import colors
+from reportlab.lib.units import mm
+from reportlab.platypus import Table, TableStyle
 
 from shopfloor.audit.models import Signature
 from shopfloor.core import judging
@@ -60,9 +63,6 @@ def signed_line(sig: Signature) -> str:
 
 def sign_off_block(signatures: list[Signature], p: Para, small: Any) -> Any:
     """The right-hand column of a step: its e-signatures, or empty boxes to sign on paper."""
-    from reportlab.lib import colors
-    from reportlab.lib.units import mm
-    from reportlab.platypus import Table, TableStyle
 
     if signatures:
         rows = [[p(signed_line(sig), small)] for sig in signatures]
@@ -115,9 +115,6 @@ def reading_cells(
 ) -> list[Any]:
     """The cells for one quantity: numbered sample cells, then each criterion with its
     window and, for a criterion on the set, a cell for the figure."""
-    from reportlab.lib import colors
-    from reportlab.lib.units import mm
-    from reportlab.platypus import Table, TableStyle
 
     out: list[Any] = [p(_("{label} — source: {source}").format(label=label, source=source), small)]
     n = max(group.samples, 1)

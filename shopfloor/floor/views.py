@@ -42,12 +42,19 @@ from shopfloor.floor import (
     traveller,
     words,
 )
-from shopfloor.floor.models import LotStep, Reading
+from shopfloor.floor.models import (
+    AcceptedQuantity,
+    LotStep,
+    MaterialUse,
+    Reading,
+    ScrapReason,
+    ScrapRecord,
+)
 from shopfloor.floor.permissions import FLOOR_ROLES, check_work_center, roles_of
 from shopfloor.floor.serializers import batch_items
 from shopfloor.htmx import is_htmx
 from shopfloor.plant import people
-from shopfloor.plant.models import Equipment, Lot, Person, WorkCenter
+from shopfloor.plant.models import Equipment, Job, Lot, PanelImage, Person, WorkCenter
 from shopfloor.quality.read import records
 
 # --- login --------------------------------------------------------------------------
@@ -135,7 +142,6 @@ def _queue(wc: WorkCenter) -> list[QueueRow]:
         .order_by("queue_priority", "lot__priority", "arrived_at", "lot__code")
     )
     rows = {s.lot_id: QueueRow(step=s) for s in steps}
-    from shopfloor.plant.models import PanelImage
 
     for lot_id, number, due, ipc in (
         PanelImage.objects.filter(panel__lot_id__in=rows)
@@ -402,8 +408,6 @@ def _single_row(
 
 def _step_records(lot: Lot, step: LotStep | None) -> dict[str, Any]:
     """Materials, scrap and accepted quantities of the current step, for the tablet."""
-    from shopfloor.floor.models import AcceptedQuantity, MaterialUse, ScrapReason, ScrapRecord
-    from shopfloor.plant.models import Job
 
     if step is None:
         return {}

@@ -11,6 +11,11 @@ from __future__ import annotations
 import io
 from typing import Any
 
+from reportlab.lib.pagesizes import A4, LETTER
+from reportlab.lib.units import mm
+from reportlab.lib.utils import ImageReader
+from reportlab.pdfgen.canvas import Canvas
+
 from shopfloor.floor.traveller import _fonts, qr_png
 from shopfloor.plant.models import Job, Lot
 from shopfloor.safe_output import pdf_plain
@@ -19,9 +24,6 @@ LABEL_SIZES = ("label", "a4", "letter")
 
 
 def lot_label_pdf(lot: Lot, paper: str = "label") -> bytes:
-    from reportlab.lib.pagesizes import A4, LETTER
-    from reportlab.lib.units import mm
-    from reportlab.pdfgen.canvas import Canvas
 
     width, height = 102 * mm, 76 * mm
     page = {"a4": A4, "letter": LETTER}.get(paper, (width, height))
@@ -43,7 +45,6 @@ def lot_label_pdf(lot: Lot, paper: str = "label") -> bytes:
         .order_by("number")
     )
     serials = list(lot.panels.order_by("serial").values_list("serial", flat=True))
-    from reportlab.lib.utils import ImageReader
 
     qr_size = 34 * mm
     canvas.drawImage(

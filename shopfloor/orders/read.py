@@ -12,16 +12,23 @@ from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from typing import Any
 
-from django.db.models import Q, QuerySet
+from django.db.models import Count, F, Q, QuerySet, Sum
+from django.db.models.functions import Coalesce
 
 from shopfloor import parsing
+from shopfloor.access import visible_lots
+from shopfloor.display import read_date
 from shopfloor.errors import InvalidInput, NotFound
+from shopfloor.floor.models import LotStep
+from shopfloor.floor.services import boards_scrapped_on_live_panels as scrapped
+from shopfloor.planning.services import job_projections
 from shopfloor.plant.models import (
     Job,
     Lot,
     Panel,
     PanelImage,
 )
+from shopfloor.shipping.services import shipped_by_job
 
 STATUSES: dict[str, str] = {
     "entered": "Entered (not released)",
@@ -102,7 +109,6 @@ class JobSummary:
 
 def shipped_quantities(job_ids: Iterable[int]) -> dict[int, int]:
     """Boards shipped per job, from the shipment records (shopfloor.shipping)."""
-    from shopfloor.shipping.services import shipped_by_job
 
     return shipped_by_job(job_ids)
 
@@ -110,7 +116,6 @@ def shipped_quantities(job_ids: Iterable[int]) -> dict[int, int]:
 def boards_scrapped_on_live_panels(job_ids: Iterable[int]) -> dict[int, int]:
     """Boards scrapped on panels that are themselves still running (crossed-out images,
     boards final inspection did not accept), from the per-step scrap records."""
-    from shopfloor.floor.services import boards_scrapped_on_live_panels as scrapped
 
     return scrapped(job_ids)
 
@@ -122,8 +127,6 @@ def short_jobs(limit: int = 12) -> list[dict[str, Any]]:
     Counts whole scrapped panels and scrapped lots; boards scrapped on live panels are on
     the job page (`summaries`), which the board links to.
     """
-    from django.db.models import Count, F, Sum
-    from django.db.models.functions import Coalesce
 
     good = Sum(
         "images__count",
@@ -141,7 +144,6 @@ def short_jobs(limit: int = 12) -> list[dict[str, Any]]:
 
 def projected_finishes(job_ids: list[int]) -> dict[int, Any]:
     """The jobs' finish forecasts (shopfloor/planning), by job id, in one query."""
-    from shopfloor.planning.services import job_projections
 
     return job_projections(job_ids)
 
@@ -215,7 +217,6 @@ def summaries(jobs: Iterable[Job]) -> list[JobSummary]:
 
 
 def _current_steps(lot_ids: list[int]) -> dict[int, str]:
-    from shopfloor.floor.models import LotStep
 
     out: dict[int, str] = {}
     for lot_id, name in (
@@ -261,8 +262,6 @@ def job_summary(number: str, scope: Any = None) -> JobSummary:
     reader may see are listed (an operator sees the lots that reached their centers)."""
     summary = summaries([find_job(number)])[0]
     if scope is not None and not scope.sees_all:
-        from shopfloor.access import visible_lots
-
         seen = set(
             visible_lots(
                 scope, Lot.objects.filter(code__in=[lot.code for lot in summary.lots])
@@ -289,8 +288,6 @@ def parse_filter(raw: Mapping[str, Any]) -> JobFilter:
     due: dt.date | None = None
     due_text = parsing.text(raw.get("due_before"))
     if due_text:
-        from shopfloor.display import read_date
-
         try:
             due = read_date("due_before", due_text)
         except InvalidInput as exc:

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from django.urls import reverse
 from rest_framework import serializers
 
 from shopfloor.orders import read, services
@@ -171,7 +172,6 @@ class ReleaseSerializer(serializers.Serializer):
 
 
 def release_dict(result: services.ReleaseResult) -> dict[str, Any]:
-    from django.urls import reverse
 
     return {
         "jobs": [j.number for j in result.jobs],

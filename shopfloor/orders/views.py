@@ -19,7 +19,7 @@ from django.utils import timezone
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
 from shopfloor.access import require_lot_visible, scope_for
-from shopfloor.core import units
+from shopfloor.core import panelise, units
 from shopfloor.errors import DomainError
 from shopfloor.floor import idempotency
 from shopfloor.floor.permissions import PLAN_ROLES, READ_ROLES, roles_of
@@ -189,8 +189,6 @@ def _job_page(
     layout = getattr(job, "layout", None) if summary.released else None
     makeup_default = None
     if layout is not None and summary.quantities.shortfall:
-        from shopfloor.core import panelise
-
         makeup_default = panelise.makeup_panels(
             summary.quantities.shortfall, layout.boards_per_panel, float(layout.scrap_allowance_pct)
         )

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from celery import shared_task
+from django.contrib.auth import get_user_model
 from django.db import InterfaceError, OperationalError
 
 from shopfloor.planning import services
@@ -19,7 +20,6 @@ def run_forecast(trigger: str = ForecastRun.Trigger.PERIODIC, user_id: int | Non
     """Run the floor forecast (beat every FORECAST_EVERY_SECONDS, or asked for). A run
     already under way makes this one do nothing (one row may be 'running' at a time).
     Returns the run's id, 0 when skipped."""
-    from django.contrib.auth import get_user_model
 
     user = get_user_model().objects.filter(pk=user_id).first() if user_id else None
     run = services.run_forecast(trigger, user=user)

@@ -12,10 +12,13 @@ from typing import Any
 
 from django.conf import settings
 from django.contrib.auth.hashers import check_password, make_password
+from django.core.exceptions import ValidationError
 from django.core.validators import MaxValueValidator, MinValueValidator
 from django.db import models
 from django.db.models.functions import Upper
 from django.utils import timezone
+
+from routing.builder.spec import SpecInvalid, normalise_spec
 
 
 class Role(models.TextChoices):
@@ -83,7 +86,6 @@ class PartRevision(models.Model):
     def save(self, *args: Any, **kwargs: Any) -> None:
         """Every save stores the spec in its validated, stored form; an invalid spec is
         refused here too (SpecInvalid), so no path can store one."""
-        from routing.builder.spec import normalise_spec
 
         if self.build_spec:
             self.build_spec = normalise_spec(self.build_spec)
@@ -96,9 +98,6 @@ class PartRevision(models.Model):
 
     def clean(self) -> None:
         """The admin's check: the same validator as the form, the API and the command."""
-        from django.core.exceptions import ValidationError
-
-        from routing.builder.spec import SpecInvalid, normalise_spec
 
         super().clean()
         if not self.build_spec:
@@ -241,6 +240,7 @@ class Person(models.Model):
 
     def roles(self) -> set[str]:
         """Role names; a superuser counts as admin (the one rule, shopfloor.access)."""
+        # import here: shopfloor.access imports this module (its scopes query Person)
         from shopfloor.access import roles_of
 
         return set(roles_of(self.user))

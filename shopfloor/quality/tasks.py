@@ -11,9 +11,13 @@ import logging
 import os
 import time
 
+import redis
 from celery import shared_task
+from django.conf import settings
 from django.db import InterfaceError, OperationalError
 
+from shopfloor.audit import services as audit
+from shopfloor.chemistry import services as chemistry
 from shopfloor.quality import event_batch, notify
 from shopfloor.quality.services import alerts, deadlines, notifications
 
@@ -64,7 +68,6 @@ def relay_outbox() -> dict[str, int]:
 @shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
 def seal_audit() -> int:
     """Chain the audit entries committed since the last pass (one sealer at a time)."""
-    from shopfloor.audit import services as audit
 
     return audit.seal().sealed
 
@@ -82,7 +85,6 @@ def check_due_dates() -> dict[str, int]:
 @shared_task(acks_late=True, autoretry_for=_DB_ERRORS, max_retries=3, retry_backoff=True)
 def check_bath_analyses() -> dict[str, int]:
     """Bath analyses that fell due or overdue raise an alert (shopfloor.chemistry)."""
-    from shopfloor.chemistry import services as chemistry
 
     return chemistry.check_analyses()
 
@@ -115,9 +117,5 @@ def noop(marker: str = "") -> None:
     """Writes nothing to the database; with a marker it sets a Redis key to the time it
     ran (the benchmark's reference for a bare task round trip)."""
     if marker:
-        from django.conf import settings
-
         if settings.REDIS_URL:
-            import redis
-
             redis.Redis.from_url(settings.REDIS_URL).set(marker, repr(time.time()), ex=300)

@@ -26,14 +26,18 @@ from django.views.decorators.http import require_GET, require_http_methods, requ
 
 from shopfloor import parsing
 from shopfloor.access import Scope
+from shopfloor.chemistry.read import bath_coverage
 from shopfloor.core import judging
 from shopfloor.core.judging import describe_window
 from shopfloor.core.yields import overall_yield as rolled_yield
 from shopfloor.errors import Conflict, DomainError, InvalidInput
+from shopfloor.floor.models import ScrapReason
+from shopfloor.floor.services import lot_yields
 from shopfloor.orders import read as orders_read
 from shopfloor.pages import reader, refusal
 from shopfloor.planning import services as planning
 from shopfloor.planning.services import PLANNING_ROLES
+from shopfloor.quality.models import RootCause
 from shopfloor.quality.read import (
     board,
     charts,
@@ -45,6 +49,7 @@ from shopfloor.quality.read import (
     spc_series,
 )
 from shopfloor.quality.services import deadlines, dispositions, limits, queue
+from shopfloor.shipping.models import Certificate
 
 # --- board ----------------------------------------------------------------------------
 
@@ -123,9 +128,6 @@ def overview(request: HttpRequest, scope: Scope) -> HttpResponse:
 @require_GET
 @reader
 def lot_page(request: HttpRequest, scope: Scope, code: str) -> HttpResponse:
-    from shopfloor.chemistry.read import bath_coverage
-    from shopfloor.floor.services import lot_yields
-    from shopfloor.shipping.models import Certificate
 
     h = history.lot_history(scope, code, full_readings=False)
     yields = lot_yields(h.lot)
@@ -395,8 +397,6 @@ def _panel_ids(raw: list[str]) -> list[Any]:
 
 
 def _ncr_context(scope: Scope, number: str) -> dict[str, Any]:
-    from shopfloor.floor.models import ScrapReason
-    from shopfloor.quality.models import RootCause
 
     ncr = records.access_ncr(scope, number)
     held = ncr.lot_step

@@ -29,9 +29,11 @@ from shopfloor.api_base import (
     idempotent,
     parse,
 )
+from shopfloor.errors import NotFound
 from shopfloor.floor import services as floor
 from shopfloor.floor.permissions import CanWorkSteps, access_step
 from shopfloor.plant import people
+from shopfloor.quality.models import Nonconformance
 from shopfloor.quality.services import dispositions
 from shopfloor.shipping import services
 
@@ -361,8 +363,6 @@ class DispositionView(JsonAPIView):
         responses={200: DispositionResultSerializer, **WRITE_ERRORS},
     )
     def post(self, request: Request, number: str) -> Response:
-        from shopfloor.errors import NotFound
-        from shopfloor.quality.models import Nonconformance
 
         data = parse(DispositionInputSerializer, request.data)
         person = people.person_for(request.user)

@@ -9,15 +9,16 @@ from __future__ import annotations
 import io
 from typing import Any
 
+from reportlab.lib import colors
+from reportlab.lib.pagesizes import A4
+from reportlab.lib.styles import getSampleStyleSheet
+from reportlab.lib.units import mm
+from reportlab.platypus import SimpleDocTemplate, Spacer, Table, TableStyle
+
 from shopfloor import safe_output
 
 
 def certificate_pdf(c: dict[str, Any]) -> bytes:
-    from reportlab.lib import colors
-    from reportlab.lib.pagesizes import A4
-    from reportlab.lib.styles import getSampleStyleSheet
-    from reportlab.lib.units import mm
-    from reportlab.platypus import SimpleDocTemplate, Spacer, Table, TableStyle
 
     styles = getSampleStyleSheet()
     body = styles["BodyText"]

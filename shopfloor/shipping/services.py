@@ -24,9 +24,11 @@ from shopfloor.audit.models import Signature
 from shopfloor.core import certificate as wording
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
 from shopfloor.floor.models import AcceptedQuantity, LotStep, Reading
+from shopfloor.floor.services import missing_readings
 from shopfloor.plant.models import Job, Lot, PanelImage, Person
 from shopfloor.quality.models import Nonconformance
 from shopfloor.shipping.models import Certificate, Shipment, ShipmentLot
+from shopfloor.shipping.pdf import certificate_pdf
 
 SHIP_ROLES = access.PLAN_ROLES
 #: Who reads shipping status and certificates of conformance (pages and API).
@@ -145,7 +147,6 @@ def _covering_ncrs(lot: Lot) -> dict[int, Nonconformance]:
 
 def lot_problems(lot: Lot, job: Job) -> list[dict[str, Any]]:
     """Why a certificate for `job` could not include `lot` (empty: it may)."""
-    from shopfloor.floor.services import missing_readings
 
     problems: list[dict[str, Any]] = []
 
@@ -408,7 +409,6 @@ def certificate_content(
 def _issue_certificate(
     shipment: Shipment, job: Job, from_lots: list[tuple[Lot, int]], issuer: Person
 ) -> Certificate:
-    from shopfloor.shipping.pdf import certificate_pdf
 
     content = certificate_content(shipment, job, from_lots, issuer)
     cert = Certificate.objects.create(

@@ -2,7 +2,7 @@
 
 Only imports that run when a module is loaded count (module level, outside
 `if TYPE_CHECKING:`). An import inside a function is allowed only where it breaks a real
-circle, and then carries a one-line comment saying why.
+circle, and then carries a one-line comment saying why (checked below too).
 The graph check is Tarjan's strongly connected components (Tarjan 1972, "Depth-first
 search and linear graph algorithms", SIAM J. Comput. 1(2)); a component of more than one
 module, or a module importing itself, is a circle.
@@ -163,3 +163,31 @@ def test_services_never_import_tasks() -> None:
             if any(n.endswith(".tasks") for n in names):
                 offenders.append(f"{module}:{node.lineno}")
     assert offenders == []
+
+
+def _function_imports() -> Iterator[tuple[str, int, list[str]]]:
+    """Every import inside a function, with the source lines of its block."""
+    for module, path in _modules().items():
+        lines = path.read_text(encoding="utf-8").splitlines()
+        tree = ast.parse("\n".join(lines), filename=str(path))
+        for fn in ast.walk(tree):
+            if not isinstance(fn, ast.FunctionDef | ast.AsyncFunctionDef):
+                continue
+            for node in ast.walk(fn):
+                if isinstance(node, ast.Import | ast.ImportFrom):
+                    yield module, node.lineno, lines
+
+
+def _says_why(lineno: int, lines: list[str]) -> bool:
+    """A comment on the import's line, or just above its block of imports."""
+    if "#" in lines[lineno - 1]:
+        return True
+    i = lineno - 2
+    while i >= 0 and lines[i].strip().startswith(("import ", "from ")):
+        i -= 1
+    return i >= 0 and lines[i].strip().startswith("#")
+
+
+def test_every_import_inside_a_function_says_why() -> None:
+    silent = [f"{m}:{n}" for m, n, lines in _function_imports() if not _says_why(n, lines)]
+    assert silent == []

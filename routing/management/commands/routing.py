@@ -15,7 +15,10 @@ from django.core.management.base import BaseCommand, CommandParser
 
 from routing import services
 from routing.api import split_preview_body
+from routing.builder import build as builder
+from routing.builder import overrides as overrides_core
 from routing.builder import render
+from routing.builder import spec as spec_core
 from shopfloor.errors import DomainError
 
 EXIT_BAD_INPUT = 2
@@ -172,9 +175,6 @@ def _refuse_constant(name: str) -> Any:
 
 def _text(spec: Any, overrides: list[dict[str, Any]]) -> str:
     """The text table from the pure core (the spec was already validated by preview)."""
-    from routing.builder import build as builder
-    from routing.builder import overrides as overrides_core
-    from routing.builder import spec as spec_core
 
     _, library = services.current_library()
     routing = builder.build_routing(spec_core.parse_spec(spec), library)

@@ -14,6 +14,9 @@ from dataclasses import dataclass, field
 from html import escape
 from typing import Any
 
+from reportlab.graphics.shapes import Circle, Drawing, Group, Line, PolyLine, Rect, String
+from reportlab.lib import colors
+
 INK = "#111111"
 GRID = "#bbbbbb"
 POINT = "#1f4e9a"
@@ -351,8 +354,6 @@ def to_svg(fig: Figure) -> str:
 
 def to_drawing(fig: Figure, scale: float = 0.55) -> Any:
     """The same figure as a reportlab Drawing (y flipped: reportlab's origin is bottom left)."""
-    from reportlab.graphics.shapes import Circle, Drawing, Group, Line, PolyLine, Rect, String
-    from reportlab.lib import colors
 
     def col(hex_: str) -> Any:
         return None if hex_ == "none" else colors.HexColor(hex_)

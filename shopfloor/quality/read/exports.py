@@ -17,6 +17,12 @@ import statistics
 from collections.abc import Iterator
 from typing import Any
 
+from reportlab.lib import colors
+from reportlab.lib.pagesizes import A4
+from reportlab.lib.styles import getSampleStyleSheet
+from reportlab.lib.units import mm
+from reportlab.platypus import SimpleDocTemplate, Spacer, Table, TableStyle
+
 from shopfloor.core import judging
 from shopfloor.core.judging import describe_window
 from shopfloor.floor.models import LotStep, Reading
@@ -203,11 +209,6 @@ def reading_summary(h: history.LotHistory) -> list[dict[str, Any]]:
 
 def lot_record_pdf(h: history.LotHistory, *, certificate: bool = False) -> bytes:
     """The lot record (or certificate of conformance) as PDF bytes."""
-    from reportlab.lib import colors
-    from reportlab.lib.pagesizes import A4
-    from reportlab.lib.styles import getSampleStyleSheet
-    from reportlab.lib.units import mm
-    from reportlab.platypus import SimpleDocTemplate, Spacer, Table, TableStyle
 
     # Every paragraph escapes its text (shopfloor.safe_output): codes, notes and names
     # print as typed and can never embed a file or break the document.

@@ -8,7 +8,7 @@ from dataclasses import dataclass
 from django.db.models import Prefetch
 
 from shopfloor.access import Scope, require_lot_visible, visible_lots
-from shopfloor.errors import NotFound
+from shopfloor.errors import NotAllowed, NotFound
 from shopfloor.floor.models import LotStep
 from shopfloor.plant.models import Job, Lot, MaterialLot, Panel, PanelImage
 
@@ -41,8 +41,6 @@ def job_genealogy(scope: Scope, number: str) -> JobGenealogy:
         .order_by("serial")
     )
     if not scope.sees_all and not lots:
-        from shopfloor.errors import NotAllowed
-
         raise NotAllowed(f"Job {job.number} has no lot at your work centers.")
     return JobGenealogy(job, panels, lots)
 

@@ -10,10 +10,12 @@ from typing import Any
 from django.db.models import Count
 
 from shopfloor.access import Scope
-from shopfloor.core import units
-from shopfloor.errors import NotFound
+from shopfloor.core import spc, units
+from shopfloor.errors import NotAllowed, NotFound
 from shopfloor.floor.models import Reading
+from shopfloor.plant.models import WorkCenter
 from shopfloor.quality import series as series_core
+from shopfloor.quality.models import SeriesState
 
 # --- SPC series reads -----------------------------------------------------------------
 
@@ -84,8 +86,6 @@ def spc_series(scope: Scope) -> list[SeriesRow]:
     """Stored series when the SPC worker has made them; otherwise grouped from readings
     (by quantity, operation, work center, equipment and window, like stored ones)."""
 
-    from shopfloor.quality.models import SeriesState
-
     rows: list[SeriesRow] = []
     for s in SeriesState.objects.select_related("work_center", "equipment").order_by("key"):
         if scope.sees_work_center(s.work_center_id):
@@ -142,8 +142,6 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
     uses) for the series' own chart: c-bar +- 3 sqrt(c-bar) for counts, never moving-range
     limits; counts get defects per unit and a Poisson ppm instead of Cp/Cpk.
     """
-    from shopfloor.core import spc
-    from shopfloor.quality.models import SeriesState
 
     stored = SeriesState.objects.select_related("work_center", "equipment").filter(key=key).first()
     if stored is not None:
@@ -163,7 +161,6 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
         parts = key.split("@")
         if len(parts) != 5 or not all(parts[:3]):
             raise NotFound(f"No SPC series {key!r}. Pick one from the SPC list.")
-        from shopfloor.plant.models import WorkCenter
 
         wc = WorkCenter.objects.filter(code=parts[2]).first()
         if wc is None:
@@ -180,8 +177,6 @@ def spc_detail(scope: Scope, key: str) -> SeriesDetail:
         )
         qs = qs.filter(equipment__code=eq) if eq else qs.filter(equipment__isnull=True)
     if not scope.sees_work_center(wc_id):
-        from shopfloor.errors import NotAllowed
-
         raise NotAllowed("This series belongs to a work center that is not yours.")
     chart = stored.chart if stored else "individuals"
     size = stored.subgroup_size if stored and chart in series_core.XBAR_CHARTS else 1

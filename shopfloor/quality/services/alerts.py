@@ -30,6 +30,7 @@ from django.db.models import F
 from django.utils import timezone
 
 from shopfloor.audit import services as audit
+from shopfloor.core import judging
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Job, Lot
 from shopfloor.quality import outbox
@@ -162,7 +163,6 @@ def handle_reading(event: OutboxEvent) -> list[Alert]:
 
 def _set_text(step: LotStep, quantity: str) -> tuple[list[Reading], str]:
     """The current readings of a quantity's set at a step, and 'samples 1: 27.9 µm, ...'."""
-    from shopfloor.core import judging
 
     members = list(
         Reading.objects.filter(lot_step=step, quantity=quantity, superseded_by__isnull=True)

@@ -23,6 +23,7 @@ from shopfloor.audit import services as audit
 from shopfloor.core import schedule
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
 from shopfloor.floor.models import LotStep
+from shopfloor.planning.services import job_projections
 from shopfloor.plant.models import Job, Lot, Person
 from shopfloor.quality.models import Alert
 from shopfloor.quality.services.alerts import (
@@ -202,7 +203,6 @@ def check_due_dates(now: datetime | None = None) -> dict[str, int]:
     counts = {"checked": len(jobs), "at_risk": 0, "late": 0}
     # The finish forecast decides where one exists (P90 after the due date); the flow
     # factor on the remaining standard minutes is the fallback while none does.
-    from shopfloor.planning.services import job_projections
 
     forecasts = job_projections([j.pk for j in jobs], now)
     for job in jobs:

@@ -26,10 +26,14 @@ from django.db import transaction
 from django.db.models import Q
 from django.utils import timezone
 
+from routing.builder.library import REWORK_ONLY_STEP_CODES, base_code
+from routing.services import library_of
 from shopfloor.audit import services as audit
 from shopfloor.errors import Conflict, InvalidInput, NotAllowed, NotFound
+from shopfloor.floor import services as floor
 from shopfloor.floor.models import LotStep, ScrapRecord
 from shopfloor.plant.models import Lot, Panel, Person, WorkCenter
+from shopfloor.plant.people import verify_pin
 from shopfloor.quality.models import Alert, Hold, Nonconformance, RootCause
 
 USE_AS_IS = Nonconformance.Disposition.USE_AS_IS.value
@@ -62,8 +66,6 @@ def default_rework(step: LotStep | None) -> list[str]:
     """The library's default rework route after a nonconformance at `step`."""
     if step is None:
         return []
-    from routing.builder.library import base_code
-    from routing.services import library_of
 
     library = library_of(step.lot.routing_revision)
     return list(library.rework_for(base_code(step.code)))
@@ -73,8 +75,6 @@ def rework_choices(step: LotStep | None) -> list[tuple[str, str]]:
     """Library steps a rework may use, as (code, name), sorted by name."""
     if step is None:
         return []
-    from routing.builder.library import REWORK_ONLY_STEP_CODES
-    from routing.services import library_of
 
     library = library_of(step.lot.routing_revision)
     codes = set(library.steps) | REWORK_ONLY_STEP_CODES
@@ -85,8 +85,6 @@ def rework_choices(step: LotStep | None) -> list[tuple[str, str]]:
 def _library_route(step: LotStep | None, codes: Any) -> list[ReworkStep]:
     if step is None:
         raise Conflict("This NCR names no lot step, so a rework route has nowhere to go.")
-    from routing.builder.library import REWORK_ONLY_STEP_CODES, base_code
-    from routing.services import library_of
 
     library = library_of(step.lot.routing_revision)
     if not isinstance(codes, list) or not 1 <= len(codes) <= MAX_REWORK_STEPS:
@@ -127,8 +125,6 @@ def _library_route(step: LotStep | None, codes: Any) -> list[ReworkStep]:
 def _default_route(held: LotStep | None) -> list[ReworkStep]:
     """The library's default rework for the held step; a step the library does not know
     (a hand-made routing) is simply done again with its own plan."""
-    from routing.builder.library import REWORK_ONLY_STEP_CODES
-    from routing.services import library_of
 
     if held is None:
         raise Conflict("This NCR names no lot step, so rework has nowhere to go.")
@@ -221,7 +217,6 @@ def _snapshot_for(lot: Lot, held: LotStep, item: ReworkStep) -> tuple[dict[str, 
     recoat): that step's snapshot. A rework-only step that measures what the held step
     measured (verify after repair): the held step's windows for those quantities.
     """
-    from routing.builder.library import base_code
 
     if item.library_code is None:
         return (dict(held.parameters), list(held.plan)) if item.same_plan else ({}, [])
@@ -230,7 +225,6 @@ def _snapshot_for(lot: Lot, held: LotStep, item: ReworkStep) -> tuple[dict[str, 
     for s in LotStep.objects.filter(lot=lot, is_rework=False).order_by("position"):
         if base_code(s.code) == item.library_code:
             return dict(s.parameters), list(s.plan)
-    from routing.services import library_of
 
     d = library_of(lot.routing_revision).definition(item.library_code)
     plan = [m for m in held.plan if m.get("quantity") in d.measurements]
@@ -313,7 +307,6 @@ def _insert_rework(
 
 
 def _hazard(lot: Lot, code: str, held: LotStep) -> str:
-    from routing.services import library_of
 
     return library_of(lot.routing_revision).definition(code).hazard or ""
 
@@ -332,7 +325,6 @@ def _scrap(
 ) -> dict[str, Any]:
     """Scrap the named live panels: all of them scraps the lot, some split off into a
     scrapped lot. Their good boards are recorded as scrap at the held step."""
-    from shopfloor.floor import services as floor
 
     if held is not None:
         reason = floor.scrap_reason(reason_code or "other")
@@ -507,7 +499,6 @@ def disposition_ncr(
     use_as_is | rework | scrap) decides per panel. Rework runs `rework_route` (library
     step codes), or `rework_steps` (named steps), or the held step's library default.
     """
-    from shopfloor.plant.people import verify_pin
 
     _require_quality(person, "disposition a nonconformance")
     # A recording error (only when a correction brought the set back inside, see
@@ -594,8 +585,6 @@ def disposition_ncr(
             else:
                 items = _default_route(held)
         if scrap_ids:
-            from shopfloor.floor import services as floor
-
             floor.scrap_reason(scrap_reason or "other")  # refuse an unknown reason early
         ncr.disposition_note = note
         detail: dict[str, Any] = {

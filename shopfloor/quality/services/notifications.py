@@ -17,7 +17,7 @@ from django.db import transaction
 from django.db.models import Q
 from django.utils import timezone
 
-from shopfloor.quality import outbox
+from shopfloor.quality import notify, outbox
 from shopfloor.quality.models import Alert, OutboxEvent
 
 log = logging.getLogger("shopfloor.quality")
@@ -103,7 +103,6 @@ def notify_alert(alert_id: int) -> bool:
     worker dies mid-send the transaction rolls back and the task is delivered again.
     A failing webhook is handed to a bounded retry task and never blocks anything.
     """
-    from shopfloor.quality import notify
 
     with transaction.atomic():
         alert = (
@@ -149,7 +148,6 @@ def notify_alert(alert_id: int) -> bool:
 
 def deliver_webhook(alert_id: int) -> None:
     """One more webhook attempt (raises notify.WebhookFailed so the task retries)."""
-    from shopfloor.quality import notify
 
     alert = Alert.objects.select_related("lot", "work_center", "job").filter(pk=alert_id).first()
     if alert is None or not notify.webhook_configured():

@@ -7,6 +7,7 @@ from typing import Any
 
 from django.core.management.base import BaseCommand, CommandError, CommandParser
 
+from shopfloor.audit.models import AuditCheckpoint
 from shopfloor.audit.services import seal, verify_chain
 
 
@@ -84,7 +85,6 @@ class Command(BaseCommand):
         number, _, digest = anchor.partition(":")
         if not number.isdigit() or len(digest) != 64:
             raise CommandError("--anchor takes NUMBER:HASH, e.g. 12:<64 hex digits>")
-        from shopfloor.audit.models import AuditCheckpoint
 
         stored = (
             AuditCheckpoint.objects.filter(number=int(number))

@@ -9,6 +9,8 @@ from typing import Any
 from django.core.management.base import BaseCommand, CommandError, CommandParser
 
 from shopfloor.core.planning import queueing
+from shopfloor.planning import services
+from shopfloor.planning.models import ForecastRun
 
 
 class Command(BaseCommand):
@@ -74,8 +76,6 @@ class Command(BaseCommand):
         )
 
     def _run(self, o: dict[str, Any]) -> None:
-        from shopfloor.planning import services
-        from shopfloor.planning.models import ForecastRun
 
         run = services.run_forecast(
             ForecastRun.Trigger.COMMAND, replications=o["replications"], seed=o["seed"]

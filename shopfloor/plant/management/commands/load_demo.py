@@ -23,9 +23,13 @@ from django.utils import timezone
 
 from routing import services as routing_services
 from routing.models import RoutingRevision
+from shopfloor.chemistry import demo as baths
 from shopfloor.core import judging, units
 from shopfloor.floor import services as floor
 from shopfloor.floor.models import LotStep
+from shopfloor.floor.site_lists import ensure_site_lists
+from shopfloor.orders import services as orders
+from shopfloor.planning import services as planning_services
 from shopfloor.plant import services as plant
 from shopfloor.plant.models import (
     Customer,
@@ -40,6 +44,8 @@ from shopfloor.plant.models import (
     Role,
     WorkCenter,
 )
+from shopfloor.quality.services import deadlines
+from shopfloor.shipping import services as shipping
 
 DEFAULT_FILE = Path(settings.BASE_DIR) / "fixtures" / "demo_shop.json"
 
@@ -127,7 +133,6 @@ class Command(BaseCommand):
     def handle(self, *args: Any, **options: Any) -> None:
         data = json.loads(Path(options["file"]).read_text(encoding="utf-8"))
         routing_services.ensure_library(note="built-in library (demo)")
-        from shopfloor.floor.site_lists import ensure_site_lists
 
         ensure_site_lists()
         people = self._people(data)
@@ -135,7 +140,6 @@ class Command(BaseCommand):
         engineer = next(p for p in people.values() if Role.PROCESS_ENGINEER in p.roles())
         operator = people[data["people"][0]["badge"]]
         routings = self._routings(data, engineer)
-        from shopfloor.chemistry import demo as baths
 
         baths.ensure_tanks()  # before the lots move, so wet steps record their tanks
         created = 0
@@ -148,8 +152,6 @@ class Command(BaseCommand):
         # and at-risk jobs and any queue-time overruns show up straight away.
         # Capacities and a first finish forecast (beat re-runs it every few minutes), so
         # the board shows P50 / P90 and forecast-based due-date risk on first start.
-        from shopfloor.planning import services as planning_services
-        from shopfloor.quality.services import deadlines
 
         planning_services.ensure_demo_capacity()
         planning_services.run_forecast("demo")
@@ -328,8 +330,6 @@ class Command(BaseCommand):
             floor.complete_step(person=operator, lot_step_id=step.pk, pin=pin)
             lot.refresh_from_db()
         if j.get("ship"):
-            from shopfloor.shipping import services as shipping
-
             shipping.ship(
                 person=self._shipper(),
                 job_number=job.number,
@@ -350,7 +350,6 @@ class Command(BaseCommand):
     def _planned_job(self, j: dict[str, Any], routing: RoutingRevision) -> None:
         """A job entered (and perhaps released) by the planner through the planner's
         services, as a person would on the job pages."""
-        from shopfloor.orders import services as orders
 
         planner = Person.objects.filter(user__groups__name=Role.PLANNER).order_by("pk").first()
         part_revision = routing.part_revision
