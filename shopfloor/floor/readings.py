@@ -32,6 +32,7 @@ from shopfloor.floor.models import (
     LotStep,
     Reading,
 )
+from shopfloor.floor.quantities import lot_good_boards
 from shopfloor.plant.models import (
     Equipment,
     Lot,
@@ -215,8 +216,6 @@ def tested_count(step: LotStep, data: ReadingInput, failed: float) -> int | None
         )
     n = data.tested
     if n is None:
-        from shopfloor.floor.quantities import lot_good_boards
-
         n = sum(lot_good_boards(step.lot).values())
         if n < 1:
             raise InvalidInput(

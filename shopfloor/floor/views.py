@@ -51,6 +51,7 @@ from shopfloor.floor.models import (
     ScrapRecord,
 )
 from shopfloor.floor.permissions import FLOOR_ROLES, check_work_center, roles_of
+from shopfloor.floor.quantities import lot_good_boards
 from shopfloor.floor.serializers import batch_items
 from shopfloor.htmx import is_htmx
 from shopfloor.plant import people
@@ -254,7 +255,6 @@ class SampleRow:
     @property
     def default_tested(self) -> int:
         """The n offered for a "k of n" row: the lot's good boards now."""
-        from shopfloor.floor.quantities import lot_good_boards
 
         return sum(lot_good_boards(self.step.lot).values())
 

@@ -272,7 +272,6 @@ def _proportion_detail(row: SeriesRow, stored: Any, recent: list[Any]) -> Series
     live series and `spc evaluate` (shopfloor.core.spc.proportion). p-bar is the
     series' baseline once it has one, else the points shown; rules run on the
     standardized points, so each point is judged against its own n."""
-    from shopfloor.core import spc
 
     points = [(round(float(v)), int(n)) for v, _, _, _, _, n in recent if n]
     window = dict(recent[-1][2]) if recent else {}
