@@ -848,6 +848,8 @@ NOT_IN_MATRIX: dict[str, str] = {
     "(tests/security/test_logout_and_docs.py)",
     "api/docs/": "the API description's page, as api/schema/",
     "bench/": "benchmark-only endpoints, present only with BENCH_ENDPOINTS (never in production)",
+    "display/theme/": "the high-contrast toggle: open to everyone by design (a device setting, "
+    "on the sign-in page too); changes only the caller's own display",
 }
 
 
