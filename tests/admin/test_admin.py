@@ -33,6 +33,7 @@ pytestmark = pytest.mark.django_db
 NO_ADD = {
     "orders.panellayout",
     "orders.planningsettings",
+    "plant.sitesettings",  # one row, made on first use: edited, never a second added
     "routing.routingrevision",
     "routing.routingstep",
     "floor.lotstep",
