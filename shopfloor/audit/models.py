@@ -16,6 +16,7 @@ from django.conf import settings
 from django.db import models
 from django.db.models import Q
 from django.utils import timezone
+from django.utils.translation import gettext_lazy as _
 
 
 class AuditHead(models.Model):
@@ -96,12 +97,12 @@ class Signature(models.Model):
     """An e-signature: printed name, UTC time and meaning, bound to one record by hash."""
 
     class Meaning(models.TextChoices):
-        PERFORMED = "performed_by", "Performed by"
-        VERIFIED = "verified_by", "Verified by"
-        RELEASED = "released_by", "Released by (routing)"
-        APPROVED_DEVIATION = "deviation_approved_by", "Deviation approved by"
-        DISPOSITIONED = "dispositioned_by", "Dispositioned by"
-        QUEUE_RELEASE = "queue_time_released_by", "Queue-time warning released by"
+        PERFORMED = "performed_by", _("Performed by")
+        VERIFIED = "verified_by", _("Verified by")
+        RELEASED = "released_by", _("Released by (routing)")
+        APPROVED_DEVIATION = "deviation_approved_by", _("Deviation approved by")
+        DISPOSITIONED = "dispositioned_by", _("Dispositioned by")
+        QUEUE_RELEASE = "queue_time_released_by", _("Queue-time warning released by")
 
     signer = models.ForeignKey("plant.Person", on_delete=models.PROTECT, related_name="+")
     printed_name = models.CharField(max_length=120)

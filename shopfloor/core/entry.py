@@ -22,7 +22,15 @@ from typing import Any, Final
 
 from shopfloor.core import judging, units
 
-__all__ = ["ENGLISH", "Speech", "describe_criteria", "number", "running_text", "unit_symbol"]
+__all__ = [
+    "ENGLISH",
+    "Speech",
+    "describe_criteria",
+    "guard_question",
+    "number",
+    "running_text",
+    "unit_symbol",
+]
 
 
 def _same(text: str) -> str:
@@ -193,3 +201,53 @@ def running_text(
 def _inside(value: float, entry: Mapping[str, Any]) -> bool:
     lo, hi = entry.get("min"), entry.get("max")
     return (lo is None or value >= lo) and (hi is None or value <= hi)
+
+
+def guard_question(
+    value: float,
+    entered: str,
+    entered_unit: str,
+    entries: Sequence[Mapping[str, Any]],
+    suggestion: str | None,
+    say: Speech = ENGLISH,
+) -> str:
+    """The typo guard's question (`judging.guard_value`) in the person's language: the
+    same text in English, so the confirmation stored with a reading reads the same."""
+    _ = say.tr
+    first = entries[0]
+    q = str(first.get("quantity", ""))
+    shown = _with_symbol(q, value, "", say)
+    typed = f"{entered} {entered_unit}".strip()
+    same = entered_unit.strip() in {str(first.get("unit", "")), unit_symbol(q)}
+    head = shown if same else f"{typed} = {shown}"
+    failing = [e for e in sorted(entries, key=_order) if _single_value_outside(value, e)]
+    if failing:
+        reasons = []
+        for e in failing:
+            lo, hi = e.get("min"), e.get("max")
+            below = lo is not None and value < lo
+            limit = _with_symbol(q, lo if below else hi, "", say)
+            words = _entry_words(e, _samples_of_entry(e), "", say)
+            template = (
+                _("below {limit} ({criterion})") if below else _("above {limit} ({criterion})")
+            )
+            reasons.append(template.format(limit=limit, criterion=words))
+        text = _("{value} is {reasons}").format(value=head, reasons=_(" and ").join(reasons))
+    else:
+        text = _("{value} is far from the window ({criteria})").format(
+            value=head, criteria=describe_criteria(entries, "", say)
+        )
+    if suggestion:
+        return text + _(". Did you mean {value} {unit}?").format(value=entered, unit=suggestion)
+    return text + "."
+
+
+def _samples_of_entry(entry: Mapping[str, Any]) -> int:
+    raw = entry.get("samples")
+    return raw if isinstance(raw, int) else 1
+
+
+def _single_value_outside(value: float, entry: Mapping[str, Any]) -> bool:
+    if judging.applies_to(entry) == "range":
+        return False
+    return not _inside(value, entry)

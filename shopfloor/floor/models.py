@@ -14,6 +14,7 @@ from django.db import models
 from django.db.models import F, IntegerField, Min, OuterRef, Subquery, Sum, Window
 from django.db.models.functions import Coalesce
 from django.utils import timezone
+from django.utils.translation import gettext_lazy as _
 
 from shopfloor.core import judging
 from shopfloor.plant.models import Lot
@@ -91,11 +92,11 @@ class LotStep(models.Model):
     """One step of one lot, in routing order (rework steps a disposition added included)."""
 
     class Status(models.TextChoices):
-        WAITING = "waiting", "Waiting"
-        IN_PROGRESS = "in_progress", "In progress"
-        PAUSED = "paused", "Paused"
-        DONE = "done", "Done"
-        SKIPPED = "skipped", "Skipped (moved to another revision)"
+        WAITING = "waiting", _("Waiting")
+        IN_PROGRESS = "in_progress", _("In progress")
+        PAUSED = "paused", _("Paused")
+        DONE = "done", _("Done")
+        SKIPPED = "skipped", _("Skipped (moved to another revision)")
 
     lot = models.ForeignKey("plant.Lot", on_delete=models.PROTECT, related_name="steps")
     position = models.PositiveIntegerField(help_text="Order along the lot's route")

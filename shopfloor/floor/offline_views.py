@@ -29,6 +29,7 @@ ASSETS = (
     "js/site.js",
     "floor/tablet.js",
     "floor/offline.js",
+    "floor/entry.js",
 )
 WORKER = "floor/sw.js"
 

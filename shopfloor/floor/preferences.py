@@ -33,3 +33,19 @@ def remember_entry(person: Person, quantity: str, unit: str, equipment_id: int |
     current[quantity] = wanted
     person.entry_defaults = current
     Person.objects.filter(pk=person.pk).update(entry_defaults=current)
+
+
+def set_language(person: Person, language: str) -> None:
+    """The person's tablet and traveller language; '' means the site's language."""
+    from django.conf import settings
+
+    from shopfloor.errors import InvalidInput
+
+    allowed = dict(settings.LANGUAGES)
+    if language and language not in allowed:
+        raise InvalidInput(
+            f"Unknown language {language!r}; allowed: "
+            + ", ".join(f"{code} ({name})" for code, name in allowed.items())
+        )
+    person.language = language
+    Person.objects.filter(pk=person.pk).update(language=language)

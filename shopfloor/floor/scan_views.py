@@ -17,6 +17,7 @@ from dataclasses import dataclass
 from django.contrib.auth.decorators import login_required
 from django.http import HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
+from django.utils.translation import gettext
 from django.views.decorators.http import require_GET, require_POST
 
 from shopfloor.errors import DomainError, InvalidInput, NotFound
@@ -73,7 +74,7 @@ def scan(request: HttpRequest) -> HttpResponse:
     code = request.GET.get("code", "")
     try:
         if not form.is_valid():
-            raise InvalidInput("Scan or type a lot code, panel serial or job number.")
+            raise InvalidInput(gettext("Scan or type a lot code, panel serial or job number."))
         lots = lots_for_scan(form.cleaned_data["code"])
     except DomainError as exc:
         return _scan_error(request, exc, code)

@@ -11,6 +11,8 @@ and point shopfloor/floor/site_lists.py at v2. Plain data only: no Django, no ap
 
 from __future__ import annotations
 
+from django.utils.translation import gettext_noop  # names shown translated on the tablet
+
 #: Shelf lives are counted from receipt at controlled storage; the supplier's datasheet
 #: governs (typical figures, from memory: prepreg about 3 months at 23 degC / 50 % RH,
 #: photoimageable mask and legend inks and dry film about 6 months).
@@ -21,18 +23,18 @@ SHELF_LIVES = [
     ("dry_film", 180, "typical (from memory); check the datasheet"),
 ]
 SCRAP_REASONS = [
-    ("open", "Open circuit"),
-    ("short", "Short circuit"),
-    ("plating_thin", "Plating too thin"),
-    ("registration", "Misregistration"),
-    ("mask_defect", "Solder mask defect"),
-    ("finish_defect", "Surface finish defect"),
-    ("delamination", "Delamination or blister"),
-    ("handling", "Handling damage (scratch, dent, bent)"),
-    ("dimension", "Out of dimension"),
-    ("drill", "Drill defect (missing, extra or misplaced hole)"),
-    ("contamination", "Contamination"),
-    ("other", "Other (say what in the note)"),
+    ("open", gettext_noop("Open circuit")),
+    ("short", gettext_noop("Short circuit")),
+    ("plating_thin", gettext_noop("Plating too thin")),
+    ("registration", gettext_noop("Misregistration")),
+    ("mask_defect", gettext_noop("Solder mask defect")),
+    ("finish_defect", gettext_noop("Surface finish defect")),
+    ("delamination", gettext_noop("Delamination or blister")),
+    ("handling", gettext_noop("Handling damage (scratch, dent, bent)")),
+    ("dimension", gettext_noop("Out of dimension")),
+    ("drill", gettext_noop("Drill defect (missing, extra or misplaced hole)")),
+    ("contamination", gettext_noop("Contamination")),
+    ("other", gettext_noop("Other (say what in the note)")),
 ]
 ROOT_CAUSES = [
     ("process_drift", "Process drift (parameter or chemistry out of control)"),

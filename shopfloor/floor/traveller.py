@@ -17,7 +17,8 @@ from zoneinfo import ZoneInfo
 
 import segno
 from django.conf import settings
-from django.utils import timezone
+from django.utils import formats, timezone
+from django.utils.translation import gettext as _
 from reportlab.lib import colors
 from reportlab.lib.pagesizes import A4, LETTER
 from reportlab.lib.styles import ParagraphStyle
@@ -124,14 +125,21 @@ def traveller_pdf(lot: Lot, paper: str | None = None) -> bytes:
     story: list[Any] = []
     qr = Image(io.BytesIO(qr_png(lot.code)), width=32 * mm, height=32 * mm)
     title = [
-        p(f"Traveller — lot {lot.code}", head),
+        p(_("Traveller — lot {code}").format(code=lot.code), head),
         p(
-            f"Part {part_revision.part.number} revision {part_revision.revision} · "
-            f"routing r{revision.number} · IPC class {revision.ipc_class}"
+            _("Part {part} revision {rev} · routing r{routing} · IPC class {ipc}").format(
+                part=part_revision.part.number,
+                rev=part_revision.revision,
+                routing=revision.number,
+                ipc=revision.ipc_class,
+            )
         ),
         p(
-            f"Panels: {lot.panel_count} · printed {printed:%Y-%m-%d %H:%M} "
-            f"({settings.SITE_TIME_ZONE})",
+            _("Panels: {n} · printed {when} ({zone})").format(
+                n=lot.panel_count,
+                when=formats.date_format(printed, "SHORT_DATETIME_FORMAT"),
+                zone=settings.SITE_TIME_ZONE,
+            ),
             small,
         ),
     ]
@@ -139,9 +147,12 @@ def traveller_pdf(lot: Lot, paper: str | None = None) -> bytes:
     header.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP")]))
     story += [header, Spacer(1, 3 * mm)]
 
-    story.append(p("Jobs", h2))
+    story.append(p(_("Jobs"), h2))
     job_rows: list[list[Any]] = [
-        [p(t, small) for t in ("Job", "Customer", "Part / rev", "Qty", "Due", "IPC class")]
+        [
+            p(t, small)
+            for t in (_("Job"), _("Customer"), _("Part / rev"), _("Qty"), _("Due"), _("IPC class"))
+        ]
     ]
     for job in data.jobs:
         pr = job.part_revision
@@ -149,9 +160,9 @@ def traveller_pdf(lot: Lot, paper: str | None = None) -> bytes:
             [
                 p(job.number),
                 p(pr.part.customer.code),
-                p(f"{pr.part.number} rev {pr.revision}"),
-                p(str(job.quantity)),
-                p(f"{job.due_date:%Y-%m-%d}"),
+                p(_("{part} rev {rev}").format(part=pr.part.number, rev=pr.revision)),
+                p(formats.number_format(job.quantity)),
+                p(formats.date_format(job.due_date, "SHORT_DATE_FORMAT")),
                 p(str(job.ipc_class)),
             ]
         )
@@ -166,19 +177,22 @@ def traveller_pdf(lot: Lot, paper: str | None = None) -> bytes:
     )
 
     panels = ", ".join(lot.panels.order_by("serial").values_list("serial", flat=True))
-    story += [p("Panels", h2), p(panels or "none recorded", small)]
+    story += [p(_("Panels"), h2), p(panels or _("none recorded"), small)]
 
-    story.append(p("Route", h2))
+    story.append(p(_("Route"), h2))
     signatures = traveller_steps.signatures_by_step(data.steps)
     hazards = traveller_steps.HazardNotes()
     for step in data.steps:
-        lines = [p(f"{step.position} · {step.name} — {step.work_center.name}", body)]
+        name = words.step_name(step.name)
+        center = words.library_text(step.work_center.name)
+        lines = [p(f"{step.position} · {name} — {center}", body)]
         if step.instructions:
             lines.append(p(step.instructions, small))
         if step.parameters:
             lines.append(
                 p(
-                    "Parameters: "
+                    _("Parameters:")
+                    + " "
                     + ", ".join(f"{k}: {v}" for k, v in words.parameter_rows(step.parameters)),
                     small,
                 )
@@ -189,7 +203,7 @@ def traveller_pdf(lot: Lot, paper: str | None = None) -> bytes:
                 group, words.quantity_label(group.quantity), sources, p, small
             )
         if step.hazard:
-            text, full = hazards.line(step, step.hazard)
+            text, full = hazards.line(step, words.library_text(step.hazard))
             lines.append(p(text, caution if full else small))
         sign = traveller_steps.sign_off_block(signatures.get(step.pk, []), p, small)
         row = Table([[lines, sign]], colWidths=[118 * mm, 60 * mm])
@@ -204,7 +218,7 @@ def traveller_pdf(lot: Lot, paper: str | None = None) -> bytes:
         )
         story.append(KeepTogether([row]))
 
-    story += [Spacer(1, 4 * mm), p(SAFETY_CAUTION, caution)]
+    story += [Spacer(1, 4 * mm), p(_(SAFETY_CAUTION), caution)]
     out = io.BytesIO()
     doc = SimpleDocTemplate(
         out,
@@ -213,8 +227,8 @@ def traveller_pdf(lot: Lot, paper: str | None = None) -> bytes:
         rightMargin=15 * mm,
         topMargin=12 * mm,
         bottomMargin=12 * mm,
-        title=f"Traveller {lot.code}",
-        author="Traveller service",
+        title=_("Traveller {code}").format(code=lot.code),
+        author=_("Traveller service"),
     )
     doc.build(story)
     return out.getvalue()

@@ -11,6 +11,7 @@ urlpatterns = [
     path("sw.js", offline_views.service_worker, name="service_worker"),
     path("offline/", offline_views.offline_page, name="offline"),
     path("logout/", views.logout_view, name="logout"),
+    path("language/", views.language, name="language"),
     path("", views.work_centers, name="work_centers"),
     path("centers/<str:code>/", views.queue, name="queue"),
     path("scan/", scan_views.scan, name="scan"),

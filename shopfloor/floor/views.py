@@ -14,6 +14,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
+from django.conf import settings
 from django.contrib import messages
 from django.contrib.auth import login, logout
 from django.contrib.auth.decorators import login_required
@@ -24,6 +25,7 @@ from django.db.models.functions import Upper
 from django.http import HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
 from django.urls import reverse
+from django.utils.translation import gettext
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
 from shopfloor import access as read_scope
@@ -99,6 +101,27 @@ def logout_view(request: HttpRequest) -> HttpResponse:
     return redirect("floor:login")
 
 
+@login_required
+@require_http_methods(["GET", "POST"])
+def language(request: HttpRequest) -> HttpResponse:
+    """The person picks the language of the tablet pages and the traveller."""
+    person = _person(request)
+    if request.method == "POST":
+        try:
+            preferences.set_language(person, request.POST.get("language", ""))
+        except DomainError as exc:
+            return render(
+                request,
+                "floor/language.html",
+                {"person": person, "error": exc.detail, "languages": settings.LANGUAGES},
+                status=exc.status,
+            )
+        return redirect("floor:work_centers")
+    return render(
+        request, "floor/language.html", {"person": person, "languages": settings.LANGUAGES}
+    )
+
+
 # --- reads (scoped by the person) ---------------------------------------------------
 
 
@@ -127,6 +150,10 @@ class QueueRow:
     jobs: list[str] = field(default_factory=list)
     due: Any = None
     ipc_class: int | None = None
+
+    @property
+    def step_name(self) -> str:
+        return words.step_name(self.step.name)
 
 
 def _queue(wc: WorkCenter) -> list[QueueRow]:
@@ -162,6 +189,8 @@ def _queue(wc: WorkCenter) -> list[QueueRow]:
 def work_centers(request: HttpRequest) -> HttpResponse:
     person = _person(request)
     centers = list(person.work_centers.order_by("code"))
+    for wc in centers:
+        wc.display_name = words.library_text(wc.name)  # type: ignore[attr-defined]
     return render(request, "floor/work_centers.html", {"centers": centers, "person": person})
 
 
@@ -171,7 +200,11 @@ def queue(request: HttpRequest, code: str) -> HttpResponse:
     person = _person(request)
     wc = _work_center_for(person, code)
     request.session["work_center"] = wc.code
-    return render(request, "floor/queue.html", {"wc": wc, "rows": _queue(wc)})
+    return render(
+        request,
+        "floor/queue.html",
+        {"wc": wc, "wc_name": words.library_text(wc.name), "rows": _queue(wc)},
+    )
 
 
 # --- the lot page ---------------------------------------------------------------------
@@ -446,6 +479,9 @@ def _lot_context(lot: Lot, person: Person) -> dict[str, Any]:
     lot.refresh_from_db()
     data = traveller.traveller_data(lot)
     step = LotStep.objects.current_for(lot)
+    for s in data.steps:  # names from the library, in the person's language when known
+        s.display_name = words.step_name(s.name)  # type: ignore[attr-defined]
+        s.display_center = words.library_text(s.work_center.name)  # type: ignore[attr-defined]
     return {
         **_step_records(lot, step),
         "lot": lot,
@@ -453,6 +489,9 @@ def _lot_context(lot: Lot, person: Person) -> dict[str, Any]:
         "jobs": data.jobs,
         "route": data.steps,
         "step": step,
+        "step_name": words.step_name(step.name) if step else "",
+        "step_center": words.library_text(step.work_center.name) if step else "",
+        "step_hazard": words.library_text(step.hazard) if step else "",
         "step_params": words.parameter_rows(step.parameters) if step else [],
         "plan": _plan(step, person) if step else [],
         "equipment": _equipment(step) if step else [],
@@ -473,7 +512,9 @@ def _missing_lot(request: HttpRequest, code: str) -> HttpResponse:
         request,
         "floor/scan.html",
         {
-            "error": f"No lot with code {code!r}. Check the traveller label and scan again.",
+            "error": gettext(
+                "No lot with code {code}. Check the traveller label and scan again."
+            ).format(code=repr(code)),
             "code": code,
         },
         status=404,
@@ -590,7 +631,7 @@ def _step_action(
         outcome = _run(request, form, action)
     except DomainError as exc:
         return _refuse_page(request, person, lot, exc.detail, exc.status)
-    messages.success(request, outcome.body.get("message", "Done."))
+    messages.success(request, outcome.body.get("message", gettext("Done.")))
     return redirect("floor:lot", code=step.lot.code)
 
 
@@ -599,7 +640,7 @@ def _step_action(
 def start_step(request: HttpRequest, step_id: int) -> HttpResponse:
     def call(person: Person, step: LotStep, data: dict[str, Any]) -> str:
         services.start_step(person=person, lot_step_id=step.pk, equipment_id=data.get("equipment"))
-        return f"Started '{step.name}'."
+        return gettext("Started '{name}'.").format(name=words.step_name(step.name))
 
     return _step_action(request, step_id, forms.StartForm, call)
 
@@ -609,7 +650,9 @@ def start_step(request: HttpRequest, step_id: int) -> HttpResponse:
 def pause_step(request: HttpRequest, step_id: int) -> HttpResponse:
     def call(person: Person, step: LotStep, data: dict[str, Any]) -> str:
         services.pause_step(person=person, lot_step_id=step.pk, reason=data.get("reason", ""))
-        return f"Paused '{step.name}'. Press Start to resume."
+        return gettext("Paused '{name}'. Press Start to resume.").format(
+            name=words.step_name(step.name)
+        )
 
     return _step_action(request, step_id, forms.PauseForm, call)
 
@@ -622,8 +665,10 @@ def complete_step(request: HttpRequest, step_id: int) -> HttpResponse:
             person=person, lot_step_id=step.pk, pin=data["pin"], meaning=data["meaning"]
         )
         sig = done.signature
-        meaning = sig.get_meaning_display() if sig else "Performed by"
-        return f"'{step.name}' signed off. {meaning}: {person.printed_name}."
+        meaning = sig.get_meaning_display() if sig else gettext("Performed by")
+        return gettext("'{name}' signed off. {meaning}: {person}.").format(
+            name=words.step_name(step.name), meaning=meaning, person=person.printed_name
+        )
 
     return _step_action(request, step_id, forms.CompleteForm, call)
 
@@ -633,7 +678,9 @@ def complete_step(request: HttpRequest, step_id: int) -> HttpResponse:
 def record_material(request: HttpRequest, step_id: int) -> HttpResponse:
     def call(person: Person, step: LotStep, data: dict[str, Any]) -> str:
         use = services.record_material(person=person, lot_step_id=step.pk, code=data["code"])
-        return f"Recorded {use.material_lot.code} ({services.material_label(use.kind)})."
+        return gettext("Recorded {code} ({kind}).").format(
+            code=use.material_lot.code, kind=services.material_label(use.kind)
+        )
 
     return _step_action(request, step_id, forms.MaterialForm, call)
 
@@ -652,8 +699,12 @@ def record_scrap(request: HttpRequest, step_id: int) -> HttpResponse:
         )
         n = sum(r.boards for r in records)
         if records[0].panel_scrapped:
-            return f"Panel {data['panel']} scrapped ({n} board(s))."
-        return f"{n} board(s) crossed out on panel {data['panel']}."
+            return gettext("Panel {panel} scrapped ({n} board(s)).").format(
+                panel=data["panel"], n=n
+            )
+        return gettext("{n} board(s) crossed out on panel {panel}.").format(
+            n=n, panel=data["panel"]
+        )
 
     return _step_action(request, step_id, forms.ScrapForm, call)
 
@@ -673,7 +724,11 @@ def record_acceptance(request: HttpRequest, step_id: int) -> HttpResponse:
             accepted=accepted,
             reason_code=data.get("reason") or "",
         )
-        return "Accepted: " + ", ".join(f"{r.boards} of job {r.job.number}" for r in rows) + "."
+        return gettext("Accepted: {list}.").format(
+            list=", ".join(
+                gettext("{n} of job {job}").format(n=r.boards, job=r.job.number) for r in rows
+            )
+        )
 
     return _step_action(request, step_id, forms.AcceptanceForm, call)
 
@@ -688,13 +743,38 @@ def _row_response(
     return render(request, "floor/_sample_row.html", {"row": row}, status=status)
 
 
-def _refusal_fields(exc: DomainError, entered: dict[str, Any]) -> dict[str, Any]:
+def _refusal_fields(
+    exc: DomainError, entered: dict[str, Any], step: LotStep | None = None, quantity: str = ""
+) -> dict[str, Any]:
     """A refused reading's row: the message, what was typed, and (typo guard) the
     question to confirm, so the operator can Confirm or Re-enter in place."""
     if isinstance(exc, services.ConfirmationNeeded):
         question = exc.problems[0]["problem"] if exc.problems else exc.detail
+        if step is not None and exc.problems:
+            question = _guard_question(step, quantity, exc.problems[0], entered) or question
         return {"error": "", "confirm": question, "entered": entered}
     return {"error": exc.detail, "entered": entered}
+
+
+def _guard_question(
+    step: LotStep, quantity: str, problem: dict[str, Any], entered: dict[str, Any]
+) -> str:
+    """The typo guard's question in the person's language ('' if it cannot be rebuilt)."""
+    group = next((g for g in judging.group_plan(step.plan) if g.quantity == quantity), None)
+    if group is None:
+        return ""
+    try:
+        value = units.to_canonical(quantity, str(problem.get("value", "")), problem.get("unit", ""))
+    except (units.UnitError, ValueError):
+        return ""
+    return entry_words.guard_question(
+        value,
+        str(entered.get("value", "")).strip(),
+        str(problem.get("unit", "")),
+        group.entries,
+        problem.get("suggested_unit"),
+        words.speech(),
+    )
 
 
 @login_required
@@ -707,7 +787,7 @@ def record_reading(request: HttpRequest, step_id: int) -> HttpResponse:
     except DomainError as exc:
         lot = step.lot if exc.status == 403 else None
         return _refuse_page(request, person, lot, exc.detail, exc.status)
-    form = forms.ReadingForm(request.POST)
+    form = forms.ReadingForm(words.with_typed_number(request.POST))
     quantity = request.POST.get("quantity", "")
     try:
         sample = int(request.POST.get("sample_index", "1"))
@@ -742,7 +822,9 @@ def record_reading(request: HttpRequest, step_id: int) -> HttpResponse:
 
         outcome = _run(request, form, action)
     except DomainError as exc:
-        row = _single_row(step, quantity, sample, person, **_refusal_fields(exc, entered))
+        row = _single_row(
+            step, quantity, sample, person, **_refusal_fields(exc, entered, step, quantity)
+        )
         if row is None:
             return _refuse_page(request, person, step.lot, exc.detail, exc.status)
         return _row_response(request, row, step.lot, exc.status)
@@ -763,14 +845,18 @@ def correct_reading(request: HttpRequest, reading_id: int) -> HttpResponse:
     old = Reading.objects.select_related("lot_step__lot").filter(pk=reading_id).first()
     if old is None:
         return _refuse_page(
-            request, person, None, f"No reading {reading_id}; reload the lot page.", 404
+            request,
+            person,
+            None,
+            gettext("No reading {id}; reload the lot page.").format(id=reading_id),
+            404,
         )
     step = old.lot_step
     try:
         _require_assigned(person, step)
     except DomainError as exc:
         return _refuse_page(request, person, step.lot, exc.detail, exc.status)
-    form = forms.CorrectionForm(request.POST)
+    form = forms.CorrectionForm(words.with_typed_number(request.POST))
     entered = {
         "value": request.POST.get("value", ""),
         "unit": request.POST.get("unit", ""),
@@ -797,7 +883,11 @@ def correct_reading(request: HttpRequest, reading_id: int) -> HttpResponse:
         outcome = _run(request, form, action)
     except DomainError as exc:
         row = _single_row(
-            step, old.quantity, old.sample_index, person, **_refusal_fields(exc, entered)
+            step,
+            old.quantity,
+            old.sample_index,
+            person,
+            **_refusal_fields(exc, entered, step, old.quantity),
         )
         return _row_response(request, row, step.lot, exc.status)
     return _row_response(

@@ -17,6 +17,7 @@ from django.core.validators import MaxValueValidator, MinValueValidator
 from django.db import models
 from django.db.models.functions import Upper
 from django.utils import timezone
+from django.utils.translation import gettext_lazy as _
 
 from routing.builder.spec import SpecInvalid, normalise_spec
 
@@ -163,14 +164,14 @@ class MaterialLot(models.Model):
     """A received lot of laminate, prepreg, foil, mask ink, chemistry... (for recall)."""
 
     class Kind(models.TextChoices):
-        LAMINATE = "laminate", "Laminate (core)"
-        PREPREG = "prepreg", "Prepreg"
-        FOIL = "foil", "Copper foil"
-        MASK_INK = "mask_ink", "Solder mask ink"
-        LEGEND_INK = "legend_ink", "Legend ink"
-        DRY_FILM = "dry_film", "Dry film resist"
-        CHEMISTRY = "chemistry", "Process chemistry"
-        OTHER = "other", "Other"
+        LAMINATE = "laminate", _("Laminate (core)")
+        PREPREG = "prepreg", _("Prepreg")
+        FOIL = "foil", _("Copper foil")
+        MASK_INK = "mask_ink", _("Solder mask ink")
+        LEGEND_INK = "legend_ink", _("Legend ink")
+        DRY_FILM = "dry_film", _("Dry film resist")
+        CHEMISTRY = "chemistry", _("Process chemistry")
+        OTHER = "other", _("Other")
 
     code = models.CharField(max_length=60, unique=True)
     kind = models.CharField(max_length=20, choices=Kind.choices)
@@ -315,10 +316,10 @@ class Lot(models.Model):
     """Panels run together through one routing revision; carries the traveller code."""
 
     class Status(models.TextChoices):
-        NOT_STARTED = "not_started", "Not started"
-        IN_PROCESS = "in_process", "In process"
-        COMPLETE = "complete", "Complete"
-        SCRAPPED = "scrapped", "Scrapped"
+        NOT_STARTED = "not_started", _("Not started")
+        IN_PROCESS = "in_process", _("In process")
+        COMPLETE = "complete", _("Complete")
+        SCRAPPED = "scrapped", _("Scrapped")
 
     code = models.CharField(max_length=30, unique=True, help_text="Traveller code (scanned)")
     routing_revision = models.ForeignKey(

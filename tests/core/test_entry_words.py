@@ -115,3 +115,38 @@ def test_running_text():
     assert entry.running_text({1: 26.0, 2: 24.0, 3: 22.0}, e, 3) == [
         "mean of 3 samples 24 µm, needs ≥ 25 µm — OUTSIDE"
     ]
+
+
+@pytest.mark.parametrize(
+    ("value", "entered", "unit", "alternatives"),
+    [
+        (12.0, "12", "um", {}),  # below both entries
+        (1.0, "1", "µm", {"mil": 25.4}),  # 1 mil = 25.4 µm fits: "did you mean mil?"
+        (900.0, "900", "um", {}),  # far from the window
+    ],
+)
+def test_guard_question_in_english_equals_the_stored_confirmation(
+    value, entered, unit, alternatives
+):
+    entries = [
+        {
+            "quantity": "hole_wall_copper",
+            "unit": "um",
+            "min": 20.0,
+            "applies_to": "mean",
+            "samples": 5,
+        },
+        {
+            "quantity": "hole_wall_copper",
+            "unit": "um",
+            "min": 18.0,
+            "max": 60.0,
+            "applies_to": "each_reading",
+            "samples": 5,
+        },
+    ]
+    guard = judging.guard_value(value, entered, unit, entries, alternatives)
+    assert guard is not None
+    assert entry.guard_question(value, entered, unit, entries, guard.suggested_unit) == (
+        guard.message
+    )

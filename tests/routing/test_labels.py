@@ -110,3 +110,14 @@ def test_an_unlabelled_key_is_still_read_from_its_spelling():
     assert parameter_label("rinse_flow_l_per_min").text == "Rinse flow l per min"
     assert parameter_label("oven_temperature_c").unit == "°C"
     assert quantity_label("hole_wall_copper") == "Hole wall copper"
+
+
+def test_every_built_in_library_name_is_in_the_catalogue_list():
+    from routing.builder.library import WORK_CENTERS
+    from routing.builder.library_words import LIBRARY_WORDS
+
+    lib = ProcessLibrary.default()
+    texts = {*WORK_CENTERS.values(), *(s.name for s in lib.steps.values())}
+    texts |= {s.hazard for s in lib.steps.values() if s.hazard}
+    missing = sorted(texts - set(LIBRARY_WORDS))
+    assert not missing, "run python -m routing.builder.library_words and update the list"
