@@ -41,7 +41,12 @@ class PersonLanguageMiddleware:
         language = person_language(request) if translated else settings.LANGUAGE_CODE
         translation.activate(language)
         request.LANGUAGE_CODE = translation.get_language()  # type: ignore[attr-defined]
-        response = self.get_response(request)
+        try:
+            response = self.get_response(request)
+        finally:
+            # Back to the site language: work done later on this thread (an eager task,
+            # the next request's early middleware) must not speak this person's language.
+            translation.activate(settings.LANGUAGE_CODE)
         if translated:
             patch_vary_headers(response, ("Accept-Language",))
             response.headers.setdefault("Content-Language", language)

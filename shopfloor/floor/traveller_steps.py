@@ -25,6 +25,7 @@ from zoneinfo import ZoneInfo
 
 from django.conf import settings
 from django.utils.translation import gettext as _
+from django.utils.translation import gettext_noop
 from reportlab.lib import colors
 from reportlab.lib.units import mm
 from reportlab.platypus import Table, TableStyle
@@ -93,12 +94,12 @@ def sign_off_block(signatures: list[Signature], p: Para, small: Any) -> Any:
     return blank
 
 
-_WHAT = {
-    "each_reading": "each reading",
-    "mean": "average of the set",
-    "minimum": "smallest of the set",
-    "maximum": "largest of the set",
-    "range": "range of the set (largest − smallest)",
+_WHAT = {  # marked for the catalogue; translated where shown (applies_to_words)
+    "each_reading": gettext_noop("each reading"),
+    "mean": gettext_noop("average of the set"),
+    "minimum": gettext_noop("smallest of the set"),
+    "maximum": gettext_noop("largest of the set"),
+    "range": gettext_noop("range of the set (largest − smallest)"),
 }
 
 
