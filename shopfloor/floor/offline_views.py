@@ -30,6 +30,7 @@ ASSETS = (
     "floor/tablet.js",
     "floor/offline.js",
     "floor/entry.js",
+    "floor/entry.css",
 )
 WORKER = "floor/sw.js"
 
