@@ -125,7 +125,8 @@ LIBRARY_WORDS: Final[tuple[str, ...]] = (
 
 
 if __name__ == "__main__":  # pragma: no cover - a maintenance helper
-    from routing.builder.library import WORK_CENTERS, ProcessLibrary
+    from routing.builder.default_library import WORK_CENTERS
+    from routing.builder.library import ProcessLibrary
 
     lib = ProcessLibrary.default()
     texts = [*WORK_CENTERS.values(), *(s.name for s in lib.steps.values())]

@@ -113,7 +113,7 @@ def test_an_unlabelled_key_is_still_read_from_its_spelling():
 
 
 def test_every_built_in_library_name_is_in_the_catalogue_list():
-    from routing.builder.library import WORK_CENTERS
+    from routing.builder.default_library import WORK_CENTERS
     from routing.builder.library_words import LIBRARY_WORDS
 
     lib = ProcessLibrary.default()
