@@ -114,6 +114,7 @@ QUANTITY_LABELS: Final[dict[str, Label]] = {
     "aoi_defects": Label(_("AOI defects")),
     "etest_opens": Label(_("Electrical test opens")),
     "etest_shorts": Label(_("Electrical test shorts")),
+    "etest_failed": Label(_("Boards failed at electrical test")),
 }
 
 YES: Final = _("yes")

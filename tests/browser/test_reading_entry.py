@@ -17,15 +17,15 @@ from playwright.sync_api import expect
 
 from shopfloor.floor.models import Reading
 from shopfloor.plant.models import Equipment, Person
+from tests import helpers
 from tests.browser.conftest import PHONE, TABLET
-from tests.floor import helpers
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
 
 
 def _plating_step(floor):
     operator = floor.personas["operator"]
-    step = helpers.advance_to_code(floor.lot, operator, "pattern_plate_copper")
+    step = helpers.advance_to(floor.lot, "pattern_plate_copper", by=operator, walk=True)
     gauge = Equipment.objects.create(
         work_center=step.work_center,
         code="ECG-01",

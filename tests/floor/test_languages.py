@@ -25,7 +25,7 @@ from django.utils.translation.template import templatize
 
 from shopfloor.floor.models import LotStep, Reading
 from shopfloor.plant.models import Person
-from tests.floor import helpers
+from tests import helpers
 
 pytestmark = pytest.mark.django_db
 
@@ -164,7 +164,7 @@ def _pages(floor, client: Client, step: LotStep) -> dict[str, str]:
 def test_every_tablet_page_renders_without_english_left(floor, language, parked_outbox):
     operator = floor.personas["operator"]
     supervisor = floor.personas["supervisor"]
-    step = helpers.skip_to_measured_step(floor.lot)
+    step = helpers.advance_to(floor.lot, helpers.measured())
     client = _client_for(operator, language)
     pages = _pages(floor, client, step)
     assert (
@@ -217,7 +217,7 @@ def test_every_tablet_page_renders_without_english_left(floor, language, parked_
 
 
 def test_spanish_page_is_spanish_with_its_number_and_date_formats(floor, parked_outbox):
-    step = helpers.skip_to_measured_step(floor.lot)
+    step = helpers.advance_to(floor.lot, helpers.measured())
     client = _client_for(floor.personas["operator"], "es")
     client.post(f"/floor/steps/{step.pk}/start/", {"idempotency_key": "es-s"})
     body = client.get(f"/floor/lots/{floor.lot.code}/").content.decode()
