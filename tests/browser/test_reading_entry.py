@@ -59,7 +59,9 @@ def test_unit_and_gauge_are_kept_and_the_window_follows_the_unit(
     # hole copper offers lengths the trade reads it in only (it offered 26, inch marks, oz)
     assert unit_1.locator("option").all_inner_texts() == units.entry_units("hole_wall_copper")
     assert len(units.entry_units("hole_wall_copper")) <= 5
-    window_in_mil = page.locator("article[data-quantity=hole_wall_copper] .window-in")
+    window_in_mil = page.locator(
+        "article[data-quantity=hole_wall_copper] .window-in[data-unit=mil]"
+    )
     expect(window_in_mil).to_be_hidden()
     unit_1.select_option("mil")
     page.locator(f"#{rid}-1 select[name=equipment]").select_option(str(gauge.pk))
