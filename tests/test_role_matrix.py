@@ -296,6 +296,16 @@ ROWS: dict[str, Row] = {
     # a step needs the work center (start/complete: qualification there; record/correct/
     # pause: assignment there; supervisors and admins anywhere).
     "GET floor work centers": Row("GET", lambda c: "/floor/", PEOPLE, api=False),
+    # a person's own language for the tablet and the traveller: every person, for themself
+    "GET floor language": Row("GET", lambda c: "/floor/language/", PEOPLE, api=False),
+    "POST floor language": Row(
+        "POST",
+        lambda c: "/floor/language/",
+        PEOPLE,
+        api=False,
+        lab=A,  # the lab technician is a person with a tablet too
+        body=lambda c: {"language": "es"},
+    ),
     "GET floor queue": Row(
         "GET",
         lambda c: f"/floor/centers/{c['step'].work_center.code}/",

@@ -9,6 +9,9 @@ from __future__ import annotations
 
 from typing import Any
 
+from django.conf import settings
+
+from shopfloor.errors import InvalidInput
 from shopfloor.plant.models import Person
 
 
@@ -37,10 +40,6 @@ def remember_entry(person: Person, quantity: str, unit: str, equipment_id: int |
 
 def set_language(person: Person, language: str) -> None:
     """The person's tablet and traveller language; '' means the site's language."""
-    from django.conf import settings
-
-    from shopfloor.errors import InvalidInput
-
     allowed = dict(settings.LANGUAGES)
     if language and language not in allowed:
         raise InvalidInput(
