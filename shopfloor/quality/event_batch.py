@@ -31,7 +31,7 @@ from __future__ import annotations
 import logging
 from typing import Any
 
-from django.db import InterfaceError, OperationalError, transaction
+from django.db import InterfaceError, OperationalError, connection, transaction
 from django.db.models import F
 from django.utils import timezone
 
@@ -115,7 +115,9 @@ def handle_batch(event_ids: list[int], *, sweep: bool = True) -> dict[str, int]:
 
 
 def _claim(ids: list[int], sweep: bool) -> list[OutboxEvent]:
-    if sweep:
+    # The sweep is PostgreSQL SQL (ANY, jsonb, SKIP LOCKED); the embedded SQLite demo runs
+    # tasks eagerly in one process, so it claims only the events it was handed.
+    if sweep and connection.vendor == "postgresql":
         return list(OutboxEvent.objects.raw(_CLAIM, [ids, BATCH]))
     return list(
         OutboxEvent.objects.select_for_update(no_key=True, skip_locked=True)
