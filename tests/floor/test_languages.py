@@ -120,7 +120,9 @@ def visible_text(body: str) -> str:
 
 def _pattern(msgid: str) -> re.Pattern[str]:
     parts = re.split(r"%\(\w+\)s|\{\w+\}", msgid)
-    body = r".+?".join(re.escape(p) for p in parts)
+    # a placeholder stands for a short value: bounded, so a page with many near-matches
+    # cannot make the search backtrack without end
+    body = r".{1,80}?".join(re.escape(p) for p in parts)
     return re.compile(rf"(?<![\w-]){body}(?![\w-])")
 
 
